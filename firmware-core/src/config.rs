@@ -1,0 +1,955 @@
+//! Board configuration: what the user writes ([`Config`]), what the
+//! controller runs on ([`ValidConfig`]), and every reason a configuration is
+//! refused ([`ConfigError`]).
+//!
+//! A [`ValidConfig`] can only be made by [`Config::validate`]; it holds the
+//! per-tick quantities derived once from the rates and delays, so the
+//! control tick never divides by the tick rate.
+
+use crate::fault::Fault;
+use crate::temp_table::{TempPoint, TempTable, TEMP_TABLE_LEN};
+use crate::units::{ms_to_ticks, per_tick, scale_counts, Fx, Gain};
+
+/// The complete board configuration, in engineering units.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Config {
+    /// Control tick rate in hertz (one `step` per tick).
+    pub tick_hz: u32,
+    /// Drive-current limits.
+    pub current: CurrentLimits,
+    /// Range of optical power setpoints accepted in APC.
+    pub power: PowerRange,
+    /// Soft start, soft stop, emission delay and setpoint ramps.
+    pub ramp: Ramps,
+    /// The automatic-power-control loop.
+    pub apc: ApcGains,
+    /// Temperature derating of the current ceiling.
+    pub derating: Derating,
+    /// Protection limits and debounce counts.
+    pub protection: Protection,
+    /// ADC and DAC calibration and the temperature-sensor table.
+    pub calibration: Calibration,
+}
+
+/// Drive-current limits.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct CurrentLimits {
+    /// Absolute maximum current of the diode (datasheet rating), mA.
+    pub absolute_max_ma: Fx,
+    /// Operating ceiling below the absolute maximum, mA. No path commands more.
+    pub ceiling_ma: Fx,
+}
+
+/// Accepted optical power setpoints, front-facet mW as calibrated on the monitor.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct PowerRange {
+    /// Lowest setpoint, mW.
+    pub min_setpoint_mw: Fx,
+    /// Highest setpoint, mW.
+    pub max_setpoint_mw: Fx,
+}
+
+/// Ramps and delays. Rates are per millisecond; the core converts them to
+/// per-tick steps once.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Ramps {
+    /// Delay between the enable request and the start of current, ms (may be 0).
+    pub emission_delay_ms: u32,
+    /// Soft-start current rate, mA/ms. Also bounds how fast the ceiling
+    /// envelope rises after the hand-over.
+    pub soft_start_ma_per_ms: Fx,
+    /// Soft-stop current rate, mA/ms.
+    pub soft_stop_ma_per_ms: Fx,
+    /// Fraction of the power setpoint at which soft start hands over to the
+    /// power loop, in (0, 1].
+    pub handover_fraction: Fx,
+    /// Power setpoint ramp, mW/ms.
+    pub setpoint_mw_per_ms: Fx,
+}
+
+/// Gains and slew limit of the discrete PI power loop and the ACC slew.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ApcGains {
+    /// Proportional gain, mA per mW of error.
+    pub kp_ma_per_mw: Fx,
+    /// Integral gain, mA per (mW × ms) of error.
+    pub ki_ma_per_mw_ms: Fx,
+    /// Output slew limit, mA/ms (APC and ACC).
+    pub slew_ma_per_ms: Fx,
+}
+
+/// Temperature derating: full ceiling below the knee, linear to the floor at
+/// the cut-off, over-temperature fault at and beyond the cut-off.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Derating {
+    /// Temperature where derating starts, degC.
+    pub knee_degc: Fx,
+    /// Temperature where the ceiling reaches the floor and over-temperature trips, degC.
+    pub cutoff_degc: Fx,
+    /// Ceiling at the cut-off, mA.
+    pub floor_ma: Fx,
+}
+
+/// Protection limits. A limit is the first value that trips; a debounce is
+/// the number of consecutive ticks the condition must hold (1 = at once).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Protection {
+    /// Overcurrent trip, mA (sensed).
+    pub overcurrent_ma: Fx,
+    /// Overcurrent debounce, ticks.
+    pub overcurrent_debounce: u16,
+    /// Monitor power runaway trip, mW.
+    pub runaway_mw: Fx,
+    /// Runaway debounce, ticks.
+    pub runaway_debounce: u16,
+    /// Monitor-loss floor: the monitor reading below which there is "no light", mW.
+    pub monitor_loss_floor_mw: Fx,
+    /// Monitor loss applies while the commanded drive is at or above this, mA
+    /// (set it near the ceiling, and above the hottest threshold current).
+    pub monitor_loss_drive_ma: Fx,
+    /// Monitor-loss debounce, ticks.
+    pub monitor_loss_debounce: u16,
+    /// Sensor open/short debounce, ticks.
+    pub sensor_debounce: u16,
+    /// Over-temperature debounce, ticks.
+    pub over_temp_debounce: u16,
+    /// Interlock debounce, ticks.
+    pub interlock_debounce: u16,
+    /// Supply window low end, mV.
+    pub supply_min_mv: Fx,
+    /// Supply window high end, mV.
+    pub supply_max_mv: Fx,
+    /// Supply debounce, ticks.
+    pub supply_debounce: u16,
+    /// Allowed difference between sensed current and the previous command, mA.
+    pub mismatch_tolerance_ma: Fx,
+    /// Mismatch debounce, ticks.
+    pub mismatch_debounce: u16,
+    /// Number of missing ticks (gap in the tick index) that trips.
+    pub missed_tick_limit: u16,
+}
+
+/// A linear ADC channel: `value = (counts - offset_counts) × units_per_count`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct AdcCal {
+    /// Reading at zero input, counts.
+    pub offset_counts: i32,
+    /// Engineering units per count (mW, mA or mV per count).
+    pub units_per_count: Gain,
+    /// Highest count the ADC returns (for example 4095 for 12 bits).
+    pub full_scale_counts: u16,
+}
+
+/// The DAC that sets the current source: `code = drive_ma × codes_per_ma + offset_codes`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct DacCal {
+    /// Codes per mA.
+    pub codes_per_ma: Fx,
+    /// Code at zero current.
+    pub offset_codes: i32,
+    /// Highest code (for example 4095 for 12 bits).
+    pub max_code: u16,
+}
+
+/// Which ADC rail an open temperature sensor reads.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Rail {
+    /// Open sensor reads at or above `high_fault_counts`.
+    High,
+    /// Open sensor reads at or below `low_fault_counts`.
+    Low,
+}
+
+/// The temperature sensor channel: a conversion table built on the host from
+/// the sensor's published equation, and the rails that mean open or short.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct TempCal {
+    /// Points sorted by strictly increasing counts; temperatures strictly
+    /// monotonic (rising or falling).
+    pub table: heapless::Vec<TempPoint, TEMP_TABLE_LEN>,
+    /// Counts at or below this are a sensor fault.
+    pub low_fault_counts: u16,
+    /// Counts at or above this are a sensor fault.
+    pub high_fault_counts: u16,
+    /// Which rail an open sensor goes to (the other is a short).
+    pub open_rail: Rail,
+}
+
+/// All calibration.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Calibration {
+    /// Monitor photodiode channel, in front-facet mW.
+    pub monitor: AdcCal,
+    /// Drive-current sense channel, mA.
+    pub current_sense: AdcCal,
+    /// Supply voltage channel, mV.
+    pub supply: AdcCal,
+    /// Current-source DAC.
+    pub dac: DacCal,
+    /// Temperature sensor.
+    pub temperature: TempCal,
+}
+
+/// Which ramp a [`ConfigError`] is about.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum RampKind {
+    /// `ramp.soft_start_ma_per_ms`.
+    SoftStart,
+    /// `ramp.soft_stop_ma_per_ms`.
+    SoftStop,
+    /// `ramp.setpoint_mw_per_ms`.
+    Setpoint,
+    /// `apc.slew_ma_per_ms`.
+    Slew,
+}
+
+/// Which ADC channel a [`ConfigError`] is about.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Channel {
+    /// Monitor photodiode.
+    Monitor,
+    /// Current sense.
+    CurrentSense,
+    /// Supply.
+    Supply,
+    /// The DAC.
+    Dac,
+}
+
+/// Why a [`Config`] was refused. Each variant carries the offending values.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum ConfigError {
+    /// `tick_hz` is zero.
+    TickRateZero,
+    /// `tick_hz` above the 1 MHz the per-tick arithmetic is sized for.
+    TickRateTooHigh {
+        /// Configured rate.
+        tick_hz: u32,
+    },
+    /// The absolute maximum current is zero or negative.
+    AbsoluteLimitNotPositive {
+        /// Configured value.
+        absolute_max_ma: Fx,
+    },
+    /// The ceiling is zero or negative.
+    CeilingNotPositive {
+        /// Configured value.
+        ceiling_ma: Fx,
+    },
+    /// The ceiling is above the absolute limit.
+    CeilingAboveAbsolute {
+        /// Configured ceiling.
+        ceiling_ma: Fx,
+        /// Configured absolute limit.
+        absolute_max_ma: Fx,
+    },
+    /// The overcurrent trip is not above the ceiling (it would trip in normal use).
+    OvercurrentNotAboveCeiling {
+        /// Configured trip.
+        overcurrent_ma: Fx,
+        /// Configured ceiling.
+        ceiling_ma: Fx,
+    },
+    /// The overcurrent trip is above the absolute limit.
+    OvercurrentAboveAbsolute {
+        /// Configured trip.
+        overcurrent_ma: Fx,
+        /// Configured absolute limit.
+        absolute_max_ma: Fx,
+    },
+    /// A ramp or slew rate is zero or negative.
+    RampRateNotPositive {
+        /// Which rate.
+        which: RampKind,
+        /// Configured rate per ms.
+        per_ms: Fx,
+    },
+    /// A ramp rate is so small it rounds to zero per tick.
+    RampRateBelowResolution {
+        /// Which rate.
+        which: RampKind,
+        /// Configured rate per ms.
+        per_ms: Fx,
+        /// Tick rate.
+        tick_hz: u32,
+    },
+    /// The emission delay does not fit in a 32-bit tick count.
+    EmissionDelayTooLong {
+        /// Configured delay.
+        emission_delay_ms: u32,
+    },
+    /// The hand-over fraction is not in (0, 1].
+    HandoverFractionOutOfRange {
+        /// Configured fraction.
+        fraction: Fx,
+    },
+    /// The power setpoint range is empty or negative.
+    PowerRangeInvalid {
+        /// Configured minimum.
+        min_setpoint_mw: Fx,
+        /// Configured maximum.
+        max_setpoint_mw: Fx,
+    },
+    /// The runaway trip is not above the highest setpoint.
+    RunawayNotAboveSetpointRange {
+        /// Configured trip.
+        runaway_mw: Fx,
+        /// Highest setpoint.
+        max_setpoint_mw: Fx,
+    },
+    /// The monitor-loss floor is not below the lowest setpoint's hand-over level.
+    MonitorLossFloorNotBelowSetpoints {
+        /// Configured floor.
+        floor_mw: Fx,
+        /// `handover_fraction × min_setpoint_mw`.
+        lowest_handover_mw: Fx,
+    },
+    /// The monitor-loss floor is negative.
+    MonitorLossFloorNegative {
+        /// Configured floor.
+        floor_mw: Fx,
+    },
+    /// The monitor-loss drive level is not positive or is above the ceiling
+    /// (the check could never apply).
+    MonitorLossDriveOutOfRange {
+        /// Configured level.
+        drive_ma: Fx,
+        /// Configured ceiling.
+        ceiling_ma: Fx,
+    },
+    /// The derating knee is not below the cut-off.
+    DeratingKneeNotBelowCutoff {
+        /// Configured knee.
+        knee_degc: Fx,
+        /// Configured cut-off.
+        cutoff_degc: Fx,
+    },
+    /// The derating floor is negative or above the ceiling.
+    DeratingFloorOutOfRange {
+        /// Configured floor.
+        floor_ma: Fx,
+        /// Configured ceiling.
+        ceiling_ma: Fx,
+    },
+    /// The temperature table has fewer than two points.
+    TempTableTooShort {
+        /// Points given.
+        len: usize,
+    },
+    /// Table counts do not strictly increase, or temperatures are not strictly
+    /// monotonic, at point `index`.
+    TempTableNotMonotonic {
+        /// Index of the first offending point.
+        index: usize,
+    },
+    /// The sensor fault rails are inverted or overlap the table.
+    SensorRailsInconsistent {
+        /// Configured low rail.
+        low_fault_counts: u16,
+        /// Configured high rail.
+        high_fault_counts: u16,
+    },
+    /// A debounce count is zero.
+    DebounceZero {
+        /// The protection.
+        fault: Fault,
+    },
+    /// `missed_tick_limit` is zero (every tick would trip).
+    MissedTickLimitZero,
+    /// A loop gain is negative (or the proportional gain is zero).
+    GainNotPositive {
+        /// `true` for the proportional gain, `false` for the integral gain.
+        proportional: bool,
+        /// Configured gain.
+        gain: Fx,
+    },
+    /// `kp × runaway_mw` does not fit the fixed-point range.
+    ProportionalGainOverflow {
+        /// Configured gain.
+        kp_ma_per_mw: Fx,
+        /// The error range it must handle.
+        runaway_mw: Fx,
+    },
+    /// The integral gain per tick does not fit (or rounds to zero).
+    IntegralGainOutOfRange {
+        /// Configured gain.
+        ki_ma_per_mw_ms: Fx,
+        /// Tick rate.
+        tick_hz: u32,
+    },
+    /// A calibration gain is zero or negative.
+    CalibrationGainNotPositive {
+        /// Channel.
+        channel: Channel,
+    },
+    /// A calibration offset lies outside the converter's range.
+    CalibrationOffsetOutOfRange {
+        /// Channel.
+        channel: Channel,
+        /// Configured offset.
+        offset: i32,
+        /// Full scale.
+        full_scale: u16,
+    },
+    /// The ceiling needs a DAC code above the DAC's maximum.
+    CeilingNotRepresentable {
+        /// Configured ceiling.
+        ceiling_ma: Fx,
+        /// Code it would need (saturated).
+        code: i32,
+        /// DAC maximum.
+        max_code: u16,
+    },
+    /// The runaway trip is above what the monitor channel can read.
+    RunawayBeyondMonitorRange {
+        /// Configured trip.
+        runaway_mw: Fx,
+        /// Monitor full-scale reading.
+        full_scale_mw: Fx,
+    },
+    /// The overcurrent trip is above what the current sense can read.
+    OvercurrentBeyondSenseRange {
+        /// Configured trip.
+        overcurrent_ma: Fx,
+        /// Current-sense full-scale reading.
+        full_scale_ma: Fx,
+    },
+    /// The supply window is empty or beyond the supply channel's range.
+    SupplyWindowInvalid {
+        /// Configured minimum.
+        supply_min_mv: Fx,
+        /// Configured maximum.
+        supply_max_mv: Fx,
+        /// Supply full-scale reading.
+        full_scale_mv: Fx,
+    },
+    /// The mismatch tolerance is zero or negative.
+    MismatchToleranceNotPositive {
+        /// Configured tolerance.
+        tolerance_ma: Fx,
+    },
+}
+
+impl core::fmt::Display for ConfigError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        use ConfigError::*;
+        match *self {
+            TickRateZero => write!(f, "tick rate is zero"),
+            TickRateTooHigh { tick_hz } => write!(f, "tick rate {tick_hz} Hz above 1 MHz"),
+            AbsoluteLimitNotPositive { absolute_max_ma } => {
+                write!(f, "absolute current limit {absolute_max_ma} mA is not positive")
+            }
+            CeilingNotPositive { ceiling_ma } => write!(f, "ceiling {ceiling_ma} mA is not positive"),
+            CeilingAboveAbsolute { ceiling_ma, absolute_max_ma } => {
+                write!(f, "ceiling {ceiling_ma} mA above absolute limit {absolute_max_ma} mA")
+            }
+            OvercurrentNotAboveCeiling { overcurrent_ma, ceiling_ma } => {
+                write!(f, "overcurrent trip {overcurrent_ma} mA not above ceiling {ceiling_ma} mA")
+            }
+            OvercurrentAboveAbsolute { overcurrent_ma, absolute_max_ma } => write!(
+                f,
+                "overcurrent trip {overcurrent_ma} mA above absolute limit {absolute_max_ma} mA"
+            ),
+            RampRateNotPositive { which, per_ms } => {
+                write!(f, "{which:?} rate {per_ms}/ms is not positive")
+            }
+            RampRateBelowResolution { which, per_ms, tick_hz } => {
+                write!(f, "{which:?} rate {per_ms}/ms rounds to zero per tick at {tick_hz} Hz")
+            }
+            EmissionDelayTooLong { emission_delay_ms } => {
+                write!(f, "emission delay {emission_delay_ms} ms overflows the tick count")
+            }
+            HandoverFractionOutOfRange { fraction } => {
+                write!(f, "hand-over fraction {fraction} not in (0, 1]")
+            }
+            PowerRangeInvalid { min_setpoint_mw, max_setpoint_mw } => write!(
+                f,
+                "power setpoint range {min_setpoint_mw}..{max_setpoint_mw} mW is empty or negative"
+            ),
+            RunawayNotAboveSetpointRange { runaway_mw, max_setpoint_mw } => write!(
+                f,
+                "runaway trip {runaway_mw} mW not above the highest setpoint {max_setpoint_mw} mW"
+            ),
+            MonitorLossFloorNotBelowSetpoints { floor_mw, lowest_handover_mw } => write!(
+                f,
+                "monitor-loss floor {floor_mw} mW not below the lowest hand-over level {lowest_handover_mw} mW"
+            ),
+            MonitorLossFloorNegative { floor_mw } => {
+                write!(f, "monitor-loss floor {floor_mw} mW is negative")
+            }
+            MonitorLossDriveOutOfRange { drive_ma, ceiling_ma } => write!(
+                f,
+                "monitor-loss drive level {drive_ma} mA not in (0, ceiling {ceiling_ma} mA]"
+            ),
+            DeratingKneeNotBelowCutoff { knee_degc, cutoff_degc } => write!(
+                f,
+                "derating knee {knee_degc} degC not below cut-off {cutoff_degc} degC"
+            ),
+            DeratingFloorOutOfRange { floor_ma, ceiling_ma } => {
+                write!(f, "derating floor {floor_ma} mA not in [0, ceiling {ceiling_ma} mA]")
+            }
+            TempTableTooShort { len } => write!(f, "temperature table has {len} points, needs 2"),
+            TempTableNotMonotonic { index } => {
+                write!(f, "temperature table not strictly monotonic at point {index}")
+            }
+            SensorRailsInconsistent { low_fault_counts, high_fault_counts } => write!(
+                f,
+                "sensor fault rails {low_fault_counts}/{high_fault_counts} counts inverted or inside the table"
+            ),
+            DebounceZero { fault } => write!(f, "debounce of {fault} is zero"),
+            MissedTickLimitZero => write!(f, "missed-tick limit is zero"),
+            GainNotPositive { proportional, gain } => write!(
+                f,
+                "{} gain {gain} is not positive",
+                if proportional { "proportional" } else { "integral" }
+            ),
+            ProportionalGainOverflow { kp_ma_per_mw, runaway_mw } => write!(
+                f,
+                "kp {kp_ma_per_mw} mA/mW times {runaway_mw} mW overflows the fixed-point range"
+            ),
+            IntegralGainOutOfRange { ki_ma_per_mw_ms, tick_hz } => write!(
+                f,
+                "ki {ki_ma_per_mw_ms} mA/(mW ms) at {tick_hz} Hz does not fit the per-tick gain"
+            ),
+            CalibrationGainNotPositive { channel } => {
+                write!(f, "{channel:?} calibration gain is not positive")
+            }
+            CalibrationOffsetOutOfRange { channel, offset, full_scale } => write!(
+                f,
+                "{channel:?} calibration offset {offset} outside 0..={full_scale}"
+            ),
+            CeilingNotRepresentable { ceiling_ma, code, max_code } => write!(
+                f,
+                "ceiling {ceiling_ma} mA needs DAC code {code} above {max_code}"
+            ),
+            RunawayBeyondMonitorRange { runaway_mw, full_scale_mw } => write!(
+                f,
+                "runaway trip {runaway_mw} mW beyond the monitor full scale {full_scale_mw} mW"
+            ),
+            OvercurrentBeyondSenseRange { overcurrent_ma, full_scale_ma } => write!(
+                f,
+                "overcurrent trip {overcurrent_ma} mA beyond the sense full scale {full_scale_ma} mA"
+            ),
+            SupplyWindowInvalid { supply_min_mv, supply_max_mv, full_scale_mv } => write!(
+                f,
+                "supply window {supply_min_mv}..{supply_max_mv} mV empty or beyond full scale {full_scale_mv} mV"
+            ),
+            MismatchToleranceNotPositive { tolerance_ma } => {
+                write!(f, "mismatch tolerance {tolerance_ma} mA is not positive")
+            }
+        }
+    }
+}
+
+impl core::error::Error for ConfigError {}
+
+/// A configuration that passed [`Config::validate`], with per-tick values
+/// derived from it. Cannot be built any other way.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ValidConfig {
+    cfg: Config,
+    pub(crate) t: PerTick,
+    pub(crate) table: TempTable,
+}
+
+/// Quantities per tick, derived once.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub(crate) struct PerTick {
+    pub soft_start_ma: Fx,
+    pub soft_stop_ma: Fx,
+    pub slew_ma: Fx,
+    pub setpoint_mw: Fx,
+    pub emission_delay: u32,
+    pub ki: Gain,
+}
+
+const MAX_TICK_HZ: u32 = 1_000_000;
+
+fn positive_rate(which: RampKind, per_ms: Fx, tick_hz: u32) -> Result<Fx, ConfigError> {
+    if per_ms <= Fx::ZERO {
+        return Err(ConfigError::RampRateNotPositive { which, per_ms });
+    }
+    match per_tick(per_ms, tick_hz) {
+        Some(v) if v > Fx::ZERO => Ok(v),
+        _ => Err(ConfigError::RampRateBelowResolution {
+            which,
+            per_ms,
+            tick_hz,
+        }),
+    }
+}
+
+fn check_adc(channel: Channel, cal: &AdcCal) -> Result<Fx, ConfigError> {
+    if cal.units_per_count <= Gain::ZERO {
+        return Err(ConfigError::CalibrationGainNotPositive { channel });
+    }
+    if cal.offset_counts < 0 || cal.offset_counts >= i32::from(cal.full_scale_counts) {
+        return Err(ConfigError::CalibrationOffsetOutOfRange {
+            channel,
+            offset: cal.offset_counts,
+            full_scale: cal.full_scale_counts,
+        });
+    }
+    Ok(scale_counts(
+        i32::from(cal.full_scale_counts) - cal.offset_counts,
+        cal.units_per_count,
+    ))
+}
+
+impl Config {
+    /// Check every field and the relations between them; derive the
+    /// per-tick quantities. The first problem found is returned.
+    pub fn validate(self) -> Result<ValidConfig, ConfigError> {
+        use ConfigError as E;
+        let c = &self;
+        // Tick rate.
+        if c.tick_hz == 0 {
+            return Err(E::TickRateZero);
+        }
+        if c.tick_hz > MAX_TICK_HZ {
+            return Err(E::TickRateTooHigh { tick_hz: c.tick_hz });
+        }
+        // Current limits.
+        let cur = c.current;
+        if cur.absolute_max_ma <= Fx::ZERO {
+            return Err(E::AbsoluteLimitNotPositive {
+                absolute_max_ma: cur.absolute_max_ma,
+            });
+        }
+        if cur.ceiling_ma <= Fx::ZERO {
+            return Err(E::CeilingNotPositive {
+                ceiling_ma: cur.ceiling_ma,
+            });
+        }
+        if cur.ceiling_ma > cur.absolute_max_ma {
+            return Err(E::CeilingAboveAbsolute {
+                ceiling_ma: cur.ceiling_ma,
+                absolute_max_ma: cur.absolute_max_ma,
+            });
+        }
+        let p = c.protection;
+        if p.overcurrent_ma <= cur.ceiling_ma {
+            return Err(E::OvercurrentNotAboveCeiling {
+                overcurrent_ma: p.overcurrent_ma,
+                ceiling_ma: cur.ceiling_ma,
+            });
+        }
+        if p.overcurrent_ma > cur.absolute_max_ma {
+            return Err(E::OvercurrentAboveAbsolute {
+                overcurrent_ma: p.overcurrent_ma,
+                absolute_max_ma: cur.absolute_max_ma,
+            });
+        }
+        // Ramps.
+        let r = c.ramp;
+        let soft_start_ma = positive_rate(RampKind::SoftStart, r.soft_start_ma_per_ms, c.tick_hz)?;
+        let soft_stop_ma = positive_rate(RampKind::SoftStop, r.soft_stop_ma_per_ms, c.tick_hz)?;
+        let setpoint_mw = positive_rate(RampKind::Setpoint, r.setpoint_mw_per_ms, c.tick_hz)?;
+        let slew_ma = positive_rate(RampKind::Slew, c.apc.slew_ma_per_ms, c.tick_hz)?;
+        let emission_delay =
+            ms_to_ticks(r.emission_delay_ms, c.tick_hz).ok_or(E::EmissionDelayTooLong {
+                emission_delay_ms: r.emission_delay_ms,
+            })?;
+        if r.handover_fraction <= Fx::ZERO || r.handover_fraction > Fx::ONE {
+            return Err(E::HandoverFractionOutOfRange {
+                fraction: r.handover_fraction,
+            });
+        }
+        // Power range and the monitor checks that depend on it.
+        let pw = c.power;
+        if pw.min_setpoint_mw <= Fx::ZERO || pw.min_setpoint_mw > pw.max_setpoint_mw {
+            return Err(E::PowerRangeInvalid {
+                min_setpoint_mw: pw.min_setpoint_mw,
+                max_setpoint_mw: pw.max_setpoint_mw,
+            });
+        }
+        if p.runaway_mw <= pw.max_setpoint_mw {
+            return Err(E::RunawayNotAboveSetpointRange {
+                runaway_mw: p.runaway_mw,
+                max_setpoint_mw: pw.max_setpoint_mw,
+            });
+        }
+        if p.monitor_loss_floor_mw < Fx::ZERO {
+            return Err(E::MonitorLossFloorNegative {
+                floor_mw: p.monitor_loss_floor_mw,
+            });
+        }
+        let lowest_handover_mw = pw.min_setpoint_mw.saturating_mul(r.handover_fraction);
+        if p.monitor_loss_floor_mw >= lowest_handover_mw {
+            return Err(E::MonitorLossFloorNotBelowSetpoints {
+                floor_mw: p.monitor_loss_floor_mw,
+                lowest_handover_mw,
+            });
+        }
+        if p.monitor_loss_drive_ma <= Fx::ZERO || p.monitor_loss_drive_ma > cur.ceiling_ma {
+            return Err(E::MonitorLossDriveOutOfRange {
+                drive_ma: p.monitor_loss_drive_ma,
+                ceiling_ma: cur.ceiling_ma,
+            });
+        }
+        // Derating.
+        let d = c.derating;
+        if d.knee_degc >= d.cutoff_degc {
+            return Err(E::DeratingKneeNotBelowCutoff {
+                knee_degc: d.knee_degc,
+                cutoff_degc: d.cutoff_degc,
+            });
+        }
+        if d.floor_ma < Fx::ZERO || d.floor_ma > cur.ceiling_ma {
+            return Err(E::DeratingFloorOutOfRange {
+                floor_ma: d.floor_ma,
+                ceiling_ma: cur.ceiling_ma,
+            });
+        }
+        // Debounces.
+        for (fault, n) in [
+            (Fault::Overcurrent, p.overcurrent_debounce),
+            (Fault::MonitorRunaway, p.runaway_debounce),
+            (Fault::MonitorLoss, p.monitor_loss_debounce),
+            (Fault::SensorOpen, p.sensor_debounce),
+            (Fault::OverTemperature, p.over_temp_debounce),
+            (Fault::InterlockOpen, p.interlock_debounce),
+            (Fault::SupplyUnder, p.supply_debounce),
+            (Fault::DriveMismatch, p.mismatch_debounce),
+        ] {
+            if n == 0 {
+                return Err(E::DebounceZero { fault });
+            }
+        }
+        if p.missed_tick_limit == 0 {
+            return Err(E::MissedTickLimitZero);
+        }
+        if p.mismatch_tolerance_ma <= Fx::ZERO {
+            return Err(E::MismatchToleranceNotPositive {
+                tolerance_ma: p.mismatch_tolerance_ma,
+            });
+        }
+        // Loop gains.
+        let g = c.apc;
+        if g.kp_ma_per_mw <= Fx::ZERO {
+            return Err(E::GainNotPositive {
+                proportional: true,
+                gain: g.kp_ma_per_mw,
+            });
+        }
+        if g.ki_ma_per_mw_ms < Fx::ZERO {
+            return Err(E::GainNotPositive {
+                proportional: false,
+                gain: g.ki_ma_per_mw_ms,
+            });
+        }
+        if g.kp_ma_per_mw.checked_mul(p.runaway_mw).is_none() {
+            return Err(E::ProportionalGainOverflow {
+                kp_ma_per_mw: g.kp_ma_per_mw,
+                runaway_mw: p.runaway_mw,
+            });
+        }
+        let ki = ki_per_tick(g.ki_ma_per_mw_ms, c.tick_hz).ok_or(E::IntegralGainOutOfRange {
+            ki_ma_per_mw_ms: g.ki_ma_per_mw_ms,
+            tick_hz: c.tick_hz,
+        })?;
+        // Calibration.
+        let cal = &c.calibration;
+        let monitor_fs = check_adc(Channel::Monitor, &cal.monitor)?;
+        let sense_fs = check_adc(Channel::CurrentSense, &cal.current_sense)?;
+        let supply_fs = check_adc(Channel::Supply, &cal.supply)?;
+        if p.runaway_mw > monitor_fs {
+            return Err(E::RunawayBeyondMonitorRange {
+                runaway_mw: p.runaway_mw,
+                full_scale_mw: monitor_fs,
+            });
+        }
+        if p.overcurrent_ma > sense_fs {
+            return Err(E::OvercurrentBeyondSenseRange {
+                overcurrent_ma: p.overcurrent_ma,
+                full_scale_ma: sense_fs,
+            });
+        }
+        if p.supply_min_mv >= p.supply_max_mv
+            || p.supply_min_mv < Fx::ZERO
+            || p.supply_max_mv > supply_fs
+        {
+            return Err(E::SupplyWindowInvalid {
+                supply_min_mv: p.supply_min_mv,
+                supply_max_mv: p.supply_max_mv,
+                full_scale_mv: supply_fs,
+            });
+        }
+        let dac = cal.dac;
+        if dac.codes_per_ma <= Fx::ZERO {
+            return Err(E::CalibrationGainNotPositive {
+                channel: Channel::Dac,
+            });
+        }
+        if dac.offset_codes < 0 || dac.offset_codes >= i32::from(dac.max_code) {
+            return Err(E::CalibrationOffsetOutOfRange {
+                channel: Channel::Dac,
+                offset: dac.offset_codes,
+                full_scale: dac.max_code,
+            });
+        }
+        let ceiling_code = dac_code_unclamped(&dac, cur.ceiling_ma);
+        if ceiling_code > i64::from(dac.max_code) {
+            return Err(E::CeilingNotRepresentable {
+                ceiling_ma: cur.ceiling_ma,
+                code: crate::units::sat_i32(ceiling_code),
+                max_code: dac.max_code,
+            });
+        }
+        // Temperature table.
+        let tc = &cal.temperature;
+        let table = TempTable::new(&tc.table)?;
+        if tc.low_fault_counts >= tc.high_fault_counts
+            || tc.low_fault_counts >= table.first_counts()
+            || tc.high_fault_counts <= table.last_counts()
+        {
+            return Err(E::SensorRailsInconsistent {
+                low_fault_counts: tc.low_fault_counts,
+                high_fault_counts: tc.high_fault_counts,
+            });
+        }
+        Ok(ValidConfig {
+            t: PerTick {
+                soft_start_ma,
+                soft_stop_ma,
+                slew_ma,
+                setpoint_mw,
+                emission_delay,
+                ki,
+            },
+            table,
+            cfg: self,
+        })
+    }
+}
+
+/// Integral gain per tick: `ki_ms × 1000 / tick_hz`, as a [`Gain`].
+fn ki_per_tick(ki_ma_per_mw_ms: Fx, tick_hz: u32) -> Option<Gain> {
+    if tick_hz == 0 {
+        return None;
+    }
+    // Fx has 16 fractional bits, Gain 24: shift up by 8 first.
+    let bits = (ki_ma_per_mw_ms.to_bits() as i64).checked_mul(1000 << 8)? / tick_hz as i64;
+    let g = Gain::from_bits(i32::try_from(bits).ok()?);
+    if ki_ma_per_mw_ms > Fx::ZERO && g == Gain::ZERO {
+        return None;
+    }
+    Some(g)
+}
+
+/// The DAC code for a current without clamping, in i64.
+pub(crate) fn dac_code_unclamped(dac: &DacCal, ma: Fx) -> i64 {
+    // Fx × Fx = 32 fractional bits; round to nearest.
+    let wide = (ma.to_bits() as i64) * (dac.codes_per_ma.to_bits() as i64);
+    ((wide + (1 << 31)) >> 32) + i64::from(dac.offset_codes)
+}
+
+impl ValidConfig {
+    /// The configuration as given.
+    pub fn config(&self) -> &Config {
+        &self.cfg
+    }
+
+    /// Proportional gain of the power loop, mA/mW, exactly as the core uses it.
+    pub fn kp(&self) -> Fx {
+        self.cfg.apc.kp_ma_per_mw
+    }
+
+    /// Integral gain per tick, mA/mW, exactly as the core uses it. The loop
+    /// is `u[n] = kp·e[n] + I[n]`, `I[n] = I[n-1] + ki·e[n]`, i.e.
+    /// `C(z) = kp + ki·z/(z-1)`.
+    pub fn ki_per_tick(&self) -> Gain {
+        self.t.ki
+    }
+
+    /// Soft-start step per tick, mA.
+    pub fn soft_start_ma_per_tick(&self) -> Fx {
+        self.t.soft_start_ma
+    }
+
+    /// Soft-stop step per tick, mA.
+    pub fn soft_stop_ma_per_tick(&self) -> Fx {
+        self.t.soft_stop_ma
+    }
+
+    /// Output slew limit per tick, mA.
+    pub fn slew_ma_per_tick(&self) -> Fx {
+        self.t.slew_ma
+    }
+
+    /// Setpoint ramp per tick, mW.
+    pub fn setpoint_mw_per_tick(&self) -> Fx {
+        self.t.setpoint_mw
+    }
+
+    /// Emission delay in ticks.
+    pub fn emission_delay_ticks(&self) -> u32 {
+        self.t.emission_delay
+    }
+
+    /// The temperature conversion the core uses: counts to degC.
+    pub fn counts_to_degc(&self, counts: u16) -> Fx {
+        self.table.degc(counts)
+    }
+
+    /// The DAC code the core would send for a current (clamped to the DAC range).
+    pub fn dac_code(&self, ma: Fx) -> u16 {
+        let code = dac_code_unclamped(&self.cfg.calibration.dac, ma);
+        code.clamp(0, i64::from(self.cfg.calibration.dac.max_code)) as u16
+    }
+
+    /// Temperature-derated current ceiling at `degc`, mA: the configured
+    /// ceiling below the knee, linear to the floor at the cut-off, the floor
+    /// beyond. (The absolute limit is always above it.)
+    pub fn derated_ceiling_ma(&self, degc: Fx) -> Fx {
+        let d = &self.cfg.derating;
+        let top = self.cfg.current.ceiling_ma;
+        if degc <= d.knee_degc {
+            return top;
+        }
+        if degc >= d.cutoff_degc {
+            return d.floor_ma;
+        }
+        // top - (top - floor) × (T - knee) / (cutoff - knee), in i64.
+        let span = (top.to_bits() as i64) - (d.floor_ma.to_bits() as i64);
+        let num = (degc.to_bits() as i64) - (d.knee_degc.to_bits() as i64);
+        let den = (d.cutoff_degc.to_bits() as i64) - (d.knee_degc.to_bits() as i64);
+        let drop = if den > 0 { span * num / den } else { span };
+        Fx::from_bits(crate::units::sat_i32(top.to_bits() as i64 - drop))
+    }
+
+    /// Monitor reading in mW for raw counts.
+    pub fn monitor_mw(&self, counts: u16) -> Fx {
+        let c = &self.cfg.calibration.monitor;
+        scale_counts(i32::from(counts) - c.offset_counts, c.units_per_count)
+    }
+
+    /// Sensed current in mA for raw counts.
+    pub fn current_ma(&self, counts: u16) -> Fx {
+        let c = &self.cfg.calibration.current_sense;
+        scale_counts(i32::from(counts) - c.offset_counts, c.units_per_count)
+    }
+
+    /// Supply in mV for raw counts.
+    pub fn supply_mv(&self, counts: u16) -> Fx {
+        let c = &self.cfg.calibration.supply;
+        scale_counts(i32::from(counts) - c.offset_counts, c.units_per_count)
+    }
+}

@@ -1,0 +1,421 @@
+//! The controller: the state machine and the per-tick sequence.
+//!
+//! ```text
+//! Off --Enable--> Arming --delay--> Ramping --hand-over--> Regulating
+//!  ^                 |                 |                       |
+//!  |              Disable           Disable                 Disable
+//!  |                 v                 v                       v
+//!  +-----------------+<----- 0 mA --- Stopping <---------------+
+//! any state --fault--> Latched --ClearFaults (no condition present)--> Off
+//! ```
+//!
+//! Each [`Controller::step`]:
+//! 1. calibrates the sample and measures the tick gap;
+//! 2. computes the ceiling: min(configured ceiling, derated ceiling, ramp envelope);
+//!    with the temperature sensor at a rail the derated ceiling is the floor;
+//! 3. evaluates every protection ([`crate::protect`]); a trip latches and the
+//!    returned [`Drive`] of this same call has enable low and DAC zero;
+//! 4. otherwise runs the state: soft start, APC ([`crate::apc`]) or ACC, soft stop.
+
+use crate::apc::{Limits, PowerLoop};
+use crate::config::ValidConfig;
+use crate::fault::{FaultLog, FaultSet};
+use crate::io::{Drive, Mode, Sample, State, Status, Warnings};
+use crate::protect::{Measurements, Protections};
+use crate::request::{Rejection, Request};
+use crate::units::{clamp_fx, Fx};
+
+/// The laser-diode controller. Create it from a [`ValidConfig`], call
+/// [`Controller::step`] once per tick and [`Controller::request`] whenever
+/// the user asks for something.
+#[derive(Clone, Debug)]
+pub struct Controller {
+    cfg: ValidConfig,
+    state: State,
+    mode: Mode,
+    requested_mode: Mode,
+    power_target_mw: Fx,
+    power_sp_mw: Fx,
+    current_target_ma: Fx,
+    drive_ma: Fx,
+    envelope_ma: Fx,
+    ceiling_ma: Fx,
+    arming_left: u32,
+    pi: PowerLoop,
+    prot: Protections,
+    active: FaultSet,
+    present: FaultSet,
+    log: FaultLog,
+    last_tick: Option<u32>,
+    meas: Measurements,
+    warnings: Warnings,
+}
+
+impl Controller {
+    /// A controller in Off, APC mode, with the lowest power setpoint and a
+    /// zero current setpoint.
+    pub fn new(cfg: ValidConfig) -> Self {
+        let min_mw = cfg.config().power.min_setpoint_mw;
+        Controller {
+            cfg,
+            state: State::Off,
+            mode: Mode::Apc,
+            requested_mode: Mode::Apc,
+            power_target_mw: min_mw,
+            power_sp_mw: Fx::ZERO,
+            current_target_ma: Fx::ZERO,
+            drive_ma: Fx::ZERO,
+            envelope_ma: Fx::ZERO,
+            ceiling_ma: Fx::ZERO,
+            arming_left: 0,
+            pi: PowerLoop::default(),
+            prot: Protections::default(),
+            active: FaultSet::EMPTY,
+            present: FaultSet::EMPTY,
+            log: FaultLog::new(),
+            last_tick: None,
+            meas: Measurements::default(),
+            warnings: Warnings::default(),
+        }
+    }
+
+    /// Handle a user request; accepted requests take effect at the next tick.
+    pub fn request(&mut self, req: Request) -> Result<(), Rejection> {
+        let c = self.cfg.config();
+        match req {
+            Request::Enable => {
+                if self.state != State::Off {
+                    return Err(Rejection::NotAllowed { state: self.state });
+                }
+                if self.last_tick.is_none() {
+                    return Err(Rejection::NoSampleYet);
+                }
+                if let Some(fault) = self.present.first() {
+                    return Err(Rejection::ConditionPresent { fault });
+                }
+                self.state = State::Arming;
+                self.arming_left = self.cfg.emission_delay_ticks();
+                Ok(())
+            }
+            Request::Disable => {
+                match self.state {
+                    State::Arming => self.state = State::Off,
+                    State::Ramping | State::Regulating => self.state = State::Stopping,
+                    State::Off | State::Stopping | State::Latched => {}
+                }
+                Ok(())
+            }
+            Request::SetPowerMw(mw) => {
+                let (min, max) = (c.power.min_setpoint_mw, c.power.max_setpoint_mw);
+                if mw < min || mw > max {
+                    return Err(Rejection::OutOfRange {
+                        requested: mw,
+                        min,
+                        max,
+                    });
+                }
+                self.power_target_mw = mw;
+                Ok(())
+            }
+            Request::SetCurrentMa(ma) => {
+                let max = c.current.ceiling_ma;
+                if ma < Fx::ZERO || ma > max {
+                    return Err(Rejection::OutOfRange {
+                        requested: ma,
+                        min: Fx::ZERO,
+                        max,
+                    });
+                }
+                self.current_target_ma = ma;
+                Ok(())
+            }
+            Request::SetMode(mode) => {
+                self.requested_mode = mode;
+                Ok(())
+            }
+            Request::ClearFaults => {
+                if self.state != State::Latched {
+                    return Err(Rejection::NotAllowed { state: self.state });
+                }
+                if let Some(fault) = self.present.first() {
+                    return Err(Rejection::ConditionPresent { fault });
+                }
+                self.state = State::Off;
+                self.active = FaultSet::EMPTY;
+                self.prot.reset();
+                self.drive_ma = Fx::ZERO;
+                self.envelope_ma = Fx::ZERO;
+                Ok(())
+            }
+        }
+    }
+
+    /// Run one control tick on one sample. Bounded work, never panics.
+    pub fn step(&mut self, s: &Sample) -> Drive {
+        // 1. Measurements and the tick gap.
+        let missed = match self.last_tick {
+            Some(last) => s.tick.wrapping_sub(last).saturating_sub(1),
+            None => 0,
+        };
+        self.last_tick = Some(s.tick);
+        let m = Measurements::from_sample(&self.cfg, s, missed);
+        self.meas = m;
+
+        // 2. Static ceiling (configured and derated).
+        let c = self.cfg.config();
+        let derated = if m.sensor_at_rail {
+            c.derating.floor_ma
+        } else {
+            self.cfg.derated_ceiling_ma(m.temp_degc)
+        };
+        let static_ceiling = derated.min(c.current.ceiling_ma);
+        self.warnings = Warnings {
+            derating: !m.sensor_at_rail && m.temp_degc > c.derating.knee_degc,
+            at_ceiling: false,
+            sensor_suspect: m.sensor_at_rail,
+        };
+
+        // 3. Protections, on the command that produced this sample.
+        let last_cmd = if self.state.is_emitting() {
+            self.drive_ma
+        } else {
+            Fx::ZERO
+        };
+        let log = &mut self.log;
+        let verdict = self.prot.check(
+            &self.cfg,
+            &m,
+            s.tick,
+            last_cmd,
+            self.state,
+            self.active,
+            |r| log.record(r),
+        );
+        self.present = verdict.present;
+        if !verdict.tripped.is_empty() {
+            for f in verdict.tripped.iter() {
+                self.active.insert(f);
+            }
+            self.state = State::Latched;
+        }
+
+        // 4. The state.
+        self.apply_mode_change(&m);
+        let drive = match self.state {
+            State::Off | State::Latched => {
+                self.envelope_ma = Fx::ZERO;
+                Fx::ZERO
+            }
+            State::Arming => {
+                if self.arming_left == 0 {
+                    self.state = State::Ramping;
+                    self.envelope_ma = Fx::ZERO;
+                    self.ramp(&m, static_ceiling)
+                } else {
+                    self.arming_left -= 1;
+                    Fx::ZERO
+                }
+            }
+            State::Ramping => self.ramp(&m, static_ceiling),
+            State::Regulating => self.regulate(&m, static_ceiling),
+            State::Stopping => {
+                let d = self
+                    .drive_ma
+                    .saturating_sub(self.cfg.soft_stop_ma_per_tick())
+                    .max(Fx::ZERO)
+                    .min(static_ceiling);
+                self.envelope_ma = d;
+                self.ceiling_ma = d;
+                if d == Fx::ZERO {
+                    self.state = State::Off;
+                }
+                d
+            }
+        };
+        if !self.state.is_emitting() {
+            self.ceiling_ma = Fx::ZERO;
+        }
+        self.drive_ma = clamp_fx(drive, Fx::ZERO, self.ceiling_ma);
+        let enable = self.state.is_emitting();
+        Drive {
+            dac_code: if enable {
+                self.cfg.dac_code(self.drive_ma)
+            } else {
+                0
+            },
+            enable,
+            status: self.status(),
+        }
+    }
+
+    fn apply_mode_change(&mut self, m: &Measurements) {
+        if self.requested_mode == self.mode {
+            return;
+        }
+        if self.state == State::Regulating && self.requested_mode == Mode::Apc {
+            // Bumpless ACC -> APC: start the power setpoint at the measured
+            // power and the integrator at the present drive.
+            self.power_sp_mw = clamp_fx(m.monitor_mw, Fx::ZERO, self.power_target_mw);
+            self.pi.preset(self.drive_ma);
+        }
+        // APC -> ACC needs nothing: the drive slews from where it is.
+        self.mode = self.requested_mode;
+    }
+
+    /// Soft start in current mode.
+    fn ramp(&mut self, m: &Measurements, static_ceiling: Fx) -> Fx {
+        let c = self.cfg.config();
+        let handover_mw = self
+            .power_target_mw
+            .saturating_mul(c.ramp.handover_fraction);
+        match self.mode {
+            Mode::Apc if m.monitor_mw >= handover_mw => {
+                // Hand over at the present drive: the power setpoint ramps
+                // on from the measured power.
+                self.state = State::Regulating;
+                self.power_sp_mw = clamp_fx(m.monitor_mw, Fx::ZERO, self.power_target_mw);
+                self.pi.preset(self.drive_ma);
+                self.ceiling_ma = self.envelope_ma.min(static_ceiling);
+                return self.drive_ma;
+            }
+            _ => {}
+        }
+        let env = self
+            .envelope_ma
+            .saturating_add(self.cfg.soft_start_ma_per_tick());
+        let target = match self.mode {
+            Mode::Apc => static_ceiling,
+            Mode::Acc => self.current_target_ma.min(static_ceiling),
+        };
+        let d = env.min(target);
+        self.envelope_ma = env.min(c.current.ceiling_ma);
+        self.ceiling_ma = self.envelope_ma.min(static_ceiling);
+        if d >= target {
+            // Reached the ceiling (APC without enough light) or the ACC
+            // setpoint: regulate from here; monitor loss covers "no light".
+            self.state = State::Regulating;
+            self.pi.preset(d);
+            self.power_sp_mw = clamp_fx(m.monitor_mw, Fx::ZERO, self.power_target_mw);
+        }
+        d
+    }
+
+    /// Closed-loop regulation, APC or ACC.
+    fn regulate(&mut self, m: &Measurements, static_ceiling: Fx) -> Fx {
+        let c = self.cfg.config();
+        self.envelope_ma = self
+            .envelope_ma
+            .saturating_add(self.cfg.soft_start_ma_per_tick())
+            .min(c.current.ceiling_ma);
+        let ceiling = self.envelope_ma.min(static_ceiling);
+        self.ceiling_ma = ceiling;
+        let slew = self.cfg.slew_ma_per_tick();
+        let d = match self.mode {
+            Mode::Apc => {
+                self.power_sp_mw = toward(
+                    self.power_sp_mw,
+                    self.power_target_mw,
+                    self.cfg.setpoint_mw_per_tick(),
+                );
+                self.pi.step(
+                    self.cfg.kp(),
+                    self.cfg.ki_per_tick(),
+                    self.power_sp_mw,
+                    m.monitor_mw,
+                    Limits {
+                        prev_ma: self.drive_ma,
+                        slew_ma: slew,
+                        ceiling_ma: ceiling,
+                    },
+                )
+            }
+            Mode::Acc => toward(self.drive_ma, self.current_target_ma, slew).min(ceiling),
+        };
+        self.warnings.at_ceiling = d >= ceiling;
+        d
+    }
+
+    /// The configuration in force.
+    pub fn config(&self) -> &ValidConfig {
+        &self.cfg
+    }
+
+    /// Present state.
+    pub fn state(&self) -> State {
+        self.state
+    }
+
+    /// Mode in force.
+    pub fn mode(&self) -> Mode {
+        self.mode
+    }
+
+    /// Compact status, as returned in the last [`Drive`].
+    pub fn status(&self) -> Status {
+        Status {
+            state: self.state,
+            mode: self.mode,
+            faults: self.active,
+            warnings: self.warnings,
+        }
+    }
+
+    /// Latched faults.
+    pub fn faults(&self) -> FaultSet {
+        self.active
+    }
+
+    /// Fault conditions present in the latest sample (before debounce).
+    pub fn conditions(&self) -> FaultSet {
+        self.present
+    }
+
+    /// The fault log.
+    pub fn fault_log(&self) -> &FaultLog {
+        &self.log
+    }
+
+    /// Calibrated measurements of the latest sample.
+    pub fn measurements(&self) -> &Measurements {
+        &self.meas
+    }
+
+    /// Current commanded in the latest tick, mA.
+    pub fn drive_ma(&self) -> Fx {
+        self.drive_ma
+    }
+
+    /// The ceiling in force in the latest tick, mA (zero when not emitting).
+    pub fn ceiling_ma(&self) -> Fx {
+        self.ceiling_ma
+    }
+
+    /// The requested power setpoint, mW.
+    pub fn power_target_mw(&self) -> Fx {
+        self.power_target_mw
+    }
+
+    /// The ramped power setpoint the loop follows now, mW.
+    pub fn power_setpoint_mw(&self) -> Fx {
+        self.power_sp_mw
+    }
+
+    /// The requested current setpoint, mA.
+    pub fn current_target_ma(&self) -> Fx {
+        self.current_target_ma
+    }
+
+    /// The power-loop integrator, mA.
+    pub fn integrator_ma(&self) -> Fx {
+        self.pi.integrator_ma()
+    }
+}
+
+/// Move `from` toward `to` by at most `step`.
+fn toward(from: Fx, to: Fx, step: Fx) -> Fx {
+    if from < to {
+        from.saturating_add(step).min(to)
+    } else {
+        from.saturating_sub(step).max(to)
+    }
+}

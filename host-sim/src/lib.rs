@@ -1,0 +1,5 @@
+//! diodestat-sim: the host simulator around the very same `diodestat-core`.
+#![forbid(unsafe_code)]
+#![warn(missing_docs)]
+
+pub mod plant;

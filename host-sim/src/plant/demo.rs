@@ -1,0 +1,284 @@
+//! Demo parameter sets for two invented modules (not models of any real
+//! product): a visible ~650 nm single-mode diode of about 30 mW, and a
+//! ~976 nm multi-mode pump diode of about 5 W. Every number here is a demo
+//! value chosen so the rate-equation model lands on the intended figures
+//! (threshold, slope, T0); none is a measured device property.
+
+use serde::{Deserialize, Serialize};
+
+use super::diode::{DiodeParams, GainModel};
+use super::driver::DriverParams;
+use super::monitor::MonitorParams;
+use super::sensors::{
+    AdcParams, FrontEndParams, Ntc, Rtd, SensorChainParams, TempSensor, Topology,
+};
+use super::thermal::ThermalParams;
+
+/// Everything the simulator needs for one laser module.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DemoModule {
+    /// Rated front-facet output power, W.
+    pub rated_power_w: f64,
+    /// Nominal driver supply, V.
+    pub supply_v: f64,
+    /// Laser diode.
+    pub diode: DiodeParams,
+    /// Back-facet monitor photodiode.
+    pub monitor: MonitorParams,
+    /// Current driver.
+    pub driver: DriverParams,
+    /// Thermal path.
+    pub thermal: ThermalParams,
+    /// Case temperature sensor channel.
+    pub sensor: SensorChainParams,
+    /// ADC used for the monitor, current-sense and supply channels.
+    pub adc: AdcParams,
+}
+
+impl DemoModule {
+    /// Visible ~650 nm, ~30 mW single-mode demo module.
+    pub fn visible() -> Self {
+        Self {
+            rated_power_w: 0.030,
+            supply_v: 5.0,
+            diode: DiodeParams::demo_visible(),
+            monitor: MonitorParams::demo_visible(),
+            driver: DriverParams::demo_visible(),
+            thermal: ThermalParams::demo_visible(),
+            sensor: SensorChainParams::demo_visible(),
+            adc: AdcParams::demo(),
+        }
+    }
+
+    /// Near-infrared ~976 nm, ~5 W multi-mode pump demo module.
+    pub fn pump() -> Self {
+        Self {
+            rated_power_w: 5.0,
+            supply_v: 3.3,
+            diode: DiodeParams::demo_pump(),
+            monitor: MonitorParams::demo_pump(),
+            driver: DriverParams::demo_pump(),
+            thermal: ThermalParams::demo_pump(),
+            sensor: SensorChainParams::demo_pump(),
+            adc: AdcParams::demo(),
+        }
+    }
+}
+
+impl DiodeParams {
+    /// Demo visible diode: 650 nm ridge, I_th about 23 mA and front slope
+    /// about 0.93 W/A at 25 degC, T0 = 80 K, damage at 60 mW (2x rated).
+    pub fn demo_visible() -> Self {
+        Self {
+            width_um: 3.0,
+            length_um: 700.0,
+            thickness_nm: 14.0,
+            confinement: 0.05,
+            group_index: 3.8,
+            alpha_i_per_cm: 8.0,
+            r_front: 0.08,
+            r_back: 0.92,
+            eta_i: 0.72,
+            a_per_s: 3.0e8,
+            b_cm3_per_s: 1.2e-10,
+            c_cm6_per_s: 1.5e-30,
+            gain: GainModel::Log {
+                g0_per_cm: 1400.0,
+                n_tr_per_cm3: 3.0e18,
+                n_s_per_cm3: -0.4e18,
+            },
+            eps_cm3: 1.5e-17,
+            beta_sp: 1.0e-4,
+            wavelength_nm: 650.0,
+            wavelength_drift_nm_per_k: 0.2,
+            t_ref_c: 25.0,
+            t0_k: 80.0,
+            t1_k: 250.0,
+            ideality: 2.0,
+            i_s_a: 2.0e-18,
+            i_s_activation_ev: 2.25,
+            r_s_ohm: 5.0,
+            damage_power_w: 0.060,
+            damage_filter_ns: 100.0,
+            threshold_rise_per_khour: 0.02,
+            slope_loss_per_khour: 0.01,
+        }
+    }
+
+    /// Demo pump diode: 976 nm, 95 um x 4 mm broad area, I_th about 0.36 A
+    /// and front slope about 1.05 W/A at 25 degC, T0 = 130 K, damage at 10 W.
+    pub fn demo_pump() -> Self {
+        Self {
+            width_um: 95.0,
+            length_um: 4000.0,
+            thickness_nm: 8.0,
+            confinement: 0.012,
+            group_index: 3.6,
+            alpha_i_per_cm: 0.6,
+            r_front: 0.01,
+            r_back: 0.95,
+            eta_i: 0.92,
+            a_per_s: 1.0e8,
+            b_cm3_per_s: 0.8e-10,
+            c_cm6_per_s: 3.5e-30,
+            gain: GainModel::Log {
+                g0_per_cm: 1800.0,
+                n_tr_per_cm3: 1.8e18,
+                n_s_per_cm3: -0.4e18,
+            },
+            eps_cm3: 1.0e-17,
+            beta_sp: 1.0e-5,
+            wavelength_nm: 976.0,
+            wavelength_drift_nm_per_k: 0.33,
+            t_ref_c: 25.0,
+            t0_k: 130.0,
+            t1_k: 400.0,
+            ideality: 1.5,
+            i_s_a: 3.0e-15,
+            i_s_activation_ev: 1.65,
+            r_s_ohm: 0.06,
+            damage_power_w: 10.0,
+            damage_filter_ns: 100.0,
+            threshold_rise_per_khour: 0.005,
+            slope_loss_per_khour: 0.003,
+        }
+    }
+}
+
+impl MonitorParams {
+    /// Demo monitor for the visible diode: about 0.28 mA at 30 mW.
+    pub fn demo_visible() -> Self {
+        Self {
+            tracking_ratio: 0.023,
+            tracking_tc_per_k: 2.0e-4,
+            responsivity_a_per_w: 0.40,
+            responsivity_wavelength_nm: 650.0,
+            dark_current_25c_a: 1.0e-9,
+            dark_doubling_k: 10.0,
+            transimpedance_ohm: 7500.0,
+        }
+    }
+
+    /// Demo monitor for the pump: about 0.6 mA at 5 W.
+    pub fn demo_pump() -> Self {
+        Self {
+            tracking_ratio: 2.0e-4,
+            tracking_tc_per_k: -3.0e-4,
+            responsivity_a_per_w: 0.60,
+            responsivity_wavelength_nm: 976.0,
+            dark_current_25c_a: 5.0e-9,
+            dark_doubling_k: 10.0,
+            transimpedance_ohm: 3300.0,
+        }
+    }
+}
+
+impl DriverParams {
+    /// Demo driver for the visible diode: 12-bit DAC, 60 mA full scale.
+    pub fn demo_visible() -> Self {
+        Self {
+            dac_bits: 12,
+            dac_vref_v: 2.5,
+            transconductance_a_per_v: 0.024,
+            bandwidth_hz: 100e3,
+            compliance_v: 0.8,
+            sense_ohm: 10.0,
+            sense_gain: 4.0,
+            fail_high_current_a: 0.150,
+            shutdown_tau_s: 1e-6,
+        }
+    }
+
+    /// Demo driver for the pump: 12-bit DAC, 8 A full scale.
+    pub fn demo_pump() -> Self {
+        Self {
+            dac_bits: 12,
+            dac_vref_v: 2.5,
+            transconductance_a_per_v: 3.2,
+            bandwidth_hz: 20e3,
+            compliance_v: 0.5,
+            sense_ohm: 0.05,
+            sense_gain: 6.0,
+            fail_high_current_a: 12.0,
+            shutdown_tau_s: 5e-6,
+        }
+    }
+}
+
+impl ThermalParams {
+    /// Demo thermal path of the visible diode (TO can on a small heatsink).
+    pub fn demo_visible() -> Self {
+        Self {
+            r_jc_k_per_w: 40.0,
+            r_ch_k_per_w: 15.0,
+            r_ha_k_per_w: 25.0,
+            c_j_j_per_k: 2.0e-5,
+            c_c_j_per_k: 0.05,
+            c_h_j_per_k: 5.0,
+        }
+    }
+
+    /// Demo thermal path of the pump (submount on a finned heatsink).
+    pub fn demo_pump() -> Self {
+        Self {
+            r_jc_k_per_w: 1.5,
+            r_ch_k_per_w: 1.0,
+            r_ha_k_per_w: 1.5,
+            c_j_j_per_k: 5.0e-4,
+            c_c_j_per_k: 0.5,
+            c_h_j_per_k: 50.0,
+        }
+    }
+}
+
+impl SensorChainParams {
+    /// Demo case sensor of the visible module: NTC 10 kohm / B 3380 K to
+    /// ground with a 10 kohm pull-up, 12-bit ADC.
+    pub fn demo_visible() -> Self {
+        Self {
+            sensor: TempSensor::Ntc(Ntc::Beta {
+                r25_ohm: 10_000.0,
+                beta_k: 3380.0,
+            }),
+            front_end: FrontEndParams {
+                topology: Topology::SensorToGround,
+                ref_resistor_ohm: 10_000.0,
+                vref_v: 3.3,
+                adc_bits: 12,
+                rc_tau_s: 1e-3,
+                noise_lsb_rms: 0.5,
+                seed: 1,
+            },
+        }
+    }
+
+    /// Demo case sensor of the pump module: Pt1000 to ground with a
+    /// 2.2 kohm pull-up, 12-bit ADC.
+    pub fn demo_pump() -> Self {
+        Self {
+            sensor: TempSensor::Rtd(Rtd { r0_ohm: 1000.0 }),
+            front_end: FrontEndParams {
+                topology: Topology::SensorToGround,
+                ref_resistor_ohm: 2200.0,
+                vref_v: 3.3,
+                adc_bits: 12,
+                rc_tau_s: 1e-3,
+                noise_lsb_rms: 0.5,
+                seed: 2,
+            },
+        }
+    }
+}
+
+impl AdcParams {
+    /// Demo 12-bit, 3.3 V ADC channel with 0.5 LSB rms noise.
+    pub fn demo() -> Self {
+        Self {
+            bits: 12,
+            vref_v: 3.3,
+            noise_lsb_rms: 0.5,
+            seed: 3,
+        }
+    }
+}

@@ -1,0 +1,345 @@
+//! Laser-diode current driver: DAC -> transconductance current source with a
+//! first-order bandwidth, compliance limit and enable, plus the current-sense
+//! resistor and amplifier.
+//!
+//! Setpoint = code / (2^bits - 1) * vref * g_m. The output follows the target
+//! with the exact discretisation of a first-order lag,
+//! i' = target + (i - target) exp(-dt / tau), tau = 1 / (2 pi f_bw); with
+//! enable low the target is zero and the (fast) shutdown time constant applies.
+//! The source can only put `supply - compliance_v` across the diode: beyond
+//! that it is out of regulation and the diode current is set by the diode's
+//! own I-V curve at that voltage.
+
+use serde::{Deserialize, Serialize};
+
+use super::error::{ensure, PlantError};
+
+/// Driver parameters.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DriverParams {
+    /// DAC resolution, bits (1..=16).
+    pub dac_bits: u8,
+    /// DAC reference (full-scale output), V.
+    pub dac_vref_v: f64,
+    /// Current-source transconductance, A/V.
+    pub transconductance_a_per_v: f64,
+    /// Small-signal -3 dB bandwidth of the current loop, Hz.
+    pub bandwidth_hz: f64,
+    /// Voltage the current source needs across itself (headroom), V; the
+    /// diode can be driven up to `supply - compliance_v`.
+    pub compliance_v: f64,
+    /// Current-sense resistor, ohm.
+    pub sense_ohm: f64,
+    /// Current-sense amplifier gain, V/V.
+    pub sense_gain: f64,
+    /// Output current when the source fails high (pass device fully on,
+    /// limited by its own short-circuit limit), A.
+    pub fail_high_current_a: f64,
+    /// Time constant of the output collapse when enable goes low, s.
+    pub shutdown_tau_s: f64,
+}
+
+impl DriverParams {
+    /// Checks the parameter ranges.
+    pub fn validate(&self) -> Result<(), PlantError> {
+        let pos = |v: f64| v > 0.0 && v.is_finite();
+        ensure(
+            (1..=16).contains(&self.dac_bits),
+            "dac_bits",
+            "must be 1..=16",
+        )?;
+        ensure(pos(self.dac_vref_v), "dac_vref_v", "must be > 0")?;
+        ensure(
+            pos(self.transconductance_a_per_v),
+            "transconductance_a_per_v",
+            "must be > 0",
+        )?;
+        ensure(pos(self.bandwidth_hz), "bandwidth_hz", "must be > 0")?;
+        ensure(
+            self.compliance_v >= 0.0 && self.compliance_v.is_finite(),
+            "compliance_v",
+            "must be >= 0",
+        )?;
+        ensure(pos(self.sense_ohm), "sense_ohm", "must be > 0")?;
+        ensure(pos(self.sense_gain), "sense_gain", "must be > 0")?;
+        ensure(
+            self.fail_high_current_a >= 0.0 && self.fail_high_current_a.is_finite(),
+            "fail_high_current_a",
+            "must be >= 0",
+        )?;
+        ensure(pos(self.shutdown_tau_s), "shutdown_tau_s", "must be > 0")
+    }
+
+    /// Full-scale output current (code 2^bits - 1), A.
+    pub fn full_scale_a(&self) -> f64 {
+        self.dac_vref_v * self.transconductance_a_per_v
+    }
+}
+
+/// Driver state and fault hooks.
+#[derive(Clone, Debug)]
+pub struct Driver {
+    params: DriverParams,
+    max_code: u16,
+    amps_per_code: f64,
+    tau_s: f64,
+    on_dt: f64,
+    on_decay: f64,
+    off_dt: f64,
+    off_decay: f64,
+    i_lag: f64,
+    i_out: f64,
+    /// Fault hook: the source fails high and drives `fail_high_current_a`;
+    /// only the enable line stops it.
+    pub fail_high: bool,
+    /// Fault hook: the DAC output is stuck at this code.
+    pub dac_stuck: Option<u16>,
+    /// Fault hook: multiplier on the current-sense gain (1.0 healthy).
+    pub sense_gain_error: f64,
+}
+
+impl Driver {
+    /// Builds the driver (output off) after validating the parameters.
+    pub fn new(params: DriverParams) -> Result<Self, PlantError> {
+        params.validate()?;
+        let max_code = ((1u32 << params.dac_bits) - 1) as u16;
+        let amps_per_code = params.full_scale_a() / max_code as f64;
+        let tau_s = 1.0 / (core::f64::consts::TAU * params.bandwidth_hz);
+        Ok(Self {
+            params,
+            max_code,
+            amps_per_code,
+            tau_s,
+            on_dt: f64::NAN,
+            on_decay: 0.0,
+            off_dt: f64::NAN,
+            off_decay: 0.0,
+            i_lag: 0.0,
+            i_out: 0.0,
+            fail_high: false,
+            dac_stuck: None,
+            sense_gain_error: 1.0,
+        })
+    }
+
+    /// Parameters in use.
+    pub fn params(&self) -> &DriverParams {
+        &self.params
+    }
+
+    /// Largest DAC code, 2^bits - 1.
+    pub fn max_code(&self) -> u16 {
+        self.max_code
+    }
+
+    /// Current setpoint of a DAC code (clamped to full scale), A.
+    #[inline]
+    pub fn setpoint_a(&self, dac_code: u16) -> f64 {
+        dac_code.min(self.max_code) as f64 * self.amps_per_code
+    }
+
+    /// Output current after the last step, A.
+    #[inline]
+    pub fn current_a(&self) -> f64 {
+        self.i_out
+    }
+
+    /// Advances the lag toward the target and returns the unlimited current.
+    #[inline]
+    fn advance_lag(&mut self, dac_code: u16, enable: bool, dt_s: f64) -> f64 {
+        let (target, decay) = if !enable {
+            if dt_s != self.off_dt {
+                self.off_decay = (-dt_s / self.params.shutdown_tau_s).exp();
+                self.off_dt = dt_s;
+            }
+            (0.0, self.off_decay)
+        } else {
+            if dt_s != self.on_dt {
+                self.on_decay = (-dt_s / self.tau_s).exp();
+                self.on_dt = dt_s;
+            }
+            let t = if self.fail_high {
+                self.params.fail_high_current_a
+            } else {
+                self.setpoint_a(self.dac_stuck.unwrap_or(dac_code))
+            };
+            (t, self.on_decay)
+        };
+        self.i_lag = target + (self.i_lag - target) * decay;
+        self.i_lag
+    }
+
+    /// Advances the driver by `dt_s` and returns the diode current, A.
+    ///
+    /// `v_f_v` is the diode forward voltage at the present output current
+    /// (the value of the previous step). When it exceeds the available
+    /// `supply_v - compliance_v` the source is out of compliance and the
+    /// current is cut to `i * V_avail / v_f_v` (the diode replaced by its
+    /// static resistance V/I). For a diode I-V curve (concave V(I) through the
+    /// origin) this update approaches the exact compliance current
+    /// monotonically from above over successive steps, never oscillating.
+    /// Use [`Driver::step_with_load`] to solve the compliance point exactly.
+    #[inline]
+    pub fn step(
+        &mut self,
+        dac_code: u16,
+        enable: bool,
+        v_f_v: f64,
+        supply_v: f64,
+        dt_s: f64,
+    ) -> f64 {
+        let mut i = self.advance_lag(dac_code, enable, dt_s);
+        let v_avail = supply_v - self.params.compliance_v;
+        if v_avail <= 0.0 {
+            i = 0.0;
+            self.i_lag = 0.0;
+        } else if v_f_v > v_avail && self.i_out > 0.0 {
+            let limit = self.i_out * v_avail / v_f_v;
+            if i > limit {
+                i = limit;
+                self.i_lag = limit;
+            }
+        }
+        self.i_out = i;
+        i
+    }
+
+    /// As [`Driver::step`] but with the diode I-V curve `v_of_i` (volts for
+    /// a current in amperes, increasing): when the lagged current would need
+    /// more than `supply_v - compliance_v`, the output is the current at which
+    /// the diode voltage equals the available voltage (Illinois regula falsi
+    /// to 1e-12 relative).
+    pub fn step_with_load<F: Fn(f64) -> f64>(
+        &mut self,
+        dac_code: u16,
+        enable: bool,
+        v_of_i: F,
+        supply_v: f64,
+        dt_s: f64,
+    ) -> f64 {
+        let mut i = self.advance_lag(dac_code, enable, dt_s);
+        let v_avail = supply_v - self.params.compliance_v;
+        if v_avail <= 0.0 {
+            i = 0.0;
+            self.i_lag = 0.0;
+        } else if i > 0.0 && v_of_i(i) > v_avail {
+            let (mut a, mut b) = (0.0, i);
+            let (mut fa, mut fb) = (v_of_i(0.0) - v_avail, v_of_i(i) - v_avail);
+            if fa >= 0.0 {
+                i = 0.0;
+            } else {
+                let mut side = 0i32;
+                for _ in 0..200 {
+                    let c = (a * fb - b * fa) / (fb - fa);
+                    let fc = v_of_i(c) - v_avail;
+                    if fc > 0.0 {
+                        b = c;
+                        fb = fc;
+                        if side == -1 {
+                            fa *= 0.5;
+                        }
+                        side = -1;
+                    } else {
+                        a = c;
+                        fa = fc;
+                        if side == 1 {
+                            fb *= 0.5;
+                        }
+                        side = 1;
+                    }
+                    if (b - a) <= 1e-12 * b || fc == 0.0 {
+                        break;
+                    }
+                }
+                i = a;
+            }
+            self.i_lag = i;
+        }
+        self.i_out = i;
+        i
+    }
+
+    /// Current-sense amplifier output for a diode current, V.
+    #[inline]
+    pub fn sense_voltage(&self, i_a: f64) -> f64 {
+        i_a * self.params.sense_ohm * self.params.sense_gain * self.sense_gain_error
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn params() -> DriverParams {
+        DriverParams {
+            dac_bits: 12,
+            dac_vref_v: 2.5,
+            transconductance_a_per_v: 0.024,
+            bandwidth_hz: 100e3,
+            compliance_v: 0.8,
+            sense_ohm: 10.0,
+            sense_gain: 4.0,
+            fail_high_current_a: 0.15,
+            shutdown_tau_s: 1e-7,
+        }
+    }
+
+    #[test]
+    fn first_order_lag_is_exact() {
+        let mut d = Driver::new(params()).unwrap();
+        let tau = 1.0 / (2.0 * core::f64::consts::PI * 100e3);
+        let i = d.step(4095, true, 2.0, 5.0, tau);
+        assert!((i - 0.06 * (1.0 - (-1.0f64).exp())).abs() < 1e-15);
+        let mut d2 = Driver::new(params()).unwrap();
+        for _ in 0..10 {
+            d2.step(4095, true, 2.0, 5.0, tau / 10.0);
+        }
+        assert!((d2.current_a() - i).abs() < 1e-15);
+    }
+
+    #[test]
+    fn enable_low_stops_fail_high() {
+        let mut d = Driver::new(params()).unwrap();
+        d.fail_high = true;
+        for _ in 0..100 {
+            d.step(0, true, 2.0, 5.0, 1e-5);
+        }
+        assert!((d.current_a() - 0.15).abs() < 1e-9);
+        let i = d.step(0, false, 2.0, 5.0, 1e-5);
+        assert!(i < 1e-12);
+    }
+
+    #[test]
+    fn dac_stuck_and_sense_error() {
+        let mut d = Driver::new(params()).unwrap();
+        d.dac_stuck = Some(2048);
+        for _ in 0..100 {
+            d.step(100, true, 2.0, 5.0, 1e-5);
+        }
+        assert!((d.current_a() - d.setpoint_a(2048)).abs() < 1e-9);
+        d.sense_gain_error = 1.1;
+        assert!((d.sense_voltage(0.05) - 0.05 * 40.0 * 1.1).abs() < 1e-15);
+    }
+
+    #[test]
+    fn compliance_converges_to_diode_curve() {
+        // Diode V = 0.05 ln(1 + I/1e-18) + 5 I; supply 2.9 V, headroom 0.8 V.
+        let vf = |i: f64| 0.05 * (1.0 + i / 1e-18).ln() + 5.0 * i;
+        let mut exact = Driver::new(params()).unwrap();
+        let mut iter = Driver::new(params()).unwrap();
+        for _ in 0..2000 {
+            exact.step_with_load(4095, true, vf, 2.9, 1e-5);
+            let v = vf(iter.current_a());
+            iter.step(4095, true, v, 2.9, 1e-5);
+        }
+        let ie = exact.current_a();
+        assert!((vf(ie) - 2.1).abs() < 1e-9, "exact compliance point");
+        assert!(ie < 0.06);
+        assert!(
+            (iter.current_a() / ie - 1.0).abs() < 1e-6,
+            "{} vs {ie}",
+            iter.current_a()
+        );
+    }
+}

@@ -1,0 +1,654 @@
+//! Temperature sensors (NTC thermistor, platinum RTD), their divider front
+//! end with RC anti-alias filter and a seeded-noise ADC, and a generic ADC
+//! channel for the monitor, current-sense and supply signals.
+//!
+//! ADC convention (shared with the firmware tables): an ideal mid-tread
+//! converter, `code = round(V / LSB)` with `LSB = vref / 2^bits`, clamped to
+//! `0 ..= 2^bits - 1`; a code therefore stands for the voltage `code * LSB`.
+//! The sensor divider is excited from the ADC reference (ratiometric), so the
+//! sensor reading does not depend on the reference value.
+
+use serde::{Deserialize, Serialize};
+
+use super::constants::ZERO_CELSIUS_K;
+use super::error::{ensure, PlantError};
+use super::rng::Rng;
+
+/// IEC 60751 Callendar-Van Dusen coefficient A, 1/degC.
+pub const RTD_A: f64 = 3.9083e-3;
+/// IEC 60751 Callendar-Van Dusen coefficient B, 1/degC^2.
+pub const RTD_B: f64 = -5.775e-7;
+/// IEC 60751 Callendar-Van Dusen coefficient C, 1/degC^4 (below 0 degC only).
+pub const RTD_C: f64 = -4.183e-12;
+/// Reference temperature of the NTC beta equation (25 degC), K.
+pub const NTC_T25_K: f64 = 298.15;
+
+/// NTC thermistor model.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "model", rename_all = "snake_case", deny_unknown_fields)]
+pub enum Ntc {
+    /// Beta equation R = R25 exp(B (1/T - 1/298.15 K)).
+    Beta {
+        /// Resistance at 25 degC, ohm.
+        r25_ohm: f64,
+        /// Beta constant, K.
+        beta_k: f64,
+    },
+    /// Steinhart-Hart equation 1/T = a + b ln R + c (ln R)^3 (R in ohm, T in K).
+    SteinhartHart {
+        /// Coefficient a, 1/K.
+        a: f64,
+        /// Coefficient b, 1/K.
+        b: f64,
+        /// Coefficient c, 1/K.
+        c: f64,
+    },
+}
+
+impl Ntc {
+    /// Checks the coefficients describe a decreasing R(T).
+    pub fn validate(&self) -> Result<(), PlantError> {
+        match *self {
+            Ntc::Beta { r25_ohm, beta_k } => {
+                ensure(
+                    r25_ohm > 0.0 && r25_ohm.is_finite(),
+                    "r25_ohm",
+                    "must be > 0",
+                )?;
+                ensure(beta_k > 0.0 && beta_k.is_finite(), "beta_k", "must be > 0")
+            }
+            Ntc::SteinhartHart { a, b, c } => {
+                ensure(a.is_finite(), "a", "must be finite")?;
+                ensure(b > 0.0 && b.is_finite(), "b", "must be > 0")?;
+                ensure(c >= 0.0 && c.is_finite(), "c", "must be >= 0")
+            }
+        }
+    }
+
+    /// Resistance at temperature `t_k`, ohm. The Steinhart-Hart inverse is
+    /// the closed-form (Cardano) root of c x^3 + b x + (a - 1/T) = 0 with
+    /// x = ln R, polished by one Newton step.
+    #[inline]
+    pub fn resistance_ohm(&self, t_k: f64) -> f64 {
+        match *self {
+            Ntc::Beta { r25_ohm, beta_k } => {
+                r25_ohm * (beta_k * (1.0 / t_k - 1.0 / NTC_T25_K)).exp()
+            }
+            Ntc::SteinhartHart { a, b, c } => {
+                let rhs = 1.0 / t_k;
+                let mut x = if c == 0.0 {
+                    (rhs - a) / b
+                } else {
+                    let p = b / c;
+                    let q = (a - rhs) / c;
+                    let d = ((0.5 * q) * (0.5 * q) + (p / 3.0).powi(3)).sqrt();
+                    (-0.5 * q + d).cbrt() + (-0.5 * q - d).cbrt()
+                };
+                let f = a + b * x + c * x * x * x - rhs;
+                x -= f / (b + 3.0 * c * x * x);
+                x.exp()
+            }
+        }
+    }
+
+    /// Temperature for resistance `r_ohm`, K.
+    #[inline]
+    pub fn temperature_k(&self, r_ohm: f64) -> f64 {
+        match *self {
+            Ntc::Beta { r25_ohm, beta_k } => {
+                1.0 / (1.0 / NTC_T25_K + (r_ohm / r25_ohm).ln() / beta_k)
+            }
+            Ntc::SteinhartHart { a, b, c } => {
+                let x = r_ohm.ln();
+                1.0 / (a + b * x + c * x * x * x)
+            }
+        }
+    }
+}
+
+/// Platinum RTD with the IEC 60751 Callendar-Van Dusen coefficients.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Rtd {
+    /// Resistance at 0 degC, ohm (100 for Pt100, 1000 for Pt1000).
+    pub r0_ohm: f64,
+}
+
+impl Rtd {
+    /// Checks R0 is positive.
+    pub fn validate(&self) -> Result<(), PlantError> {
+        ensure(
+            self.r0_ohm > 0.0 && self.r0_ohm.is_finite(),
+            "r0_ohm",
+            "must be > 0",
+        )
+    }
+
+    /// Resistance at temperature `t_k`, ohm:
+    /// R0 (1 + A t + B t^2 + C (t - 100) t^3), C term only for t < 0 degC.
+    #[inline]
+    pub fn resistance_ohm(&self, t_k: f64) -> f64 {
+        let t = t_k - ZERO_CELSIUS_K;
+        let mut r = 1.0 + RTD_A * t + RTD_B * t * t;
+        if t < 0.0 {
+            r += RTD_C * (t - 100.0) * t * t * t;
+        }
+        self.r0_ohm * r
+    }
+
+    /// Temperature for resistance `r_ohm`, K: the quadratic root for
+    /// R >= R0, Newton iteration on the full equation below 0 degC.
+    pub fn temperature_k(&self, r_ohm: f64) -> f64 {
+        let rr = r_ohm / self.r0_ohm - 1.0;
+        let disc = (RTD_A * RTD_A + 4.0 * RTD_B * rr).max(0.0);
+        let mut t = 2.0 * rr / (RTD_A + disc.sqrt());
+        if rr < 0.0 {
+            for _ in 0..20 {
+                let f = RTD_A * t + RTD_B * t * t + RTD_C * (t - 100.0) * t * t * t - rr;
+                let df = RTD_A + 2.0 * RTD_B * t + RTD_C * (4.0 * t * t * t - 300.0 * t * t);
+                let dt = f / df;
+                t -= dt;
+                if dt.abs() < 1e-12 {
+                    break;
+                }
+            }
+        }
+        t + ZERO_CELSIUS_K
+    }
+}
+
+/// Any supported temperature sensor.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum TempSensor {
+    /// NTC thermistor.
+    Ntc(Ntc),
+    /// Platinum RTD.
+    Rtd(Rtd),
+}
+
+impl TempSensor {
+    /// Checks the sensor coefficients.
+    pub fn validate(&self) -> Result<(), PlantError> {
+        match self {
+            TempSensor::Ntc(n) => n.validate(),
+            TempSensor::Rtd(r) => r.validate(),
+        }
+    }
+
+    /// Resistance at `t_k`, ohm.
+    #[inline]
+    pub fn resistance_ohm(&self, t_k: f64) -> f64 {
+        match self {
+            TempSensor::Ntc(n) => n.resistance_ohm(t_k),
+            TempSensor::Rtd(r) => r.resistance_ohm(t_k),
+        }
+    }
+
+    /// Temperature for resistance `r_ohm`, K.
+    #[inline]
+    pub fn temperature_k(&self, r_ohm: f64) -> f64 {
+        match self {
+            TempSensor::Ntc(n) => n.temperature_k(r_ohm),
+            TempSensor::Rtd(r) => r.temperature_k(r_ohm),
+        }
+    }
+}
+
+/// Where the sensor sits in the divider.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Topology {
+    /// Sensor from the ADC node to ground, reference resistor from the
+    /// reference to the node (pull-up). Open sensor reads full scale, short
+    /// reads zero.
+    SensorToGround,
+    /// Sensor from the reference to the ADC node, reference resistor to
+    /// ground. Open sensor reads zero, short reads full scale.
+    SensorToSupply,
+}
+
+/// Divider, filter and ADC of a temperature channel.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FrontEndParams {
+    /// Divider topology.
+    pub topology: Topology,
+    /// Reference (fixed) resistor of the divider, ohm.
+    pub ref_resistor_ohm: f64,
+    /// ADC reference and divider excitation, V.
+    pub vref_v: f64,
+    /// ADC resolution, bits (1..=16).
+    pub adc_bits: u8,
+    /// RC anti-alias filter time constant, s (0 = no filter).
+    pub rc_tau_s: f64,
+    /// Gaussian noise at the ADC input, LSB rms.
+    pub noise_lsb_rms: f64,
+    /// Seed of the noise generator.
+    pub seed: u64,
+}
+
+/// A sensor and its front end.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SensorChainParams {
+    /// The temperature sensor.
+    pub sensor: TempSensor,
+    /// Its divider, filter and ADC.
+    pub front_end: FrontEndParams,
+}
+
+fn check_adc(bits: u8, vref_v: f64, noise: f64) -> Result<(), PlantError> {
+    ensure((1..=16).contains(&bits), "adc_bits", "must be 1..=16")?;
+    ensure(vref_v > 0.0 && vref_v.is_finite(), "vref_v", "must be > 0")?;
+    ensure(
+        noise >= 0.0 && noise.is_finite(),
+        "noise_lsb_rms",
+        "must be >= 0",
+    )
+}
+
+/// Quantises `x` (in LSB) to a code in `0..=max`.
+#[inline]
+fn quantise(x: f64, max: f64) -> u16 {
+    x.round().clamp(0.0, max) as u16
+}
+
+/// A temperature channel: sensor, divider, RC filter, noisy ADC and faults.
+#[derive(Clone, Debug)]
+pub struct SensorChain {
+    params: SensorChainParams,
+    full_scale: f64,
+    max_code: f64,
+    /// Filtered divider ratio V / vref.
+    ratio: f64,
+    started: bool,
+    decay_dt: f64,
+    decay: f64,
+    rng: Rng,
+    /// Fault hook: sensor open circuit (drives the node to its rail).
+    pub open: bool,
+    /// Fault hook: sensor short circuit (drives the node to the other rail).
+    pub short: bool,
+    /// Fault hook: the ADC returns this code regardless of input.
+    pub stuck: Option<u16>,
+}
+
+impl SensorChain {
+    /// Builds the channel after validating the parameters.
+    pub fn new(params: SensorChainParams) -> Result<Self, PlantError> {
+        params.sensor.validate()?;
+        let fe = &params.front_end;
+        check_adc(fe.adc_bits, fe.vref_v, fe.noise_lsb_rms)?;
+        ensure(
+            fe.ref_resistor_ohm > 0.0 && fe.ref_resistor_ohm.is_finite(),
+            "ref_resistor_ohm",
+            "must be > 0",
+        )?;
+        ensure(
+            fe.rc_tau_s >= 0.0 && fe.rc_tau_s.is_finite(),
+            "rc_tau_s",
+            "must be >= 0",
+        )?;
+        let full_scale = (1u32 << fe.adc_bits) as f64;
+        let rng = Rng::new(fe.seed);
+        Ok(Self {
+            params,
+            full_scale,
+            max_code: full_scale - 1.0,
+            ratio: 0.0,
+            started: false,
+            decay_dt: f64::NAN,
+            decay: 0.0,
+            rng,
+            open: false,
+            short: false,
+            stuck: None,
+        })
+    }
+
+    /// Parameters in use.
+    pub fn params(&self) -> &SensorChainParams {
+        &self.params
+    }
+
+    /// Largest ADC code, 2^bits - 1.
+    pub fn max_code(&self) -> u16 {
+        self.max_code as u16
+    }
+
+    /// Noise-free divider ratio V / vref for a sensor resistance.
+    #[inline]
+    fn ratio_of_resistance(&self, r_s: f64) -> f64 {
+        let r_ref = self.params.front_end.ref_resistor_ohm;
+        match self.params.front_end.topology {
+            Topology::SensorToGround => r_s / (r_s + r_ref),
+            Topology::SensorToSupply => r_ref / (r_s + r_ref),
+        }
+    }
+
+    /// Sensor resistance for a divider ratio V / vref (inverse of the divider).
+    #[inline]
+    fn resistance_of_ratio(&self, x: f64) -> f64 {
+        let r_ref = self.params.front_end.ref_resistor_ohm;
+        match self.params.front_end.topology {
+            Topology::SensorToGround => r_ref * x / (1.0 - x),
+            Topology::SensorToSupply => r_ref * (1.0 - x) / x,
+        }
+    }
+
+    /// Divider ratio at the ADC input including open/short faults, unfiltered.
+    #[inline]
+    fn input_ratio(&self, t_k: f64) -> f64 {
+        let to_ground = self.params.front_end.topology == Topology::SensorToGround;
+        if self.short {
+            if to_ground {
+                0.0
+            } else {
+                1.0
+            }
+        } else if self.open {
+            if to_ground {
+                1.0
+            } else {
+                0.0
+            }
+        } else {
+            self.ratio_of_resistance(self.params.sensor.resistance_ohm(t_k))
+        }
+    }
+
+    /// Noise-free, unfiltered ADC reading in LSB (not rounded) at `t_k`.
+    pub fn ideal_counts(&self, t_k: f64) -> f64 {
+        self.ratio_of_resistance(self.params.sensor.resistance_ohm(t_k)) * self.full_scale
+    }
+
+    /// Divider output voltage at `t_k` (noise-free, unfiltered), V.
+    pub fn voltage_v(&self, t_k: f64) -> f64 {
+        self.ratio_of_resistance(self.params.sensor.resistance_ohm(t_k))
+            * self.params.front_end.vref_v
+    }
+
+    /// Exact sensor temperature, K, for an ADC code (inverse of the
+    /// noise-free transfer at the code's voltage); `None` at the rails.
+    pub fn temperature_of_counts_k(&self, code: u16) -> Option<f64> {
+        let c = code as f64;
+        if c <= 0.0 || c >= self.max_code {
+            return None;
+        }
+        let r = self.resistance_of_ratio(c / self.full_scale);
+        Some(self.params.sensor.temperature_k(r))
+    }
+
+    /// Samples the channel with the sensor at `t_k` after `dt_s` since the
+    /// previous sample: the RC filter state moves toward the divider output
+    /// (exact first-order response to an input held over dt; the first call
+    /// starts the filter settled), Gaussian noise is added, the result is
+    /// quantised and clamped to the rails.
+    #[inline]
+    pub fn counts(&mut self, t_k: f64, dt_s: f64) -> u16 {
+        let x = self.input_ratio(t_k);
+        let tau = self.params.front_end.rc_tau_s;
+        if !self.started || tau == 0.0 {
+            self.ratio = x;
+            self.started = true;
+        } else {
+            if dt_s != self.decay_dt {
+                self.decay = (-dt_s / tau).exp();
+                self.decay_dt = dt_s;
+            }
+            self.ratio = x + (self.ratio - x) * self.decay;
+        }
+        let sigma = self.params.front_end.noise_lsb_rms;
+        let noise = if sigma > 0.0 {
+            sigma * self.rng.gaussian()
+        } else {
+            0.0
+        };
+        let code = quantise(self.ratio * self.full_scale + noise, self.max_code);
+        self.stuck.unwrap_or(code)
+    }
+
+    /// Conversion table from the exact, noise-free sensor equation: `points`
+    /// temperatures spread evenly over `t_min_c ..= t_max_c`, each rounded to
+    /// its ADC code and paired with the exact temperature of that code, degC.
+    /// Rail codes are left out; entries are sorted by strictly increasing
+    /// code (temperature falls with code for an NTC to ground).
+    pub fn temp_table(&self, t_min_c: f64, t_max_c: f64, points: usize) -> Vec<(u16, f64)> {
+        let n = points.max(2);
+        let mut table: Vec<(u16, f64)> = Vec::with_capacity(n);
+        for i in 0..n {
+            let t_c = t_min_c + (t_max_c - t_min_c) * i as f64 / (n - 1) as f64;
+            let code_f = self.ideal_counts(t_c + ZERO_CELSIUS_K).round();
+            if !(code_f > 0.0 && code_f < self.max_code) {
+                continue;
+            }
+            let code = code_f as u16;
+            if let Some(t_k) = self.temperature_of_counts_k(code) {
+                table.push((code, t_k - ZERO_CELSIUS_K));
+            }
+        }
+        table.sort_by_key(|e| e.0);
+        table.dedup_by_key(|e| e.0);
+        table
+    }
+}
+
+/// Generic ADC channel parameters.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AdcParams {
+    /// Resolution, bits (1..=16).
+    pub bits: u8,
+    /// Reference voltage (full scale), V.
+    pub vref_v: f64,
+    /// Gaussian input noise, LSB rms.
+    pub noise_lsb_rms: f64,
+    /// Seed of the noise generator.
+    pub seed: u64,
+}
+
+/// A generic ADC channel (monitor, current sense, supply) with seeded noise.
+#[derive(Clone, Debug)]
+pub struct Adc {
+    params: AdcParams,
+    counts_per_volt: f64,
+    max_code: f64,
+    rng: Rng,
+    /// Fault hook: the converter returns this code regardless of input.
+    pub stuck: Option<u16>,
+}
+
+impl Adc {
+    /// Builds the channel after validating the parameters.
+    pub fn new(params: AdcParams) -> Result<Self, PlantError> {
+        check_adc(params.bits, params.vref_v, params.noise_lsb_rms)?;
+        let full_scale = (1u32 << params.bits) as f64;
+        Ok(Self {
+            counts_per_volt: full_scale / params.vref_v,
+            max_code: full_scale - 1.0,
+            rng: Rng::new(params.seed),
+            params,
+            stuck: None,
+        })
+    }
+
+    /// Parameters in use.
+    pub fn params(&self) -> &AdcParams {
+        &self.params
+    }
+
+    /// One LSB, V.
+    pub fn lsb_v(&self) -> f64 {
+        1.0 / self.counts_per_volt
+    }
+
+    /// Voltage a code stands for (code * LSB), V.
+    pub fn volts_of(&self, code: u16) -> f64 {
+        code as f64 / self.counts_per_volt
+    }
+
+    /// Converts `volts` with noise, rounding and clamping to the rails.
+    #[inline]
+    pub fn sample(&mut self, volts: f64) -> u16 {
+        let sigma = self.params.noise_lsb_rms;
+        let noise = if sigma > 0.0 {
+            sigma * self.rng.gaussian()
+        } else {
+            0.0
+        };
+        let code = quantise(volts * self.counts_per_volt + noise, self.max_code);
+        self.stuck.unwrap_or(code)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ntc_chain(noise: f64) -> SensorChain {
+        SensorChain::new(SensorChainParams {
+            sensor: TempSensor::Ntc(Ntc::Beta {
+                r25_ohm: 10_000.0,
+                beta_k: 3380.0,
+            }),
+            front_end: FrontEndParams {
+                topology: Topology::SensorToGround,
+                ref_resistor_ohm: 10_000.0,
+                vref_v: 3.3,
+                adc_bits: 12,
+                rc_tau_s: 1e-3,
+                noise_lsb_rms: noise,
+                seed: 5,
+            },
+        })
+        .unwrap()
+    }
+
+    #[test]
+    fn ntc_at_25c_reads_half_scale() {
+        let mut ch = ntc_chain(0.0);
+        assert_eq!(ch.counts(NTC_T25_K, 1e-3), 2048);
+    }
+
+    #[test]
+    fn rc_filter_first_order_response() {
+        let mut ch = ntc_chain(0.0);
+        ch.counts(NTC_T25_K, 1e-4);
+        // Step to 50 degC; after one tau the reading covers 1 - 1/e of the step.
+        let target = ch.ideal_counts(323.15);
+        let start = 2048.0;
+        let c = ch.counts(323.15, 1e-3) as f64;
+        let expect = target + (start - target) * (-1.0f64).exp();
+        assert!((c - expect).abs() <= 0.5 + 1e-9, "{c} vs {expect}");
+    }
+
+    #[test]
+    fn faults_go_to_rails() {
+        for topo in [Topology::SensorToGround, Topology::SensorToSupply] {
+            let mut p = ntc_chain(0.0).params().clone();
+            p.front_end.topology = topo;
+            p.front_end.rc_tau_s = 0.0;
+            let mut ch = SensorChain::new(p).unwrap();
+            ch.open = true;
+            let open = ch.counts(300.0, 1e-3);
+            ch.open = false;
+            ch.short = true;
+            let short = ch.counts(300.0, 1e-3);
+            match topo {
+                Topology::SensorToGround => assert_eq!((open, short), (4095, 0)),
+                Topology::SensorToSupply => assert_eq!((open, short), (0, 4095)),
+            }
+            ch.stuck = Some(1234);
+            assert_eq!(ch.counts(300.0, 1e-3), 1234);
+        }
+    }
+
+    #[test]
+    fn noise_is_seeded_and_has_right_rms() {
+        let mut a = ntc_chain(2.0);
+        let mut b = ntc_chain(2.0);
+        let mean = a.ideal_counts(310.0);
+        let mut s2 = 0.0;
+        let n = 20_000;
+        for _ in 0..n {
+            let ca = a.counts(310.0, 1e-3);
+            assert_eq!(ca, b.counts(310.0, 1e-3));
+            s2 += (ca as f64 - mean).powi(2);
+        }
+        // Variance of rounded Gaussian: sigma^2 + 1/12 (Sheppard).
+        let var = s2 / n as f64;
+        assert!((var - (4.0 + 1.0 / 12.0)).abs() < 0.2, "var {var}");
+    }
+
+    #[test]
+    fn steinhart_hart_inverse_round_trip() {
+        let ntc = Ntc::SteinhartHart {
+            a: 1.40e-3,
+            b: 2.37e-4,
+            c: 9.90e-8,
+        };
+        for r in [100.0, 1000.0, 3000.0, 10_000.0, 100_000.0, 1e6] {
+            let t = ntc.temperature_k(r);
+            let r2 = ntc.resistance_ohm(t);
+            assert!((r2 / r - 1.0).abs() < 1e-12, "{r} -> {t} -> {r2}");
+        }
+    }
+
+    #[test]
+    fn rtd_inverse_round_trip() {
+        let rtd = Rtd { r0_ohm: 100.0 };
+        for t_c in [
+            -200.0, -100.0, -40.0, -0.5, 0.0, 0.5, 25.0, 200.0, 600.0, 850.0,
+        ] {
+            let t_k = t_c + ZERO_CELSIUS_K;
+            let back = rtd.temperature_k(rtd.resistance_ohm(t_k));
+            assert!((back - t_k).abs() < 1e-9, "{t_c}: {back}");
+        }
+    }
+
+    #[test]
+    fn adc_quantises_and_clamps() {
+        let mut adc = Adc::new(AdcParams {
+            bits: 12,
+            vref_v: 2.5,
+            noise_lsb_rms: 0.0,
+            seed: 0,
+        })
+        .unwrap();
+        assert_eq!(adc.sample(-1.0), 0);
+        assert_eq!(adc.sample(3.0), 4095);
+        assert_eq!(adc.sample(1.25), 2048);
+        assert_eq!(adc.sample(adc.volts_of(1000) + 0.49 * adc.lsb_v()), 1000);
+        adc.stuck = Some(7);
+        assert_eq!(adc.sample(1.0), 7);
+    }
+
+    #[test]
+    fn serde_round_trip_toml() {
+        let text = r#"
+            [sensor.ntc]
+            model = "steinhart_hart"
+            a = 1.4e-3
+            b = 2.37e-4
+            c = 9.9e-8
+            [front_end]
+            topology = "sensor_to_supply"
+            ref_resistor_ohm = 4700.0
+            vref_v = 3.0
+            adc_bits = 12
+            rc_tau_s = 0.001
+            noise_lsb_rms = 0.5
+            seed = 9
+        "#;
+        let p: SensorChainParams = crate::plant::from_toml(text).unwrap();
+        assert!(matches!(
+            p.sensor,
+            TempSensor::Ntc(Ntc::SteinhartHart { .. })
+        ));
+        let bad = text.replace("seed = 9", "seed = 9\nextra = 1");
+        assert!(crate::plant::from_toml::<SensorChainParams>(&bad).is_err());
+        let bad2 = text.replace("c = 9.9e-8", "c = 9.9e-8\nd = 1.0");
+        assert!(crate::plant::from_toml::<SensorChainParams>(&bad2).is_err());
+    }
+}
