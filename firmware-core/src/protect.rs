@@ -107,6 +107,7 @@ impl Protections {
     /// the source was commanded during the tick that produced the sample
     /// (zero when it was disabled). Tripped faults not already in `active`
     /// are passed to `record`.
+    #[allow(clippy::too_many_arguments)]
     pub(crate) fn check(
         &mut self,
         cfg: &ValidConfig,

@@ -1,5 +1,19 @@
 //! diodestat-sim: the host simulator around the very same `diodestat-core`.
+//!
+//! It links the firmware core against a physics-based laser diode, current
+//! driver, thermal path and sensors ([`plant`]), runs scenarios with
+//! injected hardware faults ([`scenario`], [`sim`]) and reports them
+//! ([`report`]).
+//!
+//! **Safety.** Simulation results complement, never replace, a hardware
+//! current limit, interlock gating of the enable line, an independent
+//! watchdog and eye protection. Follow IEC 60825-1, local regulations and
+//! your site's laser safety officer.
 #![forbid(unsafe_code)]
 #![warn(missing_docs)]
 
+pub mod board;
 pub mod plant;
+pub mod report;
+pub mod scenario;
+pub mod sim;

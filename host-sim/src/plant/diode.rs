@@ -942,8 +942,41 @@ fn steady_state(m: &Model, f: f64, j: f64) -> (f64, f64) {
     } else {
         (disc - b1) / (2.0 * a2)
     };
-    let mut n = (m.n_th - x).max(0.05 * m.n_th);
+    let mut n = m.n_th - x;
+    if b1 > 0.0 {
+        // Gain compression lifts the clamped density above N_th by about
+        // g_th eps S / (dg/dN).
+        let s_est = gt * (j - f * m.rt_th);
+        n += m.eps * s_est / (gv * m.tau_p * m.dgdn_th);
+    }
     let (mut lo, mut hi) = (0.0f64, f64::INFINITY);
+    if j < f * m.rt_th {
+        // Below threshold the root lies under the density where all the
+        // injection recombines (S = 0). Newton on that convex equation from
+        // N_th stays above its root, so every iterate is an upper bound.
+        let mut nd = m.n_th;
+        if fc > 0.0 {
+            nd = nd.min((j / fc).cbrt());
+        }
+        if fb > 0.0 {
+            nd = nd.min((j / fb).sqrt());
+        }
+        if fa > 0.0 {
+            nd = nd.min(j / fa);
+        }
+        for _ in 0..4 {
+            let g = ((fc * nd + fb) * nd + fa) * nd - j;
+            let gp = (3.0 * fc * nd + 2.0 * fb) * nd + fa;
+            nd -= g / gp;
+        }
+        hi = nd;
+        if !(n < nd && n > 0.0) {
+            n = nd * (1.0 - 1e-9);
+        }
+    }
+    if n.is_nan() || n <= 0.0 {
+        n = m.n_th;
+    }
     for _ in 0..200 {
         let rt = ((fc * n + fb) * n + fa) * n;
         let s = gt * (j - rt);
@@ -966,22 +999,27 @@ fn steady_state(m: &Model, f: f64, j: f64) -> (f64, f64) {
         let sp = -gt * rtp;
         let dp = -gv * (gnp / den - gn * m.eps * sp / (den * den));
         let dfdn = sp * d + s * dp - 2.0 * sig_c * n;
-        let mut n_new = if dfdn < 0.0 {
-            n - fval / dfdn
-        } else {
-            f64::NAN
-        };
-        if !(n_new > lo && n_new < hi) {
-            n_new = if hi.is_finite() {
-                0.5 * (lo + hi)
-            } else {
-                2.0 * n
-            };
+        if dfdn < 0.0 {
+            let step = fval / dfdn;
+            // Quadratic convergence: a step this small leaves an error far
+            // below the rounding noise of F.
+            if step.abs() <= 1e-9 * n {
+                n -= step;
+                break;
+            }
+            let n_new = n - step;
+            if n_new > lo && n_new < hi {
+                n = n_new;
+                continue;
+            }
         }
-        let done = (n_new - n).abs() <= 1e-13 * n || hi - lo <= 1e-15 * hi;
-        n = n_new;
-        if done {
-            break;
+        if hi.is_finite() {
+            if hi - lo <= 1e-15 * hi {
+                break;
+            }
+            n = 0.5 * (lo + hi);
+        } else {
+            n *= 2.0;
         }
     }
     let rt = ((fc * n + fb) * n + fa) * n;
@@ -1362,4 +1400,233 @@ fn add_stats(acc: &mut DynamicStats, st: DynamicStats) {
     acc.rejected += st.rejected;
     acc.f_evals += st.f_evals;
     acc.jac_evals += st.jac_evals;
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Damped oscillator x'' + 0.2 x' + x = 0 as a first-order system.
+    fn osc(y: [f64; 2], _: bool) -> ([f64; 2], [[f64; 2]; 2]) {
+        ([y[1], -y[0] - 0.2 * y[1]], [[0.0, 1.0], [-1.0, -0.2]])
+    }
+
+    fn osc_exact(t: f64) -> [f64; 2] {
+        // x(0) = 1, v(0) = 0; zeta = 0.1, wd = sqrt(0.99).
+        let wd = 0.99f64.sqrt();
+        let e = (-0.1 * t).exp();
+        let x = e * ((wd * t).cos() + 0.1 / wd * (wd * t).sin());
+        let v = -e * (1.0 / wd) * (wd * t).sin();
+        [x, v]
+    }
+
+    fn fixed_step_error(h: f64, t_end: f64) -> f64 {
+        let mut y = [1.0, 0.0];
+        let steps = (t_end / h).round() as usize;
+        for _ in 0..steps {
+            let (f0, jac) = osc(y, true);
+            y = rodas4_step(y, f0, jac, h, |s| osc(s, false).0).0;
+        }
+        let ex = osc_exact(t_end);
+        ((y[0] - ex[0]).powi(2) + (y[1] - ex[1]).powi(2)).sqrt()
+    }
+
+    #[test]
+    fn rodas4_is_fourth_order() {
+        let e1 = fixed_step_error(0.1, 10.0);
+        let e2 = fixed_step_error(0.05, 10.0);
+        let ratio = e1 / e2;
+        assert!(
+            (13.0..19.0).contains(&ratio),
+            "error ratio {ratio} (expect 16)"
+        );
+    }
+
+    #[test]
+    fn rodas4_nonlinear_order_and_estimate() {
+        // y' = -y^2, y(0) = 1: y = 1/(1+t). Second component z' = -z (linear).
+        let f = |y: [f64; 2], _: bool| ([-y[0] * y[0], -y[1]], [[-2.0 * y[0], 0.0], [0.0, -1.0]]);
+        let run = |h: f64| {
+            let mut y = [1.0, 1.0];
+            let n = (2.0 / h).round() as usize;
+            for _ in 0..n {
+                let (f0, j) = f(y, true);
+                y = rodas4_step(y, f0, j, h, |s| f(s, false).0).0;
+            }
+            (y[0] - 1.0 / 3.0).abs()
+        };
+        let ratio = run(0.1) / run(0.05);
+        assert!((13.0..19.0).contains(&ratio), "ratio {ratio}");
+        // Embedded estimate of one step behaves as h^4 (3rd-order method).
+        let est = |h: f64| {
+            let (f0, j) = f([1.0, 1.0], true);
+            let e = rodas4_step([1.0, 1.0], f0, j, h, |s| f(s, false).0).1;
+            e[0].abs()
+        };
+        let r = est(0.02) / est(0.01);
+        assert!((13.0..19.0).contains(&r), "estimate ratio {r}");
+    }
+
+    #[test]
+    fn adaptive_meets_tolerance_on_stiff_system() {
+        // y1' = -1e6 (y1 - cos t) - sin t  (solution y1 = cos t), y2' = -y2.
+        let mut y = [1.0, 1.0];
+        let mut h = 1e-9;
+        let mut t = 0.0;
+        let mut rhs = |y: [f64; 2], _: bool| {
+            // Autonomous form needs t; integrate piecewise over short spans
+            // where t is frozen would be wrong, so use the exact-decay
+            // second component only plus a stiff linear first one.
+            (
+                [-1e6 * y[0] + 1e6 * y[1], -y[1]],
+                [[-1e6, 1e6], [0.0, -1.0]],
+            )
+        };
+        for _ in 0..10 {
+            integrate_rodas4(&mut y, 0.5, &mut h, 1e-8, 1e-12, &mut rhs);
+            t += 0.5;
+        }
+        // Exact: y2 = e^-t, y1 = e^-t * 1e6/(1e6 - 1) + C e^-1e6 t.
+        let y2 = (-t as f64).exp();
+        let y1 = y2 * 1e6 / (1e6 - 1.0);
+        assert!((y[1] / y2 - 1.0).abs() < 1e-6, "{} vs {y2}", y[1]);
+        assert!((y[0] / y1 - 1.0).abs() < 1e-6, "{} vs {y1}", y[0]);
+    }
+
+    fn textbook() -> DiodeParams {
+        let mut p = DiodeParams::demo_visible();
+        p.width_um = 2.0;
+        p.length_um = 250.0;
+        p.thickness_nm = 8.0;
+        p.confinement = 0.032;
+        p.group_index = 4.2;
+        p.alpha_i_per_cm = 5.0;
+        p.r_front = 0.32;
+        p.r_back = 0.32;
+        p.eta_i = 0.8;
+        p.a_per_s = 0.0;
+        p.b_cm3_per_s = 0.8e-10;
+        p.c_cm6_per_s = 3.5e-30;
+        p.gain = GainModel::Log {
+            g0_per_cm: 1800.0,
+            n_tr_per_cm3: 1.8e18,
+            n_s_per_cm3: -0.4e18,
+        };
+        p.eps_cm3 = 1.5e-17;
+        p.beta_sp = 8.7e-5;
+        p.wavelength_nm = 980.0;
+        p
+    }
+
+    /// Brute-force steady state: bisection on F(N) to machine precision.
+    fn bisect_steady(m: &Model, f: f64, j: f64) -> (f64, f64) {
+        let gt = m.gamma * m.tau_p;
+        let eval = |n: f64| {
+            let rt = f * (m.a * n + m.b * (1.0 - m.beta) * n * n + m.c * n * n * n);
+            let s = gt * (j - rt);
+            if s <= 0.0 {
+                return (-1.0, s);
+            }
+            let (gn, _) = m.gain.gain(n);
+            let d = m.inv_tau_p - m.gamma * m.v_g * gn / (1.0 + m.eps * s);
+            (s * d - m.gamma * m.beta * f * m.b * n * n, s)
+        };
+        let (mut lo, mut hi) = (0.0, 10.0 * m.n_th);
+        for _ in 0..300 {
+            let mid = 0.5 * (lo + hi);
+            if eval(mid).0 > 0.0 {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        (lo, eval(lo).1)
+    }
+
+    #[test]
+    fn steady_state_matches_bisection() {
+        for p in [
+            textbook(),
+            DiodeParams::demo_visible(),
+            DiodeParams::demo_pump(),
+        ] {
+            let m = Model::new(&p);
+            for f in [0.7, 1.0, 1.6] {
+                for x in [0.01, 0.3, 0.9, 0.99, 1.0, 1.01, 1.1, 2.0, 5.0, 20.0] {
+                    let j = x * f * m.rt_th;
+                    let (n, s) = steady_state(&m, f, j);
+                    let (nb, sb) = bisect_steady(&m, f, j);
+                    assert!((n / nb - 1.0).abs() < 1e-10, "N {n} vs {nb} at x={x} f={f}");
+                    assert!((s / sb - 1.0).abs() < 1e-6, "S {s} vs {sb} at x={x} f={f}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn dark_state_balances_recombination() {
+        let m = Model::new(&textbook());
+        for j in [1e30, 1e32, 1e34] {
+            let n = dark_state(&m, 1.3, j);
+            let r = 1.3 * (m.a * n + m.b * n * n + m.c * n * n * n);
+            assert!((r / j - 1.0).abs() < 1e-12);
+        }
+    }
+
+    #[test]
+    fn toml_round_trip_and_unknown_fields() {
+        let p = DiodeParams::demo_pump();
+        let text = toml::to_string(&p).unwrap();
+        let back: DiodeParams = crate::plant::from_toml(&text).unwrap();
+        assert_eq!(p, back);
+        let bad = text.replace("eta_i =", "eta_x = 1.0\neta_i =");
+        assert!(crate::plant::from_toml::<DiodeParams>(&bad).is_err());
+    }
+
+    #[test]
+    fn damage_latches_and_stops_lasing() {
+        let mut d = Diode::new(DiodeParams::demo_visible()).unwrap();
+        let t = 298.15;
+        let ok = d.step_quasi_static(0.05, t);
+        assert!(!d.damaged() && ok.p_front_w > 0.01);
+        let hit = d.step_quasi_static(0.2, t);
+        assert!(hit.p_front_w > 0.06 && d.damaged());
+        let after = d.step_quasi_static(0.05, t);
+        assert_eq!(after.p_front_w, 0.0);
+        assert!(after.v_f_v > 1.5);
+        let dyn_out = d.step_dynamic(0.05, t, 1e-9);
+        assert_eq!(dyn_out.p_front_w, 0.0);
+    }
+
+    #[test]
+    fn dynamic_damage_uses_filtered_power() {
+        // A 2 ns overdrive spike well above the limit does not destroy the
+        // facet with a 100 ns facet time constant; a sustained one does.
+        let p = DiodeParams::demo_visible();
+        let t = 298.15;
+        let mut d = Diode::new(p).unwrap();
+        d.step_quasi_static(0.04, t);
+        d.step_dynamic(0.2, t, 2e-9);
+        assert!(!d.damaged());
+        d.step_dynamic(0.04, t, 1e-6);
+        assert!(!d.damaged());
+        d.step_dynamic(0.2, t, 1e-6);
+        assert!(d.damaged());
+        assert_eq!(d.photon_density_m3(), 0.0);
+    }
+
+    #[test]
+    fn aging_raises_threshold_and_lowers_slope() {
+        let mut d = Diode::new(DiodeParams::demo_visible()).unwrap();
+        let t = 298.15;
+        let (i0, s0) = (d.threshold_current_a(t), d.slope_w_per_a(t));
+        d.age(5000.0);
+        assert!((d.threshold_current_a(t) / i0 - 1.10).abs() < 1e-12);
+        assert!((d.slope_w_per_a(t) / s0 - 0.95).abs() < 1e-12);
+        // The quasi-static L-I follows the analytic figures.
+        let p1 = d.quasi_static(0.045, t).p_front_w;
+        let p2 = d.quasi_static(0.055, t).p_front_w;
+        let slope = (p2 - p1) / 0.01;
+        assert!((slope / d.slope_w_per_a(t) - 1.0).abs() < 0.01, "{slope}");
+    }
 }

@@ -90,6 +90,7 @@ pub struct Driver {
     off_decay: f64,
     i_lag: f64,
     i_out: f64,
+    saturated: bool,
     /// Fault hook: the source fails high and drives `fail_high_current_a`;
     /// only the enable line stops it.
     pub fail_high: bool,
@@ -117,6 +118,7 @@ impl Driver {
             off_decay: 0.0,
             i_lag: 0.0,
             i_out: 0.0,
+            saturated: false,
             fail_high: false,
             dac_stuck: None,
             sense_gain_error: 1.0,
@@ -176,10 +178,11 @@ impl Driver {
     /// (the value of the previous step). When it exceeds the available
     /// `supply_v - compliance_v` the source is out of compliance and the
     /// current is cut to `i * V_avail / v_f_v` (the diode replaced by its
-    /// static resistance V/I). For a diode I-V curve (concave V(I) through the
+    /// static resistance V/I); the same bound stays in force while the source
+    /// remains saturated. For a diode I-V curve (concave V(I) through the
     /// origin) this update approaches the exact compliance current
-    /// monotonically from above over successive steps, never oscillating.
-    /// Use [`Driver::step_with_load`] to solve the compliance point exactly.
+    /// monotonically over successive steps, never oscillating. Use
+    /// [`Driver::step_with_load`] to solve the compliance point exactly.
     #[inline]
     pub fn step(
         &mut self,
@@ -194,12 +197,16 @@ impl Driver {
         if v_avail <= 0.0 {
             i = 0.0;
             self.i_lag = 0.0;
-        } else if v_f_v > v_avail && self.i_out > 0.0 {
+            self.saturated = false;
+        } else if self.i_out > 0.0 && v_f_v > 0.0 && (v_f_v > v_avail || self.saturated) {
             let limit = self.i_out * v_avail / v_f_v;
-            if i > limit {
+            self.saturated = i > limit;
+            if self.saturated {
                 i = limit;
                 self.i_lag = limit;
             }
+        } else {
+            self.saturated = false;
         }
         self.i_out = i;
         i

@@ -1,0 +1,90 @@
+//! Board configuration for a simulated module: the core's limits and loop
+//! gains, with the calibration derived from the module's nominal hardware
+//! (as a production line calibrates a board at 25 degC) and the
+//! temperature table built from the sensor's own equation, so firmware and
+//! simulator share one conversion.
+
+use diodestat_core::config::{AdcCal, DacCal, Rail, TempCal};
+use diodestat_core::{Config, Fx, Gain, TempPoint};
+
+use crate::plant::{DemoModule, Monitor, SensorChain, Topology, ZERO_CELSIUS_K};
+
+/// Reference temperature of the factory calibration, K.
+pub const CAL_T_K: f64 = 25.0 + ZERO_CELSIUS_K;
+
+/// Supply divider ratio of the simulated boards (supply volts per ADC volt).
+pub const SUPPLY_DIVIDER: f64 = 8.0;
+
+fn gain(v: f64) -> Gain {
+    Gain::saturating_from_num(v)
+}
+
+fn fx(v: f64) -> Fx {
+    Fx::saturating_from_num(v)
+}
+
+/// Replace the calibration of `cfg` by the nominal calibration of `module`
+/// and set the supply window to ±10 % of its nominal supply.
+pub fn calibrate(mut cfg: Config, module: &DemoModule) -> Config {
+    let full = ((1u32 << module.adc.bits) - 1) as u16;
+    let counts_per_v = f64::from(full) / module.adc.vref_v;
+    // Monitor: front mW -> photodiode current -> transimpedance -> counts.
+    let mon = Monitor::new(module.monitor.clone()).expect("demo monitor valid");
+    let wl = module.diode.wavelength_nm * 1e-9;
+    let i_per_w = mon.current_a(1.0, wl, CAL_T_K) - mon.current_a(0.0, wl, CAL_T_K);
+    let counts_per_mw = mon.voltage_v(i_per_w) * 1e-3 * counts_per_v;
+    cfg.calibration.monitor = AdcCal {
+        offset_counts: 0,
+        units_per_count: gain(1.0 / counts_per_mw),
+        full_scale_counts: full,
+    };
+    // Current sense.
+    let counts_per_ma = module.driver.sense_ohm * module.driver.sense_gain * 1e-3 * counts_per_v;
+    cfg.calibration.current_sense = AdcCal {
+        offset_counts: 0,
+        units_per_count: gain(1.0 / counts_per_ma),
+        full_scale_counts: full,
+    };
+    // Supply through the divider.
+    let counts_per_mv = 1e-3 * counts_per_v / SUPPLY_DIVIDER;
+    cfg.calibration.supply = AdcCal {
+        offset_counts: 0,
+        units_per_count: gain(1.0 / counts_per_mv),
+        full_scale_counts: full,
+    };
+    cfg.protection.supply_min_mv = fx(module.supply_v * 900.0);
+    cfg.protection.supply_max_mv = fx(module.supply_v * 1100.0);
+    // DAC.
+    let dac_max = ((1u32 << module.driver.dac_bits) - 1) as u16;
+    let fs_ma = module.driver.dac_vref_v * module.driver.transconductance_a_per_v * 1e3;
+    cfg.calibration.dac = DacCal {
+        codes_per_ma: fx(f64::from(dac_max) / fs_ma),
+        offset_codes: 0,
+        max_code: dac_max,
+    };
+    cfg.calibration.temperature = temp_cal(module);
+    cfg
+}
+
+/// The core's temperature table and rails for the module's sensor chain.
+pub fn temp_cal(module: &DemoModule) -> TempCal {
+    let chain = SensorChain::new(module.sensor.clone()).expect("demo sensor valid");
+    let max = chain.max_code();
+    let mut table = heapless::Vec::new();
+    for (counts, degc) in chain.temp_table(-20.0, 100.0, 25) {
+        let _ = table.push(TempPoint {
+            counts,
+            degc: fx(degc),
+        });
+    }
+    let rail = (f64::from(max) * 0.01).round() as u16;
+    TempCal {
+        table,
+        low_fault_counts: rail,
+        high_fault_counts: max - rail,
+        open_rail: match module.sensor.front_end.topology {
+            Topology::SensorToGround => Rail::High,
+            Topology::SensorToSupply => Rail::Low,
+        },
+    }
+}

@@ -1,0 +1,311 @@
+//! Run reports: the printed summary (settling, overshoot, peak power,
+//! faults with their latency), the CSV trace and the SVG plot.
+
+use std::fmt::Write as _;
+use std::path::Path;
+
+use diodestat_core::State;
+use plotters::prelude::*;
+
+use crate::sim::{Happening, RunResult};
+
+/// One line of a plot panel: label, colour, value of a trace row.
+type Line = (&'static str, RGBColor, Box<dyn Fn(&crate::sim::TraceRow) -> f64>);
+/// One plot panel: title, unit, lines.
+type Panel = (&'static str, &'static str, Vec<Line>);
+
+/// The safety caution every report carries.
+pub const SAFETY_CAUTION: &str = "Simulation results complement, never replace, a hardware current limit, \
+interlock gating of the enable line, an independent watchdog and eye protection. Follow IEC 60825-1, \
+local regulations and your site's laser safety officer.";
+
+/// Step-response figures of the optical power.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Figures {
+    /// Final value (mean of the last 5 % of the regulating window), mW.
+    pub final_mw: f64,
+    /// Overshoot above the final value, percent.
+    pub overshoot_pct: f64,
+    /// Time from entering Regulating to staying within ±1 % of final, ms.
+    pub settling_ms: Option<f64>,
+}
+
+/// Figures of the first stretch of Regulating in the trace.
+pub fn figures(res: &RunResult) -> Option<Figures> {
+    let start = res
+        .trace
+        .iter()
+        .position(|r| r.state == State::Regulating)?;
+    let end = res.trace[start..]
+        .iter()
+        .position(|r| r.state != State::Regulating)
+        .map_or(res.trace.len(), |n| start + n);
+    let w = &res.trace[start..end];
+    if w.len() < 20 {
+        return None;
+    }
+    let tail = &w[w.len() - w.len() / 20..];
+    let final_mw = tail.iter().map(|r| r.p_mw).sum::<f64>() / tail.len() as f64;
+    let peak = w.iter().map(|r| r.p_mw).fold(f64::MIN, f64::max);
+    let overshoot_pct = ((peak - final_mw) / final_mw * 100.0).max(0.0);
+    let band = 0.01 * final_mw.abs();
+    let settling_ms = w
+        .iter()
+        .rposition(|r| (r.p_mw - final_mw).abs() > band)
+        .and_then(|i| w.get(i + 1))
+        .map(|r| (r.t_s - w[0].t_s) * 1e3);
+    Some(Figures {
+        final_mw,
+        overshoot_pct,
+        settling_ms,
+    })
+}
+
+/// The printed summary.
+pub fn summary(name: &str, res: &RunResult) -> String {
+    let mut s = String::new();
+    let dt_us = 1e6 / f64::from(res.tick_hz);
+    let _ = writeln!(s, "scenario: {name}");
+    let _ = writeln!(
+        s,
+        "ticks: {} at {} Hz ({:.1} ms)",
+        res.ticks,
+        res.tick_hz,
+        res.ticks as f64 * dt_us / 1e3
+    );
+    if let Some(f) = figures(res) {
+        let _ = writeln!(s, "regulated power: {:.3} mW", f.final_mw);
+        let _ = writeln!(s, "overshoot: {:.2} %", f.overshoot_pct);
+        match f.settling_ms {
+            Some(t) => {
+                let _ = writeln!(s, "settling to ±1 %: {t:.3} ms after hand-over");
+            }
+            None => {
+                let _ = writeln!(s, "settling to ±1 %: within the first traced tick");
+            }
+        }
+    }
+    let _ = writeln!(s, "peak optical power: {:.3} mW", res.peak_mw);
+    let _ = writeln!(
+        s,
+        "facet damage: {}",
+        if res.damaged { "YES" } else { "no" }
+    );
+    let mut injected: Option<u64> = None;
+    for h in &res.happenings {
+        match h {
+            Happening::Injected { tick, fault } => {
+                injected = Some(*tick);
+                let _ = writeln!(
+                    s,
+                    "  t={:.3} ms injected {fault}",
+                    *tick as f64 * dt_us / 1e3
+                );
+            }
+            Happening::Fault {
+                tick,
+                fault,
+                measured,
+                limit,
+            } => {
+                let lat = injected
+                    .map(|i| {
+                        format!(
+                            ", latency {} ticks = {:.0} us",
+                            tick - i,
+                            (tick - i) as f64 * dt_us
+                        )
+                    })
+                    .unwrap_or_default();
+                let _ = writeln!(
+                    s,
+                    "  t={:.3} ms FAULT {fault} (measured {measured:.3}, limit {limit:.3}){lat}",
+                    *tick as f64 * dt_us / 1e3
+                );
+            }
+            Happening::State { tick, state } => {
+                let _ = writeln!(
+                    s,
+                    "  t={:.3} ms -> {}",
+                    *tick as f64 * dt_us / 1e3,
+                    state.name()
+                );
+            }
+            Happening::Rejected { tick, why } => {
+                let _ = writeln!(
+                    s,
+                    "  t={:.3} ms request refused: {why}",
+                    *tick as f64 * dt_us / 1e3
+                );
+            }
+            Happening::FacetDamage { tick } => {
+                let _ = writeln!(s, "  t={:.3} ms FACET DAMAGE", *tick as f64 * dt_us / 1e3);
+            }
+        }
+    }
+    let _ = writeln!(s, "final state: {}", res.final_state.name());
+    let _ = writeln!(s, "CAUTION: {SAFETY_CAUTION}");
+    s
+}
+
+/// Write the trace as CSV.
+pub fn write_csv(path: &Path, res: &RunResult) -> std::io::Result<()> {
+    let mut s = String::from(
+        "tick,t_s,state,p_mw,i_ma,cmd_ma,ceiling_ma,monitor_mw,tj_c,sensed_c,ambient_c\n",
+    );
+    for r in &res.trace {
+        let _ = writeln!(
+            s,
+            "{},{:.7},{},{:.6},{:.6},{:.6},{:.6},{:.6},{:.4},{:.4},{:.4}",
+            r.tick,
+            r.t_s,
+            r.state.name(),
+            r.p_mw,
+            r.i_ma,
+            r.cmd_ma,
+            r.ceiling_ma,
+            r.monitor_mw,
+            r.tj_c,
+            r.sensed_c,
+            r.ambient_c
+        );
+    }
+    std::fs::write(path, s)
+}
+
+/// Write the SVG plot: optical power, drive current, junction and sensed
+/// temperature against time, with state changes and faults marked.
+pub fn write_svg(path: &Path, name: &str, res: &RunResult) -> Result<(), String> {
+    let e = |x: String| x;
+    let root = SVGBackend::new(path, (1100, 800)).into_drawing_area();
+    root.fill(&WHITE).map_err(|x| e(x.to_string()))?;
+    let panels = root.split_evenly((3, 1));
+    let t_end = res.trace.last().map_or(1e-3, |r| r.t_s).max(1e-6) * 1e3;
+    let dt_ms = 1e3 / f64::from(res.tick_hz);
+    let series: [Panel; 3] = [
+        (
+            "optical power",
+            "mW",
+            vec![
+                ("front power", RGBColor(200, 30, 30), Box::new(|r| r.p_mw)),
+                (
+                    "monitor reading",
+                    RGBColor(240, 140, 0),
+                    Box::new(|r| r.monitor_mw),
+                ),
+            ],
+        ),
+        (
+            "drive current",
+            "mA",
+            vec![
+                ("actual", RGBColor(20, 60, 200), Box::new(|r| r.i_ma)),
+                (
+                    "ceiling",
+                    RGBColor(120, 120, 120),
+                    Box::new(|r| r.ceiling_ma),
+                ),
+            ],
+        ),
+        (
+            "temperature",
+            "degC",
+            vec![
+                ("junction", RGBColor(150, 0, 150), Box::new(|r| r.tj_c)),
+                (
+                    "sensed (case)",
+                    RGBColor(0, 140, 90),
+                    Box::new(|r| r.sensed_c),
+                ),
+                ("ambient", RGBColor(90, 90, 90), Box::new(|r| r.ambient_c)),
+            ],
+        ),
+    ];
+    for (i, (panel, (title, unit, lines))) in panels.iter().zip(series.iter()).enumerate() {
+        let (mut lo, mut hi) = (f64::MAX, f64::MIN);
+        for r in &res.trace {
+            for (_, _, f) in lines {
+                let v = f(r);
+                if v.is_finite() {
+                    lo = lo.min(v);
+                    hi = hi.max(v);
+                }
+            }
+        }
+        if !(lo.is_finite() && hi.is_finite()) || lo >= hi {
+            lo = lo.min(0.0);
+            hi = lo + 1.0;
+        }
+        let pad = (hi - lo) * 0.08;
+        let caption = if i == 0 {
+            format!("{name}: {title}")
+        } else {
+            title.to_string()
+        };
+        let mut chart = ChartBuilder::on(panel)
+            .caption(caption, ("sans-serif", 18))
+            .margin(8)
+            .x_label_area_size(30)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0.0..t_end, (lo - pad)..(hi + pad))
+            .map_err(|x| e(x.to_string()))?;
+        chart
+            .configure_mesh()
+            .x_desc("time (ms)")
+            .y_desc(*unit)
+            .draw()
+            .map_err(|x| e(x.to_string()))?;
+        for (label, color, f) in lines {
+            let c = *color;
+            chart
+                .draw_series(LineSeries::new(
+                    res.trace.iter().map(|r| (r.t_s * 1e3, f(r))),
+                    c,
+                ))
+                .map_err(|x| e(x.to_string()))?
+                .label(*label)
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], c));
+        }
+        for h in &res.happenings {
+            let (tick, color, text) = match h {
+                Happening::State { tick, state } => {
+                    (*tick, RGBColor(60, 60, 60), state.name().to_string())
+                }
+                Happening::Fault { tick, fault, .. } => {
+                    (*tick, RGBColor(220, 0, 0), format!("FAULT {fault}"))
+                }
+                Happening::Injected { tick, fault } => {
+                    (*tick, RGBColor(0, 0, 220), format!("inject {fault}"))
+                }
+                Happening::FacetDamage { tick } => {
+                    (*tick, RGBColor(0, 0, 0), "FACET DAMAGE".into())
+                }
+                Happening::Rejected { .. } => continue,
+            };
+            let x = tick as f64 * dt_ms;
+            chart
+                .draw_series(std::iter::once(PathElement::new(
+                    vec![(x, lo - pad), (x, hi + pad)],
+                    color.mix(0.5),
+                )))
+                .map_err(|x| e(x.to_string()))?;
+            if i == 0 {
+                chart
+                    .draw_series(std::iter::once(Text::new(
+                        text,
+                        (x, hi + pad * 0.5),
+                        ("sans-serif", 11).into_font().color(&color),
+                    )))
+                    .map_err(|x| e(x.to_string()))?;
+            }
+        }
+        chart
+            .configure_series_labels()
+            .background_style(WHITE.mix(0.8))
+            .border_style(BLACK)
+            .draw()
+            .map_err(|x| e(x.to_string()))?;
+    }
+    root.present().map_err(|x| e(x.to_string()))?;
+    Ok(())
+}

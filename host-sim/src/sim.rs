@@ -1,0 +1,411 @@
+//! The closed loop: the very same `diodestat-core` controller against the
+//! plant (diode, driver, thermal path, sensors), one core `step` per tick,
+//! with timed requests, ambient changes and injected hardware faults.
+
+use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig};
+
+use crate::plant::{
+    c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, SensorChain, Thermal,
+};
+use crate::scenario::{Action, AdcChannel, DiodeModel, HwFault, ModeName, Scenario};
+
+/// One tick of the trace.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct TraceRow {
+    /// Tick index.
+    pub tick: u64,
+    /// Time, s.
+    pub t_s: f64,
+    /// Controller state after the tick.
+    pub state: State,
+    /// Front-facet optical power, mW.
+    pub p_mw: f64,
+    /// Actual drive current, mA.
+    pub i_ma: f64,
+    /// Commanded drive (core), mA.
+    pub cmd_ma: f64,
+    /// Ceiling in force (core), mA.
+    pub ceiling_ma: f64,
+    /// Monitor reading as the core sees it, mW.
+    pub monitor_mw: f64,
+    /// Junction temperature, degC.
+    pub tj_c: f64,
+    /// Temperature as the core reads it, degC.
+    pub sensed_c: f64,
+    /// Ambient, degC.
+    pub ambient_c: f64,
+}
+
+/// Something that happened during a run.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Happening {
+    /// State change.
+    State {
+        /// Tick.
+        tick: u64,
+        /// New state.
+        state: State,
+    },
+    /// A fault latched in the core.
+    Fault {
+        /// Tick.
+        tick: u64,
+        /// The fault name.
+        fault: &'static str,
+        /// Measured value.
+        measured: f64,
+        /// Limit.
+        limit: f64,
+    },
+    /// A request was refused.
+    Rejected {
+        /// Tick.
+        tick: u64,
+        /// Why.
+        why: String,
+    },
+    /// A hardware fault was injected.
+    Injected {
+        /// Tick.
+        tick: u64,
+        /// Which.
+        fault: &'static str,
+    },
+    /// The facet reached the damage limit.
+    FacetDamage {
+        /// Tick.
+        tick: u64,
+    },
+}
+
+/// The plant around the controller.
+pub struct Plant {
+    /// Diode.
+    pub diode: Diode,
+    /// Monitor photodiode.
+    pub monitor: Monitor,
+    /// Current source.
+    pub driver: Driver,
+    /// Thermal ladder.
+    pub thermal: Thermal,
+    /// Case temperature sensor.
+    pub sensor: SensorChain,
+    /// Monitor ADC.
+    pub adc_monitor: Adc,
+    /// Current-sense ADC.
+    pub adc_current: Adc,
+    /// Supply ADC.
+    pub adc_supply: Adc,
+    /// Supply voltage, V.
+    pub supply_v: f64,
+    /// Interlock closed.
+    pub interlock_closed: bool,
+    /// Ticks still to be missed.
+    pub missed_left: u32,
+    /// Monitor front-end filter state, V.
+    mon_filt_v: f64,
+    /// Last optical output.
+    p_front_w: f64,
+    wavelength_m: f64,
+    v_f: f64,
+}
+
+/// Monitor front-end RC pole of the simulated boards, Hz.
+pub const MONITOR_FILTER_HZ: f64 = 5_000.0;
+
+impl Plant {
+    /// Build the plant of a module at an ambient temperature, seeded.
+    pub fn new(module: &DemoModule, ambient_c: f64, seed: u64) -> Result<Self, PlantError> {
+        let t = c_to_k(ambient_c);
+        let mut adc = module.adc.clone();
+        let mut sensor = module.sensor.clone();
+        sensor.front_end.seed ^= seed;
+        adc.seed ^= seed;
+        let adc_monitor = Adc::new(adc.clone())?;
+        adc.seed = adc.seed.wrapping_add(1);
+        let adc_current = Adc::new(adc.clone())?;
+        adc.seed = adc.seed.wrapping_add(1);
+        let adc_supply = Adc::new(adc)?;
+        let diode = Diode::new(module.diode.clone())?;
+        let wavelength_m = diode.wavelength_m(t);
+        Ok(Plant {
+            diode,
+            monitor: Monitor::new(module.monitor.clone())?,
+            driver: Driver::new(module.driver.clone())?,
+            thermal: Thermal::new(module.thermal.clone(), t)?,
+            sensor: SensorChain::new(sensor)?,
+            adc_monitor,
+            adc_current,
+            adc_supply,
+            supply_v: module.supply_v,
+            interlock_closed: true,
+            missed_left: 0,
+            mon_filt_v: 0.0,
+            p_front_w: 0.0,
+            wavelength_m,
+            v_f: 0.0,
+        })
+    }
+
+    /// Front-facet optical power now, W.
+    pub fn p_front_w(&self) -> f64 {
+        self.p_front_w
+    }
+
+    /// Sample every channel for the tick `tick`.
+    pub fn sample(&mut self, tick: u32, dt: f64) -> Sample {
+        let t_case = self.thermal.t_case_k();
+        let i_mon = self
+            .monitor
+            .current_a(self.p_front_w, self.wavelength_m, t_case);
+        let v_mon = self.monitor.voltage_v(i_mon);
+        let a = 1.0 - (-dt * 2.0 * std::f64::consts::PI * MONITOR_FILTER_HZ).exp();
+        self.mon_filt_v += a * (v_mon - self.mon_filt_v);
+        let i = self.driver.current_a();
+        Sample {
+            tick,
+            monitor_counts: self.adc_monitor.sample(self.mon_filt_v),
+            current_counts: self.adc_current.sample(self.driver.sense_voltage(i)),
+            temp_counts: self.sensor.counts(t_case, dt),
+            supply_counts: self
+                .adc_supply
+                .sample(self.supply_v / crate::board::SUPPLY_DIVIDER),
+            interlock_closed: self.interlock_closed,
+        }
+    }
+
+    /// Advance the plant by `dt` under a DAC code and enable line.
+    pub fn advance(
+        &mut self,
+        dac_code: u16,
+        enable: bool,
+        ambient_k: f64,
+        model: DiodeModel,
+        dt: f64,
+    ) {
+        let tj = self.thermal.t_junction_k();
+        let i = self
+            .driver
+            .step(dac_code, enable, self.v_f, self.supply_v, dt);
+        let out = match model {
+            DiodeModel::QuasiStatic => self.diode.step_quasi_static(i, tj),
+            DiodeModel::Dynamic => self.diode.step_dynamic(i, tj, dt),
+        };
+        self.p_front_w = out.p_front_w;
+        self.wavelength_m = out.wavelength_m;
+        self.v_f = out.v_f_v;
+        let p_diss = (i * out.v_f_v - out.p_front_w - out.p_back_w).max(0.0);
+        self.thermal.step(p_diss, ambient_k, dt);
+    }
+
+    fn inject(&mut self, f: &HwFault, on: bool) {
+        match *f {
+            HwFault::SensorOpen => self.sensor.open = on,
+            HwFault::SensorShort => self.sensor.short = on,
+            HwFault::MonitorOpen => self.monitor.open = on,
+            HwFault::MonitorDegrade { factor } => {
+                self.monitor.degrade_factor = if on { factor } else { 1.0 }
+            }
+            HwFault::SourceFailHigh => self.driver.fail_high = on,
+            HwFault::DacStuck { code } => self.driver.dac_stuck = on.then_some(code),
+            HwFault::SenseGain { factor } => {
+                self.driver.sense_gain_error = if on { factor } else { 1.0 }
+            }
+            HwFault::InterlockOpen => self.interlock_closed = !on,
+            HwFault::SupplySag { to_v } => {
+                if on {
+                    self.supply_v = to_v
+                }
+            }
+            HwFault::HeatsinkLoss { factor } => {
+                self.thermal.heatsink_loss_factor = if on { factor } else { 1.0 }
+            }
+            HwFault::Aging { hours } => {
+                if on {
+                    self.diode.age(hours)
+                }
+            }
+            HwFault::AdcStuck { channel, code } => {
+                let v = on.then_some(code);
+                match channel {
+                    AdcChannel::Monitor => self.adc_monitor.stuck = v,
+                    AdcChannel::Current => self.adc_current.stuck = v,
+                    AdcChannel::Supply => self.adc_supply.stuck = v,
+                    AdcChannel::Temperature => self.sensor.stuck = v,
+                }
+            }
+            HwFault::MissedTicks { ticks } => self.missed_left = if on { ticks } else { 0 },
+        }
+    }
+}
+
+/// The result of a run.
+#[derive(Clone, Debug, Default)]
+pub struct RunResult {
+    /// Trace rows (decimated by `trace_every`).
+    pub trace: Vec<TraceRow>,
+    /// Events in order.
+    pub happenings: Vec<Happening>,
+    /// Ticks run.
+    pub ticks: u64,
+    /// Peak optical power, mW.
+    pub peak_mw: f64,
+    /// Whether the facet was damaged.
+    pub damaged: bool,
+    /// Final state.
+    pub final_state: State,
+    /// Tick rate, Hz.
+    pub tick_hz: u32,
+}
+
+fn fx(v: f64) -> Fx {
+    Fx::saturating_from_num(v)
+}
+
+fn to_f(v: Fx) -> f64 {
+    v.to_num::<f64>()
+}
+
+/// Run a scenario on a validated board configuration.
+pub fn run(sc: &Scenario, module: &DemoModule, cfg: ValidConfig) -> Result<RunResult, PlantError> {
+    let tick_hz = cfg.config().tick_hz;
+    let dt = 1.0 / f64::from(tick_hz);
+    let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
+    let mut plant = Plant::new(module, sc.ambient_c, sc.seed)?;
+    let mut ctl = Controller::new(cfg);
+    let mut events: Vec<(u64, &Action)> = sc
+        .events
+        .iter()
+        .map(|e| {
+            (
+                (e.at_ms * 1e-3 * f64::from(tick_hz)).round() as u64,
+                &e.action,
+            )
+        })
+        .collect();
+    events.sort_by_key(|e| e.0);
+    let mut next_event = 0usize;
+    let mut ambient_c = sc.ambient_c;
+    let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
+    let mut res = RunResult {
+        tick_hz,
+        ..RunResult::default()
+    };
+    let mut last_state = State::Off;
+    let mut logged = 0usize;
+    let mut drive = diodestat_core::Drive::default();
+    let trace_every = u64::from(sc.trace_every.max(1));
+    for tick in 0..n_ticks {
+        // Timed events for this tick.
+        while let Some(&(at, action)) = events.get(next_event) {
+            if at > tick {
+                break;
+            }
+            next_event += 1;
+            let req = match action {
+                Action::Enable => Some(Request::Enable),
+                Action::Disable => Some(Request::Disable),
+                Action::SetPower { mw } => Some(Request::SetPowerMw(fx(*mw))),
+                Action::SetCurrent { ma } => Some(Request::SetCurrentMa(fx(*ma))),
+                Action::Mode { mode } => Some(Request::SetMode(match mode {
+                    ModeName::Apc => Mode::Apc,
+                    ModeName::Acc => Mode::Acc,
+                })),
+                Action::Clear => Some(Request::ClearFaults),
+                Action::AmbientStep { to_c } => {
+                    ambient_c = *to_c;
+                    ramp = None;
+                    None
+                }
+                Action::AmbientRamp { to_c, over_ms } => {
+                    let len = (over_ms * 1e-3 * f64::from(tick_hz)).round().max(1.0) as u64;
+                    ramp = Some((ambient_c, *to_c, tick, tick + len));
+                    None
+                }
+                Action::Inject { fault } => {
+                    plant.inject(fault, true);
+                    res.happenings.push(Happening::Injected {
+                        tick,
+                        fault: fault.name(),
+                    });
+                    None
+                }
+                Action::Repair { fault } => {
+                    plant.inject(fault, false);
+                    None
+                }
+            };
+            if let Some(r) = req {
+                if let Err(why) = ctl.request(r) {
+                    res.happenings.push(Happening::Rejected {
+                        tick,
+                        why: why.to_string(),
+                    });
+                }
+            }
+        }
+        if let Some((from, to, start, end)) = ramp {
+            let x = ((tick - start) as f64 / (end - start) as f64).min(1.0);
+            ambient_c = from + (to - from) * x;
+            if tick >= end {
+                ramp = None;
+            }
+        }
+        // The board samples and steps the core, unless it misses this tick.
+        let sample = plant.sample(tick as u32, dt);
+        if plant.missed_left > 0 {
+            plant.missed_left -= 1;
+        } else {
+            drive = ctl.step(&sample);
+        }
+        plant.advance(
+            drive.dac_code,
+            drive.enable,
+            c_to_k(ambient_c),
+            sc.diode_model,
+            dt,
+        );
+        let p_mw = plant.p_front_w * 1e3;
+        res.peak_mw = res.peak_mw.max(p_mw);
+        if !res.damaged && plant.diode.damaged() {
+            res.damaged = true;
+            res.happenings.push(Happening::FacetDamage { tick });
+        }
+        let st = ctl.state();
+        if st != last_state {
+            res.happenings.push(Happening::State { tick, state: st });
+            last_state = st;
+        }
+        let log = ctl.fault_log();
+        if log.len() > logged {
+            for r in log.first().into_iter().chain(log.later()).skip(logged) {
+                res.happenings.push(Happening::Fault {
+                    tick,
+                    fault: r.fault.name(),
+                    measured: to_f(r.measured),
+                    limit: to_f(r.limit),
+                });
+            }
+            logged = log.len();
+        }
+        if tick % trace_every == 0 {
+            let m = ctl.measurements();
+            res.trace.push(TraceRow {
+                tick,
+                t_s: tick as f64 * dt,
+                state: st,
+                p_mw,
+                i_ma: plant.driver.current_a() * 1e3,
+                cmd_ma: to_f(ctl.drive_ma()),
+                ceiling_ma: to_f(ctl.ceiling_ma()),
+                monitor_mw: to_f(m.monitor_mw),
+                tj_c: k_to_c(plant.thermal.t_junction_k()),
+                sensed_c: to_f(m.temp_degc),
+                ambient_c,
+            });
+        }
+        res.ticks = tick + 1;
+    }
+    res.final_state = ctl.state();
+    Ok(res)
+}
