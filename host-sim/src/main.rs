@@ -29,6 +29,28 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
+    /// L-I-V sweep of a demo module's diode at chosen temperatures (CSV and SVG).
+    Liv {
+        /// Module: visible or pump.
+        module: String,
+        /// Junction temperatures, degC.
+        #[arg(long, value_delimiter = ',', default_value = "25")]
+        temps_c: Vec<f64>,
+        /// Highest current, mA (default: the driver's full scale).
+        #[arg(long)]
+        max_ma: Option<f64>,
+        /// Output folder.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
+    /// Export the board configuration of a module as Rust source, with its hash.
+    Export {
+        /// Module: visible or pump.
+        module: String,
+        /// Output file.
+        #[arg(long)]
+        out: PathBuf,
+    },
 }
 
 fn module_by_name(name: &str) -> Result<DemoModule, String> {
@@ -70,10 +92,76 @@ fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
     Ok(())
 }
 
+fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &PathBuf) -> Result<(), String> {
+    let m = module_by_name(module)?;
+    let diode = diodestat_sim::plant::Diode::new(m.diode.clone()).map_err(|e| e.to_string())?;
+    let i_max =
+        max_ma.unwrap_or(m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3) * 1e-3;
+    std::fs::create_dir_all(out).map_err(|e| e.to_string())?;
+    let mut csv = String::from("t_c,i_ma,p_mw,v_f_v,wavelength_nm\n");
+    let mut curves = Vec::new();
+    for &t in temps_c {
+        let mut pts = Vec::new();
+        for k in 0..=400 {
+            let i = i_max * f64::from(k) / 400.0;
+            let o = diode.quasi_static(i, diodestat_sim::plant::c_to_k(t));
+            csv.push_str(&format!(
+                "{t},{:.4},{:.5},{:.5},{:.4}\n",
+                i * 1e3,
+                o.p_front_w * 1e3,
+                o.v_f_v,
+                o.wavelength_m * 1e9
+            ));
+            pts.push((i * 1e3, o.p_front_w * 1e3, o.v_f_v));
+        }
+        curves.push((t, pts));
+    }
+    std::fs::write(out.join("liv.csv"), csv).map_err(|e| e.to_string())?;
+    report::write_liv_svg(&out.join("liv.svg"), module, &curves)?;
+    for (t, pts) in &curves {
+        let ith = diode.threshold_current_a(diodestat_sim::plant::c_to_k(*t)) * 1e3;
+        let pmax = pts.iter().map(|p| p.1).fold(0.0, f64::max);
+        println!(
+            "{t:>6.1} degC: threshold {ith:.3} mA, power at {:.1} mA {:.3} mW",
+            i_max * 1e3,
+            pts.last().map_or(0.0, |p| p.1).max(0.0).min(pmax)
+        );
+    }
+    println!(
+        "wrote {} and {}",
+        out.join("liv.csv").display(),
+        out.join("liv.svg").display()
+    );
+    Ok(())
+}
+
+fn export(module: &str, out: &PathBuf) -> Result<(), String> {
+    let m = module_by_name(module)?;
+    let cfg = board::calibrate(diodestat_core::example::config(), &m);
+    cfg.clone()
+        .validate()
+        .map_err(|e| format!("board configuration refused: {e}"))?;
+    let src = diodestat_sim::export::rust_module(module, &cfg);
+    std::fs::write(out, &src).map_err(|e| format!("{}: {e}", out.display()))?;
+    let hash = src
+        .lines()
+        .find(|l| l.contains("CONFIG_HASH: &str"))
+        .unwrap_or_default();
+    println!("wrote {} ({hash})", out.display());
+    Ok(())
+}
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let r = match &cli.cmd {
         Cmd::Run { scenario, out } => run(scenario, out),
+        Cmd::Liv {
+            module,
+            temps_c,
+            max_ma,
+            out,
+        } => liv(module, temps_c, *max_ma, out),
+        Cmd::Export { module, out } => export(module, out),
     };
     match r {
         Ok(()) => ExitCode::SUCCESS,

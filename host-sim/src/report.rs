@@ -10,7 +10,11 @@ use plotters::prelude::*;
 use crate::sim::{Happening, RunResult};
 
 /// One line of a plot panel: label, colour, value of a trace row.
-type Line = (&'static str, RGBColor, Box<dyn Fn(&crate::sim::TraceRow) -> f64>);
+type Line = (
+    &'static str,
+    RGBColor,
+    Box<dyn Fn(&crate::sim::TraceRow) -> f64>,
+);
 /// One plot panel: title, unit, lines.
 type Panel = (&'static str, &'static str, Vec<Line>);
 
@@ -298,6 +302,80 @@ pub fn write_svg(path: &Path, name: &str, res: &RunResult) -> Result<(), String>
                     )))
                     .map_err(|x| e(x.to_string()))?;
             }
+        }
+        chart
+            .configure_series_labels()
+            .background_style(WHITE.mix(0.8))
+            .border_style(BLACK)
+            .draw()
+            .map_err(|x| e(x.to_string()))?;
+    }
+    root.present().map_err(|x| e(x.to_string()))?;
+    Ok(())
+}
+
+/// L-I-V curves: (temperature degC, points of (mA, mW, V)).
+pub type LivCurves = [(f64, Vec<(f64, f64, f64)>)];
+
+/// Write the L-I-V plot: power and forward voltage against current.
+pub fn write_liv_svg(path: &Path, name: &str, curves: &LivCurves) -> Result<(), String> {
+    let e = |x: String| x;
+    let root = SVGBackend::new(path, (900, 700)).into_drawing_area();
+    root.fill(&WHITE).map_err(|x| e(x.to_string()))?;
+    let (top, bottom) = root.split_vertically(420);
+    let i_max = curves
+        .iter()
+        .flat_map(|c| c.1.iter().map(|p| p.0))
+        .fold(1e-9, f64::max);
+    let p_max = curves
+        .iter()
+        .flat_map(|c| c.1.iter().map(|p| p.1))
+        .fold(1e-9, f64::max);
+    let v_max = curves
+        .iter()
+        .flat_map(|c| c.1.iter().map(|p| p.2))
+        .fold(1e-9, f64::max);
+    let colors = [
+        RGBColor(20, 60, 200),
+        RGBColor(200, 30, 30),
+        RGBColor(0, 140, 90),
+        RGBColor(150, 0, 150),
+        RGBColor(240, 140, 0),
+    ];
+    for (area, idx, ymax, unit) in [
+        (&top, 1usize, p_max, "optical power (mW)"),
+        (&bottom, 2usize, v_max, "forward voltage (V)"),
+    ] {
+        let mut chart = ChartBuilder::on(area)
+            .caption(
+                if idx == 1 {
+                    format!("{name}: L-I-V")
+                } else {
+                    String::new()
+                },
+                ("sans-serif", 18),
+            )
+            .margin(8)
+            .x_label_area_size(30)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0.0..i_max, 0.0..ymax * 1.05)
+            .map_err(|x| e(x.to_string()))?;
+        chart
+            .configure_mesh()
+            .x_desc("current (mA)")
+            .y_desc(unit)
+            .draw()
+            .map_err(|x| e(x.to_string()))?;
+        for (k, (t, pts)) in curves.iter().enumerate() {
+            let c = colors[k % colors.len()];
+            chart
+                .draw_series(LineSeries::new(
+                    pts.iter().map(|p| (p.0, if idx == 1 { p.1 } else { p.2 })),
+                    c,
+                ))
+                .map_err(|x| e(x.to_string()))?
+                .label(format!("{t} degC"))
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], c));
         }
         chart
             .configure_series_labels()
