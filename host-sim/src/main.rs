@@ -43,6 +43,17 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
+    /// Fault campaign: every injectable fault x moments x plant corners; exits non-zero on any unsafe case.
+    Campaign {
+        /// Module: visible or pump.
+        module: String,
+        /// Allowed excess over the optical ceiling, fraction.
+        #[arg(long, default_value_t = 0.10)]
+        margin: f64,
+        /// Output folder for campaign.md and campaign.json.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
     /// Export the board configuration of a module as Rust source, with its hash.
     Export {
         /// Module: visible or pump.
@@ -135,6 +146,41 @@ fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &PathBuf) -> Res
     Ok(())
 }
 
+fn campaign(module: &str, margin: f64, out: &PathBuf) -> Result<(), String> {
+    let m = module_by_name(module)?;
+    let cfg = board::calibrate(diodestat_core::example::config(), &m)
+        .validate()
+        .map_err(|e| format!("board configuration refused: {e}"))?;
+    let t0 = Instant::now();
+    let results = diodestat_sim::campaign::run(module, &m, &cfg, margin)?;
+    let ceiling = cfg.config().protection.runaway_mw.to_num::<f64>();
+    std::fs::create_dir_all(out).map_err(|e| e.to_string())?;
+    let md = diodestat_sim::campaign::markdown(module, &results, margin, ceiling);
+    std::fs::write(out.join("campaign.md"), &md).map_err(|e| e.to_string())?;
+    let json = serde_json::to_string_pretty(&results).map_err(|e| e.to_string())?;
+    std::fs::write(out.join("campaign.json"), json).map_err(|e| e.to_string())?;
+    let bad: Vec<_> = results.iter().filter(|r| !r.safe).collect();
+    println!(
+        "{} cases in {:.1} s, {} unsafe; wrote {}",
+        results.len(),
+        t0.elapsed().as_secs_f64(),
+        bad.len(),
+        out.join("campaign.md").display()
+    );
+    for r in &bad {
+        println!(
+            "UNSAFE: {} {:?} {}: detected {}, peak {:.3} mW, ticks over {}, damage {}",
+            r.fault, r.moment, r.corner, r.detected, r.peak_mw, r.ticks_over, r.damaged
+        );
+    }
+    println!("CAUTION: {}", report::SAFETY_CAUTION);
+    if bad.is_empty() {
+        Ok(())
+    } else {
+        Err(format!("{} unsafe cases", bad.len()))
+    }
+}
+
 fn export(module: &str, out: &PathBuf) -> Result<(), String> {
     let m = module_by_name(module)?;
     let cfg = board::calibrate(diodestat_core::example::config(), &m);
@@ -162,6 +208,11 @@ fn main() -> ExitCode {
             out,
         } => liv(module, temps_c, *max_ma, out),
         Cmd::Export { module, out } => export(module, out),
+        Cmd::Campaign {
+            module,
+            margin,
+            out,
+        } => campaign(module, *margin, out),
     };
     match r {
         Ok(()) => ExitCode::SUCCESS,

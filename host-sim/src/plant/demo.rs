@@ -185,7 +185,10 @@ impl DriverParams {
             compliance_v: 0.8,
             sense_ohm: 10.0,
             sense_gain: 4.0,
-            fail_high_current_a: 0.150,
+            // The demo board clamps the source in hardware at 65 mA (its
+            // absolute rating is 60 mA): firmware cannot stop a failure
+            // faster than one tick, only a hardware limit can.
+            fail_high_current_a: 0.065,
             shutdown_tau_s: 1e-6,
         }
     }

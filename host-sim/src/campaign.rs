@@ -1,0 +1,341 @@
+//! Fault campaigns: every injectable hardware fault × injection moments ×
+//! plant corners, run in parallel; each case is judged safe or unsafe.
+//!
+//! A case is **unsafe** when the fault was not latched (for faults that must
+//! latch), when the optical power stayed above the optical ceiling by more
+//! than the margin for more than one tick, or when the facet reached its
+//! damage limit. Faults the core is meant to ride through (an aging step, a
+//! heatsink-fan loss that only derates) are safe without a latch as long as
+//! the power stays within the ceiling.
+
+use indicatif::{ProgressBar, ProgressStyle};
+use rayon::prelude::*;
+use serde::Serialize;
+
+use diodestat_core::{State, ValidConfig};
+
+use crate::plant::DemoModule;
+use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, Scenario};
+use crate::sim::{self, Happening};
+
+/// When the fault is injected.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Moment {
+    /// During soft start.
+    SoftStart,
+    /// In steady regulation.
+    Steady,
+    /// Right after a setpoint change.
+    SetpointChange,
+    /// While derating (hot mount).
+    Derating,
+}
+
+/// A plant corner.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Corner {
+    /// Name.
+    pub name: &'static str,
+    /// Ambient, degC.
+    pub ambient_c: f64,
+    /// Monitor responsivity factor (tracking-ratio spread).
+    pub tracking: f64,
+    /// Operating hours before the run (aged diode).
+    pub aged_hours: f64,
+}
+
+/// The corners of the shipped campaign.
+pub const CORNERS: [Corner; 5] = [
+    Corner {
+        name: "nominal",
+        ambient_c: 25.0,
+        tracking: 1.0,
+        aged_hours: 0.0,
+    },
+    Corner {
+        name: "cold",
+        ambient_c: 0.0,
+        tracking: 1.0,
+        aged_hours: 0.0,
+    },
+    Corner {
+        name: "hot",
+        ambient_c: 40.0,
+        tracking: 1.0,
+        aged_hours: 0.0,
+    },
+    Corner {
+        name: "tracking-low",
+        ambient_c: 25.0,
+        tracking: 0.9,
+        aged_hours: 0.0,
+    },
+    Corner {
+        name: "aged",
+        ambient_c: 25.0,
+        tracking: 1.0,
+        aged_hours: 20_000.0,
+    },
+];
+
+/// The faults of the shipped campaign, and whether each must latch.
+pub fn faults() -> Vec<(HwFault, bool)> {
+    vec![
+        (HwFault::SensorOpen, true),
+        (HwFault::SensorShort, true),
+        (HwFault::MonitorOpen, true),
+        (HwFault::MonitorDegrade { factor: 0.5 }, false),
+        (HwFault::SourceFailHigh, true),
+        (HwFault::DacStuck { code: 0 }, true),
+        (HwFault::SenseGain { factor: 1.5 }, true),
+        (HwFault::InterlockOpen, true),
+        (HwFault::SupplySag { to_v: 3.0 }, true),
+        (HwFault::HeatsinkLoss { factor: 4.0 }, false),
+        (HwFault::Aging { hours: 20_000.0 }, false),
+        (
+            HwFault::AdcStuck {
+                channel: AdcChannel::Current,
+                code: 0,
+            },
+            true,
+        ),
+        (HwFault::MissedTicks { ticks: 10 }, true),
+    ]
+}
+
+/// One case's outcome.
+#[derive(Clone, Debug, Serialize)]
+pub struct CaseResult {
+    /// Fault name.
+    pub fault: &'static str,
+    /// Moment.
+    pub moment: Moment,
+    /// Corner name.
+    pub corner: &'static str,
+    /// Whether the fault must latch.
+    pub must_latch: bool,
+    /// Whether the core latched.
+    pub detected: bool,
+    /// Core fault names latched.
+    pub core_faults: Vec<&'static str>,
+    /// Detection latency, ticks.
+    pub latency_ticks: Option<u64>,
+    /// Detection latency, µs.
+    pub latency_us: Option<f64>,
+    /// Peak optical power after injection, mW.
+    pub peak_mw: f64,
+    /// Energy above the optical ceiling after injection, µJ.
+    pub energy_above_uj: f64,
+    /// Ticks above the ceiling plus margin.
+    pub ticks_over: u64,
+    /// Facet damage.
+    pub damaged: bool,
+    /// Final state.
+    pub final_state: &'static str,
+    /// Safe.
+    pub safe: bool,
+}
+
+fn scenario(module: &str, fault: HwFault, moment: Moment, corner: &Corner) -> (Scenario, f64) {
+    let mut ev = vec![
+        Event {
+            at_ms: 0.2,
+            action: Action::SetPower { mw: 20.0 },
+        },
+        Event {
+            at_ms: 0.5,
+            action: Action::Enable,
+        },
+    ];
+    if corner.aged_hours > 0.0 {
+        ev.push(Event {
+            at_ms: 0.0,
+            action: Action::Inject {
+                fault: HwFault::Aging {
+                    hours: corner.aged_hours,
+                },
+            },
+        });
+    }
+    if corner.tracking != 1.0 {
+        ev.push(Event {
+            at_ms: 0.0,
+            action: Action::Inject {
+                fault: HwFault::MonitorDegrade {
+                    factor: corner.tracking,
+                },
+            },
+        });
+    }
+    let inject_ms = match moment {
+        Moment::SoftStart => 3.5,
+        Moment::Steady => 30.0,
+        Moment::SetpointChange => {
+            ev.push(Event {
+                at_ms: 30.0,
+                action: Action::SetPower { mw: 10.0 },
+            });
+            30.2
+        }
+        Moment::Derating => {
+            ev.push(Event {
+                at_ms: 10.0,
+                action: Action::AmbientStep { to_c: 60.0 },
+            });
+            40.0
+        }
+    };
+    ev.push(Event {
+        at_ms: inject_ms,
+        action: Action::Inject { fault },
+    });
+    (
+        Scenario {
+            name: format!("{} {:?} {}", fault.name(), moment, corner.name),
+            module: module.into(),
+            duration_ms: inject_ms + 30.0,
+            ambient_c: corner.ambient_c,
+            seed: 1,
+            diode_model: DiodeModel::QuasiStatic,
+            trace_every: 1,
+            events: ev,
+        },
+        inject_ms,
+    )
+}
+
+/// Run one case.
+#[allow(clippy::too_many_arguments)]
+pub fn run_case(
+    module_name: &str,
+    module: &DemoModule,
+    cfg: &ValidConfig,
+    (fault, must_latch): (HwFault, bool),
+    moment: Moment,
+    corner: &Corner,
+    ceiling_mw: f64,
+    margin: f64,
+) -> Result<CaseResult, String> {
+    let (sc, _inject_ms) = scenario(module_name, fault, moment, corner);
+    let res = sim::run(&sc, module, cfg.clone()).map_err(|e| e.to_string())?;
+    let inject_tick = res
+        .happenings
+        .iter()
+        .filter_map(|h| match h {
+            Happening::Injected { tick, fault: f } if *f == fault.name() => Some(*tick),
+            _ => None,
+        })
+        .last()
+        .unwrap_or(0);
+    let mut core_faults = Vec::new();
+    let mut first_fault_tick = None;
+    for h in &res.happenings {
+        if let Happening::Fault { tick, fault, .. } = h {
+            core_faults.push(*fault);
+            if *tick >= inject_tick && first_fault_tick.is_none() {
+                first_fault_tick = Some(*tick);
+            }
+        }
+    }
+    let dt = 1.0 / f64::from(res.tick_hz);
+    let after: Vec<_> = res.trace.iter().filter(|r| r.tick >= inject_tick).collect();
+    let peak_mw = after.iter().map(|r| r.p_mw).fold(0.0, f64::max);
+    let energy_above_uj = after
+        .iter()
+        .map(|r| (r.p_mw - ceiling_mw).max(0.0) * dt * 1e3)
+        .sum();
+    let ticks_over = after
+        .iter()
+        .filter(|r| r.p_mw > ceiling_mw * (1.0 + margin))
+        .count() as u64;
+    let detected = res.final_state == State::Latched;
+    let safe = (detected || !must_latch) && ticks_over <= 1 && !res.damaged;
+    let latency_ticks = first_fault_tick.map(|t| t - inject_tick);
+    Ok(CaseResult {
+        fault: fault.name(),
+        moment,
+        corner: corner.name,
+        must_latch,
+        detected,
+        core_faults,
+        latency_ticks,
+        latency_us: latency_ticks.map(|t| t as f64 * dt * 1e6),
+        peak_mw,
+        energy_above_uj,
+        ticks_over,
+        damaged: res.damaged,
+        final_state: res.final_state.name(),
+        safe,
+    })
+}
+
+/// Run the whole campaign in parallel with a progress bar.
+pub fn run(
+    module_name: &str,
+    module: &DemoModule,
+    cfg: &ValidConfig,
+    margin: f64,
+) -> Result<Vec<CaseResult>, String> {
+    let ceiling_mw = cfg.config().protection.runaway_mw.to_num::<f64>();
+    let moments = [
+        Moment::SoftStart,
+        Moment::Steady,
+        Moment::SetpointChange,
+        Moment::Derating,
+    ];
+    let mut cases = Vec::new();
+    for f in faults() {
+        for m in moments {
+            for c in &CORNERS {
+                cases.push((f, m, c));
+            }
+        }
+    }
+    let pb = ProgressBar::new(cases.len() as u64);
+    pb.set_style(
+        ProgressStyle::with_template("{bar:40} {pos}/{len} cases {elapsed}")
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
+    );
+    let out: Result<Vec<_>, String> = cases
+        .par_iter()
+        .map(|(f, m, c)| {
+            let r = run_case(module_name, module, cfg, *f, *m, c, ceiling_mw, margin);
+            pb.inc(1);
+            r
+        })
+        .collect();
+    pb.finish_and_clear();
+    out
+}
+
+/// The Markdown report.
+pub fn markdown(module: &str, results: &[CaseResult], margin: f64, ceiling_mw: f64) -> String {
+    let unsafe_n = results.iter().filter(|r| !r.safe).count();
+    let mut s = format!(
+        "# Fault campaign: {module}\n\n{} cases, {} unsafe. Optical ceiling {ceiling_mw:.3} mW, margin {:.0} %.\n\n\
+         | fault | moment | corner | detected | core faults | latency (ticks) | latency (us) | peak (mW) | energy above (uJ) | damage | final | verdict |\n|---|---|---|---|---|---|---|---|---|---|---|---|\n",
+        results.len(),
+        unsafe_n,
+        margin * 100.0
+    );
+    for r in results {
+        s.push_str(&format!(
+            "| {} | {:?} | {} | {} | {} | {} | {} | {:.3} | {:.3} | {} | {} | {} |\n",
+            r.fault,
+            r.moment,
+            r.corner,
+            if r.detected { "yes" } else { "no" },
+            r.core_faults.join(" "),
+            r.latency_ticks.map_or("-".into(), |t| t.to_string()),
+            r.latency_us.map_or("-".into(), |t| format!("{t:.0}")),
+            r.peak_mw,
+            r.energy_above_uj,
+            if r.damaged { "YES" } else { "no" },
+            r.final_state,
+            if r.safe { "safe" } else { "UNSAFE" }
+        ));
+    }
+    s.push_str(&format!("\nCAUTION: {}\n", crate::report::SAFETY_CAUTION));
+    s
+}
