@@ -222,11 +222,11 @@ pub fn run_case(
     let inject_tick = res
         .happenings
         .iter()
-        .filter_map(|h| match h {
+        .rev()
+        .find_map(|h| match h {
             Happening::Injected { tick, fault: f } if *f == fault.name() => Some(*tick),
             _ => None,
         })
-        .last()
         .unwrap_or(0);
     let mut core_faults = Vec::new();
     let mut first_fault_tick = None;
