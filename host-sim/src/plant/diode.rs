@@ -1487,7 +1487,7 @@ mod tests {
             t += 0.5;
         }
         // Exact: y2 = e^-t, y1 = e^-t * 1e6/(1e6 - 1) + C e^-1e6 t.
-        let y2 = (-t as f64).exp();
+        let y2 = f64::exp(-t);
         let y1 = y2 * 1e6 / (1e6 - 1.0);
         assert!((y[1] / y2 - 1.0).abs() < 1e-6, "{} vs {y2}", y[1]);
         assert!((y[0] / y1 - 1.0).abs() < 1e-6, "{} vs {y1}", y[0]);
