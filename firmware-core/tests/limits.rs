@@ -188,3 +188,200 @@ fn config_rejections_name_the_values() {
         Err(ConfigError::TempTableNotMonotonic { index: 1 })
     );
 }
+
+#[test]
+fn every_other_config_rejection() {
+    use config::{Channel, RampKind};
+    type Breaker = fn(&mut Config);
+    let cases: Vec<(Breaker, fn(ConfigError) -> bool)> = vec![
+        (
+            |c| c.tick_hz = 2_000_000,
+            |e| matches!(e, ConfigError::TickRateTooHigh { tick_hz: 2_000_000 }),
+        ),
+        (
+            |c| c.current.absolute_max_ma = Fx::ZERO,
+            |e| matches!(e, ConfigError::AbsoluteLimitNotPositive { .. }),
+        ),
+        (
+            |c| c.current.ceiling_ma = Fx::from_num(-1),
+            |e| matches!(e, ConfigError::CeilingNotPositive { .. }),
+        ),
+        (
+            |c| c.protection.overcurrent_ma = Fx::from_num(50),
+            |e| matches!(e, ConfigError::OvercurrentNotAboveCeiling { .. }),
+        ),
+        (
+            |c| c.protection.overcurrent_ma = Fx::from_num(61),
+            |e| matches!(e, ConfigError::OvercurrentAboveAbsolute { .. }),
+        ),
+        (
+            |c| c.ramp.soft_stop_ma_per_ms = Fx::from_bits(1),
+            |e| {
+                matches!(
+                    e,
+                    ConfigError::RampRateBelowResolution {
+                        which: RampKind::SoftStop,
+                        ..
+                    }
+                )
+            },
+        ),
+        (
+            |c| c.ramp.emission_delay_ms = u32::MAX,
+            |e| matches!(e, ConfigError::EmissionDelayTooLong { .. }),
+        ),
+        (
+            |c| c.ramp.handover_fraction = Fx::from_num(2),
+            |e| matches!(e, ConfigError::HandoverFractionOutOfRange { .. }),
+        ),
+        (
+            |c| c.power.min_setpoint_mw = Fx::from_num(40),
+            |e| matches!(e, ConfigError::PowerRangeInvalid { .. }),
+        ),
+        (
+            |c| c.protection.monitor_loss_floor_mw = Fx::from_num(1),
+            |e| matches!(e, ConfigError::MonitorLossFloorNotBelowSetpoints { .. }),
+        ),
+        (
+            |c| c.protection.monitor_loss_floor_mw = Fx::from_num(-1),
+            |e| matches!(e, ConfigError::MonitorLossFloorNegative { .. }),
+        ),
+        (
+            |c| c.protection.monitor_loss_drive_ma = Fx::from_num(51),
+            |e| matches!(e, ConfigError::MonitorLossDriveOutOfRange { .. }),
+        ),
+        (
+            |c| c.derating.floor_ma = Fx::from_num(51),
+            |e| matches!(e, ConfigError::DeratingFloorOutOfRange { .. }),
+        ),
+        (
+            |c| c.calibration.temperature.table.truncate(1),
+            |e| matches!(e, ConfigError::TempTableTooShort { len: 1 }),
+        ),
+        (
+            |c| c.calibration.temperature.low_fault_counts = 400,
+            |e| matches!(e, ConfigError::SensorRailsInconsistent { .. }),
+        ),
+        (
+            |c| c.protection.missed_tick_limit = 0,
+            |e| matches!(e, ConfigError::MissedTickLimitZero),
+        ),
+        (
+            |c| c.apc.kp_ma_per_mw = Fx::ZERO,
+            |e| {
+                matches!(
+                    e,
+                    ConfigError::GainNotPositive {
+                        proportional: true,
+                        ..
+                    }
+                )
+            },
+        ),
+        (
+            |c| c.apc.ki_ma_per_mw_ms = Fx::from_num(-1),
+            |e| {
+                matches!(
+                    e,
+                    ConfigError::GainNotPositive {
+                        proportional: false,
+                        ..
+                    }
+                )
+            },
+        ),
+        (
+            |c| c.apc.kp_ma_per_mw = Fx::from_num(2000),
+            |e| matches!(e, ConfigError::ProportionalGainOverflow { .. }),
+        ),
+        (
+            |c| c.apc.ki_ma_per_mw_ms = Fx::from_num(30000),
+            |e| matches!(e, ConfigError::IntegralGainOutOfRange { .. }),
+        ),
+        (
+            |c| c.calibration.supply.units_per_count = Gain::ZERO,
+            |e| {
+                matches!(
+                    e,
+                    ConfigError::CalibrationGainNotPositive {
+                        channel: Channel::Supply
+                    }
+                )
+            },
+        ),
+        (
+            |c| c.calibration.monitor.offset_counts = 5000,
+            |e| {
+                matches!(
+                    e,
+                    ConfigError::CalibrationOffsetOutOfRange {
+                        channel: Channel::Monitor,
+                        ..
+                    }
+                )
+            },
+        ),
+        (
+            |c| c.calibration.dac.codes_per_ma = Fx::from_num(100),
+            |e| matches!(e, ConfigError::CeilingNotRepresentable { .. }),
+        ),
+        (
+            |c| c.calibration.monitor.units_per_count = Gain::from_num(0.001),
+            |e| matches!(e, ConfigError::RunawayBeyondMonitorRange { .. }),
+        ),
+        (
+            |c| c.calibration.current_sense.units_per_count = Gain::from_num(0.001),
+            |e| matches!(e, ConfigError::OvercurrentBeyondSenseRange { .. }),
+        ),
+        (
+            |c| c.protection.supply_max_mv = Fx::from_num(10000),
+            |e| matches!(e, ConfigError::SupplyWindowInvalid { .. }),
+        ),
+        (
+            |c| c.protection.mismatch_tolerance_ma = Fx::ZERO,
+            |e| matches!(e, ConfigError::MismatchToleranceNotPositive { .. }),
+        ),
+    ];
+    for (i, (brk, ok)) in cases.into_iter().enumerate() {
+        let mut c = example::config();
+        brk(&mut c);
+        let e = c.validate().expect_err("must be refused");
+        assert!(ok(e), "case {i}: got {e:?}");
+    }
+}
+
+#[test]
+fn overcurrent_trips_at_the_limit_in_the_same_step() {
+    let mut r = Rig::regulating();
+    let limit = r.ctl.config().config().protection.overcurrent_ma;
+    let at = (0u16..4096)
+        .find(|c| r.ctl.config().current_ma(*c) >= limit)
+        .unwrap();
+    r.s.current_counts = at - 1;
+    // One count below the limit: a mismatch is present but debounced, not an overcurrent.
+    let d = r.step();
+    assert!(!d.status.faults.contains(Fault::Overcurrent));
+    r.s.current_counts = at;
+    let d = r.step();
+    assert!(!d.enable && d.dac_code == 0);
+    assert!(d.status.faults.contains(Fault::Overcurrent));
+}
+
+#[test]
+fn sensor_open_debounces_and_holds_the_ceiling_at_the_floor() {
+    let mut r = Rig::regulating();
+    let n = r.ctl.config().config().protection.sensor_debounce;
+    let floor = r.ctl.config().config().derating.floor_ma;
+    r.s.temp_counts = 4095;
+    for _ in 1..n {
+        r.s.current_counts = counts_for(&r.ctl, r.ctl.drive_ma());
+        let d = r.step();
+        assert!(d.enable);
+        assert!(d.status.warnings.sensor_suspect);
+        assert!(r.ctl.drive_ma() <= floor);
+    }
+    r.s.current_counts = counts_for(&r.ctl, r.ctl.drive_ma());
+    let d = r.step();
+    assert!(!d.enable);
+    assert!(d.status.faults.contains(Fault::SensorOpen));
+}
