@@ -193,7 +193,8 @@ fn config_rejections_name_the_values() {
 fn every_other_config_rejection() {
     use config::{Channel, RampKind};
     type Breaker = fn(&mut Config);
-    let cases: Vec<(Breaker, fn(ConfigError) -> bool)> = vec![
+    type Check = fn(ConfigError) -> bool;
+    let cases: Vec<(Breaker, Check)> = vec![
         (
             |c| c.tick_hz = 2_000_000,
             |e| matches!(e, ConfigError::TickRateTooHigh { tick_hz: 2_000_000 }),
