@@ -79,7 +79,7 @@ mod tests {
 
     #[test]
     fn splitmix_reference_values() {
-        // SplitMix64 from seed 0: first outputs of the reference C code
+        // Source: SplitMix64 from seed 0: first outputs of the reference C code
         // (Steele, Lea, Flood 2014; Vigna's splitmix64.c).
         let mut s = 0u64;
         assert_eq!(splitmix64(&mut s), 0xE220_A839_7B1D_CDAF);
