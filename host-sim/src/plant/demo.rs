@@ -67,6 +67,49 @@ impl DemoModule {
 }
 
 impl DiodeParams {
+    /// The in-plane example rate-equation set of Coldren, Corzine and
+    /// Mashanovitch, *Diode Lasers and Photonic Integrated Circuits*, 2nd ed.
+    /// (Wiley 2012), as reproduced in secondary public sources (not checked
+    /// against the book's table). Only the rate-equation fields come from
+    /// there; wavelength (980 nm), temperature, electrical, damage and aging
+    /// fields are demo values.
+    pub fn textbook_in_plane() -> Self {
+        Self {
+            width_um: 2.0,
+            length_um: 250.0,
+            thickness_nm: 8.0,
+            confinement: 0.032,
+            group_index: 4.2,
+            alpha_i_per_cm: 5.0,
+            r_front: 0.32,
+            r_back: 0.32,
+            eta_i: 0.8,
+            a_per_s: 0.0,
+            b_cm3_per_s: 0.8e-10,
+            c_cm6_per_s: 3.5e-30,
+            gain: GainModel::Log {
+                g0_per_cm: 1800.0,
+                n_tr_per_cm3: 1.8e18,
+                n_s_per_cm3: -0.4e18,
+            },
+            eps_cm3: 1.5e-17,
+            beta_sp: 8.7e-5,
+            wavelength_nm: 980.0,
+            wavelength_drift_nm_per_k: 0.3,
+            t_ref_c: 25.0,
+            t0_k: 120.0,
+            t1_k: 400.0,
+            ideality: 1.5,
+            i_s_a: 1.0e-18,
+            i_s_activation_ev: 1.6,
+            r_s_ohm: 10.0,
+            damage_power_w: 0.05,
+            damage_filter_ns: 100.0,
+            threshold_rise_per_khour: 0.01,
+            slope_loss_per_khour: 0.005,
+        }
+    }
+
     /// Demo visible diode: 650 nm ridge, I_th about 23 mA and front slope
     /// about 0.93 W/A at 25 degC, T0 = 80 K, damage at 60 mW (2x rated).
     pub fn demo_visible() -> Self {

@@ -1494,28 +1494,7 @@ mod tests {
     }
 
     fn textbook() -> DiodeParams {
-        let mut p = DiodeParams::demo_visible();
-        p.width_um = 2.0;
-        p.length_um = 250.0;
-        p.thickness_nm = 8.0;
-        p.confinement = 0.032;
-        p.group_index = 4.2;
-        p.alpha_i_per_cm = 5.0;
-        p.r_front = 0.32;
-        p.r_back = 0.32;
-        p.eta_i = 0.8;
-        p.a_per_s = 0.0;
-        p.b_cm3_per_s = 0.8e-10;
-        p.c_cm6_per_s = 3.5e-30;
-        p.gain = GainModel::Log {
-            g0_per_cm: 1800.0,
-            n_tr_per_cm3: 1.8e18,
-            n_s_per_cm3: -0.4e18,
-        };
-        p.eps_cm3 = 1.5e-17;
-        p.beta_sp = 8.7e-5;
-        p.wavelength_nm = 980.0;
-        p
+        DiodeParams::textbook_in_plane()
     }
 
     /// Brute-force steady state: bisection on F(N) to machine precision.
