@@ -103,8 +103,12 @@ mod tests {
         let mut r = Rng::new(7);
         let n = 200_000;
         let (mut m1, mut m2, mut m4) = (0.0, 0.0, 0.0);
+        let mut tail = 0usize;
         for _ in 0..n {
             let z = r.gaussian();
+            if z.abs() > 2.0 {
+                tail += 1;
+            }
             m1 += z;
             m2 += z * z;
             m4 += z * z * z * z;
@@ -114,6 +118,9 @@ mod tests {
         assert!(m1.abs() < 0.01, "mean {m1}");
         assert!((m2 - 1.0).abs() < 0.01, "variance {m2}");
         assert!((m4 - 3.0).abs() < 0.06, "fourth moment {m4}");
+        // P(|z| > 2) = 0.04550 for the standard normal; binomial sd 0.00047.
+        let pt = tail as f64 / nf;
+        assert!((pt - 0.0455).abs() < 0.002, "tail {pt}");
     }
 
     #[test]
