@@ -1,77 +1,83 @@
-//! Cost of one `Controller::step` on the host: steady regulation (APC,
-//! closed loop against a linear plant) and the fault path (a sample that
-//! trips overcurrent, and stepping while latched).
+//! Cost of one `Controller::step` on the host: steady regulation (APC and
+//! ACC, closed around the linear plant of the tests) and the fault path (a
+//! sample that trips overcurrent, and stepping while latched). The plant's
+//! own cost is measured alone so it can be subtracted from the closed loop.
 
-use criterion::{black_box, criterion_group, criterion_main, Criterion};
-use diodestat_core::*;
+#[path = "../tests/common/mod.rs"]
+mod common;
 
-fn sample(tick: u32, monitor: u16, current: u16) -> Sample {
-    Sample {
-        tick,
-        monitor_counts: monitor,
-        current_counts: current,
-        temp_counts: 2048,
-        supply_counts: 2457,
-        interlock_closed: true,
-    }
-}
-
-/// Linear plant in integer arithmetic: monitor counts for a DAC code.
-fn plant(ctl: &Controller, code: u16) -> (u16, u16) {
-    let cfg = ctl.config();
-    let ma = i64::from(code) * 1000 / 68; // µA
-    let p_uw = (ma - 25_000).max(0) * 9 / 10;
-    let mon = (0u16..4096)
-        .find(|c| cfg.monitor_mw(*c).to_num::<i64>() * 1000 >= p_uw)
-        .unwrap_or(4095);
-    let cur = (0u16..4096)
-        .find(|c| cfg.current_ma(*c).to_num::<i64>() * 1000 >= ma)
-        .unwrap_or(4095);
-    (mon, cur)
-}
-
-fn regulating() -> (Controller, u32, u16, u16) {
-    let mut ctl = Controller::new(example::config().validate().unwrap());
-    ctl.step(&sample(0, 0, 0));
-    ctl.request(Request::SetPowerMw(Fx::from_num(20))).unwrap();
-    ctl.request(Request::Enable).unwrap();
-    let (mut mon, mut cur) = (0, 0);
-    let mut tick = 1;
-    for _ in 0..4000 {
-        let d = ctl.step(&sample(tick, mon, cur));
-        (mon, cur) = plant(&ctl, d.dac_code);
-        tick += 1;
-    }
-    assert_eq!(ctl.state(), State::Regulating);
-    (ctl, tick, mon, cur)
-}
+use common::{counts_for, demo, lowest_at_or_above, Rig};
+use criterion::{criterion_group, criterion_main, BatchSize, Criterion};
+use diodestat_core::{Fx, State};
+use std::hint::black_box;
 
 fn bench(c: &mut Criterion) {
-    let (ctl, tick0, mon, cur) = regulating();
-    c.bench_function("step_regulating", |b| {
-        let mut ctl = ctl.clone();
-        let mut tick = tick0;
+    let apc = Rig::regulating_apc(demo(), Fx::from_num(15), 20_000);
+    let acc = Rig::regulating_acc(demo(), Fx::from_num(30));
+    let mut g = c.benchmark_group("step");
+
+    for (name, rig) in [("regulating_apc", &apc), ("regulating_acc", &acc)] {
+        g.bench_function(name, |b| {
+            let mut r = rig.clone();
+            b.iter(|| black_box(r.step()));
+            assert_eq!(r.ctl.state(), State::Regulating, "{name}: still regulating");
+            assert!(r.ctl.faults().is_empty());
+        });
+    }
+
+    g.bench_function("plant_only", |b| {
+        let mut r = apc.clone();
+        let d = r.last;
         b.iter(|| {
-            tick = tick.wrapping_add(1);
-            black_box(ctl.step(black_box(&sample(tick, mon, cur))))
+            r.s.tick = r.s.tick.wrapping_add(1);
+            r.plant.fill(r.ctl.config(), &mut r.s);
+            r.plant.apply(r.ctl.config(), black_box(&d));
+            black_box(r.s)
         })
     });
-    c.bench_function("step_trips_overcurrent", |b| {
-        b.iter_batched(
-            || ctl.clone(),
-            |mut ctl| black_box(ctl.step(black_box(&sample(tick0, mon, 4095)))),
-            criterion::BatchSize::SmallInput,
+
+    let cfg = apc.cfg().clone();
+    let oc = lowest_at_or_above(
+        |k| cfg.current_ma(k),
+        cfg.config().protection.overcurrent_ma,
+        cfg.config().calibration.current_sense.full_scale_counts,
+    );
+    {
+        let mut ctl = apc.ctl.clone();
+        let mut s = apc.s;
+        s.tick += 1;
+        s.current_counts = oc;
+        assert!(!ctl.step(&s).enable, "the sample trips");
+    }
+    g.bench_function("trips_overcurrent", |b| {
+        // The controller is cloned outside the timing; only the tripping
+        // step is measured.
+        b.iter_batched_ref(
+            || {
+                let mut s = apc.s;
+                s.tick += 1;
+                s.current_counts = oc;
+                (apc.ctl.clone(), s)
+            },
+            |(ctl, s)| black_box(ctl.step(black_box(s))).enable,
+            BatchSize::SmallInput,
         )
     });
-    c.bench_function("step_latched", |b| {
-        let mut ctl = ctl.clone();
-        ctl.step(&sample(tick0, mon, 4095));
-        let mut tick = tick0;
+
+    g.bench_function("latched", |b| {
+        let mut r = apc.clone();
+        r.step_with(|s| s.current_counts = oc);
+        assert_eq!(r.ctl.state(), State::Latched);
+        let mut s = r.s;
+        s.current_counts = counts_for(&cfg.config().calibration.current_sense, Fx::ZERO);
+        s.monitor_counts = 0;
         b.iter(|| {
-            tick = tick.wrapping_add(1);
-            black_box(ctl.step(black_box(&sample(tick, 0, 0))))
-        })
+            s.tick = s.tick.wrapping_add(1);
+            black_box(r.ctl.step(black_box(&s)))
+        });
+        assert_eq!(r.ctl.state(), State::Latched);
     });
+    g.finish();
 }
 
 criterion_group!(benches, bench);

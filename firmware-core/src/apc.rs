@@ -149,6 +149,43 @@ mod tests {
     }
 
     #[test]
+    fn no_integration_while_slew_limited_toward_the_error() {
+        let mut pi = PowerLoop::default();
+        pi.preset(Fx::from_num(20));
+        // A large negative error: u far below prev - slew; the output moves
+        // by the slew and the integrator holds.
+        let u = pi.step(
+            Fx::from_num(1),
+            Gain::from_num(1),
+            Fx::ZERO,
+            Fx::from_num(30),
+            lim(20, 1, 100),
+        );
+        assert_eq!(u, Fx::from_num(19));
+        assert_eq!(pi.integrator_ma(), Fx::from_num(20));
+    }
+
+    #[test]
+    fn integrator_stays_within_zero_and_the_ceiling() {
+        let mut pi = PowerLoop::default();
+        pi.preset(Fx::from_num(80));
+        let _ = pi.step(Fx::ONE, Gain::ZERO, Fx::ZERO, Fx::ZERO, lim(40, 100, 40));
+        assert_eq!(pi.integrator_ma(), Fx::from_num(40));
+        let mut pi = PowerLoop::default();
+        for _ in 0..10 {
+            let u = pi.step(
+                Fx::ONE,
+                Gain::from_num(1),
+                Fx::ZERO,
+                Fx::from_num(5),
+                lim(0, 100, 40),
+            );
+            assert_eq!(u, Fx::ZERO);
+            assert_eq!(pi.integrator_ma(), Fx::ZERO);
+        }
+    }
+
+    #[test]
     fn preset_is_bumpless() {
         let mut pi = PowerLoop::default();
         pi.preset(Fx::from_num(33));

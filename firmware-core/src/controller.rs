@@ -255,7 +255,7 @@ impl Controller {
         if self.state == State::Regulating && self.requested_mode == Mode::Apc {
             // Bumpless ACC -> APC: start the power setpoint at the measured
             // power and the integrator at the present drive.
-            self.power_sp_mw = clamp_fx(m.monitor_mw, Fx::ZERO, self.power_target_mw);
+            self.power_sp_mw = self.measured_setpoint(m);
             self.pi.preset(self.drive_ma);
         }
         // APC -> ACC needs nothing: the drive slews from where it is.
@@ -273,7 +273,7 @@ impl Controller {
                 // Hand over at the present drive: the power setpoint ramps
                 // on from the measured power.
                 self.state = State::Regulating;
-                self.power_sp_mw = clamp_fx(m.monitor_mw, Fx::ZERO, self.power_target_mw);
+                self.power_sp_mw = self.measured_setpoint(m);
                 self.pi.preset(self.drive_ma);
                 self.ceiling_ma = self.envelope_ma.min(static_ceiling);
                 return self.drive_ma;
@@ -287,17 +287,36 @@ impl Controller {
             Mode::Apc => static_ceiling,
             Mode::Acc => self.current_target_ma.min(static_ceiling),
         };
-        let d = env.min(target);
+        // A target below the present drive (ACC setpoint lowered, or a
+        // transfer from APC) is approached at the slew rate, not in one step;
+        // a lower ceiling still applies at once.
+        let slew_floor = self
+            .drive_ma
+            .saturating_sub(self.cfg.slew_ma_per_tick())
+            .min(static_ceiling);
+        let d = env.min(target).max(slew_floor);
         self.envelope_ma = env.min(c.current.ceiling_ma);
         self.ceiling_ma = self.envelope_ma.min(static_ceiling);
         if d >= target {
             // Reached the ceiling (APC without enough light) or the ACC
-            // setpoint: regulate from here; monitor loss covers "no light".
+            // setpoint, or is above the ACC setpoint: regulate from here (ACC
+            // slews the rest of the way); monitor loss covers "no light".
             self.state = State::Regulating;
             self.pi.preset(d);
-            self.power_sp_mw = clamp_fx(m.monitor_mw, Fx::ZERO, self.power_target_mw);
+            self.power_sp_mw = self.measured_setpoint(m);
         }
         d
+    }
+
+    /// The power setpoint a bumpless start of the power loop begins from:
+    /// the measured power, within the accepted setpoint range; the setpoint
+    /// ramp then carries it to the target from either side.
+    fn measured_setpoint(&self, m: &Measurements) -> Fx {
+        clamp_fx(
+            m.monitor_mw,
+            Fx::ZERO,
+            self.cfg.config().power.max_setpoint_mw,
+        )
     }
 
     /// Closed-loop regulation, APC or ACC.

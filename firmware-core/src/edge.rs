@@ -216,7 +216,11 @@ where
             self.enable.set_high().map_err(EdgeError::EnablePin)?;
         } else {
             let pin = self.enable.set_low();
-            self.dac.set_code(0).map_err(EdgeError::Dac)?;
+            if let Err(e) = self.dac.set_code(0) {
+                // A DAC that cannot be zeroed is not trusted with emission.
+                self.dac_failed = true;
+                return Err(EdgeError::Dac(e));
+            }
             pin.map_err(EdgeError::EnablePin)?;
         }
         Ok(drive)

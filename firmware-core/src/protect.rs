@@ -121,11 +121,12 @@ impl Protections {
         let c = cfg.config();
         let p = &c.protection;
         let tc = &c.calibration.temperature;
-        let counts = Fx::from_num(m.temp_counts);
+        // Counts above the Fx range (32 767) saturate in the records.
+        let counts = Fx::saturating_from_num(m.temp_counts);
         let (open_at_high, low, high) = (
             tc.open_rail == Rail::High,
-            Fx::from_num(tc.low_fault_counts),
-            Fx::from_num(tc.high_fault_counts),
+            Fx::saturating_from_num(tc.low_fault_counts),
+            Fx::saturating_from_num(tc.high_fault_counts),
         );
         let at_low = m.temp_counts <= tc.low_fault_counts;
         let at_high = m.temp_counts >= tc.high_fault_counts;
@@ -206,7 +207,7 @@ impl Protections {
                 fault: Fault::MissedTicks,
                 present: m.missed_ticks >= u32::from(p.missed_tick_limit),
                 measured: saturating_fx(m.missed_ticks),
-                limit: Fx::from_num(p.missed_tick_limit),
+                limit: saturating_fx(u32::from(p.missed_tick_limit)),
                 debounce: 1,
             },
         ];

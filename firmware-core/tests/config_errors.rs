@@ -1,0 +1,633 @@
+//! Every reason `Config::validate` refuses a configuration: each case starts
+//! from the demo configuration, breaks one thing, and expects the exact
+//! variant with the values it carries. Where a limit has a boundary, the
+//! value just inside it is accepted.
+
+use diodestat_core::config::{AdcCal, Channel, RampKind};
+use diodestat_core::{example, Config, ConfigError, Fault, Fx, Gain};
+use fixed::types::I40F24;
+use std::collections::BTreeSet;
+
+type E = ConfigError;
+
+fn refused(f: impl FnOnce(&mut Config)) -> ConfigError {
+    let mut c = example::config();
+    f(&mut c);
+    match c.validate() {
+        Err(e) => e,
+        Ok(_) => panic!("accepted"),
+    }
+}
+
+fn accepted(f: impl FnOnce(&mut Config)) {
+    let mut c = example::config();
+    f(&mut c);
+    if let Err(e) = c.validate() {
+        panic!("refused: {e:?}");
+    }
+}
+
+/// The reading at full scale, `(full_scale - offset) × units_per_count`,
+/// in wide fixed point and truncated to Fx.
+fn full_scale(cal: &AdcCal) -> Fx {
+    let n = I40F24::from_num(i32::from(cal.full_scale_counts) - cal.offset_counts);
+    (n * I40F24::from_num(cal.units_per_count)).to_num::<Fx>()
+}
+
+/// The name of a variant; the match is exhaustive, so a new variant does not
+/// compile until it is listed here (and then must be covered below).
+fn variant(e: &ConfigError) -> &'static str {
+    match e {
+        E::TickRateZero => "TickRateZero",
+        E::TickRateTooHigh { .. } => "TickRateTooHigh",
+        E::AbsoluteLimitNotPositive { .. } => "AbsoluteLimitNotPositive",
+        E::CeilingNotPositive { .. } => "CeilingNotPositive",
+        E::CeilingAboveAbsolute { .. } => "CeilingAboveAbsolute",
+        E::OvercurrentNotAboveCeiling { .. } => "OvercurrentNotAboveCeiling",
+        E::OvercurrentAboveAbsolute { .. } => "OvercurrentAboveAbsolute",
+        E::RampRateNotPositive { .. } => "RampRateNotPositive",
+        E::RampRateBelowResolution { .. } => "RampRateBelowResolution",
+        E::EmissionDelayTooLong { .. } => "EmissionDelayTooLong",
+        E::HandoverFractionOutOfRange { .. } => "HandoverFractionOutOfRange",
+        E::PowerRangeInvalid { .. } => "PowerRangeInvalid",
+        E::RunawayNotAboveSetpointRange { .. } => "RunawayNotAboveSetpointRange",
+        E::MonitorLossFloorNotBelowSetpoints { .. } => "MonitorLossFloorNotBelowSetpoints",
+        E::MonitorLossFloorNegative { .. } => "MonitorLossFloorNegative",
+        E::MonitorLossDriveOutOfRange { .. } => "MonitorLossDriveOutOfRange",
+        E::DeratingKneeNotBelowCutoff { .. } => "DeratingKneeNotBelowCutoff",
+        E::DeratingFloorOutOfRange { .. } => "DeratingFloorOutOfRange",
+        E::TempTableTooShort { .. } => "TempTableTooShort",
+        E::TempTableNotMonotonic { .. } => "TempTableNotMonotonic",
+        E::SensorRailsInconsistent { .. } => "SensorRailsInconsistent",
+        E::DebounceZero { .. } => "DebounceZero",
+        E::MissedTickLimitZero => "MissedTickLimitZero",
+        E::GainNotPositive { .. } => "GainNotPositive",
+        E::ProportionalGainOverflow { .. } => "ProportionalGainOverflow",
+        E::IntegralGainOutOfRange { .. } => "IntegralGainOutOfRange",
+        E::CalibrationGainNotPositive { .. } => "CalibrationGainNotPositive",
+        E::CalibrationOffsetOutOfRange { .. } => "CalibrationOffsetOutOfRange",
+        E::CeilingNotRepresentable { .. } => "CeilingNotRepresentable",
+        E::RunawayBeyondMonitorRange { .. } => "RunawayBeyondMonitorRange",
+        E::OvercurrentBeyondSenseRange { .. } => "OvercurrentBeyondSenseRange",
+        E::SupplyWindowInvalid { .. } => "SupplyWindowInvalid",
+        E::MismatchToleranceNotPositive { .. } => "MismatchToleranceNotPositive",
+    }
+}
+
+const VARIANTS: usize = 33;
+
+/// Every refusal below, as (what was broken, the error it must give).
+fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
+    let d = example::config();
+    let cur = d.current;
+    let p = d.protection;
+    let pw = d.power;
+    let r = d.ramp;
+    let cal = d.calibration.clone();
+    let hz = d.tick_hz;
+    let mut v: Vec<(&'static str, ConfigError, ConfigError)> = Vec::new();
+    let mut case = |what: &'static str, got: ConfigError, want: ConfigError| {
+        v.push((what, got, want));
+    };
+
+    case("tick 0", refused(|c| c.tick_hz = 0), E::TickRateZero);
+    case(
+        "tick above 1 MHz",
+        refused(|c| c.tick_hz = 1_000_001),
+        E::TickRateTooHigh { tick_hz: 1_000_001 },
+    );
+    for a in [Fx::ZERO, -Fx::ONE] {
+        case(
+            "absolute limit",
+            refused(|c| c.current.absolute_max_ma = a),
+            E::AbsoluteLimitNotPositive { absolute_max_ma: a },
+        );
+    }
+    for x in [Fx::ZERO, -Fx::DELTA] {
+        case(
+            "ceiling",
+            refused(|c| c.current.ceiling_ma = x),
+            E::CeilingNotPositive { ceiling_ma: x },
+        );
+    }
+    let above = cur.absolute_max_ma + Fx::DELTA;
+    case(
+        "ceiling above absolute",
+        refused(|c| c.current.ceiling_ma = above),
+        E::CeilingAboveAbsolute {
+            ceiling_ma: above,
+            absolute_max_ma: cur.absolute_max_ma,
+        },
+    );
+    case(
+        "overcurrent at the ceiling",
+        refused(|c| c.protection.overcurrent_ma = cur.ceiling_ma),
+        E::OvercurrentNotAboveCeiling {
+            overcurrent_ma: cur.ceiling_ma,
+            ceiling_ma: cur.ceiling_ma,
+        },
+    );
+    case(
+        "overcurrent above absolute",
+        refused(|c| c.protection.overcurrent_ma = above),
+        E::OvercurrentAboveAbsolute {
+            overcurrent_ma: above,
+            absolute_max_ma: cur.absolute_max_ma,
+        },
+    );
+
+    // Ramps: each kind, zero, negative, and one LSB under the resolution.
+    type Setter = fn(&mut Config, Fx);
+    let kinds: [(RampKind, Setter); 4] = [
+        (RampKind::SoftStart, |c, x| c.ramp.soft_start_ma_per_ms = x),
+        (RampKind::SoftStop, |c, x| c.ramp.soft_stop_ma_per_ms = x),
+        (RampKind::Setpoint, |c, x| c.ramp.setpoint_mw_per_ms = x),
+        (RampKind::Slew, |c, x| c.apc.slew_ma_per_ms = x),
+    ];
+    // The smallest rate that is at least one LSB per tick.
+    let smallest = Fx::from_bits(hz.div_ceil(1000) as i32);
+    for (which, set) in kinds {
+        for x in [Fx::ZERO, -Fx::ONE] {
+            case(
+                "ramp not positive",
+                refused(|c| set(c, x)),
+                E::RampRateNotPositive { which, per_ms: x },
+            );
+        }
+        let x = smallest - Fx::DELTA;
+        case(
+            "ramp below resolution",
+            refused(|c| set(c, x)),
+            E::RampRateBelowResolution {
+                which,
+                per_ms: x,
+                tick_hz: hz,
+            },
+        );
+    }
+    let max_ms = (u64::from(u32::MAX) * 1000 / u64::from(hz)) as u32;
+    case(
+        "emission delay",
+        refused(|c| c.ramp.emission_delay_ms = max_ms + 1),
+        E::EmissionDelayTooLong {
+            emission_delay_ms: max_ms + 1,
+        },
+    );
+    for x in [Fx::ZERO, -Fx::DELTA, Fx::ONE + Fx::DELTA] {
+        case(
+            "hand-over fraction",
+            refused(|c| c.ramp.handover_fraction = x),
+            E::HandoverFractionOutOfRange { fraction: x },
+        );
+    }
+    for (min, max) in [
+        (Fx::ZERO, pw.max_setpoint_mw),
+        (-Fx::ONE, pw.max_setpoint_mw),
+        (pw.max_setpoint_mw + Fx::DELTA, pw.max_setpoint_mw),
+    ] {
+        case(
+            "power range",
+            refused(|c| c.power.min_setpoint_mw = min),
+            E::PowerRangeInvalid {
+                min_setpoint_mw: min,
+                max_setpoint_mw: max,
+            },
+        );
+    }
+    case(
+        "runaway at the top setpoint",
+        refused(|c| c.protection.runaway_mw = pw.max_setpoint_mw),
+        E::RunawayNotAboveSetpointRange {
+            runaway_mw: pw.max_setpoint_mw,
+            max_setpoint_mw: pw.max_setpoint_mw,
+        },
+    );
+    case(
+        "monitor-loss floor negative",
+        refused(|c| c.protection.monitor_loss_floor_mw = -Fx::DELTA),
+        E::MonitorLossFloorNegative {
+            floor_mw: -Fx::DELTA,
+        },
+    );
+    let lowest = pw.min_setpoint_mw * r.handover_fraction;
+    case(
+        "monitor-loss floor at the lowest hand-over",
+        refused(|c| c.protection.monitor_loss_floor_mw = lowest),
+        E::MonitorLossFloorNotBelowSetpoints {
+            floor_mw: lowest,
+            lowest_handover_mw: lowest,
+        },
+    );
+    for x in [Fx::ZERO, cur.ceiling_ma + Fx::DELTA] {
+        case(
+            "monitor-loss drive",
+            refused(|c| c.protection.monitor_loss_drive_ma = x),
+            E::MonitorLossDriveOutOfRange {
+                drive_ma: x,
+                ceiling_ma: cur.ceiling_ma,
+            },
+        );
+    }
+    case(
+        "knee at the cut-off",
+        refused(|c| c.derating.knee_degc = d.derating.cutoff_degc),
+        E::DeratingKneeNotBelowCutoff {
+            knee_degc: d.derating.cutoff_degc,
+            cutoff_degc: d.derating.cutoff_degc,
+        },
+    );
+    for x in [-Fx::DELTA, cur.ceiling_ma + Fx::DELTA] {
+        case(
+            "derating floor",
+            refused(|c| c.derating.floor_ma = x),
+            E::DeratingFloorOutOfRange {
+                floor_ma: x,
+                ceiling_ma: cur.ceiling_ma,
+            },
+        );
+    }
+
+    // Debounces.
+    type Deb = fn(&mut Config);
+    let debs: [(Fault, Deb); 8] = [
+        (Fault::Overcurrent, |c| {
+            c.protection.overcurrent_debounce = 0
+        }),
+        (Fault::MonitorRunaway, |c| c.protection.runaway_debounce = 0),
+        (Fault::MonitorLoss, |c| {
+            c.protection.monitor_loss_debounce = 0
+        }),
+        (Fault::SensorOpen, |c| c.protection.sensor_debounce = 0),
+        (Fault::OverTemperature, |c| {
+            c.protection.over_temp_debounce = 0
+        }),
+        (Fault::InterlockOpen, |c| {
+            c.protection.interlock_debounce = 0
+        }),
+        (Fault::SupplyUnder, |c| c.protection.supply_debounce = 0),
+        (Fault::DriveMismatch, |c| c.protection.mismatch_debounce = 0),
+    ];
+    for (fault, brk) in debs {
+        case("debounce", refused(brk), E::DebounceZero { fault });
+    }
+    case(
+        "missed-tick limit",
+        refused(|c| c.protection.missed_tick_limit = 0),
+        E::MissedTickLimitZero,
+    );
+    for x in [Fx::ZERO, -Fx::ONE] {
+        case(
+            "mismatch tolerance",
+            refused(|c| c.protection.mismatch_tolerance_ma = x),
+            E::MismatchToleranceNotPositive { tolerance_ma: x },
+        );
+    }
+
+    // Gains.
+    for x in [Fx::ZERO, -Fx::ONE] {
+        case(
+            "kp",
+            refused(|c| c.apc.kp_ma_per_mw = x),
+            E::GainNotPositive {
+                proportional: true,
+                gain: x,
+            },
+        );
+    }
+    case(
+        "ki negative",
+        refused(|c| c.apc.ki_ma_per_mw_ms = -Fx::DELTA),
+        E::GainNotPositive {
+            proportional: false,
+            gain: -Fx::DELTA,
+        },
+    );
+    let kp_fits = Fx::MAX / p.runaway_mw;
+    let kp_over = kp_fits + Fx::DELTA;
+    assert!(kp_over.checked_mul(p.runaway_mw).is_none());
+    case(
+        "kp × runaway overflows",
+        refused(|c| c.apc.kp_ma_per_mw = kp_over),
+        E::ProportionalGainOverflow {
+            kp_ma_per_mw: kp_over,
+            runaway_mw: p.runaway_mw,
+        },
+    );
+    // ki per tick must stay below 128 (the range of the 8.24 Gain).
+    let ki_over = Fx::from_num(128 * hz / 1000);
+    case(
+        "ki per tick too large",
+        refused(|c| c.apc.ki_ma_per_mw_ms = ki_over),
+        E::IntegralGainOutOfRange {
+            ki_ma_per_mw_ms: ki_over,
+            tick_hz: hz,
+        },
+    );
+    // One Fx LSB per ms at 1 MHz is below one Gain LSB per tick.
+    case(
+        "ki per tick rounds to zero",
+        refused(|c| {
+            c.tick_hz = 1_000_000;
+            c.apc.ki_ma_per_mw_ms = Fx::DELTA;
+        }),
+        E::IntegralGainOutOfRange {
+            ki_ma_per_mw_ms: Fx::DELTA,
+            tick_hz: 1_000_000,
+        },
+    );
+
+    // Calibration.
+    type AdcSel = fn(&mut Config) -> &mut AdcCal;
+    let adcs: [(Channel, AdcSel); 3] = [
+        (Channel::Monitor, |c| &mut c.calibration.monitor),
+        (Channel::CurrentSense, |c| &mut c.calibration.current_sense),
+        (Channel::Supply, |c| &mut c.calibration.supply),
+    ];
+    for (channel, sel) in adcs {
+        for g in [Gain::ZERO, -Gain::DELTA] {
+            case(
+                "adc gain",
+                refused(|c| sel(c).units_per_count = g),
+                E::CalibrationGainNotPositive { channel },
+            );
+        }
+        for off in [-1, 4095] {
+            case(
+                "adc offset",
+                refused(|c| sel(c).offset_counts = off),
+                E::CalibrationOffsetOutOfRange {
+                    channel,
+                    offset: off,
+                    full_scale: 4095,
+                },
+            );
+        }
+    }
+    for g in [Fx::ZERO, -Fx::ONE] {
+        case(
+            "dac gain",
+            refused(|c| c.calibration.dac.codes_per_ma = g),
+            E::CalibrationGainNotPositive {
+                channel: Channel::Dac,
+            },
+        );
+    }
+    for off in [-1, i32::from(cal.dac.max_code)] {
+        case(
+            "dac offset",
+            refused(|c| c.calibration.dac.offset_codes = off),
+            E::CalibrationOffsetOutOfRange {
+                channel: Channel::Dac,
+                offset: off,
+                full_scale: cal.dac.max_code,
+            },
+        );
+    }
+    let code = ceiling_code(&d);
+    case(
+        "ceiling beyond the DAC",
+        refused(|c| c.calibration.dac.max_code = code as u16 - 1),
+        E::CeilingNotRepresentable {
+            ceiling_ma: cur.ceiling_ma,
+            code,
+            max_code: code as u16 - 1,
+        },
+    );
+    let mon_fs = full_scale(&cal.monitor);
+    case(
+        "runaway beyond the monitor",
+        refused(|c| c.protection.runaway_mw = mon_fs + Fx::DELTA),
+        E::RunawayBeyondMonitorRange {
+            runaway_mw: mon_fs + Fx::DELTA,
+            full_scale_mw: mon_fs,
+        },
+    );
+    // The shortest current-sense range that still reads the trip, minus one count.
+    let n_ok = (0..=4095u16)
+        .find(|n| {
+            let mut a = cal.current_sense;
+            a.full_scale_counts = *n;
+            *n > 0 && full_scale(&a) >= p.overcurrent_ma
+        })
+        .unwrap();
+    let mut short = cal.current_sense;
+    short.full_scale_counts = n_ok - 1;
+    case(
+        "overcurrent beyond the sense",
+        refused(|c| c.calibration.current_sense.full_scale_counts = n_ok - 1),
+        E::OvercurrentBeyondSenseRange {
+            overcurrent_ma: p.overcurrent_ma,
+            full_scale_ma: full_scale(&short),
+        },
+    );
+    let sup_fs = full_scale(&cal.supply);
+    for (min, max) in [
+        (p.supply_max_mv, p.supply_max_mv),
+        (-Fx::DELTA, p.supply_max_mv),
+        (p.supply_min_mv, sup_fs + Fx::DELTA),
+    ] {
+        case(
+            "supply window",
+            refused(|c| {
+                c.protection.supply_min_mv = min;
+                c.protection.supply_max_mv = max;
+            }),
+            E::SupplyWindowInvalid {
+                supply_min_mv: min,
+                supply_max_mv: max,
+                full_scale_mv: sup_fs,
+            },
+        );
+    }
+
+    // Temperature table and rails.
+    for len in [1usize, 0] {
+        case(
+            "short table",
+            refused(|c| c.calibration.temperature.table.truncate(len)),
+            E::TempTableTooShort { len },
+        );
+    }
+    case(
+        "repeated counts",
+        refused(|c| {
+            let t = &mut c.calibration.temperature.table;
+            t[5].counts = t[4].counts;
+        }),
+        E::TempTableNotMonotonic { index: 5 },
+    );
+    case(
+        "falling counts",
+        refused(|c| c.calibration.temperature.table.swap(0, 1)),
+        E::TempTableNotMonotonic { index: 1 },
+    );
+    case(
+        "repeated temperature",
+        refused(|c| {
+            let t = &mut c.calibration.temperature.table;
+            t[3].degc = t[2].degc;
+        }),
+        E::TempTableNotMonotonic { index: 3 },
+    );
+    let last = d.calibration.temperature.table.len() - 1;
+    case(
+        "temperature turns back",
+        refused(|c| {
+            let t = &mut c.calibration.temperature.table;
+            t[last].degc = t[last - 1].degc + Fx::ONE;
+        }),
+        E::TempTableNotMonotonic { index: last },
+    );
+    let tc = &d.calibration.temperature;
+    let (first, lastc) = (tc.table[0].counts, tc.table[last].counts);
+    for (lo, hi) in [
+        (tc.high_fault_counts, tc.high_fault_counts),
+        (first, tc.high_fault_counts),
+        (tc.low_fault_counts, lastc),
+    ] {
+        case(
+            "sensor rails",
+            refused(|c| {
+                c.calibration.temperature.low_fault_counts = lo;
+                c.calibration.temperature.high_fault_counts = hi;
+            }),
+            E::SensorRailsInconsistent {
+                low_fault_counts: lo,
+                high_fault_counts: hi,
+            },
+        );
+    }
+    v
+}
+
+/// `round(ceiling × codes_per_ma) + offset`, halves rounding up, in i128.
+fn ceiling_code(c: &Config) -> i32 {
+    let prod = i128::from(c.current.ceiling_ma.to_bits())
+        * i128::from(c.calibration.dac.codes_per_ma.to_bits());
+    (((prod + (1 << 31)) >> 32) + i128::from(c.calibration.dac.offset_codes)) as i32
+}
+
+#[test]
+fn the_demo_configuration_is_valid() {
+    accepted(|_| {});
+}
+
+#[test]
+fn each_broken_field_gives_its_exact_error() {
+    for (what, got, want) in cases() {
+        assert_eq!(got, want, "{what}");
+    }
+}
+
+#[test]
+fn every_variant_is_covered() {
+    let seen: BTreeSet<&str> = cases().iter().map(|(_, e, _)| variant(e)).collect();
+    assert_eq!(seen.len(), VARIANTS, "covered: {seen:?}");
+}
+
+#[test]
+fn every_error_displays_a_distinct_message() {
+    let mut seen = BTreeSet::new();
+    for (what, e, _) in cases() {
+        let s = e.to_string();
+        assert!(!s.is_empty(), "{what}");
+        seen.insert(s);
+    }
+    // Messages carry the values, so same-variant cases differ too; at
+    // least one distinct message per variant.
+    assert!(seen.len() >= VARIANTS);
+}
+
+#[test]
+fn values_just_inside_each_boundary_are_accepted() {
+    let d = example::config();
+    let hz = d.tick_hz;
+    accepted(|c| c.tick_hz = 1_000_000);
+    accepted(|c| c.protection.overcurrent_ma = d.current.ceiling_ma + Fx::DELTA);
+    accepted(|c| c.protection.overcurrent_ma = d.current.absolute_max_ma);
+    let smallest = Fx::from_bits(hz.div_ceil(1000) as i32);
+    accepted(|c| {
+        c.ramp.soft_start_ma_per_ms = smallest;
+        c.ramp.soft_stop_ma_per_ms = smallest;
+        c.ramp.setpoint_mw_per_ms = smallest;
+        c.apc.slew_ma_per_ms = smallest;
+    });
+    accepted(|c| c.ramp.emission_delay_ms = 0);
+    accepted(|c| c.ramp.emission_delay_ms = (u64::from(u32::MAX) * 1000 / u64::from(hz)) as u32);
+    accepted(|c| c.ramp.handover_fraction = Fx::ONE);
+    accepted(|c| c.power.min_setpoint_mw = d.power.max_setpoint_mw);
+    accepted(|c| c.protection.runaway_mw = d.power.max_setpoint_mw + Fx::DELTA);
+    accepted(|c| c.protection.monitor_loss_floor_mw = Fx::ZERO);
+    let lowest = d.power.min_setpoint_mw * d.ramp.handover_fraction;
+    accepted(|c| c.protection.monitor_loss_floor_mw = lowest - Fx::DELTA);
+    accepted(|c| c.protection.monitor_loss_drive_ma = d.current.ceiling_ma);
+    accepted(|c| c.protection.monitor_loss_drive_ma = Fx::DELTA);
+    accepted(|c| c.derating.knee_degc = d.derating.cutoff_degc - Fx::DELTA);
+    accepted(|c| c.derating.floor_ma = Fx::ZERO);
+    accepted(|c| c.derating.floor_ma = d.current.ceiling_ma);
+    accepted(|c| c.protection.missed_tick_limit = u16::MAX);
+    accepted(|c| c.protection.mismatch_tolerance_ma = Fx::DELTA);
+    accepted(|c| c.apc.ki_ma_per_mw_ms = Fx::ZERO);
+    accepted(|c| c.apc.kp_ma_per_mw = Fx::MAX / d.protection.runaway_mw);
+    accepted(|c| c.apc.ki_ma_per_mw_ms = Fx::from_num(128 * hz / 1000) - Fx::DELTA);
+    accepted(|c| c.calibration.monitor.offset_counts = 0);
+    accepted(|c| c.calibration.dac.max_code = ceiling_code(&d) as u16);
+    let mon_fs = full_scale(&d.calibration.monitor);
+    accepted(|c| c.protection.runaway_mw = mon_fs);
+    let sup_fs = full_scale(&d.calibration.supply);
+    accepted(|c| c.protection.supply_max_mv = sup_fs);
+    accepted(|c| c.protection.supply_min_mv = Fx::ZERO);
+    let tc = &d.calibration.temperature;
+    let last = tc.table.len() - 1;
+    accepted(|c| c.calibration.temperature.low_fault_counts = tc.table[0].counts - 1);
+    accepted(|c| c.calibration.temperature.high_fault_counts = tc.table[last].counts + 1);
+    // A two-point rising table (an RTD or PTC) is as good as a falling one.
+    accepted(|c| {
+        let t = &mut c.calibration.temperature.table;
+        let (a, b) = (t[0], t[last]);
+        t.clear();
+        t.push(diodestat_core::TempPoint {
+            counts: a.counts,
+            degc: b.degc,
+        })
+        .unwrap();
+        t.push(diodestat_core::TempPoint {
+            counts: b.counts,
+            degc: a.degc,
+        })
+        .unwrap();
+    });
+}
+
+#[test]
+fn per_tick_quantities_are_derived_from_the_rates() {
+    let d = example::config();
+    let v = d.clone().validate().unwrap();
+    let per_tick =
+        |x: Fx| Fx::from_bits((i64::from(x.to_bits()) * 1000 / i64::from(d.tick_hz)) as i32);
+    assert_eq!(
+        v.soft_start_ma_per_tick(),
+        per_tick(d.ramp.soft_start_ma_per_ms)
+    );
+    assert_eq!(
+        v.soft_stop_ma_per_tick(),
+        per_tick(d.ramp.soft_stop_ma_per_ms)
+    );
+    assert_eq!(
+        v.setpoint_mw_per_tick(),
+        per_tick(d.ramp.setpoint_mw_per_ms)
+    );
+    assert_eq!(v.slew_ma_per_tick(), per_tick(d.apc.slew_ma_per_ms));
+    assert_eq!(
+        v.emission_delay_ticks(),
+        (u64::from(d.ramp.emission_delay_ms) * u64::from(d.tick_hz)).div_ceil(1000) as u32
+    );
+    assert_eq!(v.kp(), d.apc.kp_ma_per_mw);
+    // ki per tick = ki × 1000 / tick_hz, within one Gain LSB.
+    let want = I40F24::from_num(d.apc.ki_ma_per_mw_ms) * 1000 / i64::from(d.tick_hz);
+    let got = I40F24::from_num(v.ki_per_tick());
+    assert!((got - want).abs() <= I40F24::DELTA, "{got} vs {want}");
+    assert_eq!(v.dac_code(d.current.ceiling_ma), ceiling_code(&d) as u16);
+    assert_eq!(v.dac_code(Fx::MAX), d.calibration.dac.max_code, "clamped");
+    assert_eq!(v.dac_code(-Fx::ONE), 0, "clamped");
+}
