@@ -19,3 +19,4 @@ pub mod plant;
 pub mod report;
 pub mod scenario;
 pub mod sim;
+pub mod stability;
