@@ -95,6 +95,6 @@ if [ -f "$g474" ]; then
     while read -r _addr size _kind _name; do
       printf '  g474-driver CONTROL (Controller, edge, ADC/DAC/timer/IWDG handles): %d B\n' "$((16#$size))"
     done
-  echo "  (the core defines no statics; a Controller value is 1120 B on thumbv7em, see docs/firmware.md)"
+  echo "  (the core defines no statics; a Controller value is 928 B on thumbv7em, see docs/firmware.md)"
 fi
 exit "$status"

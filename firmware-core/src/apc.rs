@@ -12,7 +12,7 @@
 //! so `C(z) = kp + ki·z/(z-1)`. The integrator holds 40 fractional bits so
 //! that small per-tick integral gains do not lose resolution.
 
-use crate::units::{clamp_fx, sat_i32, Fx, Gain};
+use crate::units::{clamp_fx, Fx, Gain};
 
 const FRAC: u32 = 40;
 const FX_FRAC: u32 = 16;
@@ -36,12 +36,24 @@ pub(crate) struct Limits {
     pub ceiling_ma: Fx,
 }
 
+#[inline]
 fn to_wide(v: Fx) -> i64 {
     (v.to_bits() as i64) << (FRAC - FX_FRAC)
 }
 
+/// `sat_i32(w >> 24)` with one range test of the high word: `w >> 24` fits
+/// i32 exactly when the high word of `w` lies in [-2^23, 2^23).
+#[inline]
 fn from_wide(w: i64) -> Fx {
-    Fx::from_bits(sat_i32(w >> (FRAC - FX_FRAC)))
+    let high = (w >> 32) as i32;
+    let bits = if (high.wrapping_add(1 << 23) as u32) < (1 << 24) {
+        (w >> (FRAC - FX_FRAC)) as i32
+    } else if high < 0 {
+        i32::MIN
+    } else {
+        i32::MAX
+    };
+    Fx::from_bits(bits)
 }
 
 impl PowerLoop {
@@ -57,6 +69,14 @@ impl PowerLoop {
     }
 
     /// One PI step. Returns the new output in mA.
+    ///
+    /// The integrator and the sums are 64-bit; only the proportional term
+    /// and the output saturate to the [`Fx`] range. The integrator always
+    /// lies within ±2^55 (it is set from an `Fx` shifted by 24 bits, or
+    /// clamped to `[0, ceiling]` so shifted), and `|e·ki| <= 2^62`, so the
+    /// sums below stay within ±(2^62 + 2^56) and cannot overflow: plain
+    /// 64-bit adds give the same values as saturating ones.
+    #[inline]
     pub(crate) fn step(
         &mut self,
         kp: Fx,
@@ -66,29 +86,171 @@ impl PowerLoop {
         lim: Limits,
     ) -> Fx {
         let e = setpoint_mw.saturating_sub(monitor_mw);
-        let p = kp.saturating_mul(e);
+        // `kp.saturating_mul(e)`: the product floored to 16 fractional
+        // bits, saturated.
+        let p = sat_shr16(i64::from(kp.to_bits()) * i64::from(e.to_bits()));
         // e (16 fractional bits) × ki (24) = 40 fractional bits.
-        let inc = (e.to_bits() as i64).saturating_mul(ki.to_bits() as i64);
-        let candidate = self.integ.saturating_add(inc);
-        let u = from_wide(candidate.saturating_add(to_wide(p)));
+        let inc = i64::from(e.to_bits()) * i64::from(ki.to_bits());
+        let candidate = self.integ.wrapping_add(inc);
+        // `from_wide(candidate + to_wide(p))`: `p·2^24` is a whole multiple
+        // of 2^24, so the sum shifted right by 24 is `(candidate >> 24) + p`
+        // exactly; when `candidate >> 24` fits i32 (its high word within
+        // [-2^23, 2^23)) that is one saturating 32-bit add.
+        let high = (candidate >> 32) as i32;
+        let u = if (high.wrapping_add(1 << 23) as u32) < (1 << 24) {
+            Fx::from_bits(((candidate >> (FRAC - FX_FRAC)) as i32).saturating_add(p))
+        } else {
+            from_wide(candidate.wrapping_add(to_wide(Fx::from_bits(p))))
+        };
         let lo = lim.prev_ma.saturating_sub(lim.slew_ma);
         let hi = lim.prev_ma.saturating_add(lim.slew_ma);
         let slewed = clamp_fx(u, lo, hi);
         let out = clamp_fx(slewed, Fx::ZERO, lim.ceiling_ma);
         let pushing_up = out < u && e > Fx::ZERO;
         let pushing_down = out > u && e < Fx::ZERO;
-        if !(pushing_up || pushing_down) {
-            self.integ = candidate;
-        }
+        let integ = if pushing_up || pushing_down {
+            self.integ
+        } else {
+            candidate
+        };
         // The integrator never holds more than the ceiling nor less than zero.
-        self.integ = self.integ.clamp(0, to_wide(lim.ceiling_ma.max(Fx::ZERO)));
+        let top = to_wide(lim.ceiling_ma.max(Fx::ZERO));
+        self.integ = if integ < 0 {
+            0
+        } else if integ > top {
+            top
+        } else {
+            integ
+        };
         out
+    }
+}
+
+/// `sat_i32(v >> 16)` with one range test of the high word: `v >> 16` fits
+/// i32 exactly when the high word of `v` lies in [-2^15, 2^15).
+#[inline]
+fn sat_shr16(v: i64) -> i32 {
+    let high = (v >> 32) as i32;
+    if (high.wrapping_add(1 << 15) as u32) < (1 << 16) {
+        (v >> 16) as i32
+    } else if high < 0 {
+        i32::MIN
+    } else {
+        i32::MAX
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::units::sat_i32;
+
+    /// The PI step as first written, with saturating 64-bit arithmetic
+    /// throughout and the fixed crate's saturating multiply: the reference
+    /// the step above must equal bit for bit.
+    fn reference_step(
+        integ: &mut i64,
+        kp: Fx,
+        ki: Gain,
+        setpoint_mw: Fx,
+        monitor_mw: Fx,
+        lim: Limits,
+    ) -> Fx {
+        let e = setpoint_mw.saturating_sub(monitor_mw);
+        let p = kp.saturating_mul(e);
+        let inc = (e.to_bits() as i64).saturating_mul(ki.to_bits() as i64);
+        let candidate = integ.saturating_add(inc);
+        let u = Fx::from_bits(sat_i32(
+            candidate.saturating_add(to_wide(p)) >> (FRAC - FX_FRAC),
+        ));
+        let lo = lim.prev_ma.saturating_sub(lim.slew_ma);
+        let hi = lim.prev_ma.saturating_add(lim.slew_ma);
+        let out = clamp_fx(clamp_fx(u, lo, hi), Fx::ZERO, lim.ceiling_ma);
+        let pushing_up = out < u && e > Fx::ZERO;
+        let pushing_down = out > u && e < Fx::ZERO;
+        if !(pushing_up || pushing_down) {
+            *integ = candidate;
+        }
+        *integ = (*integ).clamp(0, to_wide(lim.ceiling_ma.max(Fx::ZERO)));
+        out
+    }
+
+    /// A small deterministic generator (64-bit LCG, Knuth's MMIX constants,
+    /// `common practice`) for wide test inputs.
+    struct Lcg(u64);
+
+    impl Lcg {
+        fn bits(&mut self) -> i32 {
+            self.0 = self
+                .0
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            let raw = (self.0 >> 32) as i32;
+            // Every magnitude: shift a random word right by 0 to 31 bits.
+            raw >> ((self.0 >> 27) & 31)
+        }
+    }
+
+    const EXTREMES: [i32; 9] = [
+        i32::MIN,
+        i32::MIN + 1,
+        -65_536,
+        -1,
+        0,
+        1,
+        65_536,
+        i32::MAX - 1,
+        i32::MAX,
+    ];
+
+    #[test]
+    fn step_equals_the_saturating_reference_over_wide_inputs() {
+        let mut rng = Lcg(0x5eed);
+        let mut cases = 0u32;
+        for round in 0..60_000u32 {
+            let mut pick = |k: u32| {
+                if (round + k).is_multiple_of(5) {
+                    EXTREMES[(round as usize / 5 + k as usize) % EXTREMES.len()]
+                } else {
+                    rng.bits()
+                }
+            };
+            let kp = Fx::from_bits(pick(0));
+            let ki = Gain::from_bits(pick(1));
+            let sp = Fx::from_bits(pick(2));
+            let mon = Fx::from_bits(pick(3));
+            let lim = Limits {
+                prev_ma: Fx::from_bits(pick(4)),
+                slew_ma: Fx::from_bits(pick(5)),
+                ceiling_ma: Fx::from_bits(pick(6)),
+            };
+            // Integrator states: preset from any Fx (the widest reachable),
+            // then a few steps from there.
+            let mut pi = PowerLoop::default();
+            pi.preset(Fx::from_bits(pick(7)));
+            let mut reference = pi.integ;
+            for _ in 0..3 {
+                let want = reference_step(&mut reference, kp, ki, sp, mon, lim);
+                let got = pi.step(kp, ki, sp, mon, lim);
+                assert_eq!(got, want, "{kp} {ki} {sp} {mon} {lim:?}");
+                assert_eq!(pi.integ, reference, "{kp} {ki} {sp} {mon} {lim:?}");
+                cases += 1;
+            }
+        }
+        assert_eq!(cases, 180_000);
+    }
+
+    #[test]
+    fn saturating_shifts_equal_the_saturated_wide_values() {
+        let mut rng = Lcg(7);
+        for _ in 0..200_000 {
+            let v = (i64::from(rng.bits()) << 32) | i64::from(rng.bits() as u32);
+            for w in [v, v >> 7, v >> 17, v >> 30, i64::MIN, i64::MAX, -1, 0] {
+                assert_eq!(sat_shr16(w), sat_i32(w >> 16), "{w}");
+                assert_eq!(from_wide(w).to_bits(), sat_i32(w >> 24), "{w}");
+            }
+        }
+    }
 
     fn lim(prev: i32, slew: i32, ceil: i32) -> Limits {
         Limits {

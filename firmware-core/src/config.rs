@@ -7,7 +7,7 @@
 //! control tick never divides by the tick rate.
 
 use crate::fault::Fault;
-use crate::temp_table::{TempPoint, TempTable, TEMP_TABLE_LEN};
+use crate::temp_table::{self, TempPoint, Window, TEMP_TABLE_LEN};
 use crate::units::{ms_to_ticks, per_tick, scale_counts, Fx, Gain};
 
 /// The complete board configuration, in engineering units.
@@ -565,7 +565,6 @@ impl core::error::Error for ConfigError {}
 pub struct ValidConfig {
     cfg: Config,
     pub(crate) t: PerTick,
-    pub(crate) table: TempTable,
 }
 
 /// Quantities per tick, derived once.
@@ -578,6 +577,16 @@ pub(crate) struct PerTick {
     pub setpoint_mw: Fx,
     pub emission_delay: u32,
     pub ki: Gain,
+    /// The fault a temperature reading at or below the low rail means
+    /// (sensor open or short, per [`TempCal::open_rail`]), as a mask bit.
+    pub low_rail_bit: u16,
+    /// The fault a reading at or above the high rail means, as a mask bit.
+    pub high_rail_bit: u16,
+    /// The debounce of every fault, ticks, indexed by its bit.
+    pub debounce: [u16; Fault::COUNT],
+    /// `-mismatch_tolerance_ma` (wrapping), the lower end of the window of
+    /// drive differences that raise no mismatch.
+    pub neg_mismatch_tolerance_ma: Fx,
 }
 
 const MAX_TICK_HZ: u32 = 1_000_000;
@@ -815,16 +824,22 @@ impl Config {
         }
         // Temperature table.
         let tc = &cal.temperature;
-        let table = TempTable::new(&tc.table)?;
+        temp_table::check(&tc.table)?;
+        let first_counts = tc.table.first().map_or(0, |p| p.counts);
+        let last_counts = tc.table.last().map_or(u16::MAX, |p| p.counts);
         if tc.low_fault_counts >= tc.high_fault_counts
-            || tc.low_fault_counts >= table.first_counts()
-            || tc.high_fault_counts <= table.last_counts()
+            || tc.low_fault_counts >= first_counts
+            || tc.high_fault_counts <= last_counts
         {
             return Err(E::SensorRailsInconsistent {
                 low_fault_counts: tc.low_fault_counts,
                 high_fault_counts: tc.high_fault_counts,
             });
         }
+        let (low_rail, high_rail) = match tc.open_rail {
+            Rail::High => (Fault::SensorShort, Fault::SensorOpen),
+            Rail::Low => (Fault::SensorOpen, Fault::SensorShort),
+        };
         Ok(ValidConfig {
             t: PerTick {
                 soft_start_ma,
@@ -833,10 +848,28 @@ impl Config {
                 setpoint_mw,
                 emission_delay,
                 ki,
+                low_rail_bit: low_rail.bit(),
+                high_rail_bit: high_rail.bit(),
+                debounce: Fault::ALL.map(|f| debounce_ticks(&p, f)),
+                neg_mismatch_tolerance_ma: p.mismatch_tolerance_ma.wrapping_neg(),
             },
-            table,
             cfg: self,
         })
+    }
+}
+
+/// The debounce of `fault`, ticks.
+fn debounce_ticks(p: &Protection, fault: Fault) -> u16 {
+    match fault {
+        Fault::Overcurrent => p.overcurrent_debounce,
+        Fault::MonitorRunaway => p.runaway_debounce,
+        Fault::MonitorLoss => p.monitor_loss_debounce,
+        Fault::SensorOpen | Fault::SensorShort => p.sensor_debounce,
+        Fault::OverTemperature => p.over_temp_debounce,
+        Fault::InterlockOpen => p.interlock_debounce,
+        Fault::SupplyUnder | Fault::SupplyOver => p.supply_debounce,
+        Fault::DriveMismatch => p.mismatch_debounce,
+        Fault::MissedTicks => 1,
     }
 }
 
@@ -852,6 +885,24 @@ fn ki_per_tick(ki_ma_per_mw_ms: Fx, tick_hz: u32) -> Option<Gain> {
         return None;
     }
     Some(g)
+}
+
+/// [`dac_code_unclamped`] clamped to `[0, max_code]`, in 32 bits: the
+/// rounded product `(ma × codes + 2^31) >> 32` lies within ±2^30, and a
+/// saturating add of the offset lands on the same side of the clamp limits
+/// as the exact 64-bit sum, so the code is the same.
+#[inline]
+fn dac_code_clamped(dac: &DacCal, ma: Fx) -> u16 {
+    let wide = i64::from(ma.to_bits()) * i64::from(dac.codes_per_ma.to_bits());
+    let scaled = (wide.wrapping_add(1 << 31) >> 32) as i32;
+    let code = scaled.saturating_add(dac.offset_codes);
+    if code <= 0 {
+        0
+    } else if code >= i32::from(dac.max_code) {
+        dac.max_code
+    } else {
+        code as u16
+    }
 }
 
 /// The DAC code for a current without clamping, in i64.
@@ -906,13 +957,20 @@ impl ValidConfig {
 
     /// The temperature conversion the core uses: counts to degC.
     pub fn counts_to_degc(&self, counts: u16) -> Fx {
-        self.table.degc(counts)
+        temp_table::degc(&self.cfg.calibration.temperature.table, counts)
+    }
+
+    /// [`ValidConfig::counts_to_degc`] through the table segment of the
+    /// previous reading (`segment`, updated); the same result.
+    #[inline]
+    pub(crate) fn counts_to_degc_cached(&self, counts: u16, segment: &mut Window) -> Fx {
+        temp_table::degc_cached(&self.cfg.calibration.temperature.table, counts, segment)
     }
 
     /// The DAC code the core would send for a current (clamped to the DAC range).
+    #[inline]
     pub fn dac_code(&self, ma: Fx) -> u16 {
-        let code = dac_code_unclamped(&self.cfg.calibration.dac, ma);
-        code.clamp(0, i64::from(self.cfg.calibration.dac.max_code)) as u16
+        dac_code_clamped(&self.cfg.calibration.dac, ma)
     }
 
     /// Temperature-derated current ceiling at `degc`, mA: the configured
@@ -951,5 +1009,43 @@ impl ValidConfig {
     pub fn supply_mv(&self, counts: u16) -> Fx {
         let c = &self.cfg.calibration.supply;
         scale_counts(i32::from(counts) - c.offset_counts, c.units_per_count)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn dac_code_equals_the_clamped_wide_code() {
+        // Every magnitude of current, gain and offset, and every DAC width,
+        // against the i64 code clamped to the DAC range.
+        let mut x: u64 = 99;
+        let mut next = || {
+            // A 64-bit LCG (Knuth's MMIX constants, `common practice`).
+            x = x
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            let raw = (x >> 32) as i32;
+            raw >> ((x >> 27) & 31)
+        };
+        let extremes = [i32::MIN, -1, 0, 1, 65_535, i32::MAX];
+        for round in 0..400_000u32 {
+            let mut pick = |k: u32| {
+                if (round + k).is_multiple_of(7) {
+                    extremes[(round as usize + k as usize) % extremes.len()]
+                } else {
+                    next()
+                }
+            };
+            let dac = DacCal {
+                codes_per_ma: Fx::from_bits(pick(0)),
+                offset_codes: pick(1),
+                max_code: pick(2) as u16,
+            };
+            let ma = Fx::from_bits(pick(3));
+            let want = dac_code_unclamped(&dac, ma).clamp(0, i64::from(dac.max_code)) as u16;
+            assert_eq!(dac_code_clamped(&dac, ma), want, "{dac:?} {ma}");
+        }
     }
 }

@@ -23,6 +23,7 @@ use crate::fault::{FaultLog, FaultSet};
 use crate::io::{Drive, Mode, Sample, State, Status, Warnings};
 use crate::protect::{Measurements, Protections};
 use crate::request::{Rejection, Request};
+use crate::temp_table::Window;
 use crate::units::{clamp_fx, Fx};
 
 /// The laser-diode controller. Create it from a [`ValidConfig`], call
@@ -48,6 +49,8 @@ pub struct Controller {
     log: FaultLog,
     last_tick: Option<u32>,
     meas: Measurements,
+    /// Temperature table segment of the latest sample.
+    temp_segment: Window,
     warnings: Warnings,
 }
 
@@ -75,6 +78,7 @@ impl Controller {
             log: FaultLog::new(),
             last_tick: None,
             meas: Measurements::default(),
+            temp_segment: Window::NONE,
             warnings: Warnings::default(),
         }
     }
@@ -158,8 +162,11 @@ impl Controller {
             None => 0,
         };
         self.last_tick = Some(s.tick);
-        let m = Measurements::from_sample(&self.cfg, s, missed);
-        self.meas = m;
+        let rails;
+        (self.meas, rails) =
+            Measurements::from_sample(&self.cfg, s, missed, &mut self.temp_segment);
+        let m = &self.meas;
+        let monitor_mw = m.monitor_mw;
 
         // 2. Static ceiling (configured and derated).
         let c = self.cfg.config();
@@ -169,38 +176,51 @@ impl Controller {
             self.cfg.derated_ceiling_ma(m.temp_degc)
         };
         let static_ceiling = derated.min(c.current.ceiling_ma);
-        self.warnings = Warnings {
-            derating: !m.sensor_at_rail && m.temp_degc > c.derating.knee_degc,
-            at_ceiling: false,
-            sensor_suspect: m.sensor_at_rail,
-        };
+        let derating = !m.sensor_at_rail && m.temp_degc > c.derating.knee_degc;
+        let sensor_suspect = m.sensor_at_rail;
 
-        // 3. Protections, on the command that produced this sample.
-        let last_cmd = if self.state.is_emitting() {
-            self.drive_ma
-        } else {
-            Fx::ZERO
+        // 3. Protections, on the command that produced this sample: the
+        // drive of the previous tick, which is zero whenever the state is
+        // not emitting (every tick ends with the drive clamped to a zero
+        // ceiling there, and every request that leaves an emitting state
+        // for one that is not zeroes it or finds it zero).
+        let last_cmd = self.drive_ma;
+        // Monitor loss: light is expected at or above the configured drive
+        // level, and also, while the power loop regulates, on a lower
+        // ceiling in force (a derated ceiling): a power loop pinned on its
+        // ceiling with a dark monitor has lost its feedback, whatever the
+        // ceiling. (In ACC a derated ceiling below threshold is dark by
+        // design and only the configured level applies.)
+        // (Evaluated only when the monitor reads dark.)
+        let loss_drive = c.protection.monitor_loss_drive_ma;
+        let (state, mode, ceiling) = (self.state, self.mode, self.ceiling_ma);
+        let light_expected = || {
+            if state == State::Regulating && mode == Mode::Apc {
+                loss_drive.min(ceiling)
+            } else {
+                loss_drive
+            }
         };
-        let log = &mut self.log;
         let verdict = self.prot.check(
             &self.cfg,
-            &m,
+            m,
+            rails,
             s.tick,
             last_cmd,
+            light_expected,
             self.state,
             self.active,
-            |r| log.record(r),
+            &mut self.log,
         );
         self.present = verdict.present;
         if !verdict.tripped.is_empty() {
-            for f in verdict.tripped.iter() {
-                self.active.insert(f);
-            }
+            self.active = FaultSet::from_bits(self.active.bits() | verdict.tripped.bits());
             self.state = State::Latched;
         }
 
         // 4. The state.
-        self.apply_mode_change(&m);
+        self.apply_mode_change(monitor_mw);
+        let mut at_ceiling = false;
         let drive = match self.state {
             State::Off | State::Latched => {
                 self.envelope_ma = Fx::ZERO;
@@ -210,14 +230,18 @@ impl Controller {
                 if self.arming_left == 0 {
                     self.state = State::Ramping;
                     self.envelope_ma = Fx::ZERO;
-                    self.ramp(&m, static_ceiling)
+                    self.ramp(monitor_mw, static_ceiling)
                 } else {
                     self.arming_left -= 1;
                     Fx::ZERO
                 }
             }
-            State::Ramping => self.ramp(&m, static_ceiling),
-            State::Regulating => self.regulate(&m, static_ceiling),
+            State::Ramping => self.ramp(monitor_mw, static_ceiling),
+            State::Regulating => {
+                let (d, at) = self.regulate(monitor_mw, static_ceiling);
+                at_ceiling = at;
+                d
+            }
             State::Stopping => {
                 let d = self
                     .drive_ma
@@ -231,6 +255,11 @@ impl Controller {
                 }
                 d
             }
+        };
+        self.warnings = Warnings {
+            derating,
+            at_ceiling,
+            sensor_suspect,
         };
         if !self.state.is_emitting() {
             self.ceiling_ma = Fx::ZERO;
@@ -248,14 +277,14 @@ impl Controller {
         }
     }
 
-    fn apply_mode_change(&mut self, m: &Measurements) {
+    fn apply_mode_change(&mut self, monitor_mw: Fx) {
         if self.requested_mode == self.mode {
             return;
         }
         if self.state == State::Regulating && self.requested_mode == Mode::Apc {
             // Bumpless ACC -> APC: start the power setpoint at the measured
             // power and the integrator at the present drive.
-            self.power_sp_mw = self.measured_setpoint(m);
+            self.power_sp_mw = self.measured_setpoint(monitor_mw);
             self.pi.preset(self.drive_ma);
         }
         // APC -> ACC needs nothing: the drive slews from where it is.
@@ -263,17 +292,17 @@ impl Controller {
     }
 
     /// Soft start in current mode.
-    fn ramp(&mut self, m: &Measurements, static_ceiling: Fx) -> Fx {
+    fn ramp(&mut self, monitor_mw: Fx, static_ceiling: Fx) -> Fx {
         let c = self.cfg.config();
         let handover_mw = self
             .power_target_mw
             .saturating_mul(c.ramp.handover_fraction);
         match self.mode {
-            Mode::Apc if m.monitor_mw >= handover_mw => {
+            Mode::Apc if monitor_mw >= handover_mw => {
                 // Hand over at the present drive: the power setpoint ramps
                 // on from the measured power.
                 self.state = State::Regulating;
-                self.power_sp_mw = self.measured_setpoint(m);
+                self.power_sp_mw = self.measured_setpoint(monitor_mw);
                 self.pi.preset(self.drive_ma);
                 self.ceiling_ma = self.envelope_ma.min(static_ceiling);
                 return self.drive_ma;
@@ -303,7 +332,7 @@ impl Controller {
             // slews the rest of the way); monitor loss covers "no light".
             self.state = State::Regulating;
             self.pi.preset(d);
-            self.power_sp_mw = self.measured_setpoint(m);
+            self.power_sp_mw = self.measured_setpoint(monitor_mw);
         }
         d
     }
@@ -311,16 +340,17 @@ impl Controller {
     /// The power setpoint a bumpless start of the power loop begins from:
     /// the measured power, within the accepted setpoint range; the setpoint
     /// ramp then carries it to the target from either side.
-    fn measured_setpoint(&self, m: &Measurements) -> Fx {
+    fn measured_setpoint(&self, monitor_mw: Fx) -> Fx {
         clamp_fx(
-            m.monitor_mw,
+            monitor_mw,
             Fx::ZERO,
             self.cfg.config().power.max_setpoint_mw,
         )
     }
 
-    /// Closed-loop regulation, APC or ACC.
-    fn regulate(&mut self, m: &Measurements, static_ceiling: Fx) -> Fx {
+    /// Closed-loop regulation, APC or ACC: the drive, and whether it sits
+    /// at the ceiling.
+    fn regulate(&mut self, monitor_mw: Fx, static_ceiling: Fx) -> (Fx, bool) {
         let c = self.cfg.config();
         self.envelope_ma = self
             .envelope_ma
@@ -340,7 +370,7 @@ impl Controller {
                     self.cfg.kp(),
                     self.cfg.ki_per_tick(),
                     self.power_sp_mw,
-                    m.monitor_mw,
+                    monitor_mw,
                     Limits {
                         prev_ma: self.drive_ma,
                         slew_ma: slew,
@@ -350,8 +380,7 @@ impl Controller {
             }
             Mode::Acc => toward(self.drive_ma, self.current_target_ma, slew).min(ceiling),
         };
-        self.warnings.at_ceiling = d >= ceiling;
-        d
+        (d, d >= ceiling)
     }
 
     /// The configuration in force.
@@ -436,5 +465,75 @@ fn toward(from: Fx, to: Fx, step: Fx) -> Fx {
         from.saturating_add(step).min(to)
     } else {
         from.saturating_sub(step).max(to)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// `step` takes the previous drive as the command that produced the
+    /// sample without looking at the state: that relies on the drive being
+    /// zero whenever the state is not emitting, after every tick and every
+    /// request. Random samples and requests, the invariant checked after
+    /// each.
+    #[test]
+    fn drive_is_zero_whenever_not_emitting() {
+        let cfg = crate::example::config().validate().unwrap();
+        let mut x: u64 = 5;
+        let mut next = move || {
+            // A 64-bit LCG (Knuth's MMIX constants, `common practice`).
+            x = x
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (x >> 33) as u32
+        };
+        let holds = |c: &Controller| c.state().is_emitting() || c.drive_ma() == Fx::ZERO;
+        let mut emitting_ticks = 0u32;
+        for _ in 0..20 {
+            let mut ctl = Controller::new(cfg.clone());
+            let mut s = Sample {
+                tick: 0,
+                monitor_counts: 0,
+                current_counts: 0,
+                temp_counts: 2_048,
+                supply_counts: 2_457,
+                interlock_closed: true,
+            };
+            for _ in 0..5_000 {
+                if next().is_multiple_of(50) {
+                    let req = match next() % 6 {
+                        0 | 1 => Request::Enable,
+                        2 => Request::Disable,
+                        3 => Request::ClearFaults,
+                        4 => Request::SetMode(if next().is_multiple_of(2) {
+                            Mode::Apc
+                        } else {
+                            Mode::Acc
+                        }),
+                        _ => Request::SetCurrentMa(Fx::from_num(next() % 50)),
+                    };
+                    let _ = ctl.request(req);
+                    assert!(holds(&ctl), "after {req:?}");
+                }
+                s.tick = s.tick.wrapping_add(1);
+                // Sensed current and light follow the drive, with the odd
+                // outlier.
+                let d = ctl.drive_ma().to_num::<i32>().max(0) as u32;
+                s.current_counts = (d * 58 + next() % 3) as u16;
+                s.monitor_counts = (d.saturating_sub(10) * 45 + next() % 3) as u16;
+                if next().is_multiple_of(400) {
+                    s.current_counts = (next() % 4_096) as u16;
+                }
+                let drive = ctl.step(&s);
+                assert!(holds(&ctl));
+                assert_eq!(drive.enable, ctl.state().is_emitting());
+                emitting_ticks += u32::from(drive.enable);
+            }
+        }
+        assert!(
+            emitting_ticks > 10_000,
+            "the loop emitted: {emitting_ticks}"
+        );
     }
 }

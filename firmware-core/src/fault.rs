@@ -16,8 +16,9 @@ pub enum Fault {
     Overcurrent = 0,
     /// Monitor (back-facet) power at or above the runaway limit (fast).
     MonitorRunaway = 1,
-    /// Drive above the "light expected" level while the monitor reads below
-    /// its floor: open photodiode, no light, dead diode.
+    /// Drive at or above the "light expected" level (or, in APC regulation,
+    /// on a lower ceiling in force) while the monitor reads at or below its
+    /// floor: open photodiode, no light, dead diode.
     MonitorLoss = 2,
     /// Temperature sensor reads at the open-circuit rail.
     SensorOpen = 3,
@@ -99,7 +100,8 @@ impl Fault {
         }
     }
 
-    const fn bit(self) -> u16 {
+    /// Bit of this fault in a [`FaultSet`] mask.
+    pub(crate) const fn bit(self) -> u16 {
         1 << (self as u8)
     }
 }
@@ -132,6 +134,11 @@ impl FaultSet {
     /// Whether the set is empty.
     pub const fn is_empty(self) -> bool {
         self.0 == 0
+    }
+
+    /// The set of a raw bit mask (bits of no fault are dropped).
+    pub(crate) const fn from_bits(bits: u16) -> FaultSet {
+        FaultSet(bits & ((1 << Fault::COUNT) - 1))
     }
 
     /// The raw bit mask.

@@ -28,8 +28,18 @@ pub(crate) const fn sat_i32(v: i64) -> i32 {
 #[inline]
 pub(crate) fn scale_counts(counts: i32, gain: Gain) -> Fx {
     // counts (0 fractional bits) × gain (24) = 24 fractional bits; Fx has 16.
-    let wide = (counts as i64) * (gain.to_bits() as i64);
-    Fx::from_bits(sat_i32(wide >> 8))
+    let wide = i64::from(counts) * i64::from(gain.to_bits());
+    // `sat_i32(wide >> 8)` with one range test of the high word: `wide >> 8`
+    // fits i32 exactly when `wide` lies in [-2^39, 2^39), that is when its
+    // high word lies in [-128, 128).
+    let high = (wide >> 32) as i32;
+    if (high.wrapping_add(128) as u32) < 256 {
+        Fx::from_bits((wide >> 8) as i32)
+    } else if high < 0 {
+        Fx::MIN
+    } else {
+        Fx::MAX
+    }
 }
 
 /// Convert a rate per millisecond into a rate per tick: `rate × 1000 / tick_hz`.
@@ -92,6 +102,23 @@ mod tests {
         let g = Gain::from_num(100);
         assert_eq!(scale_counts(i32::MAX, g), Fx::MAX);
         assert_eq!(scale_counts(2, Gain::from_num(1)), Fx::from_num(2));
+    }
+
+    #[test]
+    fn scale_counts_equals_the_saturated_wide_product() {
+        // Every u16 reading less an offset, at gains from the smallest to
+        // the largest, against the saturated i64 product.
+        for gain_bits in [1, 184_365, 81_940_000, i32::MAX, -1, i32::MIN] {
+            let g = Gain::from_bits(gain_bits);
+            for counts in (-65_535..=65_535).step_by(13).chain([-65_535, 0, 65_535]) {
+                let want = sat_i32((i64::from(counts) * i64::from(gain_bits)) >> 8);
+                assert_eq!(
+                    scale_counts(counts, g).to_bits(),
+                    want,
+                    "{counts} × {gain_bits}"
+                );
+            }
+        }
     }
 
     #[test]

@@ -212,6 +212,42 @@ fn monitor_loss_applies_from_its_drive_level() {
 }
 
 #[test]
+fn monitor_loss_on_a_derated_ceiling_below_its_drive_level() {
+    // A hot mount derates the ceiling below the monitor-loss drive level;
+    // the monitor then opens. The power loop winds up to the derated
+    // ceiling and must latch monitor loss there, not sit blind on it.
+    let cfg = demo();
+    let c = cfg.config().clone();
+    let p = c.protection;
+    let hot = temp_counts_for(&cfg, fx(60.0));
+    let mut r = Rig::regulating_apc(cfg.clone(), fx(5.0), 200);
+    r.s.temp_counts = hot;
+    r.run(200);
+    let ceiling = r.ctl.ceiling_ma();
+    assert!(ceiling < p.monitor_loss_drive_ma, "{ceiling} mA");
+    assert_eq!(r.ctl.state(), State::Regulating);
+    r.monitor_override = Some(0);
+    let n = r
+        .run_until(100_000, |ctl, _| ctl.state() == State::Latched)
+        .expect("monitor loss latches on the derated ceiling");
+    assert!(r.ctl.faults().contains(Fault::MonitorLoss));
+    // It took the wind-up to the ceiling plus the debounce, no more.
+    let wind_up = ((ceiling - fx(5.0)) / cfg.slew_ma_per_tick()).to_num::<u32>() + 2;
+    assert!(
+        n <= wind_up + u32::from(p.monitor_loss_debounce) + 50,
+        "{n} ticks"
+    );
+    // In ACC on the same derated ceiling a dark monitor is no fault: the
+    // configured drive level alone applies.
+    let mut r = Rig::regulating_acc(cfg, c.current.ceiling_ma);
+    r.s.temp_counts = hot;
+    r.monitor_override = Some(0);
+    for _ in 0..10 * u32::from(p.monitor_loss_debounce) {
+        assert!(r.step().enable);
+    }
+}
+
+#[test]
 fn sensor_open_and_short_at_the_rails_for_both_polarities() {
     for open_rail in [Rail::High, Rail::Low] {
         let cfg = demo_with(|c| c.calibration.temperature.open_rail = open_rail);

@@ -30,11 +30,11 @@ const REG_WORST_TARGET: u64 = 600;
 const FAULT_WORST_TARGET_BELOW: u64 = 400;
 
 /// Regression budgets, instructions per tick: a check fails above them.
-/// They sit about 10 % above what this core measures (see
-/// `docs/firmware.md`); tighten them as the core gets faster.
-const REG_MEAN_BUDGET: u64 = 900;
-const REG_WORST_BUDGET: u64 = 1000;
-const FAULT_WORST_BUDGET: u64 = 1000;
+/// They sit just above what this core measures (see `docs/firmware.md`);
+/// tighten them as the core gets faster.
+const REG_MEAN_BUDGET: u64 = 340;
+const REG_WORST_BUDGET: u64 = 560;
+const FAULT_WORST_BUDGET: u64 = 480;
 
 #[panic_handler]
 fn panic(info: &PanicInfo) -> ! {
