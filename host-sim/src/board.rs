@@ -66,12 +66,22 @@ pub fn calibrate(mut cfg: Config, module: &DemoModule) -> Config {
     cfg
 }
 
-/// The core's temperature table and rails for the module's sensor chain.
+/// The core's temperature table and rails for the module's sensor chain,
+/// -20 degC to 100 degC in 25 points.
 pub fn temp_cal(module: &DemoModule) -> TempCal {
+    temp_cal_range(module, -20.0, 100.0, 25)
+}
+
+/// The core's temperature table for the module's sensor chain: `points`
+/// temperatures spread over `min_c ..= max_c` (points that land on a rail or
+/// repeat a code are left out, points beyond the core's table length
+/// dropped), with fault rails 1 % of full scale from each end and the open
+/// rail given by the sensor topology.
+pub fn temp_cal_range(module: &DemoModule, min_c: f64, max_c: f64, points: usize) -> TempCal {
     let chain = SensorChain::new(module.sensor.clone()).expect("demo sensor valid");
     let max = chain.max_code();
     let mut table = heapless::Vec::new();
-    for (counts, degc) in chain.temp_table(-20.0, 100.0, 25) {
+    for (counts, degc) in chain.temp_table(min_c, max_c, points) {
         let _ = table.push(TempPoint {
             counts,
             degc: fx(degc),

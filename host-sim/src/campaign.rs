@@ -79,7 +79,9 @@ pub const CORNERS: [Corner; 5] = [
     },
 ];
 
-/// The faults of the shipped campaign, and whether each must latch.
+/// The faults of the shipped campaign, and whether each must latch. The
+/// supply sag's voltage here is the 5 V module's; [`Plan::fault`] sets it
+/// relative to the module's nominal supply.
 pub fn faults() -> Vec<(HwFault, bool)> {
     vec![
         (HwFault::SensorOpen, true),
@@ -133,18 +135,84 @@ pub struct CaseResult {
     pub damaged: bool,
     /// Final state.
     pub final_state: &'static str,
+    /// The drive ceiling in force at injection was below the configured
+    /// ceiling (temperature derating, or the soft-start envelope).
+    pub derated_at_injection: bool,
+    /// The core had latched a fault before the injection (the case's plant
+    /// corner cannot run at this moment, e.g. an aged diode that stays dark
+    /// under a derated ceiling): the laser was already off when the fault
+    /// arrived.
+    pub latched_before_injection: bool,
     /// Safe.
     pub safe: bool,
 }
 
-fn scenario(module: &str, fault: HwFault, moment: Moment, corner: &Corner) -> (Scenario, f64) {
+/// The campaign's operating points on a board: the setpoint is two thirds
+/// of the highest, the setpoint change goes to one third, the supply sag to
+/// 60 % of the module's nominal supply (below any sane supply window), and
+/// the soft-start injection comes 1 ms into the current ramp.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Plan {
+    /// Setpoint, mW.
+    pub setpoint_mw: f64,
+    /// Setpoint after the change, mW.
+    pub changed_mw: f64,
+    /// Supply during the sag, V.
+    pub sag_v: f64,
+    /// Injection moment during soft start, ms.
+    pub soft_start_ms: f64,
+    /// Ambient of the derating moment, degC: 20 % of the way from the
+    /// board's derating knee to its cut-off, so the mount (which starts at
+    /// ambient) is derating from the first tick.
+    pub derating_ambient_c: f64,
+}
+
+impl Plan {
+    /// The plan for a module and its configuration.
+    pub fn new(module: &DemoModule, cfg: &ValidConfig) -> Self {
+        let c = cfg.config();
+        let max = c.power.max_setpoint_mw.to_num::<f64>();
+        Plan {
+            setpoint_mw: max * 2.0 / 3.0,
+            changed_mw: max / 3.0,
+            sag_v: module.supply_v * 0.6,
+            soft_start_ms: ENABLE_MS + f64::from(c.ramp.emission_delay_ms) + 1.0,
+            derating_ambient_c: {
+                let knee = c.derating.knee_degc.to_num::<f64>();
+                let cutoff = c.derating.cutoff_degc.to_num::<f64>();
+                knee + 0.2 * (cutoff - knee)
+            },
+        }
+    }
+
+    /// A fault with its board-relative value (the supply sag).
+    pub fn fault(&self, fault: HwFault) -> HwFault {
+        match fault {
+            HwFault::SupplySag { .. } => HwFault::SupplySag { to_v: self.sag_v },
+            f => f,
+        }
+    }
+}
+
+/// When the campaign enables emission, ms.
+pub const ENABLE_MS: f64 = 0.5;
+
+fn scenario(
+    board: &str,
+    plan: &Plan,
+    fault: HwFault,
+    moment: Moment,
+    corner: &Corner,
+) -> (Scenario, f64) {
     let mut ev = vec![
         Event {
             at_ms: 0.2,
-            action: Action::SetPower { mw: 20.0 },
+            action: Action::SetPower {
+                mw: plan.setpoint_mw,
+            },
         },
         Event {
-            at_ms: 0.5,
+            at_ms: ENABLE_MS,
             action: Action::Enable,
         },
     ];
@@ -169,22 +237,24 @@ fn scenario(module: &str, fault: HwFault, moment: Moment, corner: &Corner) -> (S
         });
     }
     let inject_ms = match moment {
-        Moment::SoftStart => 3.5,
+        Moment::SoftStart => plan.soft_start_ms,
         Moment::Steady => 30.0,
         Moment::SetpointChange => {
             ev.push(Event {
                 at_ms: 30.0,
-                action: Action::SetPower { mw: 10.0 },
+                action: Action::SetPower {
+                    mw: plan.changed_mw,
+                },
             });
             30.2
         }
-        Moment::Derating => {
-            ev.push(Event {
-                at_ms: 10.0,
-                action: Action::AmbientStep { to_c: 60.0 },
-            });
-            40.0
-        }
+        // The mount starts hot (see `ambient_c` below): the ceiling is
+        // derated when the fault arrives.
+        Moment::Derating => 30.0,
+    };
+    let ambient_c = match moment {
+        Moment::Derating => plan.derating_ambient_c.max(corner.ambient_c),
+        _ => corner.ambient_c,
     };
     ev.push(Event {
         at_ms: inject_ms,
@@ -193,9 +263,9 @@ fn scenario(module: &str, fault: HwFault, moment: Moment, corner: &Corner) -> (S
     (
         Scenario {
             name: format!("{} {:?} {}", fault.name(), moment, corner.name),
-            module: module.into(),
+            board: board.into(),
             duration_ms: inject_ms + 30.0,
-            ambient_c: corner.ambient_c,
+            ambient_c,
             seed: 1,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
@@ -217,7 +287,9 @@ pub fn run_case(
     ceiling_mw: f64,
     margin: f64,
 ) -> Result<CaseResult, String> {
-    let (sc, _inject_ms) = scenario(module_name, fault, moment, corner);
+    let plan = Plan::new(module, cfg);
+    let fault = plan.fault(fault);
+    let (sc, _inject_ms) = scenario(module_name, &plan, fault, moment, corner);
     let res = sim::run(&sc, module, cfg.clone()).map_err(|e| e.to_string())?;
     let inject_tick = res
         .happenings
@@ -230,9 +302,11 @@ pub fn run_case(
         .unwrap_or(0);
     let mut core_faults = Vec::new();
     let mut first_fault_tick = None;
+    let mut latched_before_injection = false;
     for h in &res.happenings {
         if let Happening::Fault { tick, fault, .. } = h {
             core_faults.push(*fault);
+            latched_before_injection |= *tick < inject_tick;
             if *tick >= inject_tick && first_fault_tick.is_none() {
                 first_fault_tick = Some(*tick);
             }
@@ -240,6 +314,13 @@ pub fn run_case(
     }
     let dt = 1.0 / f64::from(res.tick_hz);
     let after: Vec<_> = res.trace.iter().filter(|r| r.tick >= inject_tick).collect();
+    let configured_ceiling_ma = cfg.config().current.ceiling_ma.to_num::<f64>();
+    let derated_at_injection = res
+        .trace
+        .iter()
+        .rev()
+        .find(|r| r.tick < inject_tick)
+        .is_some_and(|r| r.ceiling_ma < configured_ceiling_ma);
     let peak_mw = after.iter().map(|r| r.p_mw).fold(0.0, f64::max);
     let energy_above_uj = after
         .iter()
@@ -266,6 +347,8 @@ pub fn run_case(
         ticks_over,
         damaged: res.damaged,
         final_state: res.final_state.name(),
+        derated_at_injection,
+        latched_before_injection,
         safe,
     })
 }
@@ -314,17 +397,18 @@ pub fn markdown(module: &str, results: &[CaseResult], margin: f64, ceiling_mw: f
     let unsafe_n = results.iter().filter(|r| !r.safe).count();
     let mut s = format!(
         "# Fault campaign: {module}\n\n{} cases, {} unsafe. Optical ceiling {ceiling_mw:.3} mW, margin {:.0} %.\n\n\
-         | fault | moment | corner | detected | core faults | latency (ticks) | latency (us) | peak (mW) | energy above (uJ) | damage | final | verdict |\n|---|---|---|---|---|---|---|---|---|---|---|---|\n",
+         | fault | moment | corner | ceiling derated | detected | core faults | latency (ticks) | latency (us) | peak (mW) | energy above (uJ) | damage | final | verdict |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|\n",
         results.len(),
         unsafe_n,
         margin * 100.0
     );
     for r in results {
         s.push_str(&format!(
-            "| {} | {:?} | {} | {} | {} | {} | {} | {:.3} | {:.3} | {} | {} | {} |\n",
+            "| {} | {:?} | {} | {} | {} | {} | {} | {} | {:.3} | {:.3} | {} | {} | {} |\n",
             r.fault,
             r.moment,
             r.corner,
+            if r.derated_at_injection { "yes" } else { "no" },
             if r.detected { "yes" } else { "no" },
             r.core_faults.join(" "),
             r.latency_ticks.map_or("-".into(), |t| t.to_string()),
@@ -332,7 +416,11 @@ pub fn markdown(module: &str, results: &[CaseResult], margin: f64, ceiling_mw: f
             r.peak_mw,
             r.energy_above_uj,
             if r.damaged { "YES" } else { "no" },
-            r.final_state,
+            if r.latched_before_injection {
+                "latched before injection"
+            } else {
+                r.final_state
+            },
             if r.safe { "safe" } else { "UNSAFE" }
         ));
     }

@@ -7,7 +7,9 @@ use std::path::Path;
 use diodestat_core::State;
 use plotters::prelude::*;
 
-use crate::sim::{Happening, RunResult};
+use crate::scenario::{Action, Scenario};
+use crate::sim::{Happening, RunResult, TraceRow};
+use crate::stability::time_domain::{overshoot_pct, settled_from, SETTLING_BAND};
 
 /// One line of a plot panel: label, colour, value of a trace row.
 type Line = (
@@ -23,53 +25,111 @@ pub const SAFETY_CAUTION: &str = "Simulation results complement, never replace, 
 interlock gating of the enable line, an independent watchdog and eye protection. Follow IEC 60825-1, \
 local regulations and your site's laser safety officer.";
 
-/// Step-response figures of the optical power.
-#[derive(Clone, Copy, Debug, PartialEq)]
+/// Step-response figures of one stretch of regulation: from the hand-over
+/// or from a setpoint request, up to the next scenario event or the end of
+/// Regulating (so a later fault or ambient step does not count as
+/// overshoot of the step before it).
+#[derive(Clone, Debug, PartialEq)]
 pub struct Figures {
-    /// Final value (mean of the last 5 % of the regulating window), mW.
+    /// What started the stretch.
+    pub label: String,
+    /// Start of the stretch, ms.
+    pub start_ms: f64,
+    /// Optical power before the stretch, mW (0 for the hand-over).
+    pub initial_mw: f64,
+    /// Final value (mean of the last 5 % of the stretch), mW.
     pub final_mw: f64,
-    /// Overshoot above the final value, percent.
+    /// Overshoot beyond the final value, percent of the step.
     pub overshoot_pct: f64,
-    /// Time from entering Regulating to staying within ±1 % of final, ms.
+    /// From the start of the stretch until the power stays within ±1 % of
+    /// the final value, ms (`None`: it never settles in the stretch).
     pub settling_ms: Option<f64>,
+    /// The drive ended the stretch on its ceiling: the request was beyond
+    /// what the ceiling in force allows.
+    pub on_ceiling: bool,
 }
 
-/// Figures of the first stretch of Regulating in the trace.
-pub fn figures(res: &RunResult) -> Option<Figures> {
-    let start = res
-        .trace
-        .iter()
-        .position(|r| r.state == State::Regulating)?;
-    let end = res.trace[start..]
-        .iter()
-        .position(|r| r.state != State::Regulating)
-        .map_or(res.trace.len(), |n| start + n);
-    let w = &res.trace[start..end];
-    if w.len() < 20 {
-        return None;
+/// Fewest trace rows a stretch needs for its figures to mean anything.
+const MIN_ROWS: usize = 20;
+
+/// The figures of every stretch of regulation that starts at the hand-over,
+/// a set-power or set-current request or a mode change.
+pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
+    let tr = &res.trace;
+    let ms = |r: &TraceRow| r.t_s * 1e3;
+    let mut starts: Vec<(f64, String)> = Vec::new();
+    if let Some(h) = tr.iter().find(|r| r.state == State::Regulating) {
+        starts.push((ms(h), "start-up (from hand-over)".into()));
     }
-    let tail = &w[w.len() - w.len() / 20..];
-    let final_mw = tail.iter().map(|r| r.p_mw).sum::<f64>() / tail.len() as f64;
-    let peak = w.iter().map(|r| r.p_mw).fold(f64::MIN, f64::max);
-    let overshoot_pct = ((peak - final_mw) / final_mw * 100.0).max(0.0);
-    let band = 0.01 * final_mw.abs();
-    let settling_ms = w
-        .iter()
-        .rposition(|r| (r.p_mw - final_mw).abs() > band)
-        .and_then(|i| w.get(i + 1))
-        .map(|r| (r.t_s - w[0].t_s) * 1e3);
-    Some(Figures {
-        final_mw,
-        overshoot_pct,
-        settling_ms,
-    })
+    for e in &sc.events {
+        match e.action {
+            Action::SetPower { mw } => starts.push((e.at_ms, format!("set power {mw} mW"))),
+            Action::SetCurrent { ma } => starts.push((e.at_ms, format!("set current {ma} mA"))),
+            Action::Mode { mode } => starts.push((e.at_ms, format!("mode {}", format!("{mode:?}").to_uppercase()))),
+            _ => {}
+        }
+    }
+    let mut out = Vec::new();
+    for (t0, label) in starts {
+        let Some(a) = tr.iter().position(|r| ms(r) >= t0) else {
+            continue;
+        };
+        if tr[a].state != State::Regulating {
+            continue;
+        }
+        // The stretch ends at the next event after its start, or when
+        // Regulating ends.
+        let t_end = sc
+            .events
+            .iter()
+            .map(|e| e.at_ms)
+            .filter(|&t| t > t0)
+            .fold(f64::INFINITY, f64::min);
+        let b = tr[a..]
+            .iter()
+            .position(|r| ms(r) >= t_end || r.state != State::Regulating)
+            .map_or(tr.len(), |n| a + n);
+        let w: Vec<f64> = tr[a..b].iter().map(|r| r.p_mw).collect();
+        if w.len() < MIN_ROWS {
+            continue;
+        }
+        let tail = &w[w.len() - w.len() / 20..];
+        let final_mw = tail.iter().sum::<f64>() / tail.len() as f64;
+        let initial_mw = if label.starts_with("start-up") {
+            0.0
+        } else {
+            a.checked_sub(1).map_or(0.0, |i| tr[i].p_mw)
+        };
+        let row_ms = if w.len() > 1 {
+            ms(&tr[a + 1]) - ms(&tr[a])
+        } else {
+            0.0
+        };
+        let tail_rows = &tr[b - tail.len()..b];
+        let on_ceiling = 2 * tail_rows
+            .iter()
+            .filter(|r| r.cmd_ma >= r.ceiling_ma - 1e-3)
+            .count()
+            > tail_rows.len();
+        out.push(Figures {
+            label,
+            on_ceiling,
+            start_ms: ms(&tr[a]),
+            initial_mw,
+            final_mw,
+            overshoot_pct: overshoot_pct(&w, initial_mw, final_mw),
+            settling_ms: settled_from(&w, final_mw, SETTLING_BAND * final_mw.abs())
+                .map(|i| i as f64 * row_ms),
+        });
+    }
+    out
 }
 
 /// The printed summary.
-pub fn summary(name: &str, res: &RunResult) -> String {
+pub fn summary(sc: &Scenario, res: &RunResult) -> String {
     let mut s = String::new();
     let dt_us = 1e6 / f64::from(res.tick_hz);
-    let _ = writeln!(s, "scenario: {name}");
+    let _ = writeln!(s, "scenario: {}", sc.name);
     let _ = writeln!(
         s,
         "ticks: {} at {} Hz ({:.1} ms)",
@@ -77,17 +137,25 @@ pub fn summary(name: &str, res: &RunResult) -> String {
         res.tick_hz,
         res.ticks as f64 * dt_us / 1e3
     );
-    if let Some(f) = figures(res) {
-        let _ = writeln!(s, "regulated power: {:.3} mW", f.final_mw);
-        let _ = writeln!(s, "overshoot: {:.2} %", f.overshoot_pct);
-        match f.settling_ms {
-            Some(t) => {
-                let _ = writeln!(s, "settling to ±1 %: {t:.3} ms after hand-over");
+    for f in figures(sc, res) {
+        let settle = f.settling_ms.map_or(
+            "does not settle to ±1 % before the next event".into(),
+            |t| format!("settles to ±1 % in {t:.3} ms"),
+        );
+        let _ = writeln!(
+            s,
+            "t={:.3} ms {}: {:.3} -> {:.3} mW, overshoot {:.2} % of the step, {settle}{}",
+            f.start_ms,
+            f.label,
+            f.initial_mw,
+            f.final_mw,
+            f.overshoot_pct,
+            if f.on_ceiling {
+                " (drive on its ceiling: the request is beyond reach)"
+            } else {
+                ""
             }
-            None => {
-                let _ = writeln!(s, "settling to ±1 %: within the first traced tick");
-            }
-        }
+        );
     }
     let _ = writeln!(s, "peak optical power: {:.3} mW", res.peak_mw);
     let _ = writeln!(
@@ -270,6 +338,10 @@ pub fn write_svg(path: &Path, name: &str, res: &RunResult) -> Result<(), String>
                 .label(*label)
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], c));
         }
+        // Marker labels go on the first of four rows where they do not
+        // run into the previous label of that row.
+        let min_gap = t_end * 0.07;
+        let mut row_end = [f64::MIN; 4];
         for h in &res.happenings {
             let (tick, color, text) = match h {
                 Happening::State { tick, state } => {
@@ -294,10 +366,16 @@ pub fn write_svg(path: &Path, name: &str, res: &RunResult) -> Result<(), String>
                 )))
                 .map_err(|x| e(x.to_string()))?;
             if i == 0 {
+                let row = row_end
+                    .iter()
+                    .position(|&end| x >= end + min_gap)
+                    .unwrap_or(row_end.len() - 1);
+                row_end[row] = x;
+                let y = hi + pad * 0.5 - row as f64 * (hi - lo) * 0.07;
                 chart
                     .draw_series(std::iter::once(Text::new(
                         text,
-                        (x, hi + pad * 0.5),
+                        (x, y),
                         ("sans-serif", 11).into_font().color(&color),
                     )))
                     .map_err(|x| e(x.to_string()))?;

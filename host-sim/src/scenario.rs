@@ -1,6 +1,9 @@
 //! Scenario files (TOML, diodestat's own schema; see `docs/scenarios.md`):
-//! which module and board, the tick rate, the duration, the ambient, and
-//! timed events (requests, ambient changes, injected hardware faults).
+//! which board file (and through it the module and the tick rate), the
+//! duration, the ambient, and timed events (requests, ambient changes,
+//! injected hardware faults).
+
+use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
@@ -10,8 +13,9 @@ use serde::{Deserialize, Serialize};
 pub struct Scenario {
     /// Free-text name.
     pub name: String,
-    /// Built-in demo module: `visible` or `pump`.
-    pub module: String,
+    /// Board configuration file, relative to the scenario file (see
+    /// `docs/board-config.md`); it names the simulated module.
+    pub board: String,
     /// Run length, ms.
     pub duration_ms: f64,
     /// Starting ambient, degC.
@@ -32,6 +36,16 @@ pub struct Scenario {
 
 fn one() -> u32 {
     1
+}
+
+impl Scenario {
+    /// The board file of a scenario read from `scenario_path`.
+    pub fn board_path(&self, scenario_path: &Path) -> PathBuf {
+        scenario_path
+            .parent()
+            .unwrap_or_else(|| Path::new(""))
+            .join(&self.board)
+    }
 }
 
 /// Which diode model to integrate.
@@ -233,7 +247,7 @@ mod tests {
         let sc = parse(
             r#"
 name = "t"
-module = "visible"
+board = "board.toml"
 duration_ms = 10
 ambient_c = 25
 [[event]]
@@ -249,11 +263,23 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
         .unwrap();
         assert_eq!(sc.events.len(), 2);
         assert_eq!(sc.events[0].action, Action::SetPower { mw: 5.0 });
+        assert_eq!(
+            sc.board_path(Path::new("examples/x/s.toml")),
+            Path::new("examples/x/board.toml")
+        );
+    }
+
+    #[test]
+    fn the_module_key_is_gone_the_board_names_it() {
+        let err = parse("name = \"t\"\nmodule = \"visible\"\nduration_ms = 1\nambient_c = 1\n")
+            .unwrap_err();
+        assert!(err.contains("unknown field `module`"), "{err}");
+        assert!(err.contains("board"), "{err}");
     }
 
     #[test]
     fn malformed_names_line_and_column() {
-        let err = parse("name = \"t\"\nmodule = \"visible\"\nduration_ms = \"x\"\nambient_c = 1\n")
+        let err = parse("name = \"t\"\nboard = \"b.toml\"\nduration_ms = \"x\"\nambient_c = 1\n")
             .unwrap_err();
         assert!(err.contains("line 3"), "{err}");
     }

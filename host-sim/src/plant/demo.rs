@@ -246,7 +246,13 @@ impl DriverParams {
             compliance_v: 0.5,
             sense_ohm: 0.05,
             sense_gain: 6.0,
-            fail_high_current_a: 12.0,
+            // The demo board clamps the source in hardware at 7 A (the
+            // demo-pump-5w board's absolute rating is 6.5 A): a source that
+            // fails high reaches the facet within one tick, before firmware
+            // can act, so only this clamp keeps it below the 10 W damage
+            // level. (Unclamped at the 12 A the output stage could reach,
+            // one tick gives 11 to 13 W and facet damage.)
+            fail_high_current_a: 7.0,
             shutdown_tau_s: 5e-6,
         }
     }
