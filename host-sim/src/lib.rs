@@ -13,6 +13,7 @@
 #![warn(missing_docs)]
 
 pub mod board;
+pub mod boardfile;
 pub mod campaign;
 pub mod export;
 pub mod plant;

@@ -1,12 +1,15 @@
 //! `diodestat`: run scenarios of the firmware core against the simulated diode.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::time::Instant;
 
 use clap::{Parser, Subcommand};
+use diodestat_sim::boardfile::{load_board, LoadedBoard};
 use diodestat_sim::plant::DemoModule;
-use diodestat_sim::{board, report, scenario, sim};
+use diodestat_sim::{report, scenario, sim};
+
+mod loop_cmd;
 
 #[derive(Parser)]
 #[command(
@@ -45,8 +48,8 @@ enum Cmd {
     },
     /// Fault campaign: every injectable fault x moments x plant corners; exits non-zero on any unsafe case.
     Campaign {
-        /// Module: visible or pump.
-        module: String,
+        /// Board configuration file (TOML), e.g. examples/demo-pump-5w/board.toml.
+        board: PathBuf,
         /// Allowed excess over the optical ceiling, fraction.
         #[arg(long, default_value_t = 0.10)]
         margin: f64,
@@ -54,10 +57,64 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
-    /// Export the board configuration of a module as Rust source, with its hash.
+    /// Power-loop report per board: margins and time-domain table at every plant corner, worst corner, Bode plots.
+    LoopReport {
+        /// Board configuration files (default: examples/*/board.toml).
+        boards: Vec<PathBuf>,
+        /// Output folder; each board gets OUT/BOARD/loop-report.md, bode.svg and bode/*.svg.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+        /// Setpoint of the corners, mW (default: two thirds of the board's highest setpoint).
+        #[arg(long)]
+        setpoint_mw: Option<f64>,
+        /// Largest overshoot of the optical power, % of the step (default: the board file's
+        /// `[loop_check] max_overshoot_pct`, else 10).
+        #[arg(long)]
+        max_overshoot_pct: Option<f64>,
+    },
+    /// Propose PI gains for a crossover or bandwidth target keeping the margins at every plant corner.
+    LoopTune {
+        /// Board configuration file (TOML).
+        board: PathBuf,
+        /// Target gain crossover of the highest-gain corner, Hz.
+        #[arg(
+            long,
+            conflicts_with = "bandwidth_hz",
+            required_unless_present = "bandwidth_hz"
+        )]
+        crossover_hz: Option<f64>,
+        /// Target closed-loop bandwidth of the slowest corner, Hz.
+        #[arg(long)]
+        bandwidth_hz: Option<f64>,
+        /// Setpoint of the corners, mW (default: two thirds of the board's highest setpoint).
+        #[arg(long)]
+        setpoint_mw: Option<f64>,
+        /// Phase margin every corner keeps, degrees.
+        #[arg(long, default_value_t = loop_cmd::TUNE_PM_DEG)]
+        min_pm_deg: f64,
+        /// Gain margin every corner keeps, dB.
+        #[arg(long, default_value_t = loop_cmd::TUNE_GM_DB)]
+        min_gm_db: f64,
+    },
+    /// Loop gate: exits non-zero, naming board, corner and figure, if any corner misses PM 45 deg, GM 6 dB, the overshoot limit, or shows a limit cycle.
+    LoopGate {
+        /// Board configuration files (default: examples/*/board.toml).
+        boards: Vec<PathBuf>,
+        /// Also write the reports and Bode plots here.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Setpoint of the corners, mW (default: two thirds of each board's highest setpoint).
+        #[arg(long)]
+        setpoint_mw: Option<f64>,
+        /// Largest overshoot of the optical power, % of the step (default: the board file's
+        /// `[loop_check] max_overshoot_pct`, else 10).
+        #[arg(long)]
+        max_overshoot_pct: Option<f64>,
+    },
+    /// Export a board configuration file as Rust source, with its hash.
     Export {
-        /// Module: visible or pump.
-        module: String,
+        /// Board configuration file (TOML), e.g. examples/demo-red-30/board.toml.
+        board: PathBuf,
         /// Output file.
         #[arg(long)]
         out: PathBuf,
@@ -77,17 +134,15 @@ fn module_by_name(name: &str) -> Result<DemoModule, String> {
 fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
     let text = std::fs::read_to_string(path).map_err(|e| format!("{}: {e}", path.display()))?;
     let sc = scenario::parse(&text).map_err(|e| format!("{}: {e}", path.display()))?;
-    let module = module_by_name(&sc.module)?;
-    let cfg = board::calibrate(diodestat_core::example::config(), &module)
-        .validate()
-        .map_err(|e| format!("board configuration refused: {e}"))?;
+    let board = load_board(&sc.board_path(path)).map_err(|e| e.to_string())?;
+    println!("{}", board_line(&board));
     let t0 = Instant::now();
-    let res = sim::run(&sc, &module, cfg).map_err(|e| e.to_string())?;
+    let res = sim::run(&sc, &board.module, board.valid).map_err(|e| e.to_string())?;
     let secs = t0.elapsed().as_secs_f64();
     std::fs::create_dir_all(out).map_err(|e| format!("{}: {e}", out.display()))?;
     report::write_csv(&out.join("trace.csv"), &res).map_err(|e| e.to_string())?;
     report::write_svg(&out.join("plot.svg"), &sc.name, &res)?;
-    print!("{}", report::summary(&sc.name, &res));
+    print!("{}", report::summary(&sc, &res));
     println!(
         "timing: {} ticks in {:.3} s = {:.2} Mticks/s ({:.0}x real time)",
         res.ticks,
@@ -146,16 +201,27 @@ fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &PathBuf) -> Res
     Ok(())
 }
 
-fn campaign(module: &str, margin: f64, out: &PathBuf) -> Result<(), String> {
-    let m = module_by_name(module)?;
-    let cfg = board::calibrate(diodestat_core::example::config(), &m)
-        .validate()
-        .map_err(|e| format!("board configuration refused: {e}"))?;
+/// The board a command runs: name, file, module and the export hash.
+fn board_line(b: &LoadedBoard) -> String {
+    format!(
+        "board {} ({}, module {}, {} Hz tick, configuration hash {:016x})",
+        b.name,
+        b.path.display(),
+        b.module_name,
+        b.config.tick_hz,
+        diodestat_sim::export::config_hash(&b.config)
+    )
+}
+
+fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
+    let b = load_board(board).map_err(|e| e.to_string())?;
+    println!("{}", board_line(&b));
+    let (m, cfg) = (&b.module, &b.valid);
     let t0 = Instant::now();
-    let results = diodestat_sim::campaign::run(module, &m, &cfg, margin)?;
+    let results = diodestat_sim::campaign::run(&b.name, m, cfg, margin)?;
     let ceiling = cfg.config().protection.runaway_mw.to_num::<f64>();
     std::fs::create_dir_all(out).map_err(|e| e.to_string())?;
-    let md = diodestat_sim::campaign::markdown(module, &results, margin, ceiling);
+    let md = diodestat_sim::campaign::markdown(&b.name, &results, margin, ceiling);
     std::fs::write(out.join("campaign.md"), &md).map_err(|e| e.to_string())?;
     let json = serde_json::to_string_pretty(&results).map_err(|e| e.to_string())?;
     std::fs::write(out.join("campaign.json"), json).map_err(|e| e.to_string())?;
@@ -181,19 +247,16 @@ fn campaign(module: &str, margin: f64, out: &PathBuf) -> Result<(), String> {
     }
 }
 
-fn export(module: &str, out: &PathBuf) -> Result<(), String> {
-    let m = module_by_name(module)?;
-    let cfg = board::calibrate(diodestat_core::example::config(), &m);
-    cfg.clone()
-        .validate()
-        .map_err(|e| format!("board configuration refused: {e}"))?;
-    let src = diodestat_sim::export::rust_module(module, &cfg);
+fn export(board: &Path, out: &Path) -> Result<(), String> {
+    let b = load_board(board).map_err(|e| e.to_string())?;
+    let src = diodestat_sim::export::rust_module(&b.name, &b.config);
     std::fs::write(out, &src).map_err(|e| format!("{}: {e}", out.display()))?;
-    let hash = src
-        .lines()
-        .find(|l| l.contains("CONFIG_HASH: &str"))
-        .unwrap_or_default();
-    println!("wrote {} ({hash})", out.display());
+    println!(
+        "wrote {} from {} (CONFIG_HASH {:016x})",
+        out.display(),
+        b.path.display(),
+        diodestat_sim::export::config_hash(&b.config)
+    );
     Ok(())
 }
 
@@ -207,12 +270,33 @@ fn main() -> ExitCode {
             max_ma,
             out,
         } => liv(module, temps_c, *max_ma, out),
-        Cmd::Export { module, out } => export(module, out),
-        Cmd::Campaign {
-            module,
-            margin,
+        Cmd::Export { board, out } => export(board, out),
+        Cmd::Campaign { board, margin, out } => campaign(board, *margin, out),
+        Cmd::LoopReport {
+            boards,
             out,
-        } => campaign(module, *margin, out),
+            setpoint_mw,
+            max_overshoot_pct,
+        } => loop_cmd::report(boards, out, *setpoint_mw, *max_overshoot_pct),
+        Cmd::LoopTune {
+            board,
+            crossover_hz,
+            bandwidth_hz,
+            setpoint_mw,
+            min_pm_deg,
+            min_gm_db,
+        } => match (crossover_hz, bandwidth_hz) {
+            (Some(f), _) => Ok(loop_cmd::TuneTarget::CrossoverHz(*f)),
+            (None, Some(f)) => Ok(loop_cmd::TuneTarget::BandwidthHz(*f)),
+            (None, None) => Err("give --crossover-hz or --bandwidth-hz".to_string()),
+        }
+        .and_then(|t| loop_cmd::tune(board, t, *setpoint_mw, *min_pm_deg, *min_gm_db)),
+        Cmd::LoopGate {
+            boards,
+            out,
+            setpoint_mw,
+            max_overshoot_pct,
+        } => loop_cmd::gate(boards, out.as_deref(), *setpoint_mw, *max_overshoot_pct),
     };
     match r {
         Ok(()) => ExitCode::SUCCESS,

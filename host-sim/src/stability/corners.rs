@@ -39,7 +39,7 @@
 
 use diodestat_core::{Fx, ValidConfig};
 
-use crate::plant::{c_to_k, k_to_c, DemoModule, Diode, Monitor, PlantError, Thermal};
+use crate::plant::{c_to_k, k_to_c, DemoModule, Diode, DiodeParams, Monitor, PlantError, Thermal};
 use crate::sim::MONITOR_FILTER_HZ;
 
 use super::design::{design_pi, Design, DesignError, DesignSpec};
@@ -274,42 +274,58 @@ struct CornerPlant {
     mon_offset: f64,
 }
 
-impl CornerPlant {
-    fn new(module: &DemoModule, cfg: &ValidConfig, c: &PlantCorner) -> Result<Self, CornerError> {
+impl PlantCorner {
+    /// Checks the corner's factors: positive finite multipliers and
+    /// setpoint, non-negative finite age, finite ambient.
+    pub fn check(&self) -> Result<(), CornerError> {
         let bad = |what, value| CornerError::Factor {
-            corner: c.name.clone(),
+            corner: self.name.clone(),
             what,
             value,
         };
         let pos = |v: f64| v > 0.0 && v.is_finite();
         for (what, v) in [
-            ("threshold_factor", c.threshold_factor),
-            ("slope_factor", c.slope_factor),
-            ("tracking_factor", c.tracking_factor),
-            ("cooling_factor", c.cooling_factor),
-            ("setpoint_mw", c.setpoint_mw),
+            ("threshold_factor", self.threshold_factor),
+            ("slope_factor", self.slope_factor),
+            ("tracking_factor", self.tracking_factor),
+            ("cooling_factor", self.cooling_factor),
+            ("setpoint_mw", self.setpoint_mw),
         ] {
             if !pos(v) {
                 return Err(bad(what, v));
             }
         }
-        if !(c.aged_hours >= 0.0 && c.aged_hours.is_finite()) {
-            return Err(bad("aged_hours", c.aged_hours));
+        if !(self.aged_hours >= 0.0 && self.aged_hours.is_finite()) {
+            return Err(bad("aged_hours", self.aged_hours));
         }
-        if !c.ambient_c.is_finite() {
-            return Err(bad("ambient_c", c.ambient_c));
+        if !self.ambient_c.is_finite() {
+            return Err(bad("ambient_c", self.ambient_c));
         }
+        Ok(())
+    }
+
+    /// The module's diode parameters with this corner's threshold and
+    /// slope spread applied (see the module documentation); aging,
+    /// tracking and cooling act on the built models instead.
+    pub fn diode_params(&self, module: &DemoModule) -> DiodeParams {
+        let mut p = module.diode.clone();
+        let k = self.threshold_factor * self.slope_factor;
+        p.a_per_s *= k;
+        p.b_cm3_per_s *= k;
+        p.c_cm6_per_s *= k;
+        p.eta_i *= self.slope_factor;
+        p
+    }
+}
+
+impl CornerPlant {
+    fn new(module: &DemoModule, cfg: &ValidConfig, c: &PlantCorner) -> Result<Self, CornerError> {
+        c.check()?;
         let plant = |source| CornerError::Plant {
             corner: c.name.clone(),
             source,
         };
-        let mut p = module.diode.clone();
-        let k = c.threshold_factor * c.slope_factor;
-        p.a_per_s *= k;
-        p.b_cm3_per_s *= k;
-        p.c_cm6_per_s *= k;
-        p.eta_i *= c.slope_factor;
-        let mut diode = Diode::new(p).map_err(plant)?;
+        let mut diode = Diode::new(c.diode_params(module)).map_err(plant)?;
         diode.age(c.aged_hours);
         let mut monitor = Monitor::new(module.monitor.clone()).map_err(plant)?;
         monitor.degrade_factor = c.tracking_factor;
@@ -582,7 +598,7 @@ pub fn gate(analyses: &[CornerAnalysis], min_pm_deg: f64, min_gm_db: f64) -> Gat
 pub fn markdown(analyses: &[CornerAnalysis], min_pm_deg: f64, min_gm_db: f64) -> String {
     let mut s = String::from(
         "| corner | ambient (degC) | setpoint (mW) | current (mA) | Tj (degC) | slope (mW/mA) | monitor gain | \
-         PM (deg) | at (Hz) | GM (dB) | at (Hz) | BW (Hz) | verdict |\n\
+         PM (deg) | gain crossover (Hz) | GM (dB) | phase crossover (Hz) | BW (Hz) | verdict |\n\
          |---|---|---|---|---|---|---|---|---|---|---|---|---|\n",
     );
     for a in analyses {

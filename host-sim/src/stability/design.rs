@@ -204,6 +204,22 @@ pub enum DesignError {
         /// What it misses.
         limit: Limit,
     },
+    /// No gains that keep the margins reach the closed-loop bandwidth.
+    #[error(
+        "target bandwidth {target_hz:.1} Hz not reachable: the highest closed-loop bandwidth of \
+         the slowest corner keeping PM >= {min_pm_deg} deg and GM >= {min_gm_db} dB at every \
+         corner is {best_hz:.1} Hz"
+    )]
+    BandwidthUnreachable {
+        /// Target, Hz.
+        target_hz: f64,
+        /// Highest reachable bandwidth of the slowest corner, Hz.
+        best_hz: f64,
+        /// Required phase margin, degrees.
+        min_pm_deg: f64,
+        /// Required gain margin, dB.
+        min_gm_db: f64,
+    },
     /// The gains do not fit the core's fixed-point formats.
     #[error("gains kp {kp} mA/mW, ki {ki_per_tick} mA/mW per tick do not fit the core's fixed-point formats")]
     NotRepresentable {
@@ -624,6 +640,85 @@ pub fn design_pi(corners: &[LoopParams], spec: &DesignSpec) -> Result<Design, De
         wc_try *= 0.999;
     }
     Err(unreachable(wc_try / two_pi, last_fail))
+}
+
+impl Design {
+    /// Closed-loop bandwidth of the slowest corner, Hz.
+    pub fn min_bandwidth_hz(&self) -> f64 {
+        self.corners
+            .iter()
+            .map(|c| c.margins.bandwidth_hz)
+            .fold(f64::INFINITY, f64::min)
+    }
+}
+
+/// Designs `(kp, ki_per_tick)` so that the slowest corner's closed-loop
+/// bandwidth reaches `target_bandwidth_hz` (and exceeds it by at most 1 %)
+/// with the margins of `spec` at every corner (the crossover fields of
+/// `spec` are ignored). The bandwidth rises with the crossover in these
+/// loops at a slowly changing ratio, so the crossover is corrected by that
+/// ratio from a start at the target (a few designs); when a crossover is
+/// out of reach of the margins the search continues just below the highest
+/// reachable one, and fails if even that falls short of the bandwidth.
+pub fn design_for_bandwidth(
+    corners: &[LoopParams],
+    target_bandwidth_hz: f64,
+    spec: &DesignSpec,
+) -> Result<Design, DesignError> {
+    if !(target_bandwidth_hz > 0.0 && target_bandwidth_hz.is_finite()) {
+        return Err(DesignError::InvalidSpec(
+            "target bandwidth must be positive",
+        ));
+    }
+    let tick_hz = corners.first().ok_or(DesignError::NoCorners)?.tick_hz;
+    let at = |f_hz: f64| {
+        design_pi(
+            corners,
+            &DesignSpec {
+                target_crossover_hz: f_hz,
+                min_crossover_hz: f_hz,
+                ..*spec
+            },
+        )
+    };
+    let unreachable = |best_hz| DesignError::BandwidthUnreachable {
+        target_hz: target_bandwidth_hz,
+        best_hz,
+        min_pm_deg: spec.min_pm_deg,
+        min_gm_db: spec.min_gm_db,
+    };
+    let mut f = target_bandwidth_hz.min(0.45 * tick_hz);
+    let mut ceiling_hz = f64::INFINITY;
+    let mut best: Option<Design> = None;
+    for _ in 0..12 {
+        match at(f) {
+            Ok(d) => {
+                let bw = d.min_bandwidth_hz();
+                if bw >= target_bandwidth_hz {
+                    if bw <= 1.01 * target_bandwidth_hz {
+                        return Ok(d);
+                    }
+                    if best.as_ref().is_none_or(|b| bw < b.min_bandwidth_hz()) {
+                        best = Some(d);
+                    }
+                } else if f >= 0.999 * ceiling_hz {
+                    // The highest reachable crossover falls short.
+                    return Err(unreachable(bw));
+                }
+                f = (f * (target_bandwidth_hz / bw) * 1.002).min(0.999 * ceiling_hz);
+            }
+            Err(DesignError::TargetUnreachable { best_hz, .. }) => {
+                ceiling_hz = best_hz;
+                f = 0.999 * best_hz;
+            }
+            Err(DesignError::TargetAboveNyquist { nyquist_hz, .. }) => {
+                ceiling_hz = ceiling_hz.min(0.9 * nyquist_hz);
+                f = 0.999 * ceiling_hz;
+            }
+            Err(e) => return Err(e),
+        }
+    }
+    best.ok_or_else(|| unreachable(f64::NAN))
 }
 
 #[cfg(test)]

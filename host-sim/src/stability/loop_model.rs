@@ -290,8 +290,22 @@ pub fn closed_loop_step(p: &LoopParams, n_ticks: usize) -> Vec<f64> {
 /// # Panics
 /// If `p` fails [`LoopParams::validate`].
 pub fn closed_loop_step_front(p: &LoopParams, n_ticks: usize) -> Vec<f64> {
+    closed_loop_step_front_with(p, Discretisation::ExactZoh, n_ticks)
+}
+
+/// [`closed_loop_step_front`] with a chosen discretisation of the loop
+/// (the front power itself is the driver section times the slope, at the
+/// sampling instants, in every case).
+///
+/// # Panics
+/// If `p` fails [`LoopParams::validate`].
+pub fn closed_loop_step_front_with(
+    p: &LoopParams,
+    disc: Discretisation,
+    n_ticks: usize,
+) -> Vec<f64> {
     let dt = p.dt_s();
-    let l = open_loop(p);
+    let l = open_loop_with(p, disc);
     // Setpoint to front power: C·z^-d·driver·slope / (1 + L).
     let fwd = pi_controller(p.kp_ma_per_mw, p.ki_per_tick, dt)
         .series(&DiscreteTf::delay(p.delay_ticks, dt))
