@@ -17,6 +17,7 @@ use diodestat_core::{State, ValidConfig};
 use crate::plant::DemoModule;
 use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, Scenario};
 use crate::sim::{self, Happening};
+use crate::stability::corners::{SLOPE_SPREAD, THRESHOLD_SPREAD};
 
 /// When the fault is injected.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
@@ -39,43 +40,74 @@ pub struct Corner {
     pub name: &'static str,
     /// Ambient, degC.
     pub ambient_c: f64,
+    /// Threshold-current factor (part spread, 1 nominal).
+    pub threshold: f64,
+    /// Slope-efficiency factor (part spread, 1 nominal).
+    pub slope: f64,
     /// Monitor responsivity factor (tracking-ratio spread).
     pub tracking: f64,
     /// Operating hours before the run (aged diode).
     pub aged_hours: f64,
 }
 
-/// The corners of the shipped campaign.
-pub const CORNERS: [Corner; 5] = [
+/// The corners of the shipped campaign (the part spreads are the loop
+/// analysis's standard ones).
+pub const CORNERS: [Corner; 7] = [
     Corner {
         name: "nominal",
         ambient_c: 25.0,
+        threshold: 1.0,
+        slope: 1.0,
         tracking: 1.0,
         aged_hours: 0.0,
     },
     Corner {
         name: "cold",
         ambient_c: 0.0,
+        threshold: 1.0,
+        slope: 1.0,
         tracking: 1.0,
         aged_hours: 0.0,
     },
     Corner {
         name: "hot",
         ambient_c: 40.0,
+        threshold: 1.0,
+        slope: 1.0,
         tracking: 1.0,
         aged_hours: 0.0,
     },
     Corner {
         name: "tracking-low",
         ambient_c: 25.0,
+        threshold: 1.0,
+        slope: 1.0,
         tracking: 0.9,
         aged_hours: 0.0,
     },
     Corner {
         name: "aged",
         ambient_c: 25.0,
+        threshold: 1.0,
+        slope: 1.0,
         tracking: 1.0,
         aged_hours: 20_000.0,
+    },
+    Corner {
+        name: "threshold-high",
+        ambient_c: 25.0,
+        threshold: 1.0 + THRESHOLD_SPREAD,
+        slope: 1.0,
+        tracking: 1.0,
+        aged_hours: 0.0,
+    },
+    Corner {
+        name: "slope-low",
+        ambient_c: 25.0,
+        threshold: 1.0,
+        slope: 1.0 - SLOPE_SPREAD,
+        tracking: 1.0,
+        aged_hours: 0.0,
     },
 ];
 
@@ -135,9 +167,10 @@ pub struct CaseResult {
     pub damaged: bool,
     /// Final state.
     pub final_state: &'static str,
-    /// The drive ceiling in force at injection was below the configured
-    /// ceiling (temperature derating, or the soft-start envelope).
-    pub derated_at_injection: bool,
+    /// The mount was derating when the fault arrived: the temperature the
+    /// core read on the last tick before injection was above the derating
+    /// knee (the core's own "derating" warning).
+    pub derating_at_injection: bool,
     /// The core had latched a fault before the injection (the case's plant
     /// corner cannot run at this moment, e.g. an aged diode that stays dark
     /// under a derated ceiling): the laser was already off when the fault
@@ -290,7 +323,8 @@ pub fn run_case(
     let plan = Plan::new(module, cfg);
     let fault = plan.fault(fault);
     let (sc, _inject_ms) = scenario(module_name, &plan, fault, moment, corner);
-    let res = sim::run(&sc, module, cfg.clone()).map_err(|e| e.to_string())?;
+    let module = module.with_spread(corner.threshold, corner.slope);
+    let res = sim::run(&sc, &module, cfg.clone()).map_err(|e| e.to_string())?;
     let inject_tick = res
         .happenings
         .iter()
@@ -314,13 +348,13 @@ pub fn run_case(
     }
     let dt = 1.0 / f64::from(res.tick_hz);
     let after: Vec<_> = res.trace.iter().filter(|r| r.tick >= inject_tick).collect();
-    let configured_ceiling_ma = cfg.config().current.ceiling_ma.to_num::<f64>();
-    let derated_at_injection = res
+    let knee_c = cfg.config().derating.knee_degc.to_num::<f64>();
+    let derating_at_injection = res
         .trace
         .iter()
         .rev()
         .find(|r| r.tick < inject_tick)
-        .is_some_and(|r| r.ceiling_ma < configured_ceiling_ma);
+        .is_some_and(|r| r.sensed_c > knee_c);
     let peak_mw = after.iter().map(|r| r.p_mw).fold(0.0, f64::max);
     let energy_above_uj = after
         .iter()
@@ -347,7 +381,7 @@ pub fn run_case(
         ticks_over,
         damaged: res.damaged,
         final_state: res.final_state.name(),
-        derated_at_injection,
+        derating_at_injection,
         latched_before_injection,
         safe,
     })
@@ -397,7 +431,7 @@ pub fn markdown(module: &str, results: &[CaseResult], margin: f64, ceiling_mw: f
     let unsafe_n = results.iter().filter(|r| !r.safe).count();
     let mut s = format!(
         "# Fault campaign: {module}\n\n{} cases, {} unsafe. Optical ceiling {ceiling_mw:.3} mW, margin {:.0} %.\n\n\
-         | fault | moment | corner | ceiling derated | detected | core faults | latency (ticks) | latency (us) | peak (mW) | energy above (uJ) | damage | final | verdict |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|\n",
+         | fault | moment | corner | derating | detected | core faults | latency (ticks) | latency (us) | peak (mW) | energy above (uJ) | damage | final | verdict |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|\n",
         results.len(),
         unsafe_n,
         margin * 100.0
@@ -408,7 +442,7 @@ pub fn markdown(module: &str, results: &[CaseResult], margin: f64, ceiling_mw: f
             r.fault,
             r.moment,
             r.corner,
-            if r.derated_at_injection { "yes" } else { "no" },
+            if r.derating_at_injection { "yes" } else { "no" },
             if r.detected { "yes" } else { "no" },
             r.core_faults.join(" "),
             r.latency_ticks.map_or("-".into(), |t| t.to_string()),

@@ -37,6 +37,23 @@ pub struct DemoModule {
 }
 
 impl DemoModule {
+    /// The same module with its diode moved by part spread: the threshold
+    /// current scaled by `threshold_factor` and the slope efficiency by
+    /// `slope_factor`. The spreads map onto the rate-equation model the way
+    /// its aging factors do: the recombination coefficients A, B and C scale
+    /// by `threshold_factor · slope_factor` and the injection efficiency by
+    /// `slope_factor`, so `I_th = qV·R(N_th)/η_i` scales by `threshold_factor`
+    /// and the slope (∝ η_i) by `slope_factor`.
+    pub fn with_spread(&self, threshold_factor: f64, slope_factor: f64) -> DemoModule {
+        let mut m = self.clone();
+        let k = threshold_factor * slope_factor;
+        m.diode.a_per_s *= k;
+        m.diode.b_cm3_per_s *= k;
+        m.diode.c_cm6_per_s *= k;
+        m.diode.eta_i *= slope_factor;
+        m
+    }
+
     /// Visible ~650 nm, ~30 mW single-mode demo module.
     pub fn visible() -> Self {
         Self {

@@ -31,11 +31,9 @@
 //!   simulator's front-end filter ([`crate::sim::MONITOR_FILTER_HZ`]), the
 //!   delay one tick unless set otherwise.
 //!
-//! Spreads map onto the rate-equation model the way its aging factors do:
-//! a threshold factor `t` and slope factor `s` scale the recombination
-//! coefficients A, B, C by `t·s` and the injection efficiency η_i by `s`,
-//! so `I_th = qV·R(N_th)/η_i` scales by `t` and the slope (∝ η_i) by `s`.
-//! The standard spreads here are demo values, not device statistics.
+//! Spreads map onto the rate-equation model by
+//! [`DemoModule::with_spread`]. The standard spreads here are demo values,
+//! not device statistics.
 
 use diodestat_core::{Fx, ValidConfig};
 
@@ -308,13 +306,9 @@ impl PlantCorner {
     /// slope spread applied (see the module documentation); aging,
     /// tracking and cooling act on the built models instead.
     pub fn diode_params(&self, module: &DemoModule) -> DiodeParams {
-        let mut p = module.diode.clone();
-        let k = self.threshold_factor * self.slope_factor;
-        p.a_per_s *= k;
-        p.b_cm3_per_s *= k;
-        p.c_cm6_per_s *= k;
-        p.eta_i *= self.slope_factor;
-        p
+        module
+            .with_spread(self.threshold_factor, self.slope_factor)
+            .diode
     }
 }
 
