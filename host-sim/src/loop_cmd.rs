@@ -339,7 +339,6 @@ pub fn tune(
     Ok(())
 }
 
-
 /// Default design phase margin for `loop-tune`, degrees.
 pub const TUNE_PM_DEG: f64 = DESIGN_PM_DEG;
 /// Default design gain margin for `loop-tune`.

@@ -65,7 +65,10 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
         match e.action {
             Action::SetPower { mw } => starts.push((e.at_ms, format!("set power {mw} mW"))),
             Action::SetCurrent { ma } => starts.push((e.at_ms, format!("set current {ma} mA"))),
-            Action::Mode { mode } => starts.push((e.at_ms, format!("mode {}", format!("{mode:?}").to_uppercase()))),
+            Action::Mode { mode } => starts.push((
+                e.at_ms,
+                format!("mode {}", format!("{mode:?}").to_uppercase()),
+            )),
             _ => {}
         }
     }
