@@ -94,4 +94,29 @@ cargo build --release
 
 cd "$boards"
 ./size-report.sh
+
+echo "== boards: no heap in any image"
+# An image that links an allocator has the global-allocator shims or the
+# alloc crate's code; none may.
+llvm_nm=$(ls "$(rustc --print sysroot)"/lib/rustlib/*/bin/llvm-nm 2>/dev/null | head -n1 || true)
+if [ -z "$llvm_nm" ]; then
+  echo "llvm-nm not found: rustup component add llvm-tools" >&2
+  exit 1
+fi
+for img in qemu-m4/target/thumbv7em-none-eabihf/release/qemu-m4 \
+           qemu-m4/target/thumbv7em-none-eabihf/release/prove-no-panic \
+           qemu-m4/target/thumbv6m-none-eabi/release/prove-no-panic \
+           qemu-m0/target/thumbv6m-none-eabi/release/qemu-m0 \
+           g474-driver/target/thumbv7em-none-eabihf/release/g474-driver; do
+  if [ ! -f "$img" ]; then
+    echo "$img: not built" >&2
+    exit 1
+  fi
+  if "$llvm_nm" -C "$img" | grep -Eq "__rust_alloc|__rust_dealloc|__rg_alloc|__rdl_alloc|alloc::alloc::"; then
+    echo "$img links a heap allocator" >&2
+    "$llvm_nm" -C "$img" | grep -E "__rust_alloc|__rust_dealloc|__rg_alloc|__rdl_alloc|alloc::alloc::" >&2
+    exit 1
+  fi
+  echo "  no allocator in $img"
+done
 echo "boards: all passed"
