@@ -1,6 +1,14 @@
 //! The closed loop: the very same `diodestat-core` controller against the
 //! plant (diode, driver, thermal path, sensors), one core `step` per tick,
 //! with timed requests, ambient changes and injected hardware faults.
+//!
+//! [`Plant`] evaluates its models on the fast path: the diode steady state
+//! from an anchored Halley step, slowly varying exponentials continued from
+//! the previous tick, the thermal ladder with the dissipation as its last
+//! multiply-add. [`Plant::new_reference`] and [`run_reference`] evaluate the
+//! same equations the straightforward way; the tests hold the two to 1e-9
+//! in optical power and 1e-8 K in junction temperature, with identical ADC
+//! codes, core states and events.
 
 use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig};
 
@@ -104,6 +112,13 @@ pub struct Plant {
     pub missed_left: u32,
     /// Monitor front-end filter state, V.
     mon_filt_v: f64,
+    /// Monitor filter coefficient 1 - exp(-2 pi f dt) and its dt, s.
+    mon_filt_a: f64,
+    mon_filt_dt: f64,
+    /// Evaluate every model the straightforward way (steady state from the
+    /// cold initial guess, every exp and ln by the library) instead of
+    /// warm-started and continued from the previous tick.
+    reference: bool,
     /// Last optical output.
     p_front_w: f64,
     wavelength_m: f64,
@@ -141,10 +156,25 @@ impl Plant {
             interlock_closed: true,
             missed_left: 0,
             mon_filt_v: 0.0,
+            mon_filt_a: 0.0,
+            mon_filt_dt: f64::NAN,
+            reference: false,
             p_front_w: 0.0,
             wavelength_m,
             v_f: 0.0,
         })
+    }
+
+    /// As [`Plant::new`], evaluating every model the straightforward way
+    /// (no warm starts): the reference the fast path is checked against.
+    pub fn new_reference(
+        module: &DemoModule,
+        ambient_c: f64,
+        seed: u64,
+    ) -> Result<Self, PlantError> {
+        let mut p = Self::new(module, ambient_c, seed)?;
+        p.reference = true;
+        Ok(p)
     }
 
     /// Front-facet optical power now, W.
@@ -155,18 +185,30 @@ impl Plant {
     /// Sample every channel for the tick `tick`.
     pub fn sample(&mut self, tick: u32, dt: f64) -> Sample {
         let t_case = self.thermal.t_case_k();
-        let i_mon = self
-            .monitor
-            .current_a(self.p_front_w, self.wavelength_m, t_case);
+        let i_mon = if self.reference {
+            self.monitor
+                .current_a(self.p_front_w, self.wavelength_m, t_case)
+        } else {
+            self.monitor
+                .current_a_near(self.p_front_w, self.wavelength_m, t_case)
+        };
+        let temp_counts = if self.reference {
+            self.sensor.counts_reference(t_case, dt)
+        } else {
+            self.sensor.counts(t_case, dt)
+        };
         let v_mon = self.monitor.voltage_v(i_mon);
-        let a = 1.0 - (-dt * 2.0 * std::f64::consts::PI * MONITOR_FILTER_HZ).exp();
-        self.mon_filt_v += a * (v_mon - self.mon_filt_v);
+        if dt != self.mon_filt_dt {
+            self.mon_filt_a = 1.0 - (-dt * 2.0 * std::f64::consts::PI * MONITOR_FILTER_HZ).exp();
+            self.mon_filt_dt = dt;
+        }
+        self.mon_filt_v += self.mon_filt_a * (v_mon - self.mon_filt_v);
         let i = self.driver.current_a();
         Sample {
             tick,
             monitor_counts: self.adc_monitor.sample(self.mon_filt_v),
             current_counts: self.adc_current.sample(self.driver.sense_voltage(i)),
-            temp_counts: self.sensor.counts(t_case, dt),
+            temp_counts,
             supply_counts: self
                 .adc_supply
                 .sample(self.supply_v / crate::board::SUPPLY_DIVIDER),
@@ -188,6 +230,9 @@ impl Plant {
             .driver
             .step(dac_code, enable, self.v_f, self.supply_v, dt);
         let out = match model {
+            DiodeModel::QuasiStatic if self.reference => {
+                self.diode.step_quasi_static_reference(i, tj)
+            }
             DiodeModel::QuasiStatic => self.diode.step_quasi_static(i, tj),
             DiodeModel::Dynamic => self.diode.step_dynamic(i, tj, dt),
         };
@@ -195,7 +240,11 @@ impl Plant {
         self.wavelength_m = out.wavelength_m;
         self.v_f = out.v_f_v;
         let p_diss = (i * out.v_f_v - out.p_front_w - out.p_back_w).max(0.0);
-        self.thermal.step(p_diss, ambient_k, dt);
+        if self.reference {
+            self.thermal.step_reference(p_diss, ambient_k, dt);
+        } else {
+            self.thermal.step(p_diss, ambient_k, dt);
+        }
     }
 
     fn inject(&mut self, f: &HwFault, on: bool) {
@@ -268,10 +317,27 @@ fn to_f(v: Fx) -> f64 {
 
 /// Run a scenario on a validated board configuration.
 pub fn run(sc: &Scenario, module: &DemoModule, cfg: ValidConfig) -> Result<RunResult, PlantError> {
+    run_plant(sc, cfg, Plant::new(module, sc.ambient_c, sc.seed)?)
+}
+
+/// [`run`] on the reference plant ([`Plant::new_reference`]): same
+/// scenario, same noise, every model evaluated the straightforward way.
+pub fn run_reference(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+) -> Result<RunResult, PlantError> {
+    run_plant(
+        sc,
+        cfg,
+        Plant::new_reference(module, sc.ambient_c, sc.seed)?,
+    )
+}
+
+fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunResult, PlantError> {
     let tick_hz = cfg.config().tick_hz;
     let dt = 1.0 / f64::from(tick_hz);
     let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
-    let mut plant = Plant::new(module, sc.ambient_c, sc.seed)?;
     let mut ctl = Controller::new(cfg);
     let mut events: Vec<(u64, &Action)> = sc
         .events
@@ -408,4 +474,143 @@ pub fn run(sc: &Scenario, module: &DemoModule, cfg: ValidConfig) -> Result<RunRe
     }
     res.final_state = ctl.state();
     Ok(res)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::board;
+    use crate::scenario::Event;
+
+    fn config(module: &DemoModule) -> ValidConfig {
+        board::calibrate(diodestat_core::example::config(), module)
+            .validate()
+            .unwrap()
+    }
+
+    fn scenario(seed: u64, setpoint_mw: f64, ms: f64) -> Scenario {
+        let ev = |at_ms: f64, action: Action| Event { at_ms, action };
+        Scenario {
+            name: "equivalence".into(),
+            board: String::new(),
+            duration_ms: ms,
+            ambient_c: 25.0,
+            seed,
+            diode_model: DiodeModel::QuasiStatic,
+            trace_every: 1,
+            events: vec![
+                ev(0.0, Action::SetPower { mw: setpoint_mw }),
+                ev(0.1, Action::Enable),
+                ev(
+                    100.0,
+                    Action::AmbientRamp {
+                        to_c: 35.0,
+                        over_ms: 150.0,
+                    },
+                ),
+                ev(
+                    300.0,
+                    Action::Inject {
+                        fault: HwFault::HeatsinkLoss { factor: 2.5 },
+                    },
+                ),
+                ev(
+                    350.0,
+                    Action::Inject {
+                        fault: HwFault::Aging { hours: 2000.0 },
+                    },
+                ),
+                ev(
+                    400.0,
+                    Action::SetPower {
+                        mw: 0.6 * setpoint_mw,
+                    },
+                ),
+            ],
+        }
+    }
+
+    /// Open loop: the drive of a closed-loop run applied to the fast and to
+    /// the reference plant. Every ADC code is the same (a code could only
+    /// differ where the analog value sits within ~1e-9 LSB of a rounding
+    /// edge), front power agrees to 1e-9 relative (or 1e-9 of the rated
+    /// power near zero), junction temperature to 1e-8 K, forward voltage
+    /// to 1e-12 V.
+    #[test]
+    fn fast_plant_equals_reference_plant() {
+        for (name, mw) in [("demo-red-30", 20.0), ("demo-pump-5w", 3000.0)] {
+            let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+                .join("../examples")
+                .join(name)
+                .join("board.toml");
+            let board = crate::boardfile::load_board(&path).unwrap();
+            let (module, cfg) = (board.module, board.valid);
+            let dt = 1.0 / f64::from(cfg.config().tick_hz);
+            let mut ctl = Controller::new(cfg);
+            ctl.request(Request::SetPowerMw(fx(mw))).unwrap();
+            let mut fast = Plant::new(&module, 25.0, 3).unwrap();
+            let mut refp = Plant::new_reference(&module, 25.0, 3).unwrap();
+            let floor_w = 1e-9 * module.rated_power_w;
+            let (mut dp, mut dt_j, mut dv) = (0.0f64, 0.0f64, 0.0f64);
+            for tick in 0..8000u32 {
+                if tick == 2 {
+                    ctl.request(Request::Enable).unwrap();
+                }
+                let amb = c_to_k(25.0 + 10.0 * (f64::from(tick) / 8000.0));
+                if tick == 5000 {
+                    fast.thermal.heatsink_loss_factor = 2.0;
+                    refp.thermal.heatsink_loss_factor = 2.0;
+                }
+                let a = fast.sample(tick, dt);
+                let b = refp.sample(tick, dt);
+                assert_eq!(a, b, "samples at tick {tick}");
+                let d = ctl.step(&b);
+                for p in [&mut fast, &mut refp] {
+                    p.advance(d.dac_code, d.enable, amb, DiodeModel::QuasiStatic, dt);
+                }
+                let (pa, pb) = (fast.p_front_w(), refp.p_front_w());
+                dp = dp.max((pa - pb).abs() / pb.max(floor_w));
+                dt_j = dt_j.max((fast.thermal.t_junction_k() - refp.thermal.t_junction_k()).abs());
+                dv = dv.max((fast.v_f - refp.v_f).abs());
+            }
+            assert_eq!(ctl.state(), State::Regulating);
+            assert!(dp < 1e-9, "front power differs by {dp:e}");
+            assert!(dt_j < 1e-8, "junction differs by {dt_j:e} K");
+            assert!(dv < 1e-12, "forward voltage differs by {dv:e} V");
+        }
+    }
+
+    /// Closed loop through `run` and `run_reference`: the same events and
+    /// states, and every trace row within the tolerances above.
+    #[test]
+    fn run_equals_run_reference() {
+        let module = DemoModule::visible();
+        let sc = scenario(5, 20.0, 500.0);
+        let a = run(&sc, &module, config(&module)).unwrap();
+        let b = run_reference(&sc, &module, config(&module)).unwrap();
+        assert_eq!(a.happenings, b.happenings);
+        assert_eq!(a.trace.len(), b.trace.len());
+        for (x, y) in a.trace.iter().zip(b.trace.iter()) {
+            assert_eq!(x.state, y.state);
+            assert_eq!(
+                (x.cmd_ma, x.monitor_mw, x.sensed_c),
+                (y.cmd_ma, y.monitor_mw, y.sensed_c)
+            );
+            assert!((x.p_mw - y.p_mw).abs() <= 1e-9 * y.p_mw.max(module.rated_power_w * 1e3));
+            assert!((x.tj_c - y.tj_c).abs() < 1e-8, "tick {}", x.tick);
+        }
+    }
+
+    /// The same scenario and seed give the same trace bit for bit; another
+    /// seed gives another noise realisation.
+    #[test]
+    fn runs_are_deterministic() {
+        let module = DemoModule::visible();
+        let a = run(&scenario(9, 20.0, 200.0), &module, config(&module)).unwrap();
+        let b = run(&scenario(9, 20.0, 200.0), &module, config(&module)).unwrap();
+        let c = run(&scenario(10, 20.0, 200.0), &module, config(&module)).unwrap();
+        assert_eq!(a.trace, b.trace);
+        assert_eq!(a.happenings, b.happenings);
+        assert_ne!(a.trace, c.trace);
+    }
 }

@@ -9,6 +9,7 @@ pub mod diode;
 pub mod driver;
 pub mod error;
 pub mod monitor;
+pub mod near;
 pub mod rng;
 pub mod sensors;
 pub mod thermal;
@@ -26,6 +27,7 @@ pub use diode::{
 pub use driver::{Driver, DriverParams};
 pub use error::{from_toml, PlantError};
 pub use monitor::{Monitor, MonitorParams, MONITOR_T_REF_K};
+pub use near::{ExpNear, LnNear};
 pub use rng::Rng;
 pub use sensors::{
     Adc, AdcParams, FrontEndParams, Ntc, Rtd, SensorChain, SensorChainParams, TempSensor, Topology,

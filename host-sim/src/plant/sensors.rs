@@ -12,6 +12,7 @@ use serde::{Deserialize, Serialize};
 
 use super::constants::ZERO_CELSIUS_K;
 use super::error::{ensure, PlantError};
+use super::near::ExpNear;
 use super::rng::Rng;
 
 /// IEC 60751 Callendar-Van Dusen coefficient A, 1/degC.
@@ -248,10 +249,22 @@ fn check_adc(bits: u8, vref_v: f64, noise: f64) -> Result<(), PlantError> {
     )
 }
 
-/// Quantises `x` (in LSB) to a code in `0..=max`.
+/// Quantises `x` (in LSB) to a code in `0..=max`: round half away from
+/// zero, clamp to the rails, NaN reads 0: the codes of
+/// `x.round().clamp(0.0, max) as u16` without the library rounding call.
+///
+/// On the clamped value c >= 0, k = trunc(c + 1/2) is round(c) or, when the
+/// addition rounds up across an integer, round(c) + 1; that case is exactly
+/// c < k - 1/2 (k - 1/2 and the comparison are exact).
 #[inline]
 fn quantise(x: f64, max: f64) -> u16 {
-    x.round().clamp(0.0, max) as u16
+    let c = x.clamp(0.0, max);
+    let k = (c + 0.5) as u16;
+    if f64::from(k) - 0.5 > c {
+        k - 1
+    } else {
+        k
+    }
 }
 
 /// A temperature channel: sensor, divider, RC filter, noisy ADC and faults.
@@ -272,6 +285,8 @@ pub struct SensorChain {
     pub short: bool,
     /// Fault hook: the ADC returns this code regardless of input.
     pub stuck: Option<u16>,
+    /// Beta-equation NTC exponential continued between calls.
+    ntc_near: ExpNear,
 }
 
 impl SensorChain {
@@ -304,6 +319,7 @@ impl SensorChain {
             open: false,
             short: false,
             stuck: None,
+            ntc_near: ExpNear::new(),
         })
     }
 
@@ -337,9 +353,22 @@ impl SensorChain {
         }
     }
 
+    /// Sensor resistance at `t_k`, ohm, with the beta-equation exponential
+    /// continued from the previous call (see [`super::near`]; within 3 ulp
+    /// of [`TempSensor::resistance_ohm`]); other sensors directly.
+    #[inline]
+    fn resistance_near(&mut self, t_k: f64) -> f64 {
+        match self.params.sensor {
+            TempSensor::Ntc(Ntc::Beta { r25_ohm, beta_k }) => {
+                r25_ohm * self.ntc_near.exp(beta_k * (1.0 / t_k - 1.0 / NTC_T25_K))
+            }
+            ref other => other.resistance_ohm(t_k),
+        }
+    }
+
     /// Divider ratio at the ADC input including open/short faults, unfiltered.
     #[inline]
-    fn input_ratio(&self, t_k: f64) -> f64 {
+    fn input_ratio(&mut self, t_k: f64, near: bool) -> f64 {
         let to_ground = self.params.front_end.topology == Topology::SensorToGround;
         if self.short {
             if to_ground {
@@ -353,6 +382,9 @@ impl SensorChain {
             } else {
                 0.0
             }
+        } else if near {
+            let r = self.resistance_near(t_k);
+            self.ratio_of_resistance(r)
         } else {
             self.ratio_of_resistance(self.params.sensor.resistance_ohm(t_k))
         }
@@ -387,7 +419,18 @@ impl SensorChain {
     /// quantised and clamped to the rails.
     #[inline]
     pub fn counts(&mut self, t_k: f64, dt_s: f64) -> u16 {
-        let x = self.input_ratio(t_k);
+        self.counts_with(t_k, dt_s, true)
+    }
+
+    /// [`SensorChain::counts`] evaluating the sensor equation directly every
+    /// call (the reference for the continued exponential).
+    pub fn counts_reference(&mut self, t_k: f64, dt_s: f64) -> u16 {
+        self.counts_with(t_k, dt_s, false)
+    }
+
+    #[inline]
+    fn counts_with(&mut self, t_k: f64, dt_s: f64, near: bool) -> u16 {
+        let x = self.input_ratio(t_k, near);
         let tau = self.params.front_end.rc_tau_s;
         if !self.started || tau == 0.0 {
             self.ratio = x;
@@ -401,7 +444,7 @@ impl SensorChain {
         }
         let sigma = self.params.front_end.noise_lsb_rms;
         let noise = if sigma > 0.0 {
-            sigma * self.rng.gaussian()
+            sigma * self.rng.normal()
         } else {
             0.0
         };
@@ -489,11 +532,11 @@ impl Adc {
     }
 
     /// Converts `volts` with noise, rounding and clamping to the rails.
-    #[inline]
+    #[inline(always)]
     pub fn sample(&mut self, volts: f64) -> u16 {
         let sigma = self.params.noise_lsb_rms;
         let noise = if sigma > 0.0 {
-            sigma * self.rng.gaussian()
+            sigma * self.rng.normal()
         } else {
             0.0
         };
@@ -523,6 +566,61 @@ mod tests {
             },
         })
         .unwrap()
+    }
+
+    /// Straightforward quantisation, the reference for [`quantise`].
+    fn quantise_reference(x: f64, max: f64) -> u16 {
+        x.round().clamp(0.0, max) as u16
+    }
+
+    #[test]
+    fn fast_quantise_equals_rounding() {
+        // Every half-integer and its neighbouring doubles, the rails, the
+        // non-finite inputs and a sweep of random values.
+        let max = 4095.0;
+        let mut xs = vec![
+            f64::NAN,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            -0.0,
+            1e300,
+            -1e300,
+        ];
+        for k in -2..=4100 {
+            let h = k as f64 + 0.5;
+            xs.extend([
+                h,
+                h.next_down(),
+                h.next_up(),
+                k as f64,
+                (k as f64).next_down(),
+            ]);
+        }
+        let mut rng = Rng::new(9);
+        for _ in 0..200_000 {
+            xs.push(rng.uniform() * 4200.0 - 50.0);
+        }
+        for x in xs {
+            for m in [max, 65535.0, 1.0] {
+                assert_eq!(
+                    quantise(x, m),
+                    quantise_reference(x, m),
+                    "x = {x:e}, max {m}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn counts_equal_reference_counts() {
+        // The continued beta-equation exponential gives the same codes as
+        // the direct one, noise included (same seed), over a drift with jumps.
+        let mut a = ntc_chain(0.5);
+        let mut b = ntc_chain(0.5);
+        for k in 0..20_000 {
+            let t = 290.0 + 2e-3 * k as f64 + (k / 4000) as f64;
+            assert_eq!(a.counts(t, 5e-5), b.counts_reference(t, 5e-5), "at {t} K");
+        }
     }
 
     #[test]
