@@ -36,7 +36,7 @@ cargo build --release --quiet --bin "$bin"
 elf=target/thumbv7em-none-eabihf/release/$bin
 nm=$(ls "$(rustc --print sysroot)"/lib/rustlib/*/bin/llvm-nm | head -n1)
 ranges=$("$nm" -S -C "$elf" |
-  awk '/Controller::step|Controller::ramp|protect::trip_record|FaultLog::record|temp_table::relocate|temp_table::wide_interpolation|diodestat_profile_(begin|end)|__aeabi_ldivmod|__aeabi_uldivmod|__divmoddi4|__udivmoddi4|specialized_div_rem::u64_div_rem/ {
+  awk '/Controller::step|Controller::ramp|protect::trip_record|FaultLog::record|temp_table::|diodestat_profile_(begin|end)|__aeabi_ldivmod|__aeabi_uldivmod|__divmoddi4|__udivmoddi4|specialized_div_rem::u64_div_rem/ {
          printf "%s0x%s+0x%s", sep, $1, $2; sep = "," }')
 markers=$("$nm" -C "$elf" | awk '/diodestat_profile_begin/ { b = "0x" $1 } /diodestat_profile_end/ { e = "0x" $1 }
   END { if (b != "" && e != "") print b, e }')

@@ -32,8 +32,9 @@ use crate::units::{clamp_fx, Fx};
 #[derive(Clone, Debug)]
 pub struct Controller {
     cfg: ValidConfig,
-    state: State,
-    mode: Mode,
+    /// State, mode, latched faults and warnings, as returned in every
+    /// [`Drive`].
+    status: Status,
     requested_mode: Mode,
     power_target_mw: Fx,
     power_sp_mw: Fx,
@@ -44,14 +45,12 @@ pub struct Controller {
     arming_left: u32,
     pi: PowerLoop,
     prot: Protections,
-    active: FaultSet,
     present: FaultSet,
     log: FaultLog,
     last_tick: Option<u32>,
     meas: Measurements,
     /// Temperature table segment of the latest sample.
     temp_segment: Window,
-    warnings: Warnings,
 }
 
 impl Controller {
@@ -61,8 +60,16 @@ impl Controller {
         let min_mw = cfg.config().power.min_setpoint_mw;
         Controller {
             cfg,
-            state: State::Off,
-            mode: Mode::Apc,
+            status: Status {
+                state: State::Off,
+                mode: Mode::Apc,
+                faults: FaultSet::EMPTY,
+                warnings: Warnings {
+                    derating: false,
+                    at_ceiling: false,
+                    sensor_suspect: false,
+                },
+            },
             requested_mode: Mode::Apc,
             power_target_mw: min_mw,
             power_sp_mw: Fx::ZERO,
@@ -73,13 +80,11 @@ impl Controller {
             arming_left: 0,
             pi: PowerLoop::default(),
             prot: Protections::default(),
-            active: FaultSet::EMPTY,
             present: FaultSet::EMPTY,
             log: FaultLog::new(),
             last_tick: None,
             meas: Measurements::default(),
             temp_segment: Window::NONE,
-            warnings: Warnings::default(),
         }
     }
 
@@ -88,8 +93,10 @@ impl Controller {
         let c = self.cfg.config();
         match req {
             Request::Enable => {
-                if self.state != State::Off {
-                    return Err(Rejection::NotAllowed { state: self.state });
+                if self.status.state != State::Off {
+                    return Err(Rejection::NotAllowed {
+                        state: self.status.state,
+                    });
                 }
                 if self.last_tick.is_none() {
                     return Err(Rejection::NoSampleYet);
@@ -97,14 +104,14 @@ impl Controller {
                 if let Some(fault) = self.present.first() {
                     return Err(Rejection::ConditionPresent { fault });
                 }
-                self.state = State::Arming;
+                self.status.state = State::Arming;
                 self.arming_left = self.cfg.emission_delay_ticks();
                 Ok(())
             }
             Request::Disable => {
-                match self.state {
-                    State::Arming => self.state = State::Off,
-                    State::Ramping | State::Regulating => self.state = State::Stopping,
+                match self.status.state {
+                    State::Arming => self.status.state = State::Off,
+                    State::Ramping | State::Regulating => self.status.state = State::Stopping,
                     State::Off | State::Stopping | State::Latched => {}
                 }
                 Ok(())
@@ -138,14 +145,16 @@ impl Controller {
                 Ok(())
             }
             Request::ClearFaults => {
-                if self.state != State::Latched {
-                    return Err(Rejection::NotAllowed { state: self.state });
+                if self.status.state != State::Latched {
+                    return Err(Rejection::NotAllowed {
+                        state: self.status.state,
+                    });
                 }
                 if let Some(fault) = self.present.first() {
                     return Err(Rejection::ConditionPresent { fault });
                 }
-                self.state = State::Off;
-                self.active = FaultSet::EMPTY;
+                self.status.state = State::Off;
+                self.status.faults = FaultSet::EMPTY;
                 self.prot.reset();
                 self.drive_ma = Fx::ZERO;
                 self.envelope_ma = Fx::ZERO;
@@ -176,8 +185,8 @@ impl Controller {
             self.cfg.derated_ceiling_ma(m.temp_degc)
         };
         let static_ceiling = derated.min(c.current.ceiling_ma);
-        let derating = !m.sensor_at_rail && m.temp_degc > c.derating.knee_degc;
-        let sensor_suspect = m.sensor_at_rail;
+        self.status.warnings.derating = !m.sensor_at_rail && m.temp_degc > c.derating.knee_degc;
+        self.status.warnings.sensor_suspect = m.sensor_at_rail;
 
         // 3. Protections, on the command that produced this sample: the
         // drive of the previous tick, which is zero whenever the state is
@@ -193,7 +202,7 @@ impl Controller {
         // design and only the configured level applies.)
         // (Evaluated only when the monitor reads dark.)
         let loss_drive = c.protection.monitor_loss_drive_ma;
-        let (state, mode, ceiling) = (self.state, self.mode, self.ceiling_ma);
+        let (state, mode, ceiling) = (self.status.state, self.status.mode, self.ceiling_ma);
         let light_expected = || {
             if state == State::Regulating && mode == Mode::Apc {
                 loss_drive.min(ceiling)
@@ -208,39 +217,46 @@ impl Controller {
             s.tick,
             last_cmd,
             light_expected,
-            self.state,
-            self.active,
+            self.status.state,
+            self.status.faults,
             &mut self.log,
         );
         self.present = verdict.present;
         if !verdict.tripped.is_empty() {
-            self.active = FaultSet::from_bits(self.active.bits() | verdict.tripped.bits());
-            self.state = State::Latched;
+            self.status.faults =
+                FaultSet::from_bits(self.status.faults.bits() | verdict.tripped.bits());
+            self.status.state = State::Latched;
         }
 
-        // 4. The state.
+        // 4. The state. Each arm leaves the drive clamped to the ceiling in
+        // force (zero when the state after it does not emit) and says
+        // whether that state emits.
         self.apply_mode_change(monitor_mw);
-        let mut at_ceiling = false;
-        let drive = match self.state {
+        let (drive, enable, at_ceiling) = match self.status.state {
             State::Off | State::Latched => {
                 self.envelope_ma = Fx::ZERO;
-                Fx::ZERO
+                self.ceiling_ma = Fx::ZERO;
+                (Fx::ZERO, false, false)
             }
             State::Arming => {
                 if self.arming_left == 0 {
-                    self.state = State::Ramping;
+                    self.status.state = State::Ramping;
                     self.envelope_ma = Fx::ZERO;
-                    self.ramp(monitor_mw, static_ceiling)
+                    let d = self.ramp(monitor_mw, static_ceiling);
+                    (clamp_fx(d, Fx::ZERO, self.ceiling_ma), true, false)
                 } else {
                     self.arming_left -= 1;
-                    Fx::ZERO
+                    self.ceiling_ma = Fx::ZERO;
+                    (Fx::ZERO, false, false)
                 }
             }
-            State::Ramping => self.ramp(monitor_mw, static_ceiling),
+            State::Ramping => {
+                let d = self.ramp(monitor_mw, static_ceiling);
+                (clamp_fx(d, Fx::ZERO, self.ceiling_ma), true, false)
+            }
             State::Regulating => {
-                let (d, at) = self.regulate(monitor_mw, static_ceiling);
-                at_ceiling = at;
-                d
+                let (d, at_ceiling) = self.regulate(monitor_mw, static_ceiling);
+                (d, true, at_ceiling)
             }
             State::Stopping => {
                 let d = self
@@ -249,46 +265,35 @@ impl Controller {
                     .max(Fx::ZERO)
                     .min(static_ceiling);
                 self.envelope_ma = d;
+                // Zero when the ramp ends in Off.
                 self.ceiling_ma = d;
                 if d == Fx::ZERO {
-                    self.state = State::Off;
+                    self.status.state = State::Off;
                 }
-                d
+                (clamp_fx(d, Fx::ZERO, d), d != Fx::ZERO, false)
             }
         };
-        self.warnings = Warnings {
-            derating,
-            at_ceiling,
-            sensor_suspect,
-        };
-        if !self.state.is_emitting() {
-            self.ceiling_ma = Fx::ZERO;
-        }
-        self.drive_ma = clamp_fx(drive, Fx::ZERO, self.ceiling_ma);
-        let enable = self.state.is_emitting();
+        self.status.warnings.at_ceiling = at_ceiling;
+        self.drive_ma = drive;
         Drive {
-            dac_code: if enable {
-                self.cfg.dac_code(self.drive_ma)
-            } else {
-                0
-            },
+            dac_code: if enable { self.cfg.dac_code(drive) } else { 0 },
             enable,
-            status: self.status(),
+            status: self.status,
         }
     }
 
     fn apply_mode_change(&mut self, monitor_mw: Fx) {
-        if self.requested_mode == self.mode {
+        if self.requested_mode == self.status.mode {
             return;
         }
-        if self.state == State::Regulating && self.requested_mode == Mode::Apc {
+        if self.status.state == State::Regulating && self.requested_mode == Mode::Apc {
             // Bumpless ACC -> APC: start the power setpoint at the measured
             // power and the integrator at the present drive.
             self.power_sp_mw = self.measured_setpoint(monitor_mw);
             self.pi.preset(self.drive_ma);
         }
         // APC -> ACC needs nothing: the drive slews from where it is.
-        self.mode = self.requested_mode;
+        self.status.mode = self.requested_mode;
     }
 
     /// Soft start in current mode.
@@ -297,11 +302,11 @@ impl Controller {
         let handover_mw = self
             .power_target_mw
             .saturating_mul(c.ramp.handover_fraction);
-        match self.mode {
+        match self.status.mode {
             Mode::Apc if monitor_mw >= handover_mw => {
                 // Hand over at the present drive: the power setpoint ramps
                 // on from the measured power.
-                self.state = State::Regulating;
+                self.status.state = State::Regulating;
                 self.power_sp_mw = self.measured_setpoint(monitor_mw);
                 self.pi.preset(self.drive_ma);
                 self.ceiling_ma = self.envelope_ma.min(static_ceiling);
@@ -312,7 +317,7 @@ impl Controller {
         let env = self
             .envelope_ma
             .saturating_add(self.cfg.soft_start_ma_per_tick());
-        let target = match self.mode {
+        let target = match self.status.mode {
             Mode::Apc => static_ceiling,
             Mode::Acc => self.current_target_ma.min(static_ceiling),
         };
@@ -330,7 +335,7 @@ impl Controller {
             // Reached the ceiling (APC without enough light) or the ACC
             // setpoint, or is above the ACC setpoint: regulate from here (ACC
             // slews the rest of the way); monitor loss covers "no light".
-            self.state = State::Regulating;
+            self.status.state = State::Regulating;
             self.pi.preset(d);
             self.power_sp_mw = self.measured_setpoint(monitor_mw);
         }
@@ -348,8 +353,9 @@ impl Controller {
         )
     }
 
-    /// Closed-loop regulation, APC or ACC: the drive, and whether it sits
-    /// at the ceiling.
+    /// Closed-loop regulation, APC or ACC: the drive, clamped to
+    /// `[0, ceiling]`, and whether it sits at the ceiling (before that
+    /// clamp).
     fn regulate(&mut self, monitor_mw: Fx, static_ceiling: Fx) -> (Fx, bool) {
         let c = self.cfg.config();
         self.envelope_ma = self
@@ -359,14 +365,14 @@ impl Controller {
         let ceiling = self.envelope_ma.min(static_ceiling);
         self.ceiling_ma = ceiling;
         let slew = self.cfg.slew_ma_per_tick();
-        let d = match self.mode {
+        match self.status.mode {
             Mode::Apc => {
                 self.power_sp_mw = toward(
                     self.power_sp_mw,
                     self.power_target_mw,
                     self.cfg.setpoint_mw_per_tick(),
                 );
-                self.pi.step(
+                let out = self.pi.step(
                     self.cfg.kp(),
                     self.cfg.ki_per_tick(),
                     self.power_sp_mw,
@@ -376,11 +382,15 @@ impl Controller {
                         slew_ma: slew,
                         ceiling_ma: ceiling,
                     },
-                )
+                );
+                // The PI output is clamped to `[0, ceiling]` already.
+                (out, out >= ceiling)
             }
-            Mode::Acc => toward(self.drive_ma, self.current_target_ma, slew).min(ceiling),
-        };
-        (d, d >= ceiling)
+            Mode::Acc => {
+                let d = toward(self.drive_ma, self.current_target_ma, slew).min(ceiling);
+                (clamp_fx(d, Fx::ZERO, ceiling), d >= ceiling)
+            }
+        }
     }
 
     /// The configuration in force.
@@ -390,27 +400,22 @@ impl Controller {
 
     /// Present state.
     pub fn state(&self) -> State {
-        self.state
+        self.status.state
     }
 
     /// Mode in force.
     pub fn mode(&self) -> Mode {
-        self.mode
+        self.status.mode
     }
 
     /// Compact status, as returned in the last [`Drive`].
     pub fn status(&self) -> Status {
-        Status {
-            state: self.state,
-            mode: self.mode,
-            faults: self.active,
-            warnings: self.warnings,
-        }
+        self.status
     }
 
     /// Latched faults.
     pub fn faults(&self) -> FaultSet {
-        self.active
+        self.status.faults
     }
 
     /// Fault conditions present in the latest sample (before debounce).

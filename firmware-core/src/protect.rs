@@ -54,6 +54,9 @@ impl Measurements {
         missed_ticks: u32,
         temp_segment: &mut Window,
     ) -> (Self, u16) {
+        // The temperature first: its window may have to be found again (a
+        // call), before any other value is live.
+        let temp_degc = cfg.counts_to_degc_cached(s.temp_counts, temp_segment);
         let tc = &cfg.config().calibration.temperature;
         // The rail faults (open or short, per the configured open rail) as
         // mask bits derived at validation (both non-zero).
@@ -69,7 +72,7 @@ impl Measurements {
         let m = Measurements {
             monitor_mw: cfg.monitor_mw(s.monitor_counts),
             current_ma: cfg.current_ma(s.current_counts),
-            temp_degc: cfg.counts_to_degc_cached(s.temp_counts, temp_segment),
+            temp_degc,
             temp_counts: s.temp_counts,
             sensor_at_rail: rails != 0,
             supply_mv: cfg.supply_mv(s.supply_counts),

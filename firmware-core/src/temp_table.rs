@@ -87,63 +87,82 @@ pub(crate) fn segment(points: &[TempPoint], counts: u16, hint: usize) -> usize {
         .min(last)
 }
 
-/// One table segment, as its interpolation needs it.
+/// One table segment, as the window's interpolation needs it.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 struct Span {
     /// Counts of the segment's first point.
     a_counts: i32,
     /// Temperature of the segment's first point, `Fx` bits.
     a_bits: i32,
-    /// Temperature of the segment's second point, `Fx` bits.
-    b_bits: i32,
+    /// Temperature step across the segment, `Fx` bits (the window holds
+    /// a segment only when the step fits i32; see [`reach`]).
+    dt_bits: i32,
     /// Width of the segment, counts (positive in a checked table).
     dc: i32,
 }
 
 impl Span {
-    /// Segment `i` of `points`, if the table has it.
-    fn of(points: &[TempPoint], i: usize) -> Option<Span> {
-        let (a, b) = (points.get(i)?, points.get(i.saturating_add(1))?);
-        Some(Span {
+    /// The segment from `a` to `b`.
+    fn new(a: &TempPoint, b: &TempPoint) -> Span {
+        Span {
             a_counts: i32::from(a.counts),
             a_bits: a.degc.to_bits(),
-            b_bits: b.degc.to_bits(),
+            dt_bits: b.degc.to_bits().wrapping_sub(a.degc.to_bits()),
             dc: i32::from(b.counts) - i32::from(a.counts),
-        })
+        }
     }
 
-    /// [`interpolate`] on this segment.
+    /// [`interpolate`] on this segment, for a reading within its
+    /// [`reach`]: there `dt·x` fits i32, so the wrapping product is the
+    /// exact one and the 32-bit quotient is that of [`interpolate`].
     #[inline]
     fn interpolate(&self, counts: u16) -> Fx {
         let x = i32::from(counts) - self.a_counts;
-        if self.dc <= 0 {
-            return Fx::from_bits(self.a_bits);
-        }
-        match self
-            .b_bits
-            .checked_sub(self.a_bits)
-            .and_then(|dt| dt.checked_mul(x))
-        {
-            Some(p) => Fx::from_bits(self.a_bits.saturating_add(p / self.dc)),
-            None => wide_interpolation(self.a_bits, self.b_bits, x, self.dc),
+        if self.dc > 0 {
+            Fx::from_bits(
+                self.a_bits
+                    .saturating_add(self.dt_bits.wrapping_mul(x) / self.dc),
+            )
+        } else {
+            Fx::from_bits(self.a_bits)
         }
     }
+}
+
+/// The readings (as an inclusive range of counts) for which the segment
+/// from `a` to `b` interpolates in 32 bits: the temperature step `dt`
+/// fits i32 and `|dt·(counts - a.counts)| <= i32::MAX`. `None` when the
+/// step itself does not fit i32.
+fn reach(a: &TempPoint, b: &TempPoint) -> Option<(i32, i32)> {
+    let dt = b.degc.to_bits().checked_sub(a.degc.to_bits())?;
+    // Farthest distance from `a` in counts (a 32-bit division); a flat
+    // segment reaches every reading.
+    let k = (i32::MAX as u32)
+        .checked_div(dt.unsigned_abs())
+        .unwrap_or(u32::from(u16::MAX))
+        .min(u32::from(u16::MAX));
+    // Both within [0, 65_535] after the clamp; `k` too.
+    let k = i32::from(u16::try_from(k).unwrap_or(u16::MAX));
+    let a = i32::from(a.counts);
+    Some(((a - k).max(0), (a + k).min(i32::from(u16::MAX))))
 }
 
 /// Two adjacent table segments around the latest reading, with what their
 /// interpolation needs, so that the next reading, if it falls in either,
 /// is converted without reading the table (see [`degc_cached`]). A reading
-/// that dithers across the table point between the two stays inside.
+/// that dithers across the table point between the two stays inside. The
+/// window holds only readings its segments interpolate in 32 bits (see
+/// [`reach`]): any other reading is converted by [`relocate`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub(crate) struct Window {
     /// Lowest reading the window holds (0 when it starts with the first
-    /// segment).
+    /// segment and that reaches down to zero).
     lo_counts: u16,
     /// The table point between the two segments: readings below it are in
     /// `first`, readings at or above it in `second`.
     mid_counts: u16,
     /// Highest reading the window holds (`u16::MAX` when it ends with the
-    /// last segment).
+    /// last segment and that reaches up to there).
     hi_counts: u16,
     /// Index of the first segment in the table.
     index: u8,
@@ -155,7 +174,7 @@ pub(crate) struct Window {
 const ZERO_SPAN: Span = Span {
     a_counts: 0,
     a_bits: 0,
-    b_bits: 0,
+    dt_bits: 0,
     dc: 0,
 };
 
@@ -170,12 +189,14 @@ impl Window {
         second: ZERO_SPAN,
     };
 
-    /// The window of a checked table around `counts`: the segment that
-    /// holds it (see [`segment`]; `hint` is a segment near the previous
-    /// reading) and its neighbour on the side of the nearer end point.
-    fn around(points: &[TempPoint], counts: u16, hint: usize) -> Window {
+    /// The window of a checked table around `counts`, given `j`, the
+    /// segment that holds it (see [`segment`]): `j` and its neighbour on
+    /// the side of the nearer end point, narrowed to the readings both
+    /// interpolate in 32 bits. It may not hold `counts` (a reading far
+    /// past the end of a table with steep end segments), or be empty
+    /// (fewer than two points, or segments too steep for 32 bits).
+    fn around(points: &[TempPoint], counts: u16, j: usize) -> Window {
         let last = points.len().saturating_sub(2);
-        let j = segment(points, counts, hint);
         let near_start = match (points.get(j), points.get(j.saturating_add(1))) {
             (Some(a), Some(b)) => counts.saturating_sub(a.counts) < b.counts.saturating_sub(counts),
             _ => false,
@@ -187,73 +208,106 @@ impl Window {
         } else {
             j
         };
-        let (Some(first), Some(mid)) = (Span::of(points, w), points.get(w.saturating_add(1)))
-        else {
-            // Fewer than two points (not a checked table): every reading
-            // converts to zero, as [`interpolate`] does.
-            return Window {
-                lo_counts: 0,
-                mid_counts: 0,
-                hi_counts: u16::MAX,
-                ..Window::NONE
-            };
+        let (Some(a), Some(mid)) = (points.get(w), points.get(w.saturating_add(1))) else {
+            // Fewer than two points (not a checked table): [`relocate`]
+            // converts every reading (to zero, as [`interpolate`] does).
+            return Window::NONE;
         };
-        let lo_counts = if w == 0 {
-            0
-        } else {
-            points.get(w).map_or(0, |p| p.counts)
+        // A table has at most TEMP_TABLE_LEN (33) points.
+        let index = u8::try_from(w).unwrap_or(u8::MAX);
+        let first = Span::new(a, mid);
+        let reach_first = reach(a, mid);
+        // The readings each segment serves, before narrowing: `first`
+        // below the middle point, `second` from it up.
+        let (lo, mid_counts, hi, second, reach_second) = match points.get(w.saturating_add(2)) {
+            // A one-segment table: the window is that segment (as `second`)
+            // for every reading.
+            None => (0, 0, i32::from(u16::MAX), first, reach_first),
+            Some(c) => {
+                let lo = if w == 0 { 0 } else { i32::from(a.counts) };
+                let hi = if w.saturating_add(1) >= last {
+                    i32::from(u16::MAX)
+                } else {
+                    i32::from(c.counts) - 1
+                };
+                (lo, mid.counts, hi, Span::new(mid, c), reach(mid, c))
+            }
         };
-        // A one-segment table: the window is that segment (as `second`).
-        let Some(second) = Span::of(points, w.saturating_add(1)) else {
-            return Window {
+        let m = i32::from(mid_counts);
+        // Readings from the middle up: as far as `second` reaches, if it
+        // reaches down to the middle.
+        let hi = match reach_second {
+            Some((r_lo, r_hi)) if r_lo <= m => hi.min(r_hi),
+            _ => m - 1,
+        };
+        // Readings below the middle: from as far down as `first` reaches,
+        // if it reaches up to just below the middle (none when the middle
+        // is the lowest reading).
+        let lo = match reach_first {
+            Some((r_lo, r_hi)) if lo < m && r_hi >= m - 1 => lo.max(r_lo),
+            _ => m,
+        };
+        match (u16::try_from(lo), u16::try_from(hi)) {
+            (Ok(lo_counts), Ok(hi_counts)) if lo <= hi => Window {
                 lo_counts,
-                mid_counts: lo_counts,
-                hi_counts: u16::MAX,
-                index: 0,
+                mid_counts,
+                hi_counts,
+                index,
                 first,
-                second: first,
-            };
-        };
-        let hi_counts = if w.saturating_add(1) >= last {
-            u16::MAX
-        } else {
-            points
-                .get(w.saturating_add(2))
-                .map_or(u16::MAX, |p| p.counts.saturating_sub(1))
-        };
-        Window {
-            lo_counts,
-            mid_counts: mid.counts,
-            hi_counts,
-            // A table has at most TEMP_TABLE_LEN (33) points.
-            index: u8::try_from(w).unwrap_or(u8::MAX),
-            first,
-            second,
+                second,
+            },
+            _ => Window {
+                index,
+                ..Window::NONE
+            },
         }
     }
 }
 
 /// [`degc`] through the window of the previous reading (`window`,
 /// updated): the same result. A reading inside the window costs three
-/// comparisons and the interpolation; otherwise the window is found again
-/// around the reading (see [`segment`]).
+/// comparisons and a 32-bit interpolation; otherwise [`relocate`] finds
+/// the window again around the reading and converts it.
 #[inline]
 pub(crate) fn degc_cached(points: &[TempPoint], counts: u16, window: &mut Window) -> Fx {
-    if counts < window.lo_counts || counts > window.hi_counts {
-        relocate(points, counts, window);
+    if window.misses(counts) {
+        return relocate(points, counts, window);
     }
-    if counts < window.mid_counts {
-        window.first.interpolate(counts)
-    } else {
-        window.second.interpolate(counts)
+    window.interpolate(counts)
+}
+
+impl Window {
+    /// Whether the window does not hold `counts`.
+    #[inline]
+    fn misses(&self, counts: u16) -> bool {
+        counts < self.lo_counts || counts > self.hi_counts
+    }
+
+    /// Interpolate a reading the window holds.
+    #[inline]
+    fn interpolate(&self, counts: u16) -> Fx {
+        if counts < self.mid_counts {
+            self.first.interpolate(counts)
+        } else {
+            self.second.interpolate(counts)
+        }
     }
 }
 
+/// A reading outside the window: the window is found again around it
+/// (searching from the window's segment on the reading's side) and the
+/// reading is converted through it, or by [`interpolate`] when even the
+/// new window does not hold it.
 #[inline(never)]
-fn relocate(points: &[TempPoint], counts: u16, window: &mut Window) {
-    // Search from the window's segment on the reading's side.
+fn relocate(points: &[TempPoint], counts: u16, window: &mut Window) -> Fx {
     let hint = usize::from(window.index) + usize::from(counts > window.hi_counts);
-    *window = Window::around(points, counts, hint);
+    let j = segment(points, counts, hint);
+    *window = Window::around(points, counts, j);
+    if window.misses(counts) {
+        interpolate(points, j, counts)
+    } else {
+        window.interpolate(counts)
+    }
 }
 
 /// `a + trunc(dt·x/dc)` in 64 bits, saturated (a product beyond 32 bits).
@@ -446,6 +500,88 @@ mod tests {
             convert(0);
             convert(u16::MAX);
         }
+    }
+
+    /// A window segment's conversion as first written: the checked 32-bit
+    /// product and quotient, the 64-bit quotient when the product (or the
+    /// step) does not fit.
+    fn checked_span_interpolation(a: &TempPoint, b: &TempPoint, counts: u16) -> Fx {
+        let (a_bits, b_bits) = (a.degc.to_bits(), b.degc.to_bits());
+        let dc = i32::from(b.counts) - i32::from(a.counts);
+        let x = i32::from(counts) - i32::from(a.counts);
+        if dc <= 0 {
+            return Fx::from_bits(a_bits);
+        }
+        match b_bits.checked_sub(a_bits).and_then(|dt| dt.checked_mul(x)) {
+            Some(p) => Fx::from_bits(a_bits.saturating_add(p / dc)),
+            None => wide_interpolation(a_bits, b_bits, x, dc),
+        }
+    }
+
+    #[test]
+    fn window_interpolation_equals_the_checked_span_interpolation() {
+        // Tables whose windows are narrowed: steps that do not fit i32,
+        // steps whose product with a far reading does not, end segments
+        // extended over the whole u16 range, a single steep segment.
+        let steep = [
+            p(10, -30_000),
+            p(20, 30_000),
+            p(40_000, 32_000),
+            p(40_001, 32_767),
+        ];
+        let far = [p(0, -32_768), p(1, 0), p(30_000, 1), p(65_535, 32_767)];
+        let single = [p(30_000, -20_000), p(30_010, 20_000)];
+        let flat_ends = [p(100, 0), p(200, 100), p(300, 101), p(60_000, 102)];
+        let two = [p(100, 5), p(200, -5)];
+        let mut held = 0u32;
+        for table in [
+            &crate::example::DEMO_TEMP_TABLE[..],
+            &steep[..],
+            &far[..],
+            &single[..],
+            &flat_ends[..],
+            &two[..],
+        ] {
+            check(table).unwrap();
+            let starts = (0..=u16::MAX)
+                .step_by(97)
+                .chain(table.iter().flat_map(|q| {
+                    [
+                        q.counts.saturating_sub(1),
+                        q.counts,
+                        q.counts.saturating_add(1),
+                    ]
+                }))
+                .chain([0, u16::MAX]);
+            for start in starts {
+                // The window the controller would keep after this reading.
+                let mut w = Window::NONE;
+                degc_cached(table, start, &mut w);
+                let probes = (-600i32..=600)
+                    .step_by(7)
+                    .map(|d| i32::from(start) + d)
+                    .chain([
+                        0,
+                        65_535,
+                        i32::from(w.lo_counts),
+                        i32::from(w.hi_counts),
+                        i32::from(w.mid_counts) - 1,
+                        i32::from(w.mid_counts),
+                    ]);
+                for c in probes.filter_map(|c| u16::try_from(c).ok()) {
+                    if w.misses(c) {
+                        continue;
+                    }
+                    held += 1;
+                    let i = segment(table, c, usize::MAX);
+                    let want = checked_span_interpolation(&table[i], &table[i + 1], c);
+                    assert_eq!(w.interpolate(c), want, "counts {c} window {w:?}");
+                }
+            }
+        }
+        // (The single segment's step does not fit i32: its windows are
+        // empty and every reading is converted by `relocate`.)
+        assert!(held > 100_000, "windows held {held} readings");
     }
 
     #[test]
