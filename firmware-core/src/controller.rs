@@ -58,6 +58,7 @@ impl Controller {
     /// zero current setpoint.
     pub fn new(cfg: ValidConfig) -> Self {
         let min_mw = cfg.config().power.min_setpoint_mw;
+        let temp_segment = Window::empty(&cfg.config().calibration.temperature.table);
         Controller {
             cfg,
             status: Status {
@@ -84,7 +85,7 @@ impl Controller {
             log: FaultLog::new(),
             last_tick: None,
             meas: Measurements::default(),
-            temp_segment: Window::NONE,
+            temp_segment,
         }
     }
 

@@ -48,43 +48,36 @@ pub(crate) fn check(points: &[TempPoint]) -> Result<(), ConfigError> {
 /// Interpolate a checked table (see [`check`]) at `counts`, or extend its
 /// end segment, to degC.
 pub(crate) fn degc(points: &[TempPoint], counts: u16) -> Fx {
-    interpolate(points, segment(points, counts, usize::MAX), counts)
+    interpolate(points, segment(points, counts), counts)
 }
 
 /// The segment of a checked table that holds `counts`: the index of the
 /// last point with counts at or below the reading, limited to
-/// `[0, len - 2]` (the end segments extend past the table). `hint` is the
-/// segment of the previous reading: it is taken when it holds `counts`
-/// (two comparisons; temperature moves slowly), then its neighbour on the
-/// side of the reading (a reading that dithers across a table point);
-/// otherwise a binary search finds the segment. The answer does not depend
-/// on `hint`.
-pub(crate) fn segment(points: &[TempPoint], counts: u16, hint: usize) -> usize {
-    let last = points.len().saturating_sub(2);
-    let holds = |i: usize| {
-        let above_start = i == 0 || points.get(i).is_some_and(|p| p.counts <= counts);
-        let below_end = i == last
-            || points
-                .get(i.saturating_add(1))
-                .is_some_and(|p| counts < p.counts);
-        (above_start, below_end)
-    };
-    if hint <= last {
-        let neighbour = match holds(hint) {
-            (true, true) => return hint,
-            (false, _) => hint.checked_sub(1),
-            (true, false) => Some(hint.saturating_add(1)),
-        };
-        if let Some(n) = neighbour.filter(|n| *n <= last) {
-            if holds(n) == (true, true) {
-                return n;
-            }
+/// `[0, len - 2]` (the end segments extend past the table). A binary
+/// search of fixed shape: the same number of halvings for every reading
+/// (six for 33 points), each a load, a comparison and a conditional move.
+pub(crate) fn segment(points: &[TempPoint], counts: u16) -> usize {
+    search(points, counts, points.len()).min(points.len().saturating_sub(2))
+}
+
+/// The last of the first `size` points (at most `points.len()`) with
+/// counts at or below the reading, or 0 when there is none.
+#[inline]
+fn search(points: &[TempPoint], counts: u16, size: usize) -> usize {
+    // The answer lies in `[base, base + size)`: `base` is 0 or a point at
+    // or below the reading.
+    let mut base = 0usize;
+    let mut size = size;
+    while size > 1 {
+        let half = size / 2;
+        // `base + size <= len` throughout: no overflow.
+        let mid = base + half;
+        if points.get(mid).is_some_and(|p| p.counts <= counts) {
+            base = mid;
         }
+        size -= half;
     }
-    points
-        .partition_point(|p| p.counts <= counts)
-        .saturating_sub(1)
-        .min(last)
+    base
 }
 
 /// One table segment, as the window's interpolation needs it.
@@ -129,22 +122,17 @@ impl Span {
     }
 }
 
-/// The readings (as an inclusive range of counts) for which the segment
-/// from `a` to `b` interpolates in 32 bits: the temperature step `dt`
-/// fits i32 and `|dt·(counts - a.counts)| <= i32::MAX`. `None` when the
-/// step itself does not fit i32.
-fn reach(a: &TempPoint, b: &TempPoint) -> Option<(i32, i32)> {
-    let dt = b.degc.to_bits().checked_sub(a.degc.to_bits())?;
-    // Farthest distance from `a` in counts (a 32-bit division); a flat
-    // segment reaches every reading.
+/// How far from `a`, in counts, the segment from `a` to `b` interpolates
+/// in 32 bits: the largest `k` (at most 65 535) with `|dt|·k <= i32::MAX`,
+/// one 32-bit division. A step `dt` beyond i32 gives 0 (only `a` itself,
+/// where the product is zero whatever the wrapped step); a flat segment
+/// (not in a checked table) reaches every reading.
+#[inline]
+fn reach(a: &TempPoint, b: &TempPoint) -> u16 {
     let k = (i32::MAX as u32)
-        .checked_div(dt.unsigned_abs())
-        .unwrap_or(u32::from(u16::MAX))
-        .min(u32::from(u16::MAX));
-    // Both within [0, 65_535] after the clamp; `k` too.
-    let k = i32::from(u16::try_from(k).unwrap_or(u16::MAX));
-    let a = i32::from(a.counts);
-    Some(((a - k).max(0), (a + k).min(i32::from(u16::MAX))))
+        .checked_div(b.degc.to_bits().abs_diff(a.degc.to_bits()))
+        .unwrap_or(u32::MAX);
+    u16::try_from(k).unwrap_or(u16::MAX)
 }
 
 /// Two adjacent table segments around the latest reading, with what their
@@ -155,17 +143,17 @@ fn reach(a: &TempPoint, b: &TempPoint) -> Option<(i32, i32)> {
 /// [`reach`]): any other reading is converted by [`relocate`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub(crate) struct Window {
-    /// Lowest reading the window holds (0 when it starts with the first
-    /// segment and that reaches down to zero).
+    /// Lowest reading the window holds.
     lo_counts: u16,
     /// The table point between the two segments: readings below it are in
     /// `first`, readings at or above it in `second`.
     mid_counts: u16,
-    /// Highest reading the window holds (`u16::MAX` when it ends with the
-    /// last segment and that reaches up to there).
+    /// Highest reading the window holds (below the table's last point).
     hi_counts: u16,
-    /// Index of the first segment in the table.
-    index: u8,
+    /// Every segment of the table interpolates its whole width in 32 bits
+    /// (see [`spans_fit`]; worked out once, with the controller): windows
+    /// found again need no narrowing. Kept from window to window.
+    fit: bool,
     first: Span,
     second: Span,
 }
@@ -179,23 +167,34 @@ const ZERO_SPAN: Span = Span {
 };
 
 impl Window {
-    /// No window: every reading misses it.
+    /// No window yet, for `points`: every reading misses it.
+    pub(crate) fn empty(points: &[TempPoint]) -> Window {
+        Window {
+            fit: spans_fit(points),
+            ..Window::NONE
+        }
+    }
+
+    /// No window: every reading misses it (and windows found from it are
+    /// narrowed, which is always exact).
     pub(crate) const NONE: Window = Window {
         lo_counts: 1,
         mid_counts: 1,
         hi_counts: 0,
-        index: 0,
+        fit: false,
         first: ZERO_SPAN,
         second: ZERO_SPAN,
     };
 
     /// The window of a checked table around `counts`, given `j`, the
     /// segment that holds it (see [`segment`]): `j` and its neighbour on
-    /// the side of the nearer end point, narrowed to the readings both
-    /// interpolate in 32 bits. It may not hold `counts` (a reading far
-    /// past the end of a table with steep end segments), or be empty
-    /// (fewer than two points, or segments too steep for 32 bits).
-    fn around(points: &[TempPoint], counts: u16, j: usize) -> Window {
+    /// the side of the nearer end point, from the start of the first to
+    /// just below the end of the second (readings beyond the table's ends
+    /// are converted without it, see [`relocate`]). When `fit` (see
+    /// [`spans_fit`]) every segment interpolates its whole width in 32
+    /// bits; otherwise the window is narrowed to the readings both
+    /// segments interpolate in 32 bits, and may not hold `counts`.
+    fn around(points: &[TempPoint], counts: u16, j: usize, fit: bool) -> Window {
         let last = points.len().saturating_sub(2);
         let near_start = match (points.get(j), points.get(j.saturating_add(1))) {
             (Some(a), Some(b)) => counts.saturating_sub(a.counts) < b.counts.saturating_sub(counts),
@@ -213,55 +212,56 @@ impl Window {
             // converts every reading (to zero, as [`interpolate`] does).
             return Window::NONE;
         };
-        // A table has at most TEMP_TABLE_LEN (33) points.
-        let index = u8::try_from(w).unwrap_or(u8::MAX);
         let first = Span::new(a, mid);
-        let reach_first = reach(a, mid);
-        // The readings each segment serves, before narrowing: `first`
-        // below the middle point, `second` from it up.
-        let (lo, mid_counts, hi, second, reach_second) = match points.get(w.saturating_add(2)) {
-            // A one-segment table: the window is that segment (as `second`)
-            // for every reading.
-            None => (0, 0, i32::from(u16::MAX), first, reach_first),
-            Some(c) => {
-                let lo = if w == 0 { 0 } else { i32::from(a.counts) };
-                let hi = if w.saturating_add(1) >= last {
-                    i32::from(u16::MAX)
-                } else {
-                    i32::from(c.counts) - 1
-                };
-                (lo, mid.counts, hi, Span::new(mid, c), reach(mid, c))
-            }
+        // The segment above the middle point; a one-segment table has
+        // none: its window is that segment (as `second`) from its start.
+        let (lo_counts, mid_counts, end, second) = match points.get(w.saturating_add(2)) {
+            Some(c) => (a.counts, mid.counts, c, Span::new(mid, c)),
+            None => (a.counts, a.counts, mid, first),
         };
-        let m = i32::from(mid_counts);
-        // Readings from the middle up: as far as `second` reaches, if it
-        // reaches down to the middle.
-        let hi = match reach_second {
-            Some((r_lo, r_hi)) if r_lo <= m => hi.min(r_hi),
-            _ => m - 1,
+        let mut window = Window {
+            lo_counts,
+            mid_counts,
+            hi_counts: end.counts.saturating_sub(1),
+            fit,
+            first,
+            second,
         };
-        // Readings below the middle: from as far down as `first` reaches,
-        // if it reaches up to just below the middle (none when the middle
-        // is the lowest reading).
-        let lo = match reach_first {
-            Some((r_lo, r_hi)) if lo < m && r_hi >= m - 1 => lo.max(r_lo),
-            _ => m,
+        if !fit {
+            window.narrow(points, w);
+        }
+        window
+    }
+
+    /// Narrow a window built from segment `w` to the readings its
+    /// segments interpolate in 32 bits (see [`reach`]): `second` up from
+    /// the middle as far as it reaches (at least the middle itself),
+    /// `first` only if it reaches from its start to just below the middle.
+    #[cold]
+    fn narrow(&mut self, points: &[TempPoint], w: usize) {
+        let (Some(a), Some(b)) = (points.get(w), points.get(w.saturating_add(1))) else {
+            return;
         };
-        match (u16::try_from(lo), u16::try_from(hi)) {
-            (Ok(lo_counts), Ok(hi_counts)) if lo <= hi => Window {
-                lo_counts,
-                mid_counts,
-                hi_counts,
-                index,
-                first,
-                second,
-            },
-            _ => Window {
-                index,
-                ..Window::NONE
-            },
+        let (m, k_second) = match points.get(w.saturating_add(2)) {
+            Some(c) => (b.counts, reach(b, c)),
+            // One segment: `second` is the segment itself.
+            None => (a.counts, reach(a, b)),
+        };
+        self.hi_counts = self.hi_counts.min(m.saturating_add(k_second));
+        if self.lo_counts < m && reach(a, b) < m.saturating_sub(a.counts).saturating_sub(1) {
+            self.lo_counts = m;
         }
     }
+}
+
+/// Whether every segment of a checked table interpolates its whole width
+/// in 32 bits (its [`reach`] is at least its width less one): then no
+/// window needs narrowing. Worked out at validation.
+pub(crate) fn spans_fit(points: &[TempPoint]) -> bool {
+    points.windows(2).all(|s| match s {
+        [a, b] => reach(a, b) >= b.counts.saturating_sub(a.counts).saturating_sub(1),
+        _ => true,
+    })
 }
 
 /// [`degc`] through the window of the previous reading (`window`,
@@ -294,20 +294,27 @@ impl Window {
     }
 }
 
-/// A reading outside the window: the window is found again around it
-/// (searching from the window's segment on the reading's side) and the
-/// reading is converted through it, or by [`interpolate`] when even the
-/// new window does not hold it.
+/// A reading outside the window. Beyond either end of the table (a
+/// sensor at its rail, a glitch) the end segment converts it, extended,
+/// and the window is kept for the reading's return. Inside, the window is
+/// found again around the reading (see [`segment`] and
+/// [`Window::around`]); the reading is converted by [`interpolate`]
+/// (the same result as through the window, and it does not need the
+/// window to hold it).
 #[inline(never)]
 fn relocate(points: &[TempPoint], counts: u16, window: &mut Window) -> Fx {
-    let hint = usize::from(window.index) + usize::from(counts > window.hi_counts);
-    let j = segment(points, counts, hint);
-    *window = Window::around(points, counts, j);
-    if window.misses(counts) {
-        interpolate(points, j, counts)
-    } else {
-        window.interpolate(counts)
+    let (Some(first), Some(last)) = (points.first(), points.last()) else {
+        return Fx::ZERO;
+    };
+    if counts >= last.counts {
+        return interpolate(points, points.len().saturating_sub(2), counts);
     }
+    if counts < first.counts {
+        return interpolate(points, 0, counts);
+    }
+    let j = segment(points, counts);
+    *window = Window::around(points, counts, j, window.fit);
+    interpolate(points, j, counts)
 }
 
 /// `a + trunc(dt·x/dc)` in 64 bits, saturated (a product beyond 32 bits).
@@ -420,6 +427,227 @@ mod tests {
         y.clamp(i128::from(i32::MIN), i128::from(i32::MAX)) as i32
     }
 
+    /// The window search and rebuild as they were before the end-of-table
+    /// fast path and the fixed-shape search, kept to compare with.
+    mod old {
+        use super::super::*;
+
+        /// The segment search with a hint: the hint, its neighbour on the
+        /// reading's side, then a binary search.
+        pub(super) fn segment(points: &[TempPoint], counts: u16, hint: usize) -> usize {
+            let last = points.len().saturating_sub(2);
+            let holds = |i: usize| {
+                let above_start = i == 0 || points.get(i).is_some_and(|p| p.counts <= counts);
+                let below_end = i == last
+                    || points
+                        .get(i.saturating_add(1))
+                        .is_some_and(|p| counts < p.counts);
+                (above_start, below_end)
+            };
+            if hint <= last {
+                let neighbour = match holds(hint) {
+                    (true, true) => return hint,
+                    (false, _) => hint.checked_sub(1),
+                    (true, false) => Some(hint.saturating_add(1)),
+                };
+                if let Some(n) = neighbour.filter(|n| *n <= last) {
+                    if holds(n) == (true, true) {
+                        return n;
+                    }
+                }
+            }
+            points
+                .partition_point(|p| p.counts <= counts)
+                .saturating_sub(1)
+                .min(last)
+        }
+
+        /// The readings (inclusive) the segment `a`..`b` interpolates in
+        /// 32 bits.
+        fn reach(a: &TempPoint, b: &TempPoint) -> Option<(i32, i32)> {
+            let dt = b.degc.to_bits().checked_sub(a.degc.to_bits())?;
+            let k = (i32::MAX as u32)
+                .checked_div(dt.unsigned_abs())
+                .unwrap_or(u32::from(u16::MAX))
+                .min(u32::from(u16::MAX));
+            let k = i32::from(u16::try_from(k).unwrap_or(u16::MAX));
+            let a = i32::from(a.counts);
+            Some(((a - k).max(0), (a + k).min(i32::from(u16::MAX))))
+        }
+
+        /// The window around `counts` in segment `j`.
+        fn around(points: &[TempPoint], counts: u16, j: usize) -> Window {
+            let last = points.len().saturating_sub(2);
+            let near_start = match (points.get(j), points.get(j.saturating_add(1))) {
+                (Some(a), Some(b)) => {
+                    counts.saturating_sub(a.counts) < b.counts.saturating_sub(counts)
+                }
+                _ => false,
+            };
+            let w = if j > 0 && (near_start || j == last) {
+                j - 1
+            } else {
+                j
+            };
+            let (Some(a), Some(mid)) = (points.get(w), points.get(w.saturating_add(1))) else {
+                return Window::NONE;
+            };
+            let first = Span::new(a, mid);
+            let reach_first = reach(a, mid);
+            let (lo, mid_counts, hi, second, reach_second) = match points.get(w + 2) {
+                None => (0, 0, i32::from(u16::MAX), first, reach_first),
+                Some(c) => {
+                    let lo = if w == 0 { 0 } else { i32::from(a.counts) };
+                    let hi = if w + 1 >= last {
+                        i32::from(u16::MAX)
+                    } else {
+                        i32::from(c.counts) - 1
+                    };
+                    (lo, mid.counts, hi, Span::new(mid, c), reach(mid, c))
+                }
+            };
+            let m = i32::from(mid_counts);
+            let hi = match reach_second {
+                Some((r_lo, r_hi)) if r_lo <= m => hi.min(r_hi),
+                _ => m - 1,
+            };
+            let lo = match reach_first {
+                Some((r_lo, r_hi)) if lo < m && r_hi >= m - 1 => lo.max(r_lo),
+                _ => m,
+            };
+            match (u16::try_from(lo), u16::try_from(hi)) {
+                (Ok(lo_counts), Ok(hi_counts)) if lo <= hi => Window {
+                    lo_counts,
+                    mid_counts,
+                    hi_counts,
+                    fit: false,
+                    first,
+                    second,
+                },
+                _ => Window::NONE,
+            }
+        }
+
+        /// The cached conversion: the window, or the search and a new
+        /// window around the reading.
+        pub(super) fn degc_cached(points: &[TempPoint], counts: u16, window: &mut Window) -> Fx {
+            if !window.misses(counts) {
+                return window.interpolate(counts);
+            }
+            // (The hint it took from the window's segment index only
+            // shortened the search: the segment found is the same from
+            // every hint, see the test below.)
+            let j = segment(points, counts, usize::MAX);
+            *window = around(points, counts, j);
+            if window.misses(counts) {
+                interpolate(points, j, counts)
+            } else {
+                window.interpolate(counts)
+            }
+        }
+    }
+
+    #[test]
+    fn every_count_from_every_window_equals_the_old_conversion() {
+        // Tables: the demo NTC table, steep steps beyond 32 bits, products
+        // with far readings beyond 32 bits, a single steep segment, flat and
+        // extended end segments, a table starting at 0 and ending at
+        // 65 535, one and two segments, 33 points.
+        let steep = [
+            p(10, -30_000),
+            p(20, 30_000),
+            p(40_000, 32_000),
+            p(40_001, 32_767),
+        ];
+        let far = [p(0, -32_768), p(1, 0), p(30_000, 1), p(65_535, 32_767)];
+        let single = [p(30_000, -20_000), p(30_010, 20_000)];
+        let flat_ends = [p(100, 0), p(200, 100), p(300, 101), p(60_000, 102)];
+        let two = [p(100, 5), p(200, -5)];
+        let three = [p(100, 5), p(200, -5), p(201, -7)];
+        let full: [TempPoint; TEMP_TABLE_LEN] =
+            core::array::from_fn(|i| p(500 + 100 * i as u16, 150 - 7 * i as i32));
+        for table in [
+            &crate::example::DEMO_TEMP_TABLE[..],
+            &steep[..],
+            &far[..],
+            &single[..],
+            &flat_ends[..],
+            &two[..],
+            &three[..],
+            &full[..],
+        ] {
+            check(table).unwrap();
+            // With the table's own flag, and with narrowing forced (the
+            // general path, always exact).
+            for fit in [spans_fit(table), false] {
+                compare_from_every_window(table, fit);
+            }
+        }
+        assert!(spans_fit(&crate::example::DEMO_TEMP_TABLE));
+        assert!(spans_fit(&full));
+        assert!(!spans_fit(&steep));
+        assert!(!spans_fit(&single));
+    }
+
+    /// Every window state either conversion leaves, from no window at all
+    /// (with the table's flag `fit` or without) and around every table
+    /// point and segment middle; from each, every reading 0..=65 535
+    /// converted by both.
+    fn compare_from_every_window(table: &[TempPoint], fit: bool) {
+        let mut states: heapless::Vec<Window, 512> = heapless::Vec::new();
+        fn keep(states: &mut heapless::Vec<Window, 512>, w: Window) {
+            if !states.contains(&w) {
+                states.push(w).unwrap();
+            }
+        }
+        keep(&mut states, Window::NONE);
+        keep(
+            &mut states,
+            Window {
+                fit,
+                ..Window::NONE
+            },
+        );
+        let readings = table
+            .iter()
+            .flat_map(|q| {
+                [
+                    q.counts.saturating_sub(1),
+                    q.counts,
+                    q.counts.saturating_add(1),
+                ]
+            })
+            .chain(table.windows(2).map(|s| s[0].counts / 2 + s[1].counts / 2))
+            .chain([0, 1, u16::MAX - 1, u16::MAX]);
+        for r in readings {
+            // From no window and from the window of a distant reading.
+            for from in [
+                Window {
+                    fit,
+                    ..Window::NONE
+                },
+                states[states.len() / 2],
+            ] {
+                let (mut a, mut b) = (from, from);
+                degc_cached(table, r, &mut a);
+                old::degc_cached(table, r, &mut b);
+                keep(&mut states, a);
+                keep(&mut states, b);
+            }
+        }
+        assert!(states.len() >= 2, "{} window states", states.len());
+        for from in &states {
+            for counts in 0..=u16::MAX {
+                let (mut a, mut b) = (*from, *from);
+                assert_eq!(
+                    degc_cached(table, counts, &mut a).to_bits(),
+                    old::degc_cached(table, counts, &mut b).to_bits(),
+                    "counts {counts} from {from:?} fit {fit}"
+                );
+            }
+        }
+    }
+
     #[test]
     fn every_count_and_every_hint_match_the_wide_reference() {
         // The demo NTC table (small segments: the 32-bit path inside, the
@@ -437,16 +665,14 @@ mod tests {
             for counts in (0..=u16::MAX).step_by(7).chain([0, 9, 10, 11, u16::MAX]) {
                 let want = reference_bits(table, counts);
                 assert_eq!(degc(table, counts).to_bits(), want, "counts {counts}");
+                let i = segment(table, counts);
+                assert_eq!(interpolate(table, i, counts).to_bits(), want);
+                // The search it replaces, from every hint.
                 for hint in [0, 1, last / 2, last, last + 1, usize::MAX] {
-                    let i = segment(table, counts, hint);
-                    assert_eq!(i, segment(table, counts, usize::MAX), "counts {counts}");
-                    assert_eq!(interpolate(table, i, counts).to_bits(), want);
+                    assert_eq!(i, old::segment(table, counts, hint), "counts {counts}");
                 }
                 for hint in 0..=last {
-                    assert_eq!(
-                        segment(table, counts, hint),
-                        segment(table, counts, usize::MAX)
-                    );
+                    assert_eq!(i, old::segment(table, counts, hint));
                 }
             }
         }
@@ -472,7 +698,7 @@ mod tests {
             &three[..],
         ] {
             check(table).unwrap();
-            let mut seg = Window::NONE;
+            let mut seg = Window::empty(table);
             let mut convert = |counts: u16| {
                 assert_eq!(
                     degc_cached(table, counts, &mut seg).to_bits(),
@@ -555,7 +781,7 @@ mod tests {
                 .chain([0, u16::MAX]);
             for start in starts {
                 // The window the controller would keep after this reading.
-                let mut w = Window::NONE;
+                let mut w = Window::empty(table);
                 degc_cached(table, start, &mut w);
                 let probes = (-600i32..=600)
                     .step_by(7)
@@ -573,7 +799,7 @@ mod tests {
                         continue;
                     }
                     held += 1;
-                    let i = segment(table, c, usize::MAX);
+                    let i = segment(table, c);
                     let want = checked_span_interpolation(&table[i], &table[i + 1], c);
                     assert_eq!(w.interpolate(c), want, "counts {c} window {w:?}");
                 }

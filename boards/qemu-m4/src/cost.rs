@@ -11,7 +11,9 @@
 //!   The block is timed as a whole, less the same loop without the call.
 //! - Exact single step by replay ([`replay_one`]): the slowest step seen in
 //!   situ is repeated many times from a clone of the controller as it was
-//!   before that step, less the same loop without the call.
+//!   before that step, less the same loop without the call. On the paths
+//!   of a few steps ([`Path::replay_every`]) every step is replayed as it
+//!   happens and the slowest by replay is the one kept.
 
 use core::hint::black_box;
 
@@ -30,11 +32,44 @@ pub enum Path {
     Latched,
     /// Anything else: off, arming, soft start, hand-over, soft stop.
     Other,
+    /// Regulating before and after, on a step whose temperature reading
+    /// jumped out of the cached table window (the scenario marks it).
+    RegulatingRelocating,
+    /// The step that latched a fault, on a jump of the temperature reading.
+    TripRelocating,
+    /// Latched before and after, on a jump of the temperature reading.
+    LatchedRelocating,
 }
 
 impl Path {
     /// Number of paths.
-    pub const COUNT: usize = 4;
+    pub const COUNT: usize = 7;
+
+    /// Every path, in the order of the cost table.
+    pub const ALL: [Path; Path::COUNT] = [
+        Path::Regulating,
+        Path::Trip,
+        Path::Latched,
+        Path::Other,
+        Path::RegulatingRelocating,
+        Path::TripRelocating,
+        Path::LatchedRelocating,
+    ];
+
+    /// Whether every step of the path is replayed to find its slowest
+    /// (the paths of a few steps: the trips and the marked jumps), rather
+    /// than the slowest-read one.
+    pub const fn replay_every(self) -> bool {
+        matches!(self, Path::Trip) || self.relocating()
+    }
+
+    /// Whether the path is one of the marked temperature jumps.
+    pub const fn relocating(self) -> bool {
+        matches!(
+            self,
+            Path::RegulatingRelocating | Path::TripRelocating | Path::LatchedRelocating
+        )
+    }
 
     /// Index into per-path tables.
     pub const fn index(self) -> usize {
@@ -43,6 +78,9 @@ impl Path {
             Path::Trip => 1,
             Path::Latched => 2,
             Path::Other => 3,
+            Path::RegulatingRelocating => 4,
+            Path::TripRelocating => 5,
+            Path::LatchedRelocating => 6,
         }
     }
 
@@ -53,16 +91,27 @@ impl Path {
             Path::Trip => "fault trip",
             Path::Latched => "latched",
             Path::Other => "start/stop",
+            Path::RegulatingRelocating => "regulating, relocating",
+            Path::TripRelocating => "sensor trip, relocating",
+            Path::LatchedRelocating => "latched, relocating",
         }
     }
 
-    /// Classify a step.
-    pub fn of(before: diodestat_core::State, after: diodestat_core::State) -> Path {
+    /// Classify a step; `relocating` when the scenario marked it as one
+    /// whose temperature reading jumps out of the cached table window.
+    pub fn of(
+        before: diodestat_core::State,
+        after: diodestat_core::State,
+        relocating: bool,
+    ) -> Path {
         use diodestat_core::State::{Latched, Regulating};
-        match (before, after) {
-            (Regulating, Regulating) => Path::Regulating,
-            (Latched, Latched) => Path::Latched,
-            (_, Latched) => Path::Trip,
+        match (before, after, relocating) {
+            (Regulating, Regulating, false) => Path::Regulating,
+            (Regulating, Regulating, true) => Path::RegulatingRelocating,
+            (Latched, Latched, false) => Path::Latched,
+            (Latched, Latched, true) => Path::LatchedRelocating,
+            (_, Latched, false) => Path::Trip,
+            (_, Latched, true) => Path::TripRelocating,
             _ => Path::Other,
         }
     }

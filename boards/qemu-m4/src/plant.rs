@@ -78,6 +78,9 @@ pub struct Injected {
     pub source_stuck_ua: Option<i32>,
     /// The safety interlock is open.
     pub interlock_open: bool,
+    /// The temperature ADC reads this instead of the NTC: a sensor open
+    /// or shorted to a rail, a connector glitch, a jump across the table.
+    pub temp_counts: Option<u16>,
 }
 
 /// The plant state.
@@ -155,7 +158,7 @@ impl Plant {
             tick,
             monitor_counts: adc12(monitor),
             current_counts: adc12(sense),
-            temp_counts: adc12(temp),
+            temp_counts: self.faults.temp_counts.unwrap_or(adc12(temp)),
             supply_counts: adc12(supply),
             interlock_closed: !self.faults.interlock_open,
         }

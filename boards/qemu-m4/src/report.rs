@@ -27,7 +27,8 @@ pub struct PathCost {
     pub worst_counts: u32,
     /// Bound on every step of the path: (worst reading + 1) counts, ×10.
     pub worst_bound_x10: u64,
-    /// The slowest-read step replayed exactly, ×10.
+    /// The slowest-read step replayed exactly (on the paths of
+    /// [`Path::replay_every`], the slowest by replay), ×10.
     pub worst_exact_x10: Option<u64>,
 }
 
@@ -113,7 +114,7 @@ impl core::fmt::Display for Opt {
 /// Print one row of the cost table.
 pub fn print_row(path: Path, p: &PathCost) {
     hprintln!(
-        "  {:<11} {:>6} {:>10} {:>10} {:>6} {:>10} {:>10}",
+        "  {:<23} {:>6} {:>10} {:>10} {:>6} {:>10} {:>10}",
         path.name(),
         p.steps,
         Opt(p.replay_mean_x10),
@@ -136,9 +137,12 @@ pub fn print_table<S: Snapshots>(
 ) -> [PathCost; Path::COUNT] {
     print_heading(sw);
     let mut costs = [PathCost::default(); Path::COUNT];
-    for path in [Path::Regulating, Path::Trip, Path::Latched, Path::Other] {
+    for path in Path::ALL {
         let i = path.index();
         if let (Some(cost), Some(st)) = (costs.get_mut(i), stats.get(i)) {
+            if path.relocating() && st.steps == 0 {
+                continue;
+            }
             *cost = path_cost(sw, st, snapshots.get(path));
             cost.replay_mean_x10 = match path {
                 Path::Regulating => regulating_block_x10,
@@ -157,8 +161,18 @@ pub fn print_table<S: Snapshots>(
             "  worst (exact): the slowest-read step re-run {} times from its snapshot",
             REPEAT_ONE
         );
+        hprintln!("  (fault trip and relocating: every step replayed, the slowest of them)");
     }
     hprintln!("  worst (bound): every step of the path is below (largest reading + 1) counts");
+    if stats
+        .iter()
+        .zip(Path::ALL)
+        .any(|(st, p)| p.relocating() && st.steps > 0)
+    {
+        hprintln!(
+            "  relocating: the steps on which the temperature reading jumps out of its window"
+        );
+    }
     costs
 }
 
@@ -172,7 +186,7 @@ pub fn print_heading(sw: &Stopwatch) {
         counts
     );
     hprintln!(
-        "  {:<11} {:>6} {:>10} {:>10} {:>6} {:>10} {:>10}",
+        "  {:<23} {:>6} {:>10} {:>10} {:>6} {:>10} {:>10}",
         "path",
         "steps",
         "mean",
@@ -182,7 +196,7 @@ pub fn print_heading(sw: &Stopwatch) {
         "worst"
     );
     hprintln!(
-        "  {:<11} {:>6} {:>10} {:>10} {:>6} {:>10} {:>10}",
+        "  {:<23} {:>6} {:>10} {:>10} {:>6} {:>10} {:>10}",
         "",
         "",
         "(replay)",

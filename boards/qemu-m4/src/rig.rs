@@ -4,7 +4,7 @@
 
 use diodestat_core::{Controller, Drive, Fx, Sample, State};
 
-use crate::cost::{Path, PathStats, Snapshots, WorstSnapshots};
+use crate::cost::{replay_one, Path, PathStats, Snapshots, WorstSnapshots};
 use crate::plant::Plant;
 use crate::stopwatch::Stopwatch;
 
@@ -59,7 +59,14 @@ pub struct Rig<S: Snapshots = WorstSnapshots> {
     pub stats: [PathStats; Path::COUNT],
     /// The slowest step of each path.
     pub snapshots: S,
+    /// Replay counts of the slowest step of each path whose every step is
+    /// replayed ([`Path::replay_every`]).
+    replayed_worst: [u32; Path::COUNT],
 }
+
+/// Repetitions of the replay that picks the slowest step of a path whose
+/// every step is replayed (resolution 0.4 instructions).
+const PICK_REPEAT: u32 = 100;
 
 impl<S: Snapshots> Rig<S> {
     /// A rig at tick 0.
@@ -74,6 +81,7 @@ impl<S: Snapshots> Rig<S> {
             peak_dac: 0,
             stats: Default::default(),
             snapshots: S::default(),
+            replayed_worst: [0; Path::COUNT],
         };
         rig.clear_trace();
         rig
@@ -98,6 +106,20 @@ impl<S: Snapshots> Rig<S> {
 
     /// One tick; returns the drive.
     pub fn tick(&mut self) -> Drive {
+        self.tick_marked(false)
+    }
+
+    /// One tick whose temperature reading the scenario has made jump out
+    /// of the cached table window: the step is filed under the relocating
+    /// paths. With snapshots kept, every step of these paths and of the
+    /// trip path ([`Path::replay_every`], a few steps each) is replayed on
+    /// the spot and the slowest by replay (not by its quantised reading)
+    /// is kept, so their exact worst is that of every step.
+    pub fn tick_relocating(&mut self) -> Drive {
+        self.tick_marked(true)
+    }
+
+    fn tick_marked(&mut self, relocating: bool) -> Drive {
         let sample = self.plant.sample(self.tick);
         let before = self.ctl.state();
         let pre = if S::KEEP {
@@ -108,13 +130,24 @@ impl<S: Snapshots> Rig<S> {
         let t0 = Stopwatch::now();
         let drive = self.ctl.step(&sample);
         let t1 = Stopwatch::now();
-        let path = Path::of(before, drive.status.state);
+        let path = Path::of(before, drive.status.state, relocating);
         let slowest = self
             .stats
             .get_mut(path.index())
             .is_some_and(|st| st.add(Stopwatch::counts(t0, t1)));
-        if let (true, Some(pre)) = (slowest, pre.as_ref()) {
-            self.snapshots.put(path, pre, &sample);
+        if let Some(pre) = pre.as_ref() {
+            if path.replay_every() {
+                let (with, without) = replay_one(pre, &sample, PICK_REPEAT);
+                let counts = with.saturating_sub(without);
+                if let Some(w) = self.replayed_worst.get_mut(path.index()) {
+                    if counts >= *w {
+                        *w = counts;
+                        self.snapshots.put(path, pre, &sample);
+                    }
+                }
+            } else if slowest {
+                self.snapshots.put(path, pre, &sample);
+            }
         }
         if self.trace.last() != Some(&drive.status.state) {
             // A full trace keeps its first entries; the checks see the overflow

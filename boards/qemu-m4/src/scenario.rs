@@ -3,7 +3,7 @@
 //! clearing, and a soft stop. Each phase records its expected outcomes in
 //! [`Checks`].
 
-use diodestat_core::{Fault, Fx, Rejection, Request, State};
+use diodestat_core::{Drive, Fault, Fx, Rejection, Request, State};
 
 use crate::checks::{section, Checks};
 use crate::cost::Snapshots;
@@ -377,4 +377,133 @@ pub fn soft_stop<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
         "state sequence",
         &[State::Regulating, State::Stopping, State::Off],
     );
+}
+
+/// One tick with the temperature ADC forced to `counts` (`None`: the NTC
+/// again), marked as a jump out of the cached table window.
+fn jump<S: Snapshots>(rig: &mut Rig<S>, counts: Option<u16>) -> Drive {
+    rig.plant.faults.temp_counts = counts;
+    rig.tick_relocating()
+}
+
+/// While regulating, the temperature reading jumps across many table
+/// segments at once: the sensor goes to its open rail and back (within
+/// its debounce), to the short rail and back, from cold to hot inside the
+/// table and back. Each jump is a step that finds the table window again;
+/// the loop keeps regulating and nothing latches.
+pub fn temperature_jumps<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
+    section("temperature reading jumps while regulating");
+    let tpm = ticks_per_ms(rig);
+    let sp = Fx::from_num(5);
+    if !start(rig, c, sp) {
+        return;
+    }
+    rig.run(10 * tpm);
+    let debounce = rig.ctl.config().config().protection.sensor_debounce;
+    let open_counts = rig
+        .ctl
+        .config()
+        .config()
+        .calibration
+        .temperature
+        .high_fault_counts;
+    let held = u32::from(debounce.saturating_sub(2)).max(1);
+    let mut ok = true;
+    // The sensor opens (the demo's open rail is the high one) for fewer
+    // ticks than its debounce, then reads the NTC again.
+    jump(rig, Some(4095));
+    let at_rail = rig.ctl.measurements().sensor_at_rail;
+    ok &= rig.ctl.state() == State::Regulating;
+    for _ in 1..held {
+        rig.tick();
+    }
+    jump(rig, None);
+    ok &= rig.ctl.state() == State::Regulating;
+    c.check(
+        "sensor open for less than its debounce: still regulating",
+        ok && at_rail && rig.ctl.faults().is_empty(),
+        format_args!(
+            "{} ticks at 4095 counts (open at >= {}, debounce {}), state {:?}",
+            held,
+            open_counts,
+            debounce,
+            rig.ctl.state()
+        ),
+    );
+    rig.run(tpm);
+    // The same to the other rail, for one tick.
+    jump(rig, Some(0));
+    let at_rail = rig.ctl.measurements().sensor_at_rail;
+    jump(rig, None);
+    c.check(
+        "sensor shorted for one tick: still regulating",
+        at_rail && rig.ctl.state() == State::Regulating && rig.ctl.faults().is_empty(),
+        format_args!("state {:?}", rig.ctl.state()),
+    );
+    rig.run(tpm);
+    // Cold to hot inside the table, on two of its points (the demo NTC
+    // table: 3492 counts at -15 degC, 476 counts at 90 degC), and back.
+    jump(rig, Some(3492));
+    let cold = rig.ctl.measurements().temp_degc;
+    jump(rig, Some(476));
+    let hot = rig.ctl.measurements().temp_degc;
+    jump(rig, None);
+    let back = rig.ctl.measurements().temp_degc;
+    c.check(
+        "cold to hot jump converted on the table points",
+        cold == Fx::from_num(-15)
+            && hot == Fx::from_num(90)
+            && back > Fx::from_num(15)
+            && back < Fx::from_num(35)
+            && rig.ctl.state() == State::Regulating
+            && rig.ctl.faults().is_empty(),
+        format_args!(
+            "{} degC, {} degC, back to {} degC; state {:?}",
+            cold,
+            hot,
+            back,
+            rig.ctl.state()
+        ),
+    );
+    check_regulation(rig, c, "regulates at 5 mW after the jumps", sp, 5);
+    let _ = rig.ctl.request(Request::Disable);
+    rig.run(10 * tpm);
+}
+
+/// With a sensor debounce of one tick, the sensor going to a rail latches
+/// on the step whose reading jumps there (open rail, then short rail);
+/// the reading coming back while latched is a jump too.
+pub fn sensor_trip_relocating<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
+    section("sensor trip on the jumping step (debounce 1)");
+    let tpm = ticks_per_ms(rig);
+    c.check(
+        "sensor debounce of one tick",
+        rig.ctl.config().config().protection.sensor_debounce == 1,
+        format_args!(
+            "{} ticks",
+            rig.ctl.config().config().protection.sensor_debounce
+        ),
+    );
+    for (counts, fault) in [(4095, Fault::SensorOpen), (0, Fault::SensorShort)] {
+        if !start(rig, c, Fx::from_num(5)) {
+            return;
+        }
+        rig.run(10 * tpm);
+        jump(rig, Some(counts));
+        check_trip(
+            rig,
+            c,
+            fault,
+            "sensor latched on the step its reading jumps to the rail",
+        );
+        check_stays_off(rig, c, tpm);
+        check_clear_refused(rig, c, fault);
+        jump(rig, None);
+        c.check(
+            "reading back from the rail while latched",
+            rig.ctl.state() == State::Latched && !rig.ctl.measurements().sensor_at_rail,
+            format_args!("{} degC", rig.ctl.measurements().temp_degc),
+        );
+        check_clear_accepted(rig, c);
+    }
 }
