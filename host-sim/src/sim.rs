@@ -167,6 +167,10 @@ impl Plant {
 
     /// As [`Plant::new`], evaluating every model the straightforward way
     /// (no warm starts): the reference the fast path is checked against.
+    /// (An internal reference, not a published one: keeping the plain
+    /// evaluation beside an optimised one to test it is common practice;
+    /// the models' published sources are named in `crate::plant` and
+    /// `tests/tests/reference_physics.rs`.)
     pub fn new_reference(
         module: &DemoModule,
         ambient_c: f64,
