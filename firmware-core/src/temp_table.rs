@@ -400,6 +400,53 @@ mod tests {
         }
     }
 
+    /// The tables the conversion tests run over: steep steps beyond 32
+    /// bits, products with far readings beyond 32 bits, a single steep
+    /// segment, flat and extended end segments, a table starting at 0 and
+    /// ending at 65 535, one and two segments, 33 points.
+    struct Tables {
+        steep: [TempPoint; 4],
+        far: [TempPoint; 4],
+        single: [TempPoint; 2],
+        flat_ends: [TempPoint; 4],
+        two: [TempPoint; 2],
+        three: [TempPoint; 3],
+        full: [TempPoint; TEMP_TABLE_LEN],
+    }
+
+    impl Tables {
+        fn new() -> Self {
+            Tables {
+                steep: [
+                    p(10, -30_000),
+                    p(20, 30_000),
+                    p(40_000, 32_000),
+                    p(40_001, 32_767),
+                ],
+                far: [p(0, -32_768), p(1, 0), p(30_000, 1), p(65_535, 32_767)],
+                single: [p(30_000, -20_000), p(30_010, 20_000)],
+                flat_ends: [p(100, 0), p(200, 100), p(300, 101), p(60_000, 102)],
+                two: [p(100, 5), p(200, -5)],
+                three: [p(100, 5), p(200, -5), p(201, -7)],
+                full: core::array::from_fn(|i| p(500 + 100 * i as u16, 150 - 7 * i as i32)),
+            }
+        }
+
+        /// The demo table first, then the ones above in field order.
+        fn all(&self) -> [&[TempPoint]; 8] {
+            [
+                &crate::example::DEMO_TEMP_TABLE[..],
+                &self.steep,
+                &self.far,
+                &self.single,
+                &self.flat_ends,
+                &self.two,
+                &self.three,
+                &self.full,
+            ]
+        }
+    }
+
     #[test]
     fn interpolates_and_extends() {
         // Falling temperature with counts, as an NTC to ground with a pull-up.
@@ -553,29 +600,8 @@ mod tests {
         // with far readings beyond 32 bits, a single steep segment, flat and
         // extended end segments, a table starting at 0 and ending at
         // 65 535, one and two segments, 33 points.
-        let steep = [
-            p(10, -30_000),
-            p(20, 30_000),
-            p(40_000, 32_000),
-            p(40_001, 32_767),
-        ];
-        let far = [p(0, -32_768), p(1, 0), p(30_000, 1), p(65_535, 32_767)];
-        let single = [p(30_000, -20_000), p(30_010, 20_000)];
-        let flat_ends = [p(100, 0), p(200, 100), p(300, 101), p(60_000, 102)];
-        let two = [p(100, 5), p(200, -5)];
-        let three = [p(100, 5), p(200, -5), p(201, -7)];
-        let full: [TempPoint; TEMP_TABLE_LEN] =
-            core::array::from_fn(|i| p(500 + 100 * i as u16, 150 - 7 * i as i32));
-        for table in [
-            &crate::example::DEMO_TEMP_TABLE[..],
-            &steep[..],
-            &far[..],
-            &single[..],
-            &flat_ends[..],
-            &two[..],
-            &three[..],
-            &full[..],
-        ] {
+        let t = Tables::new();
+        for table in t.all() {
             check(table).unwrap();
             // With the table's own flag, and with narrowing forced (the
             // general path, always exact).
@@ -584,9 +610,9 @@ mod tests {
             }
         }
         assert!(spans_fit(&crate::example::DEMO_TEMP_TABLE));
-        assert!(spans_fit(&full));
-        assert!(!spans_fit(&steep));
-        assert!(!spans_fit(&single));
+        assert!(spans_fit(&t.full));
+        assert!(!spans_fit(&t.steep));
+        assert!(!spans_fit(&t.single));
     }
 
     /// Every window state either conversion leaves, from no window at all
@@ -749,25 +775,9 @@ mod tests {
         // Tables whose windows are narrowed: steps that do not fit i32,
         // steps whose product with a far reading does not, end segments
         // extended over the whole u16 range, a single steep segment.
-        let steep = [
-            p(10, -30_000),
-            p(20, 30_000),
-            p(40_000, 32_000),
-            p(40_001, 32_767),
-        ];
-        let far = [p(0, -32_768), p(1, 0), p(30_000, 1), p(65_535, 32_767)];
-        let single = [p(30_000, -20_000), p(30_010, 20_000)];
-        let flat_ends = [p(100, 0), p(200, 100), p(300, 101), p(60_000, 102)];
-        let two = [p(100, 5), p(200, -5)];
+        let t = Tables::new();
         let mut held = 0u32;
-        for table in [
-            &crate::example::DEMO_TEMP_TABLE[..],
-            &steep[..],
-            &far[..],
-            &single[..],
-            &flat_ends[..],
-            &two[..],
-        ] {
+        for table in t.all().into_iter().take(6) {
             check(table).unwrap();
             let starts = (0..=u16::MAX)
                 .step_by(97)
