@@ -15,9 +15,9 @@
 use core::panic::PanicInfo;
 
 use cortex_m_rt::entry;
-use cortex_m_semihosting::{debug, hprintln};
+use cortex_m_semihosting::hprintln;
 use diodestat_core::{example, Controller};
-use diodestat_qemu::checks::{section, Checks};
+use diodestat_qemu::checks::{finish, section, Checks};
 use diodestat_qemu::cost::NoSnapshots;
 use diodestat_qemu::plant::{Plant, PlantParams};
 use diodestat_qemu::report;
@@ -31,21 +31,7 @@ const BLOCK: usize = 64;
 #[panic_handler]
 fn panic(info: &PanicInfo) -> ! {
     hprintln!("panic: {}", info);
-    debug::exit(debug::EXIT_FAILURE);
-    loop {
-        cortex_m::asm::wfi();
-    }
-}
-
-fn finish(ok: bool) -> ! {
-    debug::exit(if ok {
-        debug::EXIT_SUCCESS
-    } else {
-        debug::EXIT_FAILURE
-    });
-    loop {
-        cortex_m::asm::wfi();
-    }
+    finish(false)
 }
 
 #[entry]

@@ -2,7 +2,7 @@
 
 use core::fmt;
 
-use cortex_m_semihosting::hprintln;
+use cortex_m_semihosting::{debug, hprintln};
 
 /// Counts of passed and failed checks.
 #[derive(Debug, Default)]
@@ -50,4 +50,17 @@ impl Checks {
 /// Print a section heading.
 pub fn section(title: &str) {
     hprintln!("== {}", title);
+}
+
+/// End the QEMU run through semihosting: exit code 0 when `ok`, 1
+/// otherwise (the process exit code of `qemu-system-arm`).
+pub fn finish(ok: bool) -> ! {
+    debug::exit(if ok {
+        debug::EXIT_SUCCESS
+    } else {
+        debug::EXIT_FAILURE
+    });
+    loop {
+        cortex_m::asm::wfi();
+    }
 }
