@@ -8,31 +8,11 @@
 //! and the whole power trajectory. Skipped with a message when SciPy is not
 //! installed (CI installs it).
 
-use std::path::PathBuf;
-use std::process::Command;
-
 use diodestat_sim::plant::{c_to_k, Diode, DiodeParams};
+use diodestat_tests::{python_has, run_script};
 
 const SAMPLE_S: f64 = 0.5e-12;
 const T_END_S: f64 = 10e-9;
-
-fn scipy_available() -> bool {
-    Command::new("python3")
-        .args(["-c", "import scipy, numpy"])
-        .output()
-        .map(|o| o.status.success())
-        .unwrap_or(false)
-}
-
-fn scratch_dir() -> PathBuf {
-    let nanos = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map(|d| d.as_nanos())
-        .unwrap_or(0);
-    let dir = std::env::temp_dir().join(format!("diodestat-scipy-{}-{nanos}", std::process::id()));
-    std::fs::create_dir_all(&dir).expect("create scratch dir");
-    dir
-}
 
 /// Peak of the first local maximum, refined by a parabola through the
 /// three samples around it: (time, power).
@@ -65,7 +45,7 @@ fn rust_trajectory(p: &DiodeParams, i_a: f64, rtol: f64, atol: f64) -> (Vec<f64>
 
 #[test]
 fn turn_on_transient_matches_scipy_radau() {
-    if !scipy_available() {
+    if !python_has("scipy, numpy") {
         println!("SKIP scipy_transient: python3 with scipy and numpy not found");
         return;
     }
@@ -86,25 +66,11 @@ fn turn_on_transient_matches_scipy_radau() {
         "s0_m3": 0.0,
         "sample_times_s": t,
     });
-    let dir = scratch_dir();
-    let input = dir.join("problem.json");
-    let output = dir.join("result.json");
-    std::fs::write(&input, serde_json::to_string(&problem).unwrap()).unwrap();
-    let script = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("scripts/rate_eq_scipy.py");
-    let run = Command::new("python3")
-        .arg(&script)
-        .arg(&input)
-        .arg(&output)
-        .output()
-        .expect("run python3");
-    assert!(
-        run.status.success(),
-        "script failed: {}",
-        String::from_utf8_lossy(&run.stderr)
-    );
-    let result: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(&output).unwrap()).unwrap();
-    let _ = std::fs::remove_dir_all(&dir);
+    let result: serde_json::Value = serde_json::from_str(&run_script(
+        "rate_eq_scipy.py",
+        &serde_json::to_string(&problem).unwrap(),
+    ))
+    .unwrap();
     let p_py: Vec<f64> = result["p_front_w"]
         .as_array()
         .unwrap()

@@ -21,12 +21,12 @@
 //! installs python-control with pip.
 
 use std::path::PathBuf;
-use std::process::Command;
 
 use diodestat_sim::stability::{
     crossings, margins, open_loop_with, write_bode_svg, BodeLoop, DiscreteTf, Discretisation,
     LoopParams, Margins, Poly, PASS_GM_DB, PASS_PM_DEG,
 };
+use diodestat_tests::{python_has, run_script};
 use serde_json::{json, Value};
 
 const RTOL: f64 = 1e-7;
@@ -187,25 +187,9 @@ fn same_deg(what: &str, ours: f64, theirs: f64) -> f64 {
     d
 }
 
-fn python_control_available() -> bool {
-    Command::new("python3")
-        .args(["-c", "import control, scipy"])
-        .output()
-        .is_ok_and(|o| o.status.success())
-}
-
-fn work_dir() -> PathBuf {
-    let nanos = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map_or(0, |d| d.as_nanos());
-    let d = std::env::temp_dir().join(format!("diodestat-margins-{}-{nanos}", std::process::id()));
-    std::fs::create_dir_all(&d).expect("create temp dir");
-    d
-}
-
 #[test]
 fn margins_agree_with_python_control() {
-    if !python_control_available() {
+    if !python_has("control, scipy") {
         println!(
             "SKIP stability_python_control: `python3 -c \"import control, scipy\"` failed \
              (pip install control scipy); comparison not run"
@@ -216,9 +200,6 @@ fn margins_agree_with_python_control() {
         .into_iter()
         .map(|(n, l, m)| (n, clean(&l), m))
         .collect();
-    let dir = work_dir();
-    let input = dir.join("loops.json");
-    let output = dir.join("margins.json");
     let spec = json!({
         "cases": loops.iter().map(|(name, l, method)| json!({
             "name": name,
@@ -228,21 +209,11 @@ fn margins_agree_with_python_control() {
             "method": method,
         })).collect::<Vec<_>>()
     });
-    std::fs::write(&input, serde_json::to_string_pretty(&spec).unwrap()).unwrap();
-    let script = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("scripts/margins_control.py");
-    let run = Command::new("python3")
-        .arg(&script)
-        .arg(&input)
-        .arg(&output)
-        .output()
-        .expect("run python3");
-    assert!(
-        run.status.success(),
-        "{} failed:\n{}",
-        script.display(),
-        String::from_utf8_lossy(&run.stderr)
-    );
-    let res: Value = serde_json::from_str(&std::fs::read_to_string(&output).unwrap()).unwrap();
+    let res: Value = serde_json::from_str(&run_script(
+        "margins_control.py",
+        &serde_json::to_string_pretty(&spec).unwrap(),
+    ))
+    .unwrap();
     println!("python-control {}", res["python_control"]);
     let py = res["cases"].as_array().expect("cases");
     assert_eq!(py.len(), loops.len());
@@ -381,5 +352,4 @@ fn margins_agree_with_python_control() {
         .collect();
     write_bode_svg(&svg, "diodestat loops", &bl).unwrap();
     println!("Bode plot: {}", svg.display());
-    let _ = std::fs::remove_dir_all(&dir);
 }
