@@ -9,7 +9,7 @@ use plotters::prelude::*;
 
 use crate::scenario::{Action, Scenario};
 use crate::sim::{Happening, RunResult, TraceRow};
-use crate::stability::time_domain::{overshoot_pct, settled_from, SETTLING_BAND};
+use crate::stability::time_domain::{on_ceiling, overshoot_pct, settled_from, SETTLING_BAND};
 
 /// One line of a plot panel: label, colour, value of a trace row.
 type Line = (
@@ -108,12 +108,7 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
         } else {
             0.0
         };
-        let tail_rows = &tr[b - tail.len()..b];
-        let on_ceiling = 2 * tail_rows
-            .iter()
-            .filter(|r| r.cmd_ma >= r.ceiling_ma - 1e-3)
-            .count()
-            > tail_rows.len();
+        let on_ceiling = on_ceiling(&tr[b - tail.len()..b]);
         out.push(Figures {
             label,
             on_ceiling,

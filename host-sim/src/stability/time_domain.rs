@@ -564,7 +564,8 @@ fn regulating(rows: &[TraceRow]) -> bool {
     !rows.is_empty() && rows.iter().all(|r| r.state == State::Regulating)
 }
 
-fn on_ceiling(rows: &[TraceRow]) -> bool {
+/// Most of `rows` have the drive on the ceiling in force.
+pub(crate) fn on_ceiling(rows: &[TraceRow]) -> bool {
     let n = rows
         .iter()
         .filter(|r| r.cmd_ma >= r.ceiling_ma - 1e-3)
