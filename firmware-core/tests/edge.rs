@@ -62,6 +62,30 @@ impl<D: CurrentDac> CurrentDac for LoggedDac<D> {
     }
 }
 
+/// A board whose DAC and enable pin note each call in `log`; the
+/// interlock reads closed high.
+fn logged_board<D: CurrentDac>(
+    ctl: Controller,
+    dac: D,
+    en: &Pin,
+    il: &Pin,
+    log: &Log,
+) -> DriverBoard<LoggedDac<D>, LoggedPin<Pin>, Pin> {
+    DriverBoard::new(
+        ctl,
+        LoggedDac {
+            dac,
+            log: log.clone(),
+        },
+        LoggedPin {
+            pin: en.clone(),
+            log: log.clone(),
+        },
+        il.clone(),
+        InterlockLevel::ClosedHigh,
+    )
+}
+
 /// The documented 12-bit frame: `0b01` in bits 15..14, the code in 11..0,
 /// most significant byte first.
 fn frame12(code: u16) -> Vec<u8> {
@@ -176,18 +200,12 @@ fn off_drives_enable_low_before_zeroing_the_dac() {
     let mut en = Pin::new(&[PinT::set(Level::Low), PinT::set(Level::Low)]);
     let mut il = Pin::new(&[PinT::get(Level::High), PinT::get(Level::High)]);
     let mut spi = Spi::new(&spi_writes(&[0, 0]));
-    let mut board = DriverBoard::new(
+    let mut board = logged_board(
         Controller::new(cfg.clone()),
-        LoggedDac {
-            dac: SpiDac::new(spi.clone(), DacWidth::Bits12),
-            log: log.clone(),
-        },
-        LoggedPin {
-            pin: en.clone(),
-            log: log.clone(),
-        },
-        il.clone(),
-        InterlockLevel::ClosedHigh,
+        SpiDac::new(spi.clone(), DacWidth::Bits12),
+        &en,
+        &il,
+        &log,
     );
     for t in 0..2 {
         let d = board.tick(adc(&cfg, t)).unwrap();
@@ -225,18 +243,12 @@ fn emission_writes_the_dac_before_enable_and_a_trip_drops_enable_before_the_dac(
         PinT::get(Level::Low),
     ]);
     let mut spi = Spi::new(&spi_writes(&[0, c1, c2, 0]));
-    let mut board = DriverBoard::new(
+    let mut board = logged_board(
         acc_controller(&cfg),
-        LoggedDac {
-            dac: SpiDac::new(spi.clone(), DacWidth::Bits12),
-            log: log.clone(),
-        },
-        LoggedPin {
-            pin: en.clone(),
-            log: log.clone(),
-        },
-        il.clone(),
-        InterlockLevel::ClosedHigh,
+        SpiDac::new(spi.clone(), DacWidth::Bits12),
+        &en,
+        &il,
+        &log,
     );
     assert!(!board.tick(adc(&cfg, 0)).unwrap().enable);
     board.request(Request::Enable).unwrap();
@@ -381,18 +393,12 @@ fn a_failed_dac_write_holds_enable_low_until_reset() {
         PinT::set(Level::Low),
     ]);
     let mut il = Pin::new(&vec![PinT::get(Level::High); 5]);
-    let mut board = DriverBoard::new(
+    let mut board = logged_board(
         acc_controller(&cfg),
-        LoggedDac {
-            dac: PwmDac::new(pwm.clone(), max),
-            log: log.clone(),
-        },
-        LoggedPin {
-            pin: en.clone(),
-            log: log.clone(),
-        },
-        il.clone(),
-        InterlockLevel::ClosedHigh,
+        PwmDac::new(pwm.clone(), max),
+        &en,
+        &il,
+        &log,
     );
     board.tick(adc(&cfg, 0)).unwrap();
     board.request(Request::Enable).unwrap();
@@ -487,18 +493,12 @@ fn an_enable_pin_error_is_reported_and_the_dac_is_still_zeroed() {
     let mut en = Pin::new(&[PinT::set(Level::Low).with_error(read_error())]);
     let mut il = Pin::new(&[PinT::get(Level::High)]);
     let mut spi = Spi::new(&spi_writes(&[0]));
-    let mut board = DriverBoard::new(
+    let mut board = logged_board(
         Controller::new(cfg.clone()),
-        LoggedDac {
-            dac: SpiDac::new(spi.clone(), DacWidth::Bits12),
-            log: log.clone(),
-        },
-        LoggedPin {
-            pin: en.clone(),
-            log: log.clone(),
-        },
-        il.clone(),
-        InterlockLevel::ClosedHigh,
+        SpiDac::new(spi.clone(), DacWidth::Bits12),
+        &en,
+        &il,
+        &log,
     );
     assert!(matches!(
         board.tick(adc(&cfg, 0)),
