@@ -30,6 +30,70 @@ pub struct Config {
     pub protection: Protection,
     /// ADC and DAC calibration and the temperature-sensor table.
     pub calibration: Calibration,
+    /// The forward-voltage channel and its protections (diode open, diode
+    /// short), on boards that measure it.
+    pub forward_voltage: Option<ForwardVoltage>,
+    /// Current-for-power plausibility (end-of-life warning and fault), when
+    /// the diode's threshold and slope over temperature are known.
+    pub plausibility: Option<Plausibility>,
+}
+
+/// The forward-voltage channel: a diode open reads at the current source's
+/// compliance, a shorted diode below a floor, while the source drives.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ForwardVoltage {
+    /// The channel's calibration, mV.
+    pub cal: AdcCal,
+    /// Reading at or above which the diode is open (the source at its
+    /// compliance), mV.
+    pub open_mv: Fx,
+    /// Reading at or below which the diode is shorted, mV.
+    pub short_mv: Fx,
+    /// Both apply while the command that produced the sample is at or above
+    /// this, mA (above zero; below it the voltage says little).
+    pub min_drive_ma: Fx,
+    /// Debounce of both, ticks.
+    pub debounce: u16,
+}
+
+/// Largest number of temperature points of [`Plausibility`].
+pub const DIODE_POINTS: usize = 8;
+
+/// The healthy diode at one temperature, for [`Plausibility`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct DiodePoint {
+    /// Case temperature as the core measures it, degC.
+    pub degc: Fx,
+    /// Threshold current, mA.
+    pub threshold_ma: Fx,
+    /// Slope efficiency, front-facet mW per mA.
+    pub slope_mw_per_ma: Fx,
+}
+
+/// Current-for-power plausibility. The current the healthy diode needs for
+/// the measured power `P` at the measured temperature `T` is
+/// `I(P, T) = I_th(T) + P / η(T)`, linear between the points (held at the
+/// end points outside them). A sensed current above
+/// `(1 + margin) × I(P, T) + allowance` is implausible: the warning margin
+/// raises [`crate::Warnings::end_of_life`], the fault margin is the
+/// [`crate::Fault::PowerImplausible`] condition. Evaluated every
+/// [`crate::protect::SLOW_EVERY`] ticks and held in between.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Plausibility {
+    /// The healthy diode over temperature, temperatures strictly increasing.
+    pub points: heapless::Vec<DiodePoint, DIODE_POINTS>,
+    /// Warning margin, a fraction of `I(P, T)` (aging allowed before the
+    /// warning).
+    pub warning_margin: Fx,
+    /// Fault margin, a fraction of `I(P, T)`, at least the warning margin.
+    pub fault_margin: Fx,
+    /// Absolute allowance for sense and calibration error, mA.
+    pub allowance_ma: Fx,
+    /// Debounce of the fault, ticks.
+    pub debounce: u16,
 }
 
 /// Drive-current limits.
@@ -96,8 +160,10 @@ pub struct Derating {
     pub floor_ma: Fx,
 }
 
-/// Protection limits. A limit is the first value that trips; a debounce is
-/// the number of consecutive ticks the condition must hold (1 = at once).
+/// Protection limits. A limit is the first value that trips; a debounce `N`
+/// is the number of consecutive ticks a steady condition must hold
+/// (1 = at once). Conditions that come and go are integrated: see
+/// [`Protection::intermittent_weight`] and [`crate::protect`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Protection {
@@ -134,6 +200,44 @@ pub struct Protection {
     pub mismatch_debounce: u16,
     /// Number of missing ticks (gap in the tick index) that trips.
     pub missed_tick_limit: u16,
+    /// Debounce of the external fault input, ticks.
+    pub external_debounce: u16,
+    /// Weight `w` of a tick with the condition present in the leaky
+    /// debounce (a clean tick counts −1, a protection trips at `w × N`): a
+    /// condition present in more than `1 / (w + 1)` of the ticks trips
+    /// within the bound documented in [`crate::protect`]. 1 to
+    /// [`MAX_INTERMITTENT_WEIGHT`].
+    pub intermittent_weight: u16,
+}
+
+/// Longest debounce of a fast protection ([`Fault::is_fast`]), µs: at the
+/// configured tick rate, `max(1, tick_hz × 500 µs)` ticks (10 at 20 kHz).
+pub const FAST_DEBOUNCE_MAX_US: u32 = 500;
+
+/// How far above the derating cut-off the temperature table must reach,
+/// degC (our design choice: the table's own points, not an extrapolated
+/// end segment, decide the over-temperature trip and a few degrees beyond).
+pub const TEMP_COVER_MARGIN_DEGC: Fx = Fx::lit("10");
+
+/// Largest [`Protection::intermittent_weight`].
+pub const MAX_INTERMITTENT_WEIGHT: u16 = 255;
+
+/// The configuration key of a fault's debounce, as in [`Config`].
+pub const fn debounce_key(fault: Fault) -> &'static str {
+    match fault {
+        Fault::Overcurrent => "protection.overcurrent_debounce",
+        Fault::MonitorRunaway => "protection.runaway_debounce",
+        Fault::MonitorLoss => "protection.monitor_loss_debounce",
+        Fault::SensorOpen | Fault::SensorShort => "protection.sensor_debounce",
+        Fault::OverTemperature => "protection.over_temp_debounce",
+        Fault::InterlockOpen => "protection.interlock_debounce",
+        Fault::SupplyUnder | Fault::SupplyOver => "protection.supply_debounce",
+        Fault::DriveMismatch => "protection.mismatch_debounce",
+        Fault::MissedTicks | Fault::TickOrder => "(none: 1 tick)",
+        Fault::PowerImplausible => "plausibility.debounce",
+        Fault::DiodeOpen | Fault::DiodeShort => "forward_voltage.debounce",
+        Fault::ExternalFault => "protection.external_debounce",
+    }
 }
 
 /// A linear ADC channel: `value = (counts - offset_counts) × units_per_count`.
@@ -228,6 +332,8 @@ pub enum Channel {
     Supply,
     /// The DAC.
     Dac,
+    /// Forward voltage.
+    ForwardVoltage,
 }
 
 /// Why a [`Config`] was refused. Each variant carries the offending values.
@@ -443,6 +549,64 @@ pub enum ConfigError {
         /// Configured tolerance.
         tolerance_ma: Fx,
     },
+    /// A fast protection's debounce is longer than
+    /// [`FAST_DEBOUNCE_MAX_US`] allows at the tick rate.
+    FastDebounceTooLong {
+        /// The protection (its key: [`debounce_key`]).
+        fault: Fault,
+        /// Configured debounce, ticks.
+        debounce: u16,
+        /// Longest accepted, ticks.
+        max: u16,
+    },
+    /// `protection.intermittent_weight` is 0 or above
+    /// [`MAX_INTERMITTENT_WEIGHT`].
+    IntermittentWeightOutOfRange {
+        /// Configured weight.
+        weight: u16,
+    },
+    /// The temperature table does not reach
+    /// [`TEMP_COVER_MARGIN_DEGC`] above the derating cut-off: beyond its
+    /// end the last segment is extrapolated and over-temperature trips late.
+    TempTableShortOfCutoff {
+        /// The table's hottest point, degC.
+        hottest_degc: Fx,
+        /// Cut-off plus margin, degC.
+        needed_degc: Fx,
+    },
+    /// The forward-voltage limits are not `0 <= short < open <= full scale`.
+    ForwardVoltageLimitsInvalid {
+        /// Configured short floor.
+        short_mv: Fx,
+        /// Configured open (compliance) level.
+        open_mv: Fx,
+        /// The channel's full-scale reading.
+        full_scale_mv: Fx,
+    },
+    /// The forward-voltage drive level is not in (0, ceiling].
+    ForwardDriveOutOfRange {
+        /// Configured level.
+        min_drive_ma: Fx,
+        /// Configured ceiling.
+        ceiling_ma: Fx,
+    },
+    /// A plausibility point is out of order (temperatures not strictly
+    /// increasing), has a negative threshold or a slope not positive, or
+    /// there is none (`index` 0 of an empty list).
+    PlausibilityPointInvalid {
+        /// Index of the first offending point.
+        index: usize,
+    },
+    /// The plausibility margins are not `0 <= warning <= fault <= 4`, or the
+    /// allowance is negative.
+    PlausibilityMarginsInvalid {
+        /// Configured warning margin.
+        warning_margin: Fx,
+        /// Configured fault margin.
+        fault_margin: Fx,
+        /// Configured allowance, mA.
+        allowance_ma: Fx,
+    },
 }
 
 impl core::fmt::Display for ConfigError {
@@ -552,6 +716,37 @@ impl core::fmt::Display for ConfigError {
             MismatchToleranceNotPositive { tolerance_ma } => {
                 write!(f, "mismatch tolerance {tolerance_ma} mA is not positive")
             }
+            FastDebounceTooLong { fault, debounce, max } => write!(
+                f,
+                "{} = {debounce} ticks: {fault} is a fast protection, at most {max} ticks ({} us) at this tick rate",
+                debounce_key(fault),
+                FAST_DEBOUNCE_MAX_US
+            ),
+            IntermittentWeightOutOfRange { weight } => write!(
+                f,
+                "protection.intermittent_weight = {weight} not in 1..={MAX_INTERMITTENT_WEIGHT}"
+            ),
+            TempTableShortOfCutoff { hottest_degc, needed_degc } => write!(
+                f,
+                "temperature table ends at {hottest_degc} degC: it must reach the derating cut-off plus {} degC, {needed_degc} degC",
+                TEMP_COVER_MARGIN_DEGC
+            ),
+            ForwardVoltageLimitsInvalid { short_mv, open_mv, full_scale_mv } => write!(
+                f,
+                "forward_voltage short {short_mv} mV / open {open_mv} mV not 0 <= short < open <= full scale {full_scale_mv} mV"
+            ),
+            ForwardDriveOutOfRange { min_drive_ma, ceiling_ma } => write!(
+                f,
+                "forward_voltage.min_drive_ma = {min_drive_ma} mA not in (0, ceiling {ceiling_ma} mA]"
+            ),
+            PlausibilityPointInvalid { index } => write!(
+                f,
+                "plausibility.points[{index}]: temperatures must rise strictly, thresholds be >= 0 and slopes > 0 (and one point at least)"
+            ),
+            PlausibilityMarginsInvalid { warning_margin, fault_margin, allowance_ma } => write!(
+                f,
+                "plausibility margins warning {warning_margin} / fault {fault_margin} not 0 <= warning <= fault <= 4, or allowance {allowance_ma} mA negative"
+            ),
         }
     }
 }
@@ -582,8 +777,11 @@ pub(crate) struct PerTick {
     pub low_rail_bit: u16,
     /// The fault a reading at or above the high rail means, as a mask bit.
     pub high_rail_bit: u16,
-    /// The debounce of every fault, ticks, indexed by its bit.
-    pub debounce: [u16; Fault::COUNT],
+    /// The level of the leaky debounce at which each fault trips
+    /// (`intermittent_weight × debounce`), indexed by its bit.
+    pub trip_at: [u32; Fault::COUNT],
+    /// `intermittent_weight`: what a tick with the condition present adds.
+    pub weight: u32,
     /// `-mismatch_tolerance_ma` (wrapping), the lower end of the window of
     /// drive differences that raise no mismatch.
     pub neg_mismatch_tolerance_ma: Fx,
@@ -727,20 +925,25 @@ impl Config {
                 ceiling_ma: cur.ceiling_ma,
             });
         }
-        // Debounces.
-        for (fault, n) in [
-            (Fault::Overcurrent, p.overcurrent_debounce),
-            (Fault::MonitorRunaway, p.runaway_debounce),
-            (Fault::MonitorLoss, p.monitor_loss_debounce),
-            (Fault::SensorOpen, p.sensor_debounce),
-            (Fault::OverTemperature, p.over_temp_debounce),
-            (Fault::InterlockOpen, p.interlock_debounce),
-            (Fault::SupplyUnder, p.supply_debounce),
-            (Fault::DriveMismatch, p.mismatch_debounce),
-        ] {
+        // Debounces: none zero, the fast ones bounded.
+        let fast_max = fast_debounce_max(c.tick_hz);
+        for fault in Fault::ALL {
+            let n = debounce_ticks(c, fault);
             if n == 0 {
                 return Err(E::DebounceZero { fault });
             }
+            if fault.is_fast() && n > fast_max {
+                return Err(E::FastDebounceTooLong {
+                    fault,
+                    debounce: n,
+                    max: fast_max,
+                });
+            }
+        }
+        if p.intermittent_weight == 0 || p.intermittent_weight > MAX_INTERMITTENT_WEIGHT {
+            return Err(E::IntermittentWeightOutOfRange {
+                weight: p.intermittent_weight,
+            });
         }
         if p.missed_tick_limit == 0 {
             return Err(E::MissedTickLimitZero);
@@ -836,6 +1039,39 @@ impl Config {
                 high_fault_counts: tc.high_fault_counts,
             });
         }
+        // The table's own points must reach past the cut-off: beyond its end
+        // the last segment is extrapolated. (The rails lie outside the
+        // table, so every reading up to there is between them.)
+        let hottest_degc = match (tc.table.first(), tc.table.last()) {
+            (Some(a), Some(b)) => a.degc.max(b.degc),
+            _ => Fx::MIN,
+        };
+        let needed_degc = d.cutoff_degc.saturating_add(TEMP_COVER_MARGIN_DEGC);
+        if hottest_degc < needed_degc {
+            return Err(E::TempTableShortOfCutoff {
+                hottest_degc,
+                needed_degc,
+            });
+        }
+        if let Some(fv) = &c.forward_voltage {
+            let full_scale_mv = check_adc(Channel::ForwardVoltage, &fv.cal)?;
+            if fv.short_mv < Fx::ZERO || fv.short_mv >= fv.open_mv || fv.open_mv > full_scale_mv {
+                return Err(E::ForwardVoltageLimitsInvalid {
+                    short_mv: fv.short_mv,
+                    open_mv: fv.open_mv,
+                    full_scale_mv,
+                });
+            }
+            if fv.min_drive_ma <= Fx::ZERO || fv.min_drive_ma > cur.ceiling_ma {
+                return Err(E::ForwardDriveOutOfRange {
+                    min_drive_ma: fv.min_drive_ma,
+                    ceiling_ma: cur.ceiling_ma,
+                });
+            }
+        }
+        if let Some(pl) = &c.plausibility {
+            check_plausibility(pl)?;
+        }
         let (low_rail, high_rail) = match tc.open_rail {
             Rail::High => (Fault::SensorShort, Fault::SensorOpen),
             Rail::Low => (Fault::SensorOpen, Fault::SensorShort),
@@ -850,7 +1086,10 @@ impl Config {
                 ki,
                 low_rail_bit: low_rail.bit(),
                 high_rail_bit: high_rail.bit(),
-                debounce: Fault::ALL.map(|f| debounce_ticks(&p, f)),
+                trip_at: Fault::ALL.map(|f| {
+                    u32::from(debounce_ticks(&self, f)) * u32::from(p.intermittent_weight)
+                }),
+                weight: u32::from(p.intermittent_weight),
                 neg_mismatch_tolerance_ma: p.mismatch_tolerance_ma.wrapping_neg(),
             },
             cfg: self,
@@ -858,8 +1097,10 @@ impl Config {
     }
 }
 
-/// The debounce of `fault`, ticks.
-fn debounce_ticks(p: &Protection, fault: Fault) -> u16 {
+/// The debounce of `fault`, ticks (1 for the tick-index faults, and for
+/// the optional protections of a board without them).
+pub fn debounce_ticks(c: &Config, fault: Fault) -> u16 {
+    let p = &c.protection;
     match fault {
         Fault::Overcurrent => p.overcurrent_debounce,
         Fault::MonitorRunaway => p.runaway_debounce,
@@ -869,8 +1110,46 @@ fn debounce_ticks(p: &Protection, fault: Fault) -> u16 {
         Fault::InterlockOpen => p.interlock_debounce,
         Fault::SupplyUnder | Fault::SupplyOver => p.supply_debounce,
         Fault::DriveMismatch => p.mismatch_debounce,
-        Fault::MissedTicks => 1,
+        Fault::MissedTicks | Fault::TickOrder => 1,
+        Fault::PowerImplausible => c.plausibility.as_ref().map_or(1, |pl| pl.debounce),
+        Fault::DiodeOpen | Fault::DiodeShort => c.forward_voltage.map_or(1, |f| f.debounce),
+        Fault::ExternalFault => p.external_debounce,
     }
+}
+
+/// Longest debounce of a fast protection at `tick_hz`, ticks.
+pub fn fast_debounce_max(tick_hz: u32) -> u16 {
+    let n = u64::from(tick_hz) * u64::from(FAST_DEBOUNCE_MAX_US) / 1_000_000;
+    u16::try_from(n.max(1)).unwrap_or(u16::MAX)
+}
+
+fn check_plausibility(pl: &Plausibility) -> Result<(), ConfigError> {
+    if pl.points.is_empty() {
+        return Err(ConfigError::PlausibilityPointInvalid { index: 0 });
+    }
+    let mut prev: Option<Fx> = None;
+    for (index, pt) in pl.points.iter().enumerate() {
+        if prev.is_some_and(|t| pt.degc <= t)
+            || pt.threshold_ma < Fx::ZERO
+            || pt.slope_mw_per_ma <= Fx::ZERO
+        {
+            return Err(ConfigError::PlausibilityPointInvalid { index });
+        }
+        prev = Some(pt.degc);
+    }
+    let four = Fx::lit("4");
+    if pl.warning_margin < Fx::ZERO
+        || pl.warning_margin > pl.fault_margin
+        || pl.fault_margin > four
+        || pl.allowance_ma < Fx::ZERO
+    {
+        return Err(ConfigError::PlausibilityMarginsInvalid {
+            warning_margin: pl.warning_margin,
+            fault_margin: pl.fault_margin,
+            allowance_ma: pl.allowance_ma,
+        });
+    }
+    Ok(())
 }
 
 /// Integral gain per tick: `ki_ms × 1000 / tick_hz`, as a [`Gain`].

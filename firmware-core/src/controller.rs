@@ -21,7 +21,7 @@ use crate::apc::{Limits, PowerLoop};
 use crate::config::ValidConfig;
 use crate::fault::{FaultLog, FaultSet};
 use crate::io::{Drive, Mode, Sample, State, Status, Warnings};
-use crate::protect::{Measurements, Protections};
+use crate::protect::{Measurements, Protections, SLOW_EVERY};
 use crate::request::{Rejection, Request};
 use crate::temp_table::Window;
 use crate::units::{clamp_fx, Fx};
@@ -69,6 +69,8 @@ impl Controller {
                     derating: false,
                     at_ceiling: false,
                     sensor_suspect: false,
+                    end_of_life: false,
+                    start_held: false,
                 },
             },
             requested_mode: Mode::Apc,
@@ -111,7 +113,10 @@ impl Controller {
             }
             Request::Disable => {
                 match self.status.state {
-                    State::Arming => self.status.state = State::Off,
+                    State::Arming => {
+                        self.status.state = State::Off;
+                        self.status.warnings.start_held = false;
+                    }
                     State::Ramping | State::Regulating => self.status.state = State::Stopping,
                     State::Off | State::Stopping | State::Latched => {}
                 }
@@ -166,15 +171,23 @@ impl Controller {
 
     /// Run one control tick on one sample. Bounded work, never panics.
     pub fn step(&mut self, s: &Sample) -> Drive {
-        // 1. Measurements and the tick gap.
+        // 1. Measurements and the tick gap: the index step less one, so a
+        // repeated index (step 0) or a backward one wraps to a huge gap,
+        // which `protect` tells apart from missed ticks.
         let missed = match self.last_tick {
-            Some(last) => s.tick.wrapping_sub(last).saturating_sub(1),
+            Some(last) => s.tick.wrapping_sub(last).wrapping_sub(1),
             None => 0,
         };
         self.last_tick = Some(s.tick);
-        let rails;
-        (self.meas, rails) =
-            Measurements::from_sample(&self.cfg, s, missed, &mut self.temp_segment);
+        // The command that produced this sample: the drive of the previous
+        // tick (see 3.).
+        let last_cmd = self.drive_ma;
+        let direct;
+        (self.meas, direct) =
+            Measurements::from_sample(&self.cfg, s, missed, last_cmd, &mut self.temp_segment);
+        if s.tick & (SLOW_EVERY - 1) == 0 {
+            self.status.warnings.end_of_life = self.prot.evaluate_slow(&self.cfg, &self.meas);
+        }
         let m = &self.meas;
         let monitor_mw = m.monitor_mw;
 
@@ -194,7 +207,6 @@ impl Controller {
         // not emitting (every tick ends with the drive clamped to a zero
         // ceiling there, and every request that leaves an emitting state
         // for one that is not zeroes it or finds it zero).
-        let last_cmd = self.drive_ma;
         // Monitor loss: light is expected at or above the configured drive
         // level, and also, while the power loop regulates, on a lower
         // ceiling in force (a derated ceiling): a power loop pinned on its
@@ -214,7 +226,7 @@ impl Controller {
         let verdict = self.prot.check(
             &self.cfg,
             m,
-            rails,
+            direct,
             s.tick,
             last_cmd,
             light_expected,
@@ -235,12 +247,20 @@ impl Controller {
         self.apply_mode_change(monitor_mw);
         let (drive, enable, at_ceiling) = match self.status.state {
             State::Off | State::Latched => {
+                self.status.warnings.start_held = false;
                 self.envelope_ma = Fx::ZERO;
                 self.ceiling_ma = Fx::ZERO;
                 (Fx::ZERO, false, false)
             }
             State::Arming => {
-                if self.arming_left == 0 {
+                // Nothing starts emitting while a condition is present,
+                // debounced or not: the start waits, and says so.
+                let held = self.arming_left == 0 && !self.present.is_empty();
+                self.status.warnings.start_held = held;
+                if held {
+                    self.ceiling_ma = Fx::ZERO;
+                    (Fx::ZERO, false, false)
+                } else if self.arming_left == 0 {
                     self.status.state = State::Ramping;
                     self.envelope_ma = Fx::ZERO;
                     let d = self.ramp(monitor_mw, static_ceiling);
@@ -505,6 +525,8 @@ mod tests {
                 temp_counts: 2_048,
                 supply_counts: 2_457,
                 interlock_closed: true,
+                forward_counts: None,
+                external_fault: false,
             };
             for _ in 0..5_000 {
                 if next().is_multiple_of(50) {

@@ -198,6 +198,8 @@ where
             temp_counts: adc.temperature,
             supply_counts: adc.supply,
             interlock_closed: closed,
+            forward_counts: None,
+            external_fault: false,
         };
         let mut drive = self.ctl.step(&sample);
         if self.dac_failed && drive.enable {

@@ -163,6 +163,8 @@ pub fn config() -> Config {
             mismatch_tolerance_ma: Fx::lit("5"),
             mismatch_debounce: 4,
             missed_tick_limit: 3,
+            external_debounce: 1,
+            intermittent_weight: 3,
         },
         calibration: Calibration {
             monitor: AdcCal {
@@ -192,5 +194,7 @@ pub fn config() -> Config {
                 open_rail: Rail::High,
             },
         },
+        forward_voltage: None,
+        plausibility: None,
     }
 }

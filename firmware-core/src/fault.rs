@@ -37,11 +37,27 @@ pub enum Fault {
     DriveMismatch = 9,
     /// A gap in the tick index: the board missed control ticks.
     MissedTicks = 10,
+    /// The tick index repeated or went backward: the tick source stalled,
+    /// or a sample was delivered twice.
+    TickOrder = 11,
+    /// The sensed current is more than the healthy diode needs for the
+    /// measured power at the measured temperature, beyond the aging margin:
+    /// a degrading monitor (the real power is above what it reads) or a
+    /// diode at its end of life.
+    PowerImplausible = 12,
+    /// Forward voltage at the current source's compliance while driving:
+    /// the diode (or its wiring) is open.
+    DiodeOpen = 13,
+    /// Forward voltage below its floor while driving: the diode is shorted.
+    DiodeShort = 14,
+    /// The board's external fault input is asserted (a hardware comparator
+    /// trip, a watchdog pre-warning) (fast).
+    ExternalFault = 15,
 }
 
 impl Fault {
     /// Every fault, in bit order.
-    pub const ALL: [Fault; 11] = [
+    pub const ALL: [Fault; 16] = [
         Fault::Overcurrent,
         Fault::MonitorRunaway,
         Fault::MonitorLoss,
@@ -53,13 +69,25 @@ impl Fault {
         Fault::SupplyOver,
         Fault::DriveMismatch,
         Fault::MissedTicks,
+        Fault::TickOrder,
+        Fault::PowerImplausible,
+        Fault::DiodeOpen,
+        Fault::DiodeShort,
+        Fault::ExternalFault,
     ];
 
     /// Number of distinct faults.
     pub const COUNT: usize = Self::ALL.len();
 
+    /// The mask of every fault (widen [`FaultSet`] before a 17th).
+    pub(crate) const ALL_BITS: u16 = {
+        assert!(Self::COUNT <= 16, "widen FaultSet beyond 16 faults");
+        u16::MAX >> (16 - Self::COUNT)
+    };
+
     /// A fast fault shuts the drive in the same `step` that sees the sample
-    /// that trips it (after its debounce, which is usually 1).
+    /// that trips it, after its debounce, which validation bounds to
+    /// [`crate::config::FAST_DEBOUNCE_MAX_US`] (usually 1 tick).
     pub const fn is_fast(self) -> bool {
         matches!(
             self,
@@ -67,6 +95,7 @@ impl Fault {
                 | Fault::MonitorRunaway
                 | Fault::InterlockOpen
                 | Fault::DriveMismatch
+                | Fault::ExternalFault
         )
     }
 
@@ -84,19 +113,27 @@ impl Fault {
             Fault::SupplyOver => "supply-over",
             Fault::DriveMismatch => "drive-mismatch",
             Fault::MissedTicks => "missed-ticks",
+            Fault::TickOrder => "tick-order",
+            Fault::PowerImplausible => "power-implausible",
+            Fault::DiodeOpen => "diode-open",
+            Fault::DiodeShort => "diode-short",
+            Fault::ExternalFault => "external-fault",
         }
     }
 
     /// Unit of [`FaultRecord::measured`] and [`FaultRecord::limit`].
     pub const fn unit(self) -> &'static str {
         match self {
-            Fault::Overcurrent | Fault::DriveMismatch => "mA",
+            Fault::Overcurrent | Fault::DriveMismatch | Fault::PowerImplausible => "mA",
             Fault::MonitorRunaway | Fault::MonitorLoss => "mW",
             Fault::SensorOpen | Fault::SensorShort => "counts",
             Fault::OverTemperature => "degC",
             Fault::InterlockOpen => "closed(1)/open(0)",
             Fault::SupplyUnder | Fault::SupplyOver => "mV",
             Fault::MissedTicks => "ticks",
+            Fault::TickOrder => "ticks (index step)",
+            Fault::DiodeOpen | Fault::DiodeShort => "mV",
+            Fault::ExternalFault => "asserted(1)",
         }
     }
 
@@ -138,7 +175,7 @@ impl FaultSet {
 
     /// The set of a raw bit mask (bits of no fault are dropped).
     pub(crate) const fn from_bits(bits: u16) -> FaultSet {
-        FaultSet(bits & ((1 << Fault::COUNT) - 1))
+        FaultSet(bits & Fault::ALL_BITS)
     }
 
     /// The raw bit mask.
@@ -283,7 +320,7 @@ mod tests {
 
     #[test]
     fn fast_faults_are_the_four_named() {
-        let fast: heapless::Vec<Fault, 11> =
+        let fast: heapless::Vec<Fault, 16> =
             Fault::ALL.into_iter().filter(|f| f.is_fast()).collect();
         assert_eq!(
             fast.as_slice(),
@@ -291,7 +328,8 @@ mod tests {
                 Fault::Overcurrent,
                 Fault::MonitorRunaway,
                 Fault::InterlockOpen,
-                Fault::DriveMismatch
+                Fault::DriveMismatch,
+                Fault::ExternalFault
             ]
         );
     }

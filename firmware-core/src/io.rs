@@ -21,6 +21,13 @@ pub struct Sample {
     pub supply_counts: u16,
     /// Safety interlock: `true` when closed (emission permitted).
     pub interlock_closed: bool,
+    /// Forward-voltage channel, counts, on boards that measure it (`None`
+    /// otherwise; see [`crate::config::ForwardVoltage`]).
+    pub forward_counts: Option<u16>,
+    /// The board's external fault input (a hardware comparator trip, a
+    /// watchdog pre-warning): `true` when asserted. Boards without one
+    /// pass `false`.
+    pub external_fault: bool,
 }
 
 /// Controller state. See [`crate::controller`] for the transitions.
@@ -83,6 +90,15 @@ pub struct Warnings {
     /// The temperature sensor is at a rail (not yet debounced): the ceiling
     /// is held at the derating floor.
     pub sensor_suspect: bool,
+    /// End of life approaching: the diode needs more current for its
+    /// measured power than the healthy diode plus the warning margin (see
+    /// [`crate::config::Plausibility`]). Re-evaluated every
+    /// [`crate::protect::SLOW_EVERY`] ticks.
+    pub end_of_life: bool,
+    /// The start is held in Arming: the emission delay has run out but a
+    /// protection condition is present ([`crate::Controller::conditions`]
+    /// says which); emission starts on the first tick without one.
+    pub start_held: bool,
 }
 
 /// Compact status returned with every [`Drive`].

@@ -31,7 +31,8 @@
 //!
 //! // In the tick interrupt: raw counts in, DAC code and enable out.
 //! let sample = Sample { tick: 0, monitor_counts: 0, current_counts: 0,
-//!                       temp_counts: 2048, supply_counts: 2500, interlock_closed: true };
+//!                       temp_counts: 2048, supply_counts: 2500, interlock_closed: true,
+//!                       forward_counts: None, external_fault: false };
 //! let drive = ctl.step(&sample);
 //! assert!(!drive.enable);
 //!

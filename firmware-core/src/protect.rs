@@ -2,22 +2,55 @@
 //! limit, its debounce, and in which states it is armed.
 //!
 //! A limit is the first value that trips (upper limits trip at `>=`, lower
-//! limits at `<=`). A condition must hold for `debounce` consecutive ticks.
-//! Conditions are evaluated in every state, so a clear request can be
-//! refused while one is still present; a protection *trips* only in the
-//! states where it is armed:
+//! limits at `<=`). Conditions are evaluated in every state, so a clear or
+//! an enable request can be refused while one is still present; a
+//! protection *trips* only in the states where it is armed:
 //!
 //! | protection | armed in |
 //! |---|---|
-//! | overcurrent, monitor runaway, drive mismatch | every state (light or current while off is a hardware failure) |
-//! | interlock, sensor open/short, over-temperature, supply, missed ticks | Arming, Ramping, Regulating, Stopping (in Off they refuse `Enable`) |
-//! | monitor loss | Ramping, Regulating (it needs drive) |
+//! | overcurrent, monitor runaway, drive mismatch, external fault | every state (light or current while off is a hardware failure; so is a board fault input) |
+//! | interlock, sensor open/short, over-temperature, supply, missed ticks, tick order | Arming, Ramping, Regulating, Stopping (in Off they refuse `Enable`) |
+//! | monitor loss, power implausible, diode open/short | Ramping, Regulating (they need drive) |
+//!
+//! ## The leaky debounce and its bound
+//!
+//! Each protection has a level `L` (starting at 0). A tick with its
+//! condition present adds the weight `w`
+//! ([`crate::config::Protection::intermittent_weight`]), a tick without
+//! takes 1 away (never below 0); it trips when `L >= w·N`, `N` its debounce
+//! (the level is held at `w·N`). A steady condition therefore trips on its
+//! `N`-th tick, exactly as a consecutive-tick debounce would, but a clean
+//! tick no longer restarts the count.
+//!
+//! **Bound.** Over any `n` consecutive ticks in which the condition is
+//! present on `k` of them, `L` rises by at least `(w + 1)·k − n` (a present
+//! tick adds `w`, a clean one takes at most 1, and the floor at 0 only
+//! helps). So while the protection is armed it has tripped by the first
+//! tick at which `(w + 1)·k − n >= w·N`. For a condition present in a
+//! fraction `d > 1/(w + 1)` of the ticks (`k >= d·n` over every such
+//! stretch), that is within
+//!
+//! ```text
+//! n_max = ceil( w·N / ((w + 1)·d − 1) ) ticks.
+//! ```
+//!
+//! Example: `w = 3`, `N = 20`, `d = 0.95` (an open contact that reads light
+//! one tick in twenty): at most 22 ticks; `d = 0.5`: at most 60 ticks. A
+//! condition present in at most `1/(w + 1)` of the ticks may never trip.
+//!
+//! The fast protections ([`Fault::is_fast`]) have their `N` bounded by
+//! validation ([`crate::config::FAST_DEBOUNCE_MAX_US`]), so their bound is
+//! at most `w·N_max / ((w + 1)·d − 1)` ticks of a tick rate's 500 µs.
+//!
+//! Current-for-power plausibility ([`crate::config::Plausibility`]) is a
+//! slow protection: it is evaluated every [`SLOW_EVERY`] ticks and its
+//! condition is held in between (it counts on every tick like the others).
 
-use crate::config::{Rail, ValidConfig};
+use crate::config::{Plausibility, Rail, ValidConfig};
 use crate::fault::{Fault, FaultLog, FaultRecord, FaultSet};
 use crate::io::State;
 use crate::temp_table::Window;
-use crate::units::Fx;
+use crate::units::{scale_counts, Fx};
 
 /// Calibrated measurements of one sample, plus the tick gap.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -37,21 +70,37 @@ pub struct Measurements {
     pub supply_mv: Fx,
     /// Interlock closed.
     pub interlock_closed: bool,
-    /// Ticks missing before this sample (0 when the index stepped by one).
+    /// Ticks missing before this sample: the index step less one (0 when
+    /// it stepped by one). A repeated index reads `u32::MAX` and a backward
+    /// one at least `2^31 - 1` ([`Fault::TickOrder`]).
     pub missed_ticks: u32,
+    /// Forward voltage, mV (zero on a board without the channel).
+    pub forward_mv: Fx,
+    /// The external fault input is asserted.
+    pub external_fault: bool,
 }
+
+/// How often the slow protections (current-for-power plausibility) are
+/// evaluated, ticks (a power of two: the tick index's low bits are zero).
+pub const SLOW_EVERY: u32 = 32;
+
+/// A `missed_ticks` at or above this is a repeated or backward index.
+const TICK_ORDER_MISSED: u32 = i32::MAX as u32;
 
 impl Measurements {
     /// Calibrate a sample. `temp_segment` is the temperature table window
     /// of the previous sample (updated; see
-    /// [`crate::temp_table::degc_cached`]). Also returns the sensor-rail
-    /// conditions present (open, short) as a mask, for [`Protections::check`];
-    /// it is empty exactly when `sensor_at_rail` is false.
+    /// [`crate::temp_table::degc_cached`]); `last_cmd_ma` the command that
+    /// produced the sample. Also returns the conditions read straight off
+    /// the sample (sensor open, short; external fault; diode open, short)
+    /// as a mask, for [`Protections::check`]; its sensor bits are empty
+    /// exactly when `sensor_at_rail` is false.
     #[inline]
     pub(crate) fn from_sample(
         cfg: &ValidConfig,
         s: &crate::io::Sample,
         missed_ticks: u32,
+        last_cmd_ma: Fx,
         temp_segment: &mut Window,
     ) -> (Self, u16) {
         // The temperature first: its window may have to be found again (a
@@ -69,6 +118,25 @@ impl Measurements {
         } else {
             0
         };
+        let mut direct = rails;
+        if s.external_fault {
+            direct |= bit(Fault::ExternalFault);
+        }
+        let mut forward_mv = Fx::ZERO;
+        if let (Some(fv), Some(counts)) = (&cfg.config().forward_voltage, s.forward_counts) {
+            forward_mv = scale_counts(
+                i32::from(counts) - fv.cal.offset_counts,
+                fv.cal.units_per_count,
+            );
+            if last_cmd_ma >= fv.min_drive_ma {
+                if forward_mv >= fv.open_mv {
+                    direct |= bit(Fault::DiodeOpen);
+                }
+                if forward_mv <= fv.short_mv {
+                    direct |= bit(Fault::DiodeShort);
+                }
+            }
+        }
         let m = Measurements {
             monitor_mw: cfg.monitor_mw(s.monitor_counts),
             current_ma: cfg.current_ma(s.current_counts),
@@ -78,18 +146,25 @@ impl Measurements {
             supply_mv: cfg.supply_mv(s.supply_counts),
             interlock_closed: s.interlock_closed,
             missed_ticks,
+            forward_mv,
+            external_fault: s.external_fault,
         };
-        (m, rails)
+        (m, direct)
     }
 }
 
-/// Debounce counters of every protection.
+/// The leaky debounce level of every protection, and the slow conditions.
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub(crate) struct Protections {
-    counters: [u16; Fault::COUNT],
-    /// Bit mask (as [`FaultSet`]) of the counters that are not zero.
+    levels: [u32; Fault::COUNT],
+    /// Bit mask (as [`FaultSet`]) of the levels that are not zero.
     counting: u16,
+    /// Slow conditions present at their latest evaluation, held.
+    slow: u16,
+    /// The plausibility fault bound of the latest evaluation, mA (for the
+    /// record).
+    plausible_max_ma: Fx,
 }
 
 /// Result of one evaluation.
@@ -107,17 +182,25 @@ const fn bit(fault: Fault) -> u16 {
 
 /// Faults armed in every state (light or current while off is a hardware
 /// failure).
-const ALWAYS_ARMED: u16 =
-    bit(Fault::Overcurrent) | bit(Fault::MonitorRunaway) | bit(Fault::DriveMismatch);
+const ALWAYS_ARMED: u16 = bit(Fault::Overcurrent)
+    | bit(Fault::MonitorRunaway)
+    | bit(Fault::DriveMismatch)
+    | bit(Fault::ExternalFault);
 
 /// Every fault.
-const ALL_FAULTS: u16 = (1 << Fault::COUNT) - 1;
+const ALL_FAULTS: u16 = Fault::ALL_BITS;
+
+/// Faults that need drive: armed only while ramping or regulating.
+const NEED_DRIVE: u16 = bit(Fault::MonitorLoss)
+    | bit(Fault::PowerImplausible)
+    | bit(Fault::DiodeOpen)
+    | bit(Fault::DiodeShort);
 
 /// The faults armed in `state`, as a mask.
 const fn armed(state: State) -> u16 {
     match state {
         State::Off | State::Latched => ALWAYS_ARMED,
-        State::Arming | State::Stopping => ALL_FAULTS & !bit(Fault::MonitorLoss),
+        State::Arming | State::Stopping => ALL_FAULTS & !NEED_DRIVE,
         State::Ramping | State::Regulating => ALL_FAULTS,
     }
 }
@@ -212,9 +295,10 @@ fn present_mask(
         | flag(m.supply_mv >= p.supply_max_mv, Fault::SupplyOver)
         | flag(!mismatch_within(cfg, m, last_cmd_ma), Fault::DriveMismatch)
         | flag(
-            m.missed_ticks >= u32::from(p.missed_tick_limit),
+            m.missed_ticks >= u32::from(p.missed_tick_limit) && m.missed_ticks < TICK_ORDER_MISSED,
             Fault::MissedTicks,
         )
+        | flag(m.missed_ticks >= TICK_ORDER_MISSED, Fault::TickOrder)
 }
 
 /// Record a tripped fault in the log. Out of line: it runs once per trip.
@@ -225,10 +309,18 @@ fn record_trip(
     cfg: &ValidConfig,
     m: &Measurements,
     last_cmd_ma: Fx,
+    plausible_max_ma: Fx,
     fault: Fault,
     tick: u32,
 ) {
-    log.record(trip_record(cfg, m, last_cmd_ma, fault, tick));
+    log.record(trip_record(
+        cfg,
+        m,
+        last_cmd_ma,
+        plausible_max_ma,
+        fault,
+        tick,
+    ));
 }
 
 /// The record of a tripped fault: the measured value and the limit it
@@ -238,6 +330,7 @@ fn trip_record(
     cfg: &ValidConfig,
     m: &Measurements,
     last_cmd_ma: Fx,
+    plausible_max_ma: Fx,
     fault: Fault,
     tick: u32,
 ) -> FaultRecord {
@@ -276,6 +369,22 @@ fn trip_record(
             saturating_fx(m.missed_ticks),
             saturating_fx(u32::from(p.missed_tick_limit)),
         ),
+        // The index step (0 repeated, negative backward) and the smallest
+        // accepted step.
+        Fault::TickOrder => (
+            Fx::saturating_from_num(m.missed_ticks.wrapping_add(1) as i32),
+            Fx::ONE,
+        ),
+        Fault::PowerImplausible => (m.current_ma, plausible_max_ma),
+        Fault::DiodeOpen => (
+            m.forward_mv,
+            c.forward_voltage.map_or(Fx::ZERO, |f| f.open_mv),
+        ),
+        Fault::DiodeShort => (
+            m.forward_mv,
+            c.forward_voltage.map_or(Fx::ZERO, |f| f.short_mv),
+        ),
+        Fault::ExternalFault => (Fx::from_num(u8::from(m.external_fault)), Fx::ONE),
     };
     FaultRecord {
         fault,
@@ -285,11 +394,83 @@ fn trip_record(
     }
 }
 
+/// Current-for-power plausibility of one sample: whether the sensed
+/// current is above the warning bound and above the fault bound, and the
+/// fault bound, mA (see [`Plausibility`]). Nothing is implausible while the
+/// temperature sensor is at a rail (its own protection covers that).
+pub(crate) fn plausibility(pl: &Plausibility, m: &Measurements) -> (bool, bool, Fx) {
+    if m.sensor_at_rail {
+        return (false, false, Fx::MAX);
+    }
+    let (threshold_ma, slope) = diode_at(pl, m.temp_degc);
+    let power = m.monitor_mw.max(Fx::ZERO);
+    let need_ma = threshold_ma.saturating_add(power.saturating_div(slope));
+    let bound = |margin: Fx| {
+        need_ma
+            .saturating_add(need_ma.saturating_mul(margin))
+            .saturating_add(pl.allowance_ma)
+    };
+    let fault_max = bound(pl.fault_margin);
+    (
+        m.current_ma > bound(pl.warning_margin),
+        m.current_ma > fault_max,
+        fault_max,
+    )
+}
+
+/// The healthy diode's threshold (mA) and slope (mW/mA) at `degc`: linear
+/// between the points, held at the end points outside them.
+fn diode_at(pl: &Plausibility, degc: Fx) -> (Fx, Fx) {
+    let (Some(first), Some(last)) = (pl.points.first(), pl.points.last()) else {
+        return (Fx::ZERO, Fx::MAX);
+    };
+    if degc <= first.degc {
+        return (first.threshold_ma, first.slope_mw_per_ma);
+    }
+    for w in pl.points.windows(2) {
+        if let [a, b] = w {
+            if degc <= b.degc {
+                let lerp = |ya: Fx, yb: Fx| {
+                    let num = i64::from(degc.to_bits()) - i64::from(a.degc.to_bits());
+                    let den = i64::from(b.degc.to_bits()) - i64::from(a.degc.to_bits());
+                    let dy = i64::from(yb.to_bits()) - i64::from(ya.to_bits());
+                    let step = if den > 0 { dy * num / den } else { 0 };
+                    Fx::from_bits(crate::units::sat_i32(i64::from(ya.to_bits()) + step))
+                };
+                return (
+                    lerp(a.threshold_ma, b.threshold_ma),
+                    lerp(a.slope_mw_per_ma, b.slope_mw_per_ma),
+                );
+            }
+        }
+    }
+    (last.threshold_ma, last.slope_mw_per_ma)
+}
+
 impl Protections {
     /// Forget all debounce history (after an accepted clear).
     pub(crate) fn reset(&mut self) {
-        self.counters = [0; Fault::COUNT];
+        self.levels = [0; Fault::COUNT];
         self.counting = 0;
+    }
+
+    /// Evaluate the slow protections on one sample (the controller calls
+    /// this every [`SLOW_EVERY`] ticks); their conditions are held until the
+    /// next evaluation. Returns the end-of-life warning.
+    #[cold]
+    #[inline(never)]
+    pub(crate) fn evaluate_slow(&mut self, cfg: &ValidConfig, m: &Measurements) -> bool {
+        let Some(pl) = &cfg.config().plausibility else {
+            return false;
+        };
+        let (warn, fault, max_ma) = plausibility(pl, m);
+        self.slow = if fault {
+            bit(Fault::PowerImplausible)
+        } else {
+            0
+        };
+        self.plausible_max_ma = max_ma;
+        warn
     }
 
     /// Evaluate every protection on one sample. `last_cmd_ma` is the current
@@ -297,20 +478,20 @@ impl Protections {
     /// (zero when it was disabled); `light_expected_ma` the command at or
     /// above which the monitor must see light (see
     /// [`crate::controller`]: the configured monitor-loss drive, or a lower
-    /// ceiling in force while regulating); `rails` the sensor-rail
-    /// conditions from [`Measurements::from_sample`]. Tripped faults not
-    /// already in `active` are recorded in `log`, in bit order.
+    /// ceiling in force while regulating); `direct` the conditions read
+    /// straight off the sample ([`Measurements::from_sample`]). Tripped
+    /// faults not already in `active` are recorded in `log`, in bit order.
     ///
-    /// The usual tick (no condition present, no debounce running) costs the
-    /// comparisons of [`quiet`]; the mask is built and the counters are
-    /// walked only when a condition is present or a debounce running, and
+    /// The usual tick (no condition present, no level above zero) costs
+    /// the comparisons of [`quiet`]; the mask is built and the levels are
+    /// walked only when a condition is present or a level above zero, and
     /// then only for those faults.
     #[allow(clippy::too_many_arguments)]
     pub(crate) fn check(
         &mut self,
         cfg: &ValidConfig,
         m: &Measurements,
-        rails: u16,
+        direct: u16,
         tick: u32,
         last_cmd_ma: Fx,
         light_expected_ma: impl Fn() -> Fx,
@@ -318,13 +499,14 @@ impl Protections {
         active: FaultSet,
         log: &mut FaultLog,
     ) -> Verdict {
-        if self.counting == 0 && quiet(cfg, m, rails, last_cmd_ma, &light_expected_ma) {
+        if self.counting | self.slow == 0 && quiet(cfg, m, direct, last_cmd_ma, &light_expected_ma)
+        {
             return Verdict {
                 present: FaultSet::EMPTY,
                 tripped: FaultSet::EMPTY,
             };
         }
-        let present = present_mask(cfg, m, rails, last_cmd_ma, light_expected_ma);
+        let present = present_mask(cfg, m, direct, last_cmd_ma, light_expected_ma) | self.slow;
         if present | self.counting == 0 {
             return Verdict {
                 present: FaultSet::EMPTY,
@@ -332,34 +514,37 @@ impl Protections {
             };
         }
         let may_trip = armed(state) & !active.bits();
+        let weight = cfg.t.weight;
         let mut tripped = FaultSet::EMPTY;
+        let mut counting = 0;
         // Walk the faults present or counting, lowest bit first (the order
-        // of the records); every other counter is zero already.
+        // of the records); every other level is zero already.
         let mut todo = present | self.counting;
         while todo != 0 {
             let i = todo.trailing_zeros() as usize;
             todo &= todo - 1;
-            let (Some(counter), Some(&debounce)) =
-                (self.counters.get_mut(i), cfg.t.debounce.get(i))
+            let (Some(level), Some(&trip_at)) = (self.levels.get_mut(i), cfg.t.trip_at.get(i))
             else {
                 continue;
             };
             // The bit of fault `i` (a fault's bit is its discriminant).
             let b = 1u16 << i;
             if present & b == 0 {
-                *counter = 0;
-                continue;
-            }
-            *counter = counter.saturating_add(1);
-            if *counter >= debounce && may_trip & b != 0 {
-                if let Some(&fault) = Fault::ALL.get(i) {
-                    tripped.insert(fault);
-                    record_trip(log, cfg, m, last_cmd_ma, fault, tick);
+                *level = level.saturating_sub(1);
+            } else {
+                *level = level.saturating_add(weight).min(trip_at);
+                if *level >= trip_at && may_trip & b != 0 {
+                    if let Some(&fault) = Fault::ALL.get(i) {
+                        tripped.insert(fault);
+                        record_trip(log, cfg, m, last_cmd_ma, self.plausible_max_ma, fault, tick);
+                    }
                 }
             }
+            if *level != 0 {
+                counting |= b;
+            }
         }
-        // A counter is non-zero exactly while its condition is present.
-        self.counting = present;
+        self.counting = counting;
         Verdict {
             present: FaultSet::from_bits(present),
             tripped,
@@ -464,9 +649,10 @@ mod tests {
                 Fault::DriveMismatch,
             )
             | flag(
-                m.missed_ticks >= u32::from(p.missed_tick_limit),
+                (u32::from(p.missed_tick_limit)..=i32::MAX as u32 - 1).contains(&m.missed_ticks),
                 Fault::MissedTicks,
             )
+            | flag(m.missed_ticks > i32::MAX as u32 - 1, Fault::TickOrder)
     }
 
     #[test]
@@ -500,9 +686,12 @@ mod tests {
                     temp_counts,
                     supply_counts: 0,
                     interlock_closed: true,
+                    forward_counts: None,
+                    external_fault: false,
                 };
                 let mut window = Window::NONE;
-                let (base, rails) = Measurements::from_sample(&cfg, &sample, 0, &mut window);
+                let (base, rails) =
+                    Measurements::from_sample(&cfg, &sample, 0, Fx::ZERO, &mut window);
                 let choice = rng.next();
                 let (monitor_near, current_near, supply_near) = (
                     [p.runaway_mw, p.monitor_loss_floor_mw][choice as usize % 2],
@@ -515,7 +704,11 @@ mod tests {
                     temp_degc: rng.fx_near(c.derating.cutoff_degc),
                     supply_mv: rng.fx_near(supply_near),
                     interlock_closed: !rng.next().is_multiple_of(16),
-                    missed_ticks: rng.next() % 6,
+                    missed_ticks: match rng.next() % 8 {
+                        0 => u32::MAX - rng.next() % 4,
+                        1 => TICK_ORDER_MISSED - 1 + rng.next() % 3,
+                        k => k - 2,
+                    },
                     ..base
                 };
                 let light = rng.fx_near(last_cmd);

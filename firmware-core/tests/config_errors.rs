@@ -3,7 +3,7 @@
 //! variant with the values it carries. Where a limit has a boundary, the
 //! value just inside it is accepted.
 
-use diodestat_core::config::{AdcCal, Channel, RampKind};
+use diodestat_core::config::{AdcCal, Channel, DiodePoint, ForwardVoltage, Plausibility, RampKind};
 use diodestat_core::{example, Config, ConfigError, Fault, Fx, Gain};
 use fixed::types::I40F24;
 use std::collections::BTreeSet;
@@ -71,10 +71,49 @@ fn variant(e: &ConfigError) -> &'static str {
         E::OvercurrentBeyondSenseRange { .. } => "OvercurrentBeyondSenseRange",
         E::SupplyWindowInvalid { .. } => "SupplyWindowInvalid",
         E::MismatchToleranceNotPositive { .. } => "MismatchToleranceNotPositive",
+        E::FastDebounceTooLong { .. } => "FastDebounceTooLong",
+        E::IntermittentWeightOutOfRange { .. } => "IntermittentWeightOutOfRange",
+        E::TempTableShortOfCutoff { .. } => "TempTableShortOfCutoff",
+        E::ForwardVoltageLimitsInvalid { .. } => "ForwardVoltageLimitsInvalid",
+        E::ForwardDriveOutOfRange { .. } => "ForwardDriveOutOfRange",
+        E::PlausibilityPointInvalid { .. } => "PlausibilityPointInvalid",
+        E::PlausibilityMarginsInvalid { .. } => "PlausibilityMarginsInvalid",
     }
 }
 
-const VARIANTS: usize = 33;
+const VARIANTS: usize = 40;
+
+/// A forward-voltage channel: 1 mV per count, open at 3 000 mV, short at
+/// 500 mV, from 1 mA.
+fn forward() -> ForwardVoltage {
+    ForwardVoltage {
+        cal: AdcCal {
+            offset_counts: 0,
+            units_per_count: Gain::ONE,
+            full_scale_counts: 4095,
+        },
+        open_mv: Fx::from_num(3000),
+        short_mv: Fx::from_num(500),
+        min_drive_ma: Fx::ONE,
+        debounce: 3,
+    }
+}
+
+/// A plausibility check over two temperatures.
+fn plausibility() -> Plausibility {
+    let pt = |t: i32, th: i32| DiodePoint {
+        degc: Fx::from_num(t),
+        threshold_ma: Fx::from_num(th),
+        slope_mw_per_ma: Fx::from_num(0.9),
+    };
+    Plausibility {
+        points: heapless::Vec::from_slice(&[pt(0, 20), pt(70, 35)]).unwrap(),
+        warning_margin: Fx::from_num(0.1),
+        fault_margin: Fx::from_num(0.2),
+        allowance_ma: Fx::ONE,
+        debounce: 100,
+    }
+}
 
 /// Every refusal below, as (what was broken, the error it must give).
 fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
@@ -269,6 +308,64 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     ];
     for (fault, brk) in debs {
         case("debounce", refused(brk), E::DebounceZero { fault });
+    }
+    case(
+        "external debounce",
+        refused(|c| c.protection.external_debounce = 0),
+        E::DebounceZero {
+            fault: Fault::ExternalFault,
+        },
+    );
+    // Fast protections: at most 500 us of ticks (10 at 20 kHz).
+    type FastSet = fn(&mut Config, u16);
+    let fast: [(Fault, FastSet); 5] = [
+        (Fault::Overcurrent, |c, n| {
+            c.protection.overcurrent_debounce = n
+        }),
+        (Fault::MonitorRunaway, |c, n| {
+            c.protection.runaway_debounce = n
+        }),
+        (Fault::InterlockOpen, |c, n| {
+            c.protection.interlock_debounce = n
+        }),
+        (Fault::DriveMismatch, |c, n| {
+            c.protection.mismatch_debounce = n
+        }),
+        (Fault::ExternalFault, |c, n| {
+            c.protection.external_debounce = n
+        }),
+    ];
+    for (fault, set) in fast {
+        for n in [11, u16::MAX] {
+            case(
+                "fast debounce",
+                refused(|c| set(c, n)),
+                E::FastDebounceTooLong {
+                    fault,
+                    debounce: n,
+                    max: 10,
+                },
+            );
+        }
+    }
+    case(
+        "fast debounce at 1 kHz",
+        refused(|c| {
+            c.tick_hz = 1_000;
+            c.protection.overcurrent_debounce = 2;
+        }),
+        E::FastDebounceTooLong {
+            fault: Fault::Overcurrent,
+            debounce: 2,
+            max: 1,
+        },
+    );
+    for weight in [0, 256] {
+        case(
+            "intermittent weight",
+            refused(|c| c.protection.intermittent_weight = weight),
+            E::IntermittentWeightOutOfRange { weight },
+        );
     }
     case(
         "missed-tick limit",
@@ -478,6 +575,161 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         }),
         E::TempTableNotMonotonic { index: last },
     );
+    // The demo table runs from 100 degC down; the cut-off is 70 degC.
+    case(
+        "table short of the cut-off",
+        refused(|c| {
+            let t = &mut c.calibration.temperature.table;
+            let rest: heapless::Vec<_, 33> = t.iter().copied().skip(6).collect();
+            *t = rest;
+        }),
+        E::TempTableShortOfCutoff {
+            hottest_degc: Fx::from_num(70),
+            needed_degc: Fx::from_num(80),
+        },
+    );
+    // The forward-voltage channel.
+    let fv = forward();
+    for (short, open) in [
+        (-Fx::ONE, fv.open_mv),
+        (fv.open_mv, fv.open_mv),
+        (fv.short_mv, Fx::from_num(4096)),
+    ] {
+        case(
+            "forward-voltage limits",
+            refused(|c| {
+                c.forward_voltage = Some(ForwardVoltage {
+                    short_mv: short,
+                    open_mv: open,
+                    ..forward()
+                })
+            }),
+            E::ForwardVoltageLimitsInvalid {
+                short_mv: short,
+                open_mv: open,
+                full_scale_mv: Fx::from_num(4095),
+            },
+        );
+    }
+    for x in [Fx::ZERO, cur.ceiling_ma + Fx::DELTA] {
+        case(
+            "forward-voltage drive",
+            refused(|c| {
+                c.forward_voltage = Some(ForwardVoltage {
+                    min_drive_ma: x,
+                    ..forward()
+                })
+            }),
+            E::ForwardDriveOutOfRange {
+                min_drive_ma: x,
+                ceiling_ma: cur.ceiling_ma,
+            },
+        );
+    }
+    case(
+        "forward-voltage calibration",
+        refused(|c| {
+            let mut f = forward();
+            f.cal.units_per_count = Gain::ZERO;
+            c.forward_voltage = Some(f);
+        }),
+        E::CalibrationGainNotPositive {
+            channel: Channel::ForwardVoltage,
+        },
+    );
+    case(
+        "forward-voltage debounce",
+        refused(|c| {
+            c.forward_voltage = Some(ForwardVoltage {
+                debounce: 0,
+                ..forward()
+            })
+        }),
+        E::DebounceZero {
+            fault: Fault::DiodeOpen,
+        },
+    );
+    // Plausibility.
+    case(
+        "plausibility without points",
+        refused(|c| {
+            let mut pl = plausibility();
+            pl.points.clear();
+            c.plausibility = Some(pl);
+        }),
+        E::PlausibilityPointInvalid { index: 0 },
+    );
+    case(
+        "plausibility temperatures not rising",
+        refused(|c| {
+            let mut pl = plausibility();
+            pl.points[1].degc = pl.points[0].degc;
+            c.plausibility = Some(pl);
+        }),
+        E::PlausibilityPointInvalid { index: 1 },
+    );
+    case(
+        "plausibility slope zero",
+        refused(|c| {
+            let mut pl = plausibility();
+            pl.points[1].slope_mw_per_ma = Fx::ZERO;
+            c.plausibility = Some(pl);
+        }),
+        E::PlausibilityPointInvalid { index: 1 },
+    );
+    case(
+        "plausibility threshold negative",
+        refused(|c| {
+            let mut pl = plausibility();
+            pl.points[0].threshold_ma = -Fx::DELTA;
+            c.plausibility = Some(pl);
+        }),
+        E::PlausibilityPointInvalid { index: 0 },
+    );
+    let pl = plausibility();
+    for (w, f, a) in [
+        (-Fx::DELTA, pl.fault_margin, pl.allowance_ma),
+        (
+            pl.fault_margin + Fx::DELTA,
+            pl.fault_margin,
+            pl.allowance_ma,
+        ),
+        (
+            pl.warning_margin,
+            Fx::from_num(4) + Fx::DELTA,
+            pl.allowance_ma,
+        ),
+        (pl.warning_margin, pl.fault_margin, -Fx::DELTA),
+    ] {
+        case(
+            "plausibility margins",
+            refused(|c| {
+                c.plausibility = Some(Plausibility {
+                    warning_margin: w,
+                    fault_margin: f,
+                    allowance_ma: a,
+                    ..plausibility()
+                })
+            }),
+            E::PlausibilityMarginsInvalid {
+                warning_margin: w,
+                fault_margin: f,
+                allowance_ma: a,
+            },
+        );
+    }
+    case(
+        "plausibility debounce",
+        refused(|c| {
+            c.plausibility = Some(Plausibility {
+                debounce: 0,
+                ..plausibility()
+            })
+        }),
+        E::DebounceZero {
+            fault: Fault::PowerImplausible,
+        },
+    );
     let tc = &d.calibration.temperature;
     let (first, lastc) = (tc.table[0].counts, tc.table[last].counts);
     for (lo, hi) in [
@@ -581,6 +833,34 @@ fn values_just_inside_each_boundary_are_accepted() {
     let last = tc.table.len() - 1;
     accepted(|c| c.calibration.temperature.low_fault_counts = tc.table[0].counts - 1);
     accepted(|c| c.calibration.temperature.high_fault_counts = tc.table[last].counts + 1);
+    // The table reaching exactly the cut-off plus the margin (80 degC).
+    accepted(|c| {
+        let t = &mut c.calibration.temperature.table;
+        let rest: heapless::Vec<_, 33> = t.iter().copied().skip(4).collect();
+        *t = rest;
+    });
+    // Fast debounces at their bound, weights at theirs, the optional
+    // protections with their limits at the edges.
+    accepted(|c| {
+        c.protection.overcurrent_debounce = 10;
+        c.protection.external_debounce = 10;
+        c.protection.intermittent_weight = 255;
+    });
+    accepted(|c| c.protection.intermittent_weight = 1);
+    accepted(|c| {
+        c.forward_voltage = Some(ForwardVoltage {
+            short_mv: Fx::ZERO,
+            open_mv: Fx::from_num(4095),
+            min_drive_ma: c.current.ceiling_ma,
+            ..forward()
+        });
+        c.plausibility = Some(Plausibility {
+            warning_margin: Fx::from_num(4),
+            fault_margin: Fx::from_num(4),
+            allowance_ma: Fx::ZERO,
+            ..plausibility()
+        });
+    });
     // A two-point rising table (an RTD or PTC) is as good as a falling one.
     accepted(|c| {
         let t = &mut c.calibration.temperature.table;

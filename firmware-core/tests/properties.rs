@@ -235,7 +235,8 @@ proptest! {
             }
             let before = ctl.state();
             let s = Sample { tick, monitor_counts: m, current_counts: c, temp_counts: t,
-                             supply_counts: v, interlock_closed: il };
+                             supply_counts: v, interlock_closed: il,
+                             forward_counts: None, external_fault: false };
             let d = ctl.step(&s);
             prop_assert!(d.dac_code <= cfg.dac_code(static_ceiling(&cfg, &s)));
             prop_assert!(ctl.drive_ma() <= ctl.ceiling_ma());

@@ -97,6 +97,9 @@ fn emission_delay_is_whole_ticks_rounded_up() {
         let cfg = demo_with(|c| {
             c.tick_hz = hz;
             c.ramp.emission_delay_ms = ms;
+            // A fast debounce is bounded in time (500 us).
+            let fast_max = diodestat_core::config::fast_debounce_max(hz);
+            c.protection.mismatch_debounce = c.protection.mismatch_debounce.min(fast_max);
         });
         let n = ticks_for_ms(ms, hz);
         assert_eq!(cfg.emission_delay_ticks(), n);

@@ -228,6 +228,22 @@ pub struct ProtectionSection {
     pub mismatch_debounce_ticks: u16,
     /// Missing ticks that trip.
     pub missed_tick_limit: u16,
+    /// External fault input debounce, ticks (default 1).
+    #[serde(default = "one")]
+    pub external_debounce_ticks: u16,
+    /// Weight of a tick with a condition present in the leaky debounce
+    /// (default 3: a condition present in more than a quarter of the ticks
+    /// trips; see `docs/safety.md`).
+    #[serde(default = "default_weight")]
+    pub intermittent_weight: u16,
+}
+
+fn one() -> u16 {
+    1
+}
+
+fn default_weight() -> u16 {
+    3
 }
 
 /// Where the calibration comes from.
@@ -565,8 +581,12 @@ pub fn to_config(f: &BoardFile, module: &DemoModule, base_dir: &Path) -> Result<
             mismatch_tolerance_ma: p.mismatch_tolerance_ma.0,
             mismatch_debounce: p.mismatch_debounce_ticks,
             missed_tick_limit: p.missed_tick_limit,
+            external_debounce: p.external_debounce_ticks,
+            intermittent_weight: p.intermittent_weight,
         },
         calibration: calibration(&f.calibration, module)?,
+        forward_voltage: None,
+        plausibility: None,
     };
     cfg.calibration.temperature = temperature(&f.temperature, module, base_dir)?;
     Ok(cfg)
@@ -971,7 +991,7 @@ table_points = 25
 
     #[test]
     fn explicit_table_inline_and_misplaced_keys() {
-        let table = "[temperature]\nfrom = \"explicit\"\nlow_fault_counts = 40\nhigh_fault_counts = 4055\nopen_rail = \"high\"\ntable = [\n  { counts = 1000, degc = 60 },\n  { counts = 2048, degc = 25 },\n  { counts = 3000, degc = 0 },\n]\n";
+        let table = "[temperature]\nfrom = \"explicit\"\nlow_fault_counts = 40\nhigh_fault_counts = 4055\nopen_rail = \"high\"\ntable = [\n  { counts = 1000, degc = 90 },\n  { counts = 2048, degc = 25 },\n  { counts = 3000, degc = 0 },\n]\n";
         let base = MINIMAL.split("[temperature]").next().unwrap().to_string();
         let b = parse_board(&format!("{base}{table}"), Path::new("dir")).unwrap();
         assert_eq!(b.config.calibration.temperature.table.len(), 3);
@@ -993,7 +1013,7 @@ table_points = 25
         std::fs::create_dir_all(&dir).unwrap();
         std::fs::write(
             dir.join("ntc.csv"),
-            "# demo\ncounts,degc\n1000,60\n2048,25.5\n3000,0\n",
+            "# demo\ncounts,degc\n1000,90\n2048,25.5\n3000,0\n",
         )
         .unwrap();
         let base = MINIMAL.split("[temperature]").next().unwrap().to_string();

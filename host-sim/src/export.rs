@@ -94,6 +94,8 @@ pub fn config_body(c: &Config) -> String {
         ("mismatch_tolerance_ma", fx(p.mismatch_tolerance_ma)),
         ("mismatch_debounce", p.mismatch_debounce.to_string()),
         ("missed_tick_limit", p.missed_tick_limit.to_string()),
+        ("external_debounce", p.external_debounce.to_string()),
+        ("intermittent_weight", p.intermittent_weight.to_string()),
     ] {
         let _ = writeln!(s, "            {k}: {v},");
     }
@@ -128,6 +130,9 @@ pub fn config_body(c: &Config) -> String {
     let _ = writeln!(s, "                open_rail: Rail::{:?},", t.open_rail);
     let _ = writeln!(s, "            }},");
     let _ = writeln!(s, "        }},");
+    // Board files describe neither channel yet (see `boardfile::to_config`).
+    let _ = writeln!(s, "        forward_voltage: None,");
+    let _ = writeln!(s, "        plausibility: None,");
     let _ = writeln!(s, "    }}");
     s
 }

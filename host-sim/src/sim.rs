@@ -217,6 +217,8 @@ impl Plant {
                 .adc_supply
                 .sample(self.supply_v / crate::board::SUPPLY_DIVIDER),
             interlock_closed: self.interlock_closed,
+            forward_counts: None,
+            external_fault: false,
         }
     }
 

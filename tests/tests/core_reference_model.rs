@@ -300,6 +300,8 @@ fn run(shadow: bool) -> Worst {
         temp_counts,
         supply_counts: Plant::counts(&c.calibration.supply, mid_mv.to_num()),
         interlock_closed: true,
+        forward_counts: None,
+        external_fault: false,
     };
     ctl.step(&healthy);
     let mut worst = Worst {

@@ -8,7 +8,7 @@ use diodestat_core::config::{
 use diodestat_core::{Config, Fx, Gain, TempPoint};
 
 /// FNV-1a 64 hash of the table and configuration below, as hex.
-pub const CONFIG_HASH: &str = "a3c6831d9ed69299";
+pub const CONFIG_HASH: &str = "4deb5fc6c1923cc1";
 
 /// Temperature table (counts, degC).
 pub const TEMP_TABLE: [TempPoint; 25] = [
@@ -160,6 +160,8 @@ pub fn config() -> Config {
             mismatch_tolerance_ma: Fx::from_bits(327680),
             mismatch_debounce: 4,
             missed_tick_limit: 3,
+            external_debounce: 1,
+            intermittent_weight: 3,
         },
         calibration: Calibration {
             monitor: AdcCal {
@@ -189,5 +191,7 @@ pub fn config() -> Config {
                 open_rail: Rail::High,
             },
         },
+        forward_voltage: None,
+        plausibility: None,
     }
 }

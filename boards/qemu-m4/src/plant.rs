@@ -161,6 +161,8 @@ impl Plant {
             temp_counts: self.faults.temp_counts.unwrap_or(adc12(temp)),
             supply_counts: adc12(supply),
             interlock_closed: !self.faults.interlock_open,
+            forward_counts: None,
+            external_fault: false,
         }
     }
 

@@ -96,6 +96,8 @@ pub fn healthy_sample(cfg: &ValidConfig, tick: u32) -> Sample {
         temp_counts: temp_counts_for(cfg, Fx::from_num(25)),
         supply_counts: counts_for(&c.calibration.supply, mid_mv),
         interlock_closed: true,
+        forward_counts: None,
+        external_fault: false,
     }
 }
 

@@ -1,0 +1,267 @@
+//! Protections that hold under intermittent, latent and implausible
+//! faults: an intermittent condition still trips, a fast protection cannot
+//! be slowed down by its configuration, a temperature table must see past
+//! the cut-off, emission never starts with a condition present, and the
+//! tick index may only move forward.
+
+mod common;
+
+use common::*;
+use diodestat_core::{Fault, Fx, Request, State};
+
+fn fx(v: f64) -> Fx {
+    Fx::from_num(v)
+}
+
+fn names(f: diodestat_core::FaultSet) -> Vec<&'static str> {
+    f.iter().map(|f| f.name()).collect()
+}
+
+/// An open monitor contact that reads the real light one tick in twenty:
+/// the power loop sits on its ceiling with a dark monitor 95 % of the time.
+/// A debounce that restarts on one clean tick never trips; the leaky
+/// integrator must.
+#[test]
+fn an_intermittent_open_monitor_trips_monitor_loss() {
+    let cfg = demo();
+    let mut r = Rig::regulating_apc(cfg, fx(20.0), 200);
+    let mut tripped = None;
+    for k in 0..20_000u32 {
+        r.monitor_override = if k % 20 == 19 { None } else { Some(0) };
+        let d = r.step();
+        if d.status.faults.contains(Fault::MonitorLoss) {
+            tripped = Some(k);
+            break;
+        }
+    }
+    let k = tripped.expect("monitor loss trips on an intermittent open monitor");
+    // Within the documented bound (see `protect.rs`): w·N / ((w+1)·d − 1)
+    // ticks after the loop reaches its ceiling, d = 19/20; the ceiling is
+    // reached within a few hundred ticks of the contact opening.
+    assert!(k < 2_000, "tripped after {k} ticks");
+}
+
+/// The fast protections promise a trip on the step that sees the sample:
+/// a debounce of 65 535 ticks (3.3 s at 20 kHz) breaks that promise and is
+/// refused, naming the configuration key.
+#[test]
+fn a_fast_protection_refuses_a_long_debounce() {
+    type Set = fn(&mut diodestat_core::Config);
+    let cases: [(&str, Set); 3] = [
+        ("protection.overcurrent_debounce", |c| {
+            c.protection.overcurrent_debounce = 65_535
+        }),
+        ("protection.runaway_debounce", |c| {
+            c.protection.runaway_debounce = 65_535
+        }),
+        ("protection.interlock_debounce", |c| {
+            c.protection.interlock_debounce = 65_535
+        }),
+    ];
+    for (key, set) in cases {
+        let mut c = diodestat_core::example::config();
+        set(&mut c);
+        let err = c.validate().expect_err(key);
+        let text = err.to_string();
+        assert!(text.contains(key), "{key}: {text}");
+        assert!(text.contains("65535"), "{key}: {text}");
+    }
+    let mut c = diodestat_core::example::config();
+    c.protection.mismatch_debounce = 65_535;
+    let text = c.validate().expect_err("mismatch").to_string();
+    assert!(text.contains("protection.mismatch_debounce"), "{text}");
+}
+
+/// A table that ends at 45 °C with a 70 °C cut-off extrapolates its last
+/// segment and trips over-temperature about 13 °C late: refused.
+#[test]
+fn a_temperature_table_short_of_the_cutoff_is_refused() {
+    let mut c = diodestat_core::example::config();
+    let keep: heapless::Vec<_, 33> = c
+        .calibration
+        .temperature
+        .table
+        .iter()
+        .copied()
+        .filter(|p| p.degc <= fx(45.0))
+        .collect();
+    c.calibration.temperature.table = keep;
+    let err = c
+        .validate()
+        .expect_err("a table ending at 45 degC is refused");
+    let text = err.to_string();
+    assert!(text.contains("45"), "{text}");
+    assert!(text.contains("80"), "{text}"); // the 70 degC cut-off plus 10
+}
+
+/// A condition that appears during the emission delay, present but not yet
+/// debounced when the delay ends (a temperature reading far past the hot
+/// end of the table), must hold the start: enable stays low while it is
+/// present, and emission starts once it has cleared.
+#[test]
+fn emission_does_not_start_while_a_condition_is_present() {
+    let cfg = demo();
+    let hot = 100; // inside the rails, far past the table's hot end
+    let healthy = healthy_sample(&cfg, 0).temp_counts;
+    let delay = cfg.emission_delay_ticks();
+    let mut r = Rig::new(cfg);
+    r.req(Request::SetMode(diodestat_core::Mode::Acc));
+    r.req(Request::SetCurrentMa(fx(30.0)));
+    r.req(Request::Enable);
+    // The delay runs out with the reading present from its last tick on.
+    for _ in 0..delay.saturating_sub(1) {
+        assert!(!r.step().enable);
+    }
+    for k in 0..30 {
+        let d = r.step_with(|s| s.temp_counts = hot);
+        assert!(
+            r.ctl.conditions().contains(Fault::OverTemperature),
+            "tick {k}"
+        );
+        assert!(!d.enable, "emission started with a condition present ({k})");
+    }
+    // Cleared before its debounce: the start goes ahead.
+    r.s.temp_counts = healthy;
+    let n = r
+        .run_until(100, |_, d| d.enable)
+        .expect("emission starts once the condition clears");
+    assert!(n <= 2, "{n}");
+    assert!(r.ctl.faults().is_empty());
+}
+
+/// A repeated tick index (a sample delivered twice, a stalled tick source)
+/// and a backward one are a fault of their own.
+#[test]
+fn a_repeated_or_backward_tick_index_is_a_fault() {
+    for back in [0u32, 1, 5] {
+        let mut r = Rig::regulating_acc(demo(), fx(20.0));
+        // `step_with` advances the index by one first.
+        let d = r.step_with(|s| s.tick = s.tick.wrapping_sub(1 + back));
+        assert!(!d.enable, "back {back}");
+        assert_eq!(d.status.state, State::Latched, "back {back}");
+        assert_eq!(names(d.status.faults), ["tick-order"], "back {back}");
+    }
+}
+
+mod properties {
+    use super::*;
+    use diodestat_core::Mode;
+    use proptest::prelude::*;
+
+    /// A 64-bit LCG (Knuth's MMIX constants, `common practice`).
+    fn lcg(x: &mut u64) -> u32 {
+        *x = x
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        (*x >> 33) as u32
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(96))]
+
+        /// An intermittent condition (the supply under its window on a
+        /// random `duty` of the ticks) trips exactly when the leaky level
+        /// reaches `w·N`, and by the documented bound: the first tick with
+        /// `(w + 1)·k − n >= w·N` (`k` of `n` ticks present). When the duty
+        /// is above `1/(w + 1)` that tick comes.
+        #[test]
+        fn an_intermittent_condition_trips_within_the_bound(
+            w in 1u16..8,
+            n in 1u16..60,
+            duty_permille in 0u32..1000,
+            seed in any::<u64>(),
+        ) {
+            let cfg = demo_with(|c| {
+                c.protection.intermittent_weight = w;
+                c.protection.supply_debounce = n;
+            });
+            let mut r = Rig::regulating_acc(cfg, fx(15.0));
+            let healthy = r.s.supply_counts;
+            let (wu, nu) = (u64::from(w), u64::from(n));
+            let trip_at = wu * nu;
+            let mut x = seed;
+            let (mut level, mut present, mut ticks) = (0u64, 0u64, 0u64);
+            let mut bound_tick = None;
+            let mut tripped = None;
+            for t in 1..=20_000u64 {
+                let on = lcg(&mut x) % 1000 < duty_permille;
+                let d = r.step_with(|s| s.supply_counts = if on { 0 } else { healthy });
+                ticks += 1;
+                present += u64::from(on);
+                level = if on { (level + wu).min(trip_at) } else { level.saturating_sub(1) };
+                if bound_tick.is_none() && (wu + 1) * present >= ticks + trip_at {
+                    bound_tick = Some(t);
+                }
+                if d.status.faults.contains(Fault::SupplyUnder) {
+                    tripped = Some(t);
+                    break;
+                }
+                // Not before the level reaches w·N.
+                prop_assert!(level < trip_at, "level {level} reached {trip_at} at {t} without a trip");
+            }
+            if let Some(b) = bound_tick {
+                let t = tripped.expect("tripped");
+                prop_assert!(t <= b, "tripped at {t}, bound {b}");
+                prop_assert!(level >= trip_at);
+            }
+            // Above the duty 1/(w+1) by a clear margin it trips (by the
+            // bound, or before it: the floor at zero only helps).
+            if u64::from(duty_permille) * (wu + 1) >= 1000 + 300 {
+                prop_assert!(tripped.is_some());
+            }
+        }
+
+        /// Whatever the samples and requests, enable never rises on a tick
+        /// whose sample has a protection condition present, and a start held
+        /// in Arming says so.
+        #[test]
+        fn enable_never_rises_while_a_condition_is_present(seed in any::<u64>()) {
+            let cfg = demo_with(|c| c.ramp.emission_delay_ms = 1);
+            let mut r = Rig::new(cfg);
+            let healthy = r.s;
+            let mut x = seed;
+            for _ in 0..4_000 {
+                if lcg(&mut x).is_multiple_of(40) {
+                    let req = match lcg(&mut x) % 5 {
+                        0 | 1 => Request::Enable,
+                        2 => Request::Disable,
+                        3 => Request::ClearFaults,
+                        _ => Request::SetMode(if lcg(&mut x).is_multiple_of(2) { Mode::Apc } else { Mode::Acc }),
+                    };
+                    let _ = r.ctl.request(req);
+                }
+                let was = r.last.enable;
+                let pick = lcg(&mut x) % 64;
+                let v = lcg(&mut x);
+                let d = r.step_with(|s| {
+                    s.temp_counts = healthy.temp_counts;
+                    s.supply_counts = healthy.supply_counts;
+                    s.interlock_closed = true;
+                    match pick {
+                        0 => s.temp_counts = (v % 4096) as u16,
+                        1 => s.supply_counts = (v % 4096) as u16,
+                        2 => s.interlock_closed = false,
+                        3 => s.current_counts = (v % 4096) as u16,
+                        4 => s.monitor_counts = (v % 4096) as u16,
+                        5 => s.external_fault = true,
+                        _ => {}
+                    }
+                    if pick != 5 {
+                        s.external_fault = false;
+                    }
+                });
+                if d.enable && !was {
+                    prop_assert!(
+                        r.ctl.conditions().is_empty(),
+                        "enable rose with {:?} present",
+                        r.ctl.conditions()
+                    );
+                }
+                if d.status.warnings.start_held {
+                    prop_assert_eq!(d.status.state, State::Arming);
+                    prop_assert!(!r.ctl.conditions().is_empty());
+                }
+            }
+        }
+    }
+}
