@@ -1087,7 +1087,8 @@ impl Config {
                 low_rail_bit: low_rail.bit(),
                 high_rail_bit: high_rail.bit(),
                 trip_at: Fault::ALL.map(|f| {
-                    u32::from(debounce_ticks(&self, f)) * u32::from(p.intermittent_weight)
+                    u32::from(debounce_ticks(&self, f))
+                        .saturating_mul(u32::from(p.intermittent_weight))
                 }),
                 weight: u32::from(p.intermittent_weight),
                 neg_mismatch_tolerance_ma: p.mismatch_tolerance_ma.wrapping_neg(),

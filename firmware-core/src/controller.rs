@@ -70,7 +70,6 @@ impl Controller {
                     at_ceiling: false,
                     sensor_suspect: false,
                     end_of_life: false,
-                    start_held: false,
                 },
             },
             requested_mode: Mode::Apc,
@@ -113,10 +112,7 @@ impl Controller {
             }
             Request::Disable => {
                 match self.status.state {
-                    State::Arming => {
-                        self.status.state = State::Off;
-                        self.status.warnings.start_held = false;
-                    }
+                    State::Arming => self.status.state = State::Off,
                     State::Ramping | State::Regulating => self.status.state = State::Stopping,
                     State::Off | State::Stopping | State::Latched => {}
                 }
@@ -247,17 +243,14 @@ impl Controller {
         self.apply_mode_change(monitor_mw);
         let (drive, enable, at_ceiling) = match self.status.state {
             State::Off | State::Latched => {
-                self.status.warnings.start_held = false;
                 self.envelope_ma = Fx::ZERO;
                 self.ceiling_ma = Fx::ZERO;
                 (Fx::ZERO, false, false)
             }
             State::Arming => {
                 // Nothing starts emitting while a condition is present,
-                // debounced or not: the start waits, and says so.
-                let held = self.arming_left == 0 && !self.present.is_empty();
-                self.status.warnings.start_held = held;
-                if held {
+                // debounced or not: the start waits ([`Self::start_held`]).
+                if self.arming_left == 0 && !self.present.is_empty() {
                     self.ceiling_ma = Fx::ZERO;
                     (Fx::ZERO, false, false)
                 } else if self.arming_left == 0 {
@@ -442,6 +435,14 @@ impl Controller {
     /// Fault conditions present in the latest sample (before debounce).
     pub fn conditions(&self) -> FaultSet {
         self.present
+    }
+
+    /// Whether the start is held in Arming: the emission delay has run out
+    /// but a protection condition is present ([`Self::conditions`] says
+    /// which); emission starts on the first tick without one. (Kept out of
+    /// [`Status`]: its eight bytes are copied whole on every tick.)
+    pub fn start_held(&self) -> bool {
+        self.status.state == State::Arming && self.arming_left == 0 && !self.present.is_empty()
     }
 
     /// The fault log.

@@ -95,10 +95,6 @@ pub struct Warnings {
     /// [`crate::config::Plausibility`]). Re-evaluated every
     /// [`crate::protect::SLOW_EVERY`] ticks.
     pub end_of_life: bool,
-    /// The start is held in Arming: the emission delay has run out but a
-    /// protection condition is present ([`crate::Controller::conditions`]
-    /// says which); emission starts on the first tick without one.
-    pub start_held: bool,
 }
 
 /// Compact status returned with every [`Drive`].

@@ -162,9 +162,6 @@ pub(crate) struct Protections {
     counting: u16,
     /// Slow conditions present at their latest evaluation, held.
     slow: u16,
-    /// The plausibility fault bound of the latest evaluation, mA (for the
-    /// record).
-    plausible_max_ma: Fx,
 }
 
 /// Result of one evaluation.
@@ -309,18 +306,10 @@ fn record_trip(
     cfg: &ValidConfig,
     m: &Measurements,
     last_cmd_ma: Fx,
-    plausible_max_ma: Fx,
     fault: Fault,
     tick: u32,
 ) {
-    log.record(trip_record(
-        cfg,
-        m,
-        last_cmd_ma,
-        plausible_max_ma,
-        fault,
-        tick,
-    ));
+    log.record(trip_record(cfg, m, last_cmd_ma, fault, tick));
 }
 
 /// The record of a tripped fault: the measured value and the limit it
@@ -330,7 +319,6 @@ fn trip_record(
     cfg: &ValidConfig,
     m: &Measurements,
     last_cmd_ma: Fx,
-    plausible_max_ma: Fx,
     fault: Fault,
     tick: u32,
 ) -> FaultRecord {
@@ -375,7 +363,13 @@ fn trip_record(
             Fx::saturating_from_num(m.missed_ticks.wrapping_add(1) as i32),
             Fx::ONE,
         ),
-        Fault::PowerImplausible => (m.current_ma, plausible_max_ma),
+        // The bound at the tripping sample.
+        Fault::PowerImplausible => (
+            m.current_ma,
+            c.plausibility
+                .as_ref()
+                .map_or(Fx::MAX, |pl| plausibility(pl, m).2),
+        ),
         Fault::DiodeOpen => (
             m.forward_mv,
             c.forward_voltage.map_or(Fx::ZERO, |f| f.open_mv),
@@ -404,7 +398,8 @@ pub(crate) fn plausibility(pl: &Plausibility, m: &Measurements) -> (bool, bool, 
     }
     let (threshold_ma, slope) = diode_at(pl, m.temp_degc);
     let power = m.monitor_mw.max(Fx::ZERO);
-    let need_ma = threshold_ma.saturating_add(power.saturating_div(slope));
+    // (Validation keeps every slope positive; a zero one reads as infinite.)
+    let need_ma = threshold_ma.saturating_add(power.checked_div(slope).unwrap_or(Fx::MAX));
     let bound = |margin: Fx| {
         need_ma
             .saturating_add(need_ma.saturating_mul(margin))
@@ -434,8 +429,16 @@ fn diode_at(pl: &Plausibility, degc: Fx) -> (Fx, Fx) {
                     let num = i64::from(degc.to_bits()) - i64::from(a.degc.to_bits());
                     let den = i64::from(b.degc.to_bits()) - i64::from(a.degc.to_bits());
                     let dy = i64::from(yb.to_bits()) - i64::from(ya.to_bits());
-                    let step = if den > 0 { dy * num / den } else { 0 };
-                    Fx::from_bits(crate::units::sat_i32(i64::from(ya.to_bits()) + step))
+                    // 0 <= num <= den < 2^32 and |dy| < 2^32: the
+                    // quotient is within |dy|.
+                    let step = if den > 0 {
+                        dy.saturating_mul(num) / den
+                    } else {
+                        0
+                    };
+                    Fx::from_bits(crate::units::sat_i32(
+                        i64::from(ya.to_bits()).saturating_add(step),
+                    ))
                 };
                 return (
                     lerp(a.threshold_ma, b.threshold_ma),
@@ -463,13 +466,12 @@ impl Protections {
         let Some(pl) = &cfg.config().plausibility else {
             return false;
         };
-        let (warn, fault, max_ma) = plausibility(pl, m);
+        let (warn, fault, _) = plausibility(pl, m);
         self.slow = if fault {
             bit(Fault::PowerImplausible)
         } else {
             0
         };
-        self.plausible_max_ma = max_ma;
         warn
     }
 
@@ -483,9 +485,10 @@ impl Protections {
     /// faults not already in `active` are recorded in `log`, in bit order.
     ///
     /// The usual tick (no condition present, no level above zero) costs
-    /// the comparisons of [`quiet`]; the mask is built and the levels are
-    /// walked only when a condition is present or a level above zero, and
-    /// then only for those faults.
+    /// the comparisons of [`quiet`]; the mask is built only when a
+    /// condition is present, and the levels are walked only when one is
+    /// present or above zero, and then only for those faults.
+    #[inline(always)]
     #[allow(clippy::too_many_arguments)]
     pub(crate) fn check(
         &mut self,
@@ -499,21 +502,44 @@ impl Protections {
         active: FaultSet,
         log: &mut FaultLog,
     ) -> Verdict {
-        if self.counting | self.slow == 0 && quiet(cfg, m, direct, last_cmd_ma, &light_expected_ma)
-        {
+        let calm = quiet(cfg, m, direct, last_cmd_ma, &light_expected_ma);
+        if calm && self.counting | self.slow == 0 {
             return Verdict {
                 present: FaultSet::EMPTY,
                 tripped: FaultSet::EMPTY,
             };
         }
-        let present = present_mask(cfg, m, direct, last_cmd_ma, light_expected_ma) | self.slow;
+        // A level decaying after its condition went needs no mask.
+        let present = if calm {
+            0
+        } else {
+            present_mask(cfg, m, direct, last_cmd_ma, light_expected_ma)
+        } | self.slow;
+        let may_trip = armed(state) & !active.bits();
+        self.walk(cfg, m, present, tick, last_cmd_ma, may_trip, log)
+    }
+
+    /// Move the levels of the faults present or counting (`present`: the
+    /// conditions of this sample) and trip those that reach their level.
+    /// Out of line: the usual tick does not come here.
+    #[inline(never)]
+    #[allow(clippy::too_many_arguments)]
+    fn walk(
+        &mut self,
+        cfg: &ValidConfig,
+        m: &Measurements,
+        present: u16,
+        tick: u32,
+        last_cmd_ma: Fx,
+        may_trip: u16,
+        log: &mut FaultLog,
+    ) -> Verdict {
         if present | self.counting == 0 {
             return Verdict {
                 present: FaultSet::EMPTY,
                 tripped: FaultSet::EMPTY,
             };
         }
-        let may_trip = armed(state) & !active.bits();
         let weight = cfg.t.weight;
         let mut tripped = FaultSet::EMPTY;
         let mut counting = 0;
@@ -536,7 +562,7 @@ impl Protections {
                 if *level >= trip_at && may_trip & b != 0 {
                     if let Some(&fault) = Fault::ALL.get(i) {
                         tripped.insert(fault);
-                        record_trip(log, cfg, m, last_cmd_ma, self.plausible_max_ma, fault, tick);
+                        record_trip(log, cfg, m, last_cmd_ma, fault, tick);
                     }
                 }
             }
