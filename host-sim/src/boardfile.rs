@@ -14,8 +14,8 @@ use std::fmt;
 use std::path::{Path, PathBuf};
 
 use diodestat_core::config::{
-    AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, PowerRange, Protection, Rail,
-    Ramps, TempCal,
+    AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, DiodePoint, Plausibility,
+    PowerRange, Protection, Rail, Ramps, TempCal, DIODE_POINTS,
 };
 use diodestat_core::temp_table::TEMP_TABLE_LEN;
 use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, ValidConfig};
@@ -121,6 +121,34 @@ pub struct BoardFile {
     /// the exported configuration or its hash).
     #[serde(default)]
     pub loop_check: Option<LoopCheckSection>,
+    /// Current-for-power plausibility (optional).
+    #[serde(default)]
+    pub plausibility: Option<PlausibilitySection>,
+}
+
+/// `[plausibility]`: the healthy diode's threshold and slope over case
+/// temperature, taken from the module's diode model at the junction
+/// temperature `case + junction_rise_k`, and the margins.
+#[derive(Clone, Debug, PartialEq, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PlausibilitySection {
+    /// How far the junction sits above the case at full drive, K.
+    pub junction_rise_k: f64,
+    /// Case temperatures of the points, degC, rising (at most 8).
+    #[serde(default = "default_points")]
+    pub points_degc: Vec<f64>,
+    /// Warning margin ("end of life approaching"), fraction.
+    pub warning_margin: FxValue,
+    /// Fault margin, fraction.
+    pub fault_margin: FxValue,
+    /// Absolute allowance, mA.
+    pub allowance_ma: FxValue,
+    /// Fault debounce, ticks.
+    pub debounce_ticks: u16,
+}
+
+fn default_points() -> Vec<f64> {
+    vec![-20.0, 0.0, 20.0, 40.0, 60.0, 80.0]
 }
 
 /// `[loop_check]`.
@@ -586,10 +614,50 @@ pub fn to_config(f: &BoardFile, module: &DemoModule, base_dir: &Path) -> Result<
         },
         calibration: calibration(&f.calibration, module)?,
         forward_voltage: None,
-        plausibility: None,
+        plausibility: match &f.plausibility {
+            Some(pl) => Some(plausibility(pl, module)?),
+            None => None,
+        },
     };
     cfg.calibration.temperature = temperature(&f.temperature, module, base_dir)?;
     Ok(cfg)
+}
+
+/// The plausibility check of a `[plausibility]` section: the module's
+/// threshold and slope at each point's junction temperature.
+fn plausibility(pl: &PlausibilitySection, module: &DemoModule) -> Result<Plausibility, KeyError> {
+    let diode = crate::plant::Diode::new(module.diode.clone())
+        .map_err(|e| invalid("module", e.to_string()))?;
+    if pl.points_degc.is_empty() || pl.points_degc.len() > DIODE_POINTS {
+        return Err(invalid(
+            "plausibility.points_degc",
+            format!("holds 1 to {DIODE_POINTS} temperatures"),
+        ));
+    }
+    if !pl.junction_rise_k.is_finite() || pl.junction_rise_k < 0.0 {
+        return Err(invalid(
+            "plausibility.junction_rise_k",
+            format!("must be >= 0 K, not {}", pl.junction_rise_k),
+        ));
+    }
+    let mut points = heapless::Vec::new();
+    for &t in &pl.points_degc {
+        let tj_k = crate::plant::c_to_k(t + pl.junction_rise_k);
+        let pt = DiodePoint {
+            degc: Fx::saturating_from_num(t),
+            threshold_ma: Fx::saturating_from_num(diode.threshold_current_a(tj_k) * 1e3),
+            slope_mw_per_ma: Fx::saturating_from_num(diode.slope_w_per_a(tj_k)),
+        };
+        // Cannot fail: the length was checked above.
+        let _ = points.push(pt);
+    }
+    Ok(Plausibility {
+        points,
+        warning_margin: pl.warning_margin.0,
+        fault_margin: pl.fault_margin.0,
+        allowance_ma: pl.allowance_ma.0,
+        debounce: pl.debounce_ticks,
+    })
 }
 
 fn calibration(c: &CalibrationSection, module: &DemoModule) -> Result<Calibration, KeyError> {

@@ -31,6 +31,11 @@ pub enum Moment {
     SetpointChange,
     /// While derating (hot mount).
     Derating,
+    /// Latent: present before the enable request (a fault the board
+    /// powered up with). Safe when the enable is refused or the fault
+    /// latches; events that are not a standing state (missed ticks) are
+    /// not run at this moment.
+    Latent,
 }
 
 /// A plant corner.
@@ -135,8 +140,27 @@ pub fn faults() -> Vec<(HwFault, bool)> {
             true,
         ),
         (HwFault::MissedTicks { ticks: 10 }, true),
+        // An intermittent monitor contact that reads light one tick in
+        // twenty: dark on 95 % of the ticks, which a debounce restarting on
+        // one clean tick never trips. (A contact open on fewer ticks reads,
+        // behind the monitor's RC front end, as a lower responsivity: that
+        // is the degrading monitor's case.)
+        (
+            HwFault::MonitorIntermittent {
+                open_fraction: 0.95,
+            },
+            true,
+        ),
+        // A monitor losing 2 % of its responsivity per millisecond: caught by
+        // the plausibility check where the board has one; the power stays
+        // within the optical ceiling for the case's 30 ms either way.
+        (HwFault::MonitorDrift { per_s: 20.0 }, false),
+        (HwFault::ExternalFault, true),
     ]
 }
+
+/// When a latent fault is injected, ms (before [`ENABLE_MS`]).
+pub const LATENT_MS: f64 = 0.1;
 
 /// One case's outcome.
 #[derive(Clone, Debug, Serialize)]
@@ -284,6 +308,7 @@ fn scenario(
         // The mount starts hot (see `ambient_c` below): the ceiling is
         // derated when the fault arrives.
         Moment::Derating => 30.0,
+        Moment::Latent => LATENT_MS,
     };
     let ambient_c = match moment {
         Moment::Derating => plan.derating_ambient_c.max(corner.ambient_c),
@@ -364,7 +389,16 @@ pub fn run_case(
         .iter()
         .filter(|r| r.p_mw > ceiling_mw * (1.0 + margin))
         .count() as u64;
-    let detected = res.final_state == State::Latched;
+    // A latent fault may also be caught by refusing the enable request
+    // (and the laser never emitted).
+    let refused = moment == Moment::Latent
+        && res
+            .happenings
+            .iter()
+            .any(|h| matches!(h, Happening::Rejected { .. }))
+        && res.trace.iter().all(|r| !r.state.is_emitting())
+        && res.final_state == State::Off;
+    let detected = res.final_state == State::Latched || refused;
     let safe = (detected || !must_latch) && ticks_over <= 1 && !res.damaged;
     let latency_ticks = first_fault_tick.map(|t| t - inject_tick);
     Ok(CaseResult {
@@ -400,10 +434,14 @@ pub fn run(
         Moment::Steady,
         Moment::SetpointChange,
         Moment::Derating,
+        Moment::Latent,
     ];
     let mut cases = Vec::new();
     for f in faults() {
         for m in moments {
+            if m == Moment::Latent && matches!(f.0, HwFault::MissedTicks { .. }) {
+                continue;
+            }
             for c in &CORNERS {
                 cases.push((f, m, c));
             }

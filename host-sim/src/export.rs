@@ -130,9 +130,36 @@ pub fn config_body(c: &Config) -> String {
     let _ = writeln!(s, "                open_rail: Rail::{:?},", t.open_rail);
     let _ = writeln!(s, "            }},");
     let _ = writeln!(s, "        }},");
-    // Board files describe neither channel yet (see `boardfile::to_config`).
+    // Board files describe no forward-voltage channel yet (see
+    // `boardfile::to_config`).
     let _ = writeln!(s, "        forward_voltage: None,");
-    let _ = writeln!(s, "        plausibility: None,");
+    match &c.plausibility {
+        None => {
+            let _ = writeln!(s, "        plausibility: None,");
+        }
+        Some(pl) => {
+            let _ = writeln!(
+                s,
+                "        plausibility: Some(diodestat_core::config::Plausibility {{"
+            );
+            let _ = writeln!(s, "            points: heapless::Vec::from_slice(&[");
+            for p in &pl.points {
+                let _ = writeln!(
+                    s,
+                    "                diodestat_core::config::DiodePoint {{ degc: {}, threshold_ma: {}, slope_mw_per_ma: {} }},",
+                    fx(p.degc),
+                    fx(p.threshold_ma),
+                    fx(p.slope_mw_per_ma)
+                );
+            }
+            let _ = writeln!(s, "            ]).unwrap_or_default(),");
+            let _ = writeln!(s, "            warning_margin: {},", fx(pl.warning_margin));
+            let _ = writeln!(s, "            fault_margin: {},", fx(pl.fault_margin));
+            let _ = writeln!(s, "            allowance_ma: {},", fx(pl.allowance_ma));
+            let _ = writeln!(s, "            debounce: {},", pl.debounce);
+            let _ = writeln!(s, "        }}),");
+        }
+    }
     let _ = writeln!(s, "    }}");
     s
 }

@@ -184,6 +184,21 @@ pub enum HwFault {
         /// Number of ticks.
         ticks: u32,
     },
+    /// An intermittent monitor contact: the photodiode reads open on a
+    /// random `open_fraction` of the ticks (seeded).
+    MonitorIntermittent {
+        /// Fraction of ticks open, 0 to 1.
+        open_fraction: f64,
+    },
+    /// A slowly degrading monitor: its responsivity falls by `per_s` of
+    /// its nominal value every second from the injection (never below 0).
+    MonitorDrift {
+        /// Loss of responsivity per second, fraction of nominal.
+        per_s: f64,
+    },
+    /// The board's external fault input (a hardware comparator, a watchdog
+    /// pre-warning) is asserted.
+    ExternalFault,
 }
 
 /// ADC channels of the simulated board.
@@ -217,6 +232,9 @@ impl HwFault {
             HwFault::Aging { .. } => "aging",
             HwFault::AdcStuck { .. } => "adc-stuck",
             HwFault::MissedTicks { .. } => "missed-ticks",
+            HwFault::MonitorIntermittent { .. } => "monitor-intermittent",
+            HwFault::MonitorDrift { .. } => "monitor-drift",
+            HwFault::ExternalFault => "external-fault",
         }
     }
 }

@@ -13,7 +13,7 @@
 use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig};
 
 use crate::plant::{
-    c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, SensorChain, Thermal,
+    c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, Rng, SensorChain, Thermal,
 };
 use crate::scenario::{Action, AdcChannel, DiodeModel, HwFault, ModeName, Scenario};
 
@@ -110,6 +110,17 @@ pub struct Plant {
     pub interlock_closed: bool,
     /// Ticks still to be missed.
     pub missed_left: u32,
+    /// Fraction of ticks the monitor contact reads open (intermittent
+    /// contact), 0 when healthy.
+    pub monitor_open_fraction: f64,
+    /// Loss of monitor responsivity per second (a slowly degrading
+    /// monitor), fraction of nominal; 0 when healthy.
+    pub monitor_drift_per_s: f64,
+    /// The board's external fault input asserted.
+    pub external_fault: bool,
+    /// Draws of the intermittent contact (its own stream: the noise of
+    /// the other channels is the same with or without it).
+    contact_rng: Rng,
     /// Monitor front-end filter state, V.
     mon_filt_v: f64,
     /// Monitor filter coefficient 1 - exp(-2 pi f dt) and its dt, s.
@@ -155,6 +166,10 @@ impl Plant {
             supply_v: module.supply_v,
             interlock_closed: true,
             missed_left: 0,
+            monitor_open_fraction: 0.0,
+            monitor_drift_per_s: 0.0,
+            external_fault: false,
+            contact_rng: Rng::new(seed ^ 0x636f_6e74_6163_7421),
             mon_filt_v: 0.0,
             mon_filt_a: 0.0,
             mon_filt_dt: f64::NAN,
@@ -189,7 +204,15 @@ impl Plant {
     /// Sample every channel for the tick `tick`.
     pub fn sample(&mut self, tick: u32, dt: f64) -> Sample {
         let t_case = self.thermal.t_case_k();
-        let i_mon = if self.reference {
+        if self.monitor_drift_per_s > 0.0 {
+            self.monitor.degrade_factor =
+                (self.monitor.degrade_factor - self.monitor_drift_per_s * dt).max(0.0);
+        }
+        let contact_open = self.monitor_open_fraction > 0.0
+            && self.contact_rng.uniform() < self.monitor_open_fraction;
+        let i_mon = if contact_open {
+            0.0
+        } else if self.reference {
             self.monitor
                 .current_a(self.p_front_w, self.wavelength_m, t_case)
         } else {
@@ -218,7 +241,7 @@ impl Plant {
                 .sample(self.supply_v / crate::board::SUPPLY_DIVIDER),
             interlock_closed: self.interlock_closed,
             forward_counts: None,
-            external_fault: false,
+            external_fault: self.external_fault,
         }
     }
 
@@ -290,6 +313,16 @@ impl Plant {
                 }
             }
             HwFault::MissedTicks { ticks } => self.missed_left = if on { ticks } else { 0 },
+            HwFault::MonitorIntermittent { open_fraction } => {
+                self.monitor_open_fraction = if on { open_fraction } else { 0.0 }
+            }
+            HwFault::MonitorDrift { per_s } => {
+                self.monitor_drift_per_s = if on { per_s } else { 0.0 };
+                if !on {
+                    self.monitor.degrade_factor = 1.0;
+                }
+            }
+            HwFault::ExternalFault => self.external_fault = on,
         }
     }
 }

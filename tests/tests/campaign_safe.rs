@@ -18,17 +18,21 @@ fn shipped(name: &str) -> LoadedBoard {
 
 fn every_case_is_safe(b: &LoadedBoard) {
     let results = campaign::run(&b.name, &b.module, &b.valid, 0.10).unwrap();
+    // Five moments; missed ticks (an event, not a standing state) is not
+    // run as a latent fault.
     assert_eq!(
         results.len(),
-        campaign::faults().len() * 4 * campaign::CORNERS.len()
+        (campaign::faults().len() * 5 - 1) * campaign::CORNERS.len()
     );
     let bad: Vec<_> = results.iter().filter(|r| !r.safe).collect();
     assert!(bad.is_empty(), "{}: unsafe cases: {bad:#?}", b.name);
-    // Fast faults are detected within a tick of reaching the core.
-    for r in results
-        .iter()
-        .filter(|r| r.fault == "interlock-open" && !r.latched_before_injection)
-    {
+    // Fast faults are detected within a tick of reaching the core (a
+    // latent one refuses the enable instead).
+    for r in results.iter().filter(|r| {
+        r.fault == "interlock-open"
+            && !r.latched_before_injection
+            && r.moment != campaign::Moment::Latent
+    }) {
         assert_eq!(r.latency_ticks, Some(0), "{r:?}");
     }
     // The derating moment really is derating: the mount is above the
@@ -122,4 +126,97 @@ fn pump_source_failing_high_to_the_output_stage_limit_damages_the_facet() {
     .unwrap();
     assert!(r.detected && r.latency_ticks == Some(1), "{r:?}");
     assert!(r.damaged && !r.safe, "{r:?}");
+}
+
+/// A slowly degrading monitor on the pump board (responsivity falling 2 %
+/// per ms): the current-for-power plausibility check latches it at every
+/// moment and corner before the real power passes the module's rated
+/// output (5 W).
+#[test]
+fn plausibility_catches_a_degrading_monitor_before_the_rated_power() {
+    let b = shipped("demo-pump-5w");
+    let rated_mw = b.module.rated_power_w * 1e3;
+    let fault = campaign::faults()
+        .into_iter()
+        .find(|(f, _)| f.name() == "monitor-drift")
+        .expect("the campaign has a degrading monitor");
+    let ceiling_mw = b.valid.config().protection.runaway_mw.to_num::<f64>();
+    for moment in [
+        campaign::Moment::SoftStart,
+        campaign::Moment::Steady,
+        campaign::Moment::Derating,
+        campaign::Moment::Latent,
+    ] {
+        for corner in &campaign::CORNERS {
+            let r = campaign::run_case(
+                &b.name, &b.module, &b.valid, fault, moment, corner, ceiling_mw, 0.10,
+            )
+            .unwrap();
+            assert_eq!(r.core_faults, ["power-implausible"], "{r:?}");
+            assert!(r.peak_mw < rated_mw, "{r:?}");
+        }
+    }
+}
+
+/// An intermittent monitor contact that reads light one tick in twenty
+/// latches monitor loss on the red board (which has no plausibility check)
+/// within the leaky debounce's bound once the loop sits on its ceiling.
+#[test]
+fn an_intermittent_monitor_contact_latches_monitor_loss() {
+    let b = shipped("demo-red-30");
+    let fault = campaign::faults()
+        .into_iter()
+        .find(|(f, _)| f.name() == "monitor-intermittent")
+        .expect("the campaign has an intermittent contact");
+    let ceiling_mw = b.valid.config().protection.runaway_mw.to_num::<f64>();
+    for corner in &campaign::CORNERS {
+        let r = campaign::run_case(
+            &b.name,
+            &b.module,
+            &b.valid,
+            fault,
+            campaign::Moment::Steady,
+            corner,
+            ceiling_mw,
+            0.10,
+        )
+        .unwrap();
+        assert!(r.core_faults.contains(&"monitor-loss"), "{r:?}");
+        // w = 3, N = 20, d = 0.95: 22 ticks after the ceiling is reached.
+        assert!(r.latency_ticks.is_some_and(|t| t < 200), "{r:?}");
+    }
+}
+
+/// Latent faults (present before the enable request) either refuse the
+/// enable or latch: the laser never emits with a standing sensor, interlock
+/// or external fault.
+#[test]
+fn latent_faults_refuse_the_start_or_latch() {
+    let b = shipped("demo-red-30");
+    let ceiling_mw = b.valid.config().protection.runaway_mw.to_num::<f64>();
+    for name in [
+        "sensor-open",
+        "interlock-open",
+        "external-fault",
+        "supply-sag",
+    ] {
+        let fault = campaign::faults()
+            .into_iter()
+            .find(|(f, _)| f.name() == name)
+            .unwrap();
+        let corner = &campaign::CORNERS[0];
+        let r = campaign::run_case(
+            &b.name,
+            &b.module,
+            &b.valid,
+            fault,
+            campaign::Moment::Latent,
+            corner,
+            ceiling_mw,
+            0.10,
+        )
+        .unwrap();
+        assert!(r.detected && r.safe, "{r:?}");
+        assert!(r.peak_mw < 1.0, "{name}: emitted {r:?}");
+    }
 }
