@@ -298,7 +298,8 @@ fn present_mask(
         | flag(m.missed_ticks >= TICK_ORDER_MISSED, Fault::TickOrder)
 }
 
-/// Record a tripped fault in the log. Out of line: it runs once per trip.
+/// Record the tripped fault of bit `index` in the log. Out of line: it
+/// runs once per trip.
 #[cold]
 #[inline(never)]
 fn record_trip(
@@ -306,10 +307,12 @@ fn record_trip(
     cfg: &ValidConfig,
     m: &Measurements,
     last_cmd_ma: Fx,
-    fault: Fault,
+    index: usize,
     tick: u32,
 ) {
-    log.record(trip_record(cfg, m, last_cmd_ma, fault, tick));
+    if let Some(&fault) = Fault::ALL.get(index) {
+        log.record(trip_record(cfg, m, last_cmd_ma, fault, tick));
+    }
 }
 
 /// The record of a tripped fault: the measured value and the limit it
@@ -541,7 +544,7 @@ impl Protections {
             };
         }
         let weight = cfg.t.weight;
-        let mut tripped = FaultSet::EMPTY;
+        let mut tripped = 0;
         let mut counting = 0;
         // Walk the faults present or counting, lowest bit first (the order
         // of the records); every other level is zero already.
@@ -560,10 +563,8 @@ impl Protections {
             } else {
                 *level = level.saturating_add(weight).min(trip_at);
                 if *level >= trip_at && may_trip & b != 0 {
-                    if let Some(&fault) = Fault::ALL.get(i) {
-                        tripped.insert(fault);
-                        record_trip(log, cfg, m, last_cmd_ma, fault, tick);
-                    }
+                    tripped |= b;
+                    record_trip(log, cfg, m, last_cmd_ma, i, tick);
                 }
             }
             if *level != 0 {
@@ -573,7 +574,7 @@ impl Protections {
         self.counting = counting;
         Verdict {
             present: FaultSet::from_bits(present),
-            tripped,
+            tripped: FaultSet::from_bits(tripped),
         }
     }
 }
