@@ -266,3 +266,56 @@ mod properties {
         }
     }
 }
+
+/// A monitor whose responsivity falls slowly while the power loop holds
+/// 8 mW on the linear demo diode (25 mA threshold, 0.9 mW/mA): the loop
+/// raises the current, the end-of-life warning comes first (10 % margin),
+/// then the plausibility fault latches (20 % margin, 0.5 mA allowance),
+/// with the real power still below the setpoint plus the fault margin's
+/// worth of current.
+#[test]
+fn a_degrading_monitor_warns_then_trips_the_plausibility_check() {
+    use diodestat_core::config::{DiodePoint, Plausibility};
+    let pt = |t: f64| DiodePoint {
+        degc: fx(t),
+        threshold_ma: fx(25.0),
+        slope_mw_per_ma: fx(0.9),
+    };
+    let cfg = demo_with(|c| {
+        c.plausibility = Some(Plausibility {
+            points: heapless::Vec::from_slice(&[pt(-20.0), pt(100.0)]).unwrap(),
+            warning_margin: fx(0.1),
+            fault_margin: fx(0.2),
+            allowance_ma: fx(0.5),
+            debounce: 20,
+        })
+    });
+    let mon = cfg.config().calibration.monitor;
+    let mut r = Rig::regulating_apc(cfg, fx(8.0), 400);
+    assert!(!r.last.status.warnings.end_of_life, "healthy: no warning");
+    let (mut warned, mut tripped) = (None, None);
+    for k in 0..40_000u32 {
+        // The monitor loses 1/40 000 of its responsivity per tick.
+        let factor = 1.0 - f64::from(k) / 40_000.0;
+        let seen = r.plant.power_mw().to_num::<f64>() * factor;
+        let d = r.step_with(|s| s.monitor_counts = counts_for(&mon, fx(seen)));
+        if d.status.warnings.end_of_life && warned.is_none() {
+            warned = Some(k);
+        }
+        if d.status.faults.contains(Fault::PowerImplausible) {
+            tripped = Some((k, r.plant.power_mw()));
+            break;
+        }
+    }
+    let w = warned.expect("the end-of-life warning comes");
+    let (t, real) = tripped.expect("the plausibility fault latches");
+    assert!(w < t, "warning at {w}, trip at {t}");
+    assert_eq!(r.ctl.state(), State::Latched);
+    // At the trip the current was at most about 1.2 × (25 + 8/0.9) + 0.5 =
+    // 41.2 mA (plus the loop's motion over the debounce and the 32-tick
+    // evaluation): real power 0.9 × (41.2 − 25) = 14.6 mW.
+    assert!(real < fx(15.5), "real power at the trip {real} mW");
+    let rec = r.ctl.fault_log().first().copied().expect("recorded");
+    assert_eq!(rec.fault, Fault::PowerImplausible);
+    assert!(rec.measured > rec.limit, "{rec:?}");
+}
