@@ -608,6 +608,59 @@ mod tests {
     }
 
     #[test]
+    fn the_healthy_diode_is_interpolated_and_held_at_the_ends() {
+        use crate::config::DiodePoint;
+        let pt = |t: i32, th: i32, sl: f64| DiodePoint {
+            degc: Fx::from_num(t),
+            threshold_ma: Fx::from_num(th),
+            slope_mw_per_ma: Fx::from_num(sl),
+        };
+        let pl = Plausibility {
+            points: heapless::Vec::from_slice(&[pt(0, 20, 1.0), pt(40, 40, 0.5), pt(80, 80, 0.25)])
+                .unwrap(),
+            warning_margin: Fx::from_num(0.25),
+            fault_margin: Fx::from_num(0.5),
+            allowance_ma: Fx::ONE,
+            debounce: 1,
+        };
+        let at = |t: i32| diode_at(&pl, Fx::from_num(t));
+        let f = |th: f64, sl: f64| (Fx::from_num(th), Fx::from_num(sl));
+        assert_eq!(at(-10), f(20.0, 1.0));
+        assert_eq!(at(0), f(20.0, 1.0));
+        assert_eq!(at(20), f(30.0, 0.75));
+        assert_eq!(at(40), f(40.0, 0.5));
+        assert_eq!(at(60), f(60.0, 0.375));
+        assert_eq!(at(80), f(80.0, 0.25));
+        assert_eq!(at(100), f(80.0, 0.25));
+        // At 20 degC and 15 mW the healthy diode needs 30 + 15/0.75 = 50 mA:
+        // the warning bound is 50 × 1.25 + 1 = 63.5 mA, the fault bound
+        // 50 × 1.5 + 1 = 76 mA; each is the last plausible current.
+        let m = |ma: Fx| Measurements {
+            monitor_mw: Fx::from_num(15),
+            current_ma: ma,
+            temp_degc: Fx::from_num(20),
+            ..Measurements::default()
+        };
+        let (warn, fault) = (Fx::from_num(63.5), Fx::from_num(76));
+        assert_eq!(plausibility(&pl, &m(warn)), (false, false, fault));
+        assert_eq!(
+            plausibility(&pl, &m(warn + Fx::DELTA)),
+            (true, false, fault)
+        );
+        assert_eq!(plausibility(&pl, &m(fault)), (true, false, fault));
+        assert_eq!(
+            plausibility(&pl, &m(fault + Fx::DELTA)),
+            (true, true, fault)
+        );
+        // No verdict while the sensor is at a rail.
+        let rail = Measurements {
+            sensor_at_rail: true,
+            ..m(Fx::MAX)
+        };
+        assert_eq!(plausibility(&pl, &rail), (false, false, Fx::MAX));
+    }
+
+    #[test]
     fn difference_window_equals_the_saturated_absolute_difference() {
         let mut rng = Lcg(11);
         let extremes = [
@@ -737,6 +790,13 @@ mod tests {
                         k => k - 2,
                     },
                     ..base
+                };
+                // Half the time the command matches the sensed current, so
+                // that no mismatch hides the other comparisons from `quiet`.
+                let last_cmd = if rng.next().is_multiple_of(2) {
+                    m.current_ma
+                } else {
+                    last_cmd
                 };
                 let light = rng.fx_near(last_cmd);
                 let want = reference_mask(&cfg, &m, last_cmd, light);

@@ -319,3 +319,114 @@ fn a_degrading_monitor_warns_then_trips_the_plausibility_check() {
     assert_eq!(rec.fault, Fault::PowerImplausible);
     assert!(rec.measured > rec.limit, "{rec:?}");
 }
+
+/// The forward-voltage channel (offset 100 counts, 2 mV per count): diode
+/// open at the compliance level and diode short at the floor, each at its
+/// limit and not one count short of it, after its debounce, only while
+/// driving; recorded with the reading and the limit in mV.
+#[test]
+fn forward_voltage_open_and_short_at_their_limits() {
+    use diodestat_core::config::{AdcCal, ForwardVoltage};
+    use diodestat_core::{FaultRecord, Gain};
+    let cfg = demo_with(|c| {
+        c.forward_voltage = Some(ForwardVoltage {
+            cal: AdcCal {
+                offset_counts: 100,
+                units_per_count: Gain::from_num(2),
+                full_scale_counts: 4095,
+            },
+            open_mv: fx(3000.0),
+            short_mv: fx(500.0),
+            min_drive_ma: fx(1.0),
+            debounce: 3,
+        })
+    });
+    // 1600 counts read 3000 mV, 350 read 500 mV.
+    for (fault, at, short, mv) in [
+        (Fault::DiodeOpen, 1600u16, 1599u16, 3000.0),
+        (Fault::DiodeShort, 350, 351, 500.0),
+    ] {
+        // Not driving: no condition, whatever the reading.
+        let mut off = Rig::new(cfg.clone());
+        off.step_with(|s| s.forward_counts = Some(at));
+        assert!(off.ctl.conditions().is_empty(), "{fault} while off");
+        let mut r = Rig::regulating_acc(cfg.clone(), fx(15.0));
+        for _ in 0..10 {
+            let d = r.step_with(|s| s.forward_counts = Some(short));
+            assert!(d.enable, "{fault}: one count short of the limit");
+        }
+        assert!(r.ctl.conditions().is_empty(), "{fault}");
+        let mut r = Rig::regulating_acc(cfg.clone(), fx(15.0));
+        for k in 1..3 {
+            let d = r.step_with(|s| s.forward_counts = Some(at));
+            assert!(d.enable, "{fault}: tripped after {k} of 3");
+            assert!(r.ctl.conditions().contains(fault));
+        }
+        let d = r.step_with(|s| s.forward_counts = Some(at));
+        assert!(!d.enable, "{fault}");
+        assert_eq!(d.status.faults.iter().collect::<Vec<_>>(), [fault]);
+        assert_eq!(
+            r.ctl.fault_log().first(),
+            Some(&FaultRecord {
+                fault,
+                tick: r.s.tick,
+                measured: fx(mv),
+                limit: fx(mv),
+            })
+        );
+        assert_eq!(r.ctl.measurements().forward_mv, fx(mv));
+    }
+}
+
+/// The external fault input latches in every state, Off included, in the
+/// tick that sees it, and a clear is refused while it is asserted.
+#[test]
+fn the_external_fault_input_latches_at_once_in_every_state() {
+    use diodestat_core::Rejection;
+    let mut r = Rig::new(demo());
+    let d = r.step_with(|s| s.external_fault = true);
+    assert_eq!(d.status.state, State::Latched);
+    assert_eq!(names(d.status.faults), ["external-fault"]);
+    assert_eq!(
+        r.ctl.fault_log().first().map(|x| (x.measured, x.limit)),
+        Some((Fx::ONE, Fx::ONE))
+    );
+    assert_eq!(
+        r.ctl.request(Request::ClearFaults),
+        Err(Rejection::ConditionPresent {
+            fault: Fault::ExternalFault
+        })
+    );
+    r.s.external_fault = false;
+    r.step();
+    assert_eq!(r.ctl.request(Request::ClearFaults), Ok(()));
+    let mut r = Rig::regulating_acc(demo(), fx(20.0));
+    let d = r.step_with(|s| s.external_fault = true);
+    assert!(!d.enable);
+    assert_eq!(d.dac_code, 0);
+    assert_eq!(names(d.status.faults), ["external-fault"]);
+}
+
+/// An accepted clear forgets the debounce levels: a condition that comes
+/// back for fewer ticks than its debounce after a clear does not trip,
+/// whatever level it had reached before.
+#[test]
+fn a_clear_starts_every_debounce_afresh() {
+    let cfg = demo();
+    let n = cfg.config().protection.supply_debounce;
+    let mut r = Rig::regulating_acc(cfg, fx(15.0));
+    let healthy = r.s.supply_counts;
+    for _ in 0..n {
+        r.step_with(|s| s.supply_counts = 0);
+    }
+    assert!(r.ctl.faults().contains(Fault::SupplyUnder));
+    r.step_with(|s| s.supply_counts = healthy);
+    r.req(Request::ClearFaults);
+    for k in 1..n {
+        r.step_with(|s| s.supply_counts = 0);
+        assert!(
+            r.ctl.faults().is_empty(),
+            "tripped {k} ticks after the clear"
+        );
+    }
+}
