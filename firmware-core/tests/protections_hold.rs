@@ -409,24 +409,28 @@ fn the_external_fault_input_latches_at_once_in_every_state() {
 
 /// An accepted clear forgets the debounce levels: a condition that comes
 /// back for fewer ticks than its debounce after a clear does not trip,
-/// whatever level it had reached before.
+/// whatever level it had reached before. (Drive mismatch: armed in Off
+/// too, where the clear leaves the controller.)
 #[test]
 fn a_clear_starts_every_debounce_afresh() {
     let cfg = demo();
-    let n = cfg.config().protection.supply_debounce;
-    let mut r = Rig::regulating_acc(cfg, fx(15.0));
-    let healthy = r.s.supply_counts;
+    let n = cfg.config().protection.mismatch_debounce;
+    let sense = cfg.config().calibration.current_sense;
+    let bad = counts_for(&sense, fx(10.0));
+    let mut r = Rig::new(cfg);
     for _ in 0..n {
-        r.step_with(|s| s.supply_counts = 0);
+        r.step_with(|s| s.current_counts = bad);
     }
-    assert!(r.ctl.faults().contains(Fault::SupplyUnder));
-    r.step_with(|s| s.supply_counts = healthy);
+    assert!(r.ctl.faults().contains(Fault::DriveMismatch));
+    r.step();
     r.req(Request::ClearFaults);
     for k in 1..n {
-        r.step_with(|s| s.supply_counts = 0);
+        r.step_with(|s| s.current_counts = bad);
         assert!(
             r.ctl.faults().is_empty(),
             "tripped {k} ticks after the clear"
         );
     }
+    r.step_with(|s| s.current_counts = bad);
+    assert!(r.ctl.faults().contains(Fault::DriveMismatch));
 }
