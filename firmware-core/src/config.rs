@@ -870,6 +870,8 @@ fn debounce_ticks(p: &Protection, fault: Fault) -> u16 {
         Fault::SupplyUnder | Fault::SupplyOver => p.supply_debounce,
         Fault::DriveMismatch => p.mismatch_debounce,
         Fault::MissedTicks => 1,
+        // Latched by the edge on the failed call itself, never debounced.
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin => 1,
     }
 }
 

@@ -19,7 +19,7 @@
 
 use crate::apc::{Limits, PowerLoop};
 use crate::config::ValidConfig;
-use crate::fault::{FaultLog, FaultSet};
+use crate::fault::{FaultLog, FaultRecord, FaultSet};
 use crate::io::{Drive, Mode, Sample, State, Status, Warnings};
 use crate::protect::{Measurements, Protections};
 use crate::request::{Rejection, Request};
@@ -392,6 +392,22 @@ impl Controller {
                 (clamp_fx(d, Fx::ZERO, ceiling), d >= ceiling)
             }
         }
+    }
+
+    /// Latch a fault found outside [`Controller::step`] (the hardware edge:
+    /// a failed DAC write, enable pin or interlock read) and log `rec`.
+    /// The drive is zero from this call on, as after a trip in `step`; a
+    /// fault already latched is not logged again.
+    pub fn latch_edge_fault(&mut self, rec: FaultRecord) {
+        if self.status.faults.contains(rec.fault) {
+            return;
+        }
+        self.status.faults.insert(rec.fault);
+        self.status.state = State::Latched;
+        self.drive_ma = Fx::ZERO;
+        self.envelope_ma = Fx::ZERO;
+        self.ceiling_ma = Fx::ZERO;
+        self.log.record(rec);
     }
 
     /// The configuration in force.

@@ -276,6 +276,9 @@ fn trip_record(
             saturating_fx(m.missed_ticks),
             saturating_fx(u32::from(p.missed_tick_limit)),
         ),
+        // Never a sample condition: the edge latches these with their own
+        // record (`Controller::latch_edge_fault`).
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin => (Fx::ZERO, Fx::ZERO),
     };
     FaultRecord {
         fault,

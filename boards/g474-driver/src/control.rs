@@ -8,7 +8,8 @@
 //! tick by at most its own length; a longer stall shows up as a gap in the
 //! tick index (the core's missed-tick protection) and, if the tick stops,
 //! the IWDG resets the MCU, whose enable pin then floats to the board's
-//! pull-down: current source off.
+//! pull-down: current source off. A tick whose enable pin refused to be
+//! driven does not pet the IWDG either, for the same reset.
 //!
 //! The tick index is the time since start in tick periods, from the embassy
 //! time driver (`Instant::now`), rounded to the nearest period, so a late or
@@ -17,7 +18,7 @@
 use core::cell::RefCell;
 
 use critical_section::Mutex;
-use diodestat_core::edge::{DriverBoard, EdgeError};
+use diodestat_core::edge::DriverBoard;
 use diodestat_core::Drive;
 use embassy_stm32::gpio::{Input, Output};
 use embassy_stm32::interrupt;
@@ -88,14 +89,23 @@ fn tick(c: &mut Control) {
     let index = (now_us + c.period_us / 2) / c.period_us.max(1);
     // The core expects the index to wrap at u32::MAX.
     let adc = c.sampler.read(index as u32);
-    match c.board.tick(adc) {
-        Ok(drive) => c.last = drive,
-        Err(EdgeError::Dac(_)) | Err(EdgeError::EnablePin(_)) => {
-            c.edge_errors = c.edge_errors.saturating_add(1);
+    // Every edge error is latched in the controller (and logged) already.
+    let enable_refused = match c.board.tick(adc) {
+        Ok(drive) => {
+            c.last = drive;
+            false
         }
-    }
+        Err(e) => {
+            c.edge_errors = c.edge_errors.saturating_add(1);
+            e.enable.is_some()
+        }
+    };
     c.ticks = c.ticks.wrapping_add(1);
-    c.watchdog.pet();
+    // An enable line that cannot be driven low is not trusted: no pet, so
+    // the IWDG resets the MCU and the pin floats to the board's pull-down.
+    if !enable_refused {
+        c.watchdog.pet();
+    }
 }
 
 #[interrupt]

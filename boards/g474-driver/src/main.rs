@@ -43,6 +43,7 @@ use defmt_rtt as _;
 use panic_probe as _;
 
 use diodestat_core::edge::{DriverBoard, InterlockLevel};
+use diodestat_core::fault::Cursor;
 use diodestat_core::{Controller, Fx, Request, State, Status};
 use embassy_executor::Spawner;
 use embassy_stm32::adc::{Adc, AdcChannel, AdcConfig};
@@ -99,8 +100,9 @@ fn button_request(state: State) -> Request {
     }
 }
 
-/// Log a status change and any new fault records.
-fn log_status(prev: &Status, now: &Status, drive_ma: Fx, logged: &mut usize) {
+/// Log a status change and any new fault records (each once, and how many
+/// the log overwrote before this loop saw them).
+fn log_status(prev: &Status, now: &Status, drive_ma: Fx, cursor: &mut Cursor) {
     if prev.state != now.state || prev.faults != now.faults {
         info!(
             "state {} mode {} faults {=u16:#06x} drive {} mA",
@@ -114,11 +116,19 @@ fn log_status(prev: &Status, now: &Status, drive_ma: Fx, logged: &mut usize) {
         info!("warnings {}", now.warnings);
     }
     let _ = control::with(|c| {
-        let log = c.board.controller().fault_log();
-        let records = log.first().into_iter().chain(log.later());
-        for (i, r) in records.enumerate().skip(*logged) {
+        let unread = c.board.controller().fault_log().since(*cursor);
+        if unread.lost() > 0 {
             warn!(
-                "fault {} at tick {}: measured {} {}, limit {} {}",
+                "{} fault records overwritten before they were read",
+                unread.lost()
+            );
+        }
+        *cursor = unread.resume();
+        for e in unread {
+            let r = e.record;
+            warn!(
+                "fault #{} {} at tick {}: measured {} {}, limit {} {}",
+                e.seq,
                 r.fault.name(),
                 r.tick,
                 r.measured,
@@ -126,7 +136,6 @@ fn log_status(prev: &Status, now: &Status, drive_ma: Fx, logged: &mut usize) {
                 r.limit,
                 r.fault.unit()
             );
-            *logged = i + 1;
         }
     });
 }
@@ -165,13 +174,23 @@ async fn main(_spawner: Spawner) {
         p.PC0.degrade_adc(),
         p.PC1.degrade_adc(),
     );
-    let board = DriverBoard::new(
+    // Enable low, DAC zero; a failure comes back latched and logged.
+    let board = match DriverBoard::new(
         Controller::new(valid),
         dac,
         enable,
         interlock,
         InterlockLevel::ClosedHigh,
-    );
+    ) {
+        Ok(b) => b,
+        Err(e) => {
+            error!(
+                "edge start-up failed: faults {=u16:#06x}",
+                e.error.faults().bits()
+            );
+            e.board
+        }
+    };
     let timer = Timer::new(p.TIM6);
     timer.set_frequency(Hertz(tick_hz), RoundTo::Slower);
     let mut watchdog = IndependentWatchdog::new(p.IWDG, WATCHDOG_US);
@@ -189,7 +208,7 @@ async fn main(_spawner: Spawner) {
 
     let mut button = ExtiInput::new(p.PC13, p.EXTI13, Pull::Down, Irqs);
     let mut prev = Status::default();
-    let mut logged = 0usize;
+    let mut cursor = Cursor::default();
     loop {
         let pressed = with_timeout(Duration::from_millis(10), button.wait_for_rising_edge())
             .await
@@ -216,7 +235,7 @@ async fn main(_spawner: Spawner) {
                 None => {}
             }
         }
-        log_status(&prev, &status, drive_ma, &mut logged);
+        log_status(&prev, &status, drive_ma, &mut cursor);
         prev = status;
     }
 }

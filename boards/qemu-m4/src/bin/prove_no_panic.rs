@@ -172,13 +172,17 @@ fn main() -> ! {
     } else {
         InterlockLevel::ClosedHigh
     };
-    let mut board = DriverBoard::new(
+    // A board whose start-up failed comes back latched: keep holding it.
+    let mut board = match DriverBoard::new(
         Controller::new(valid),
         VolatileDac,
         EnablePin,
         InterlockPin,
         level,
-    );
+    ) {
+        Ok(b) => b,
+        Err(e) => e.board,
+    };
     loop {
         let kind = input::<3>();
         if kind != 0 {
