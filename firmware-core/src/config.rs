@@ -870,8 +870,9 @@ fn debounce_ticks(p: &Protection, fault: Fault) -> u16 {
         Fault::SupplyUnder | Fault::SupplyOver => p.supply_debounce,
         Fault::DriveMismatch => p.mismatch_debounce,
         Fault::MissedTicks => 1,
-        // Latched by the edge on the failed call itself, never debounced.
-        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin => 1,
+        // Latched by the edge on the failed call itself, or at boot: never
+        // debounced.
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => 1,
     }
 }
 

@@ -19,8 +19,9 @@
 
 use crate::apc::{Limits, PowerLoop};
 use crate::config::ValidConfig;
-use crate::fault::{FaultLog, FaultRecord, FaultSet};
+use crate::fault::{Fault, FaultLog, FaultRecord, FaultSet};
 use crate::io::{Drive, Mode, Sample, State, Status, Warnings};
+use crate::persist::{LatchRecord, RestoreError, LATCH_RECORD_LEN};
 use crate::protect::{Measurements, Protections};
 use crate::request::{Rejection, Request};
 use crate::temp_table::Window;
@@ -86,6 +87,45 @@ impl Controller {
             last_tick: None,
             meas: Measurements::default(),
             temp_segment,
+        }
+    }
+
+    /// A controller for `cfg` that takes back the latch stored before a
+    /// reset ([`crate::persist`]): latched again if it was latched, with
+    /// the first-fault record in its log. A refused record starts it
+    /// latched with [`Fault::RecordCorrupt`] (logged at tick 0, measured:
+    /// [`RestoreError::code`]); only `ClearFaults` leaves either latch.
+    pub fn restored(
+        cfg: ValidConfig,
+        stored: &[u8; LATCH_RECORD_LEN],
+    ) -> (Self, Result<LatchRecord, RestoreError>) {
+        let mut ctl = Controller::new(cfg);
+        let result = LatchRecord::from_bytes(stored);
+        match result {
+            Ok(rec) => {
+                ctl.log = FaultLog::restored(rec.first, rec.next_seq);
+                if !rec.faults.is_empty() {
+                    ctl.status.faults = rec.faults;
+                    ctl.status.state = State::Latched;
+                }
+            }
+            Err(e) => ctl.latch_edge_fault(FaultRecord {
+                fault: Fault::RecordCorrupt,
+                tick: 0,
+                measured: Fx::from_num(e.code()),
+                limit: Fx::ZERO,
+            }),
+        }
+        (ctl, result)
+    }
+
+    /// The latch as it must survive a reset: store
+    /// [`LatchRecord::to_bytes`] whenever the latched faults change.
+    pub fn latch_record(&self) -> LatchRecord {
+        LatchRecord {
+            faults: self.status.faults,
+            first: self.log.first_entry(),
+            next_seq: self.log.end().0,
         }
     }
 

@@ -46,11 +46,15 @@ pub enum Fault {
     /// The interlock input could not be read (the edge); the read counts
     /// as open. Measured: 0 (read as open); limit: 1 (closed).
     InterlockPin = 13,
+    /// The latch record stored before a reset was refused at boot
+    /// ([`crate::persist`]): the controller starts latched. Measured: the
+    /// cause ([`crate::persist::RestoreError::code`]); limit: 0.
+    RecordCorrupt = 14,
 }
 
 impl Fault {
     /// Every fault, in bit order.
-    pub const ALL: [Fault; 14] = [
+    pub const ALL: [Fault; 15] = [
         Fault::Overcurrent,
         Fault::MonitorRunaway,
         Fault::MonitorLoss,
@@ -65,6 +69,7 @@ impl Fault {
         Fault::DacBus,
         Fault::EnablePin,
         Fault::InterlockPin,
+        Fault::RecordCorrupt,
     ];
 
     /// Number of distinct faults.
@@ -82,10 +87,14 @@ impl Fault {
         )
     }
 
-    /// Whether the hardware edge latches this fault on a failed call
-    /// ([`crate::edge`]), rather than a protection on a sample.
-    pub const fn is_edge(self) -> bool {
-        matches!(self, Fault::DacBus | Fault::EnablePin | Fault::InterlockPin)
+    /// Whether this fault is latched outside [`crate::Controller::step`]
+    /// (by the hardware edge on a failed call, [`crate::edge`], or at boot,
+    /// [`crate::persist`]) rather than by a protection on a sample.
+    pub const fn is_latched_outside_step(self) -> bool {
+        matches!(
+            self,
+            Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt
+        )
     }
 
     /// A short, stable name (used in logs and reports).
@@ -105,6 +114,7 @@ impl Fault {
             Fault::DacBus => "dac-bus",
             Fault::EnablePin => "enable-pin",
             Fault::InterlockPin => "interlock-pin",
+            Fault::RecordCorrupt => "record-corrupt",
         }
     }
 
@@ -120,6 +130,7 @@ impl Fault {
             Fault::MissedTicks => "ticks",
             Fault::DacBus => "code",
             Fault::EnablePin => "high(1)/low(0)",
+            Fault::RecordCorrupt => "cause(1 erased, 2 check, 3 format)",
         }
     }
 
@@ -255,6 +266,17 @@ impl FaultLog {
             later: heapless::Deque::new(),
             next_seq,
         }
+    }
+
+    /// A log restored after a reset: the first record at its sequence
+    /// number, the ones after it gone, the count going on at `next_seq`.
+    pub(crate) fn restored(first: Option<Entry>, next_seq: u32) -> Self {
+        let mut log = FaultLog::continuing_at(next_seq);
+        if let Some(e) = first {
+            log.first = Some(e.record);
+            log.first_seq = e.seq;
+        }
+        log
     }
 
     /// Record a fault. Never fails: when the ring is full the oldest later

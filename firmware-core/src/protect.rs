@@ -276,9 +276,11 @@ fn trip_record(
             saturating_fx(m.missed_ticks),
             saturating_fx(u32::from(p.missed_tick_limit)),
         ),
-        // Never a sample condition: the edge latches these with their own
-        // record (`Controller::latch_edge_fault`).
-        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin => (Fx::ZERO, Fx::ZERO),
+        // Never a sample condition: the edge or the boot-time restore
+        // latches these with their own record.
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => {
+            (Fx::ZERO, Fx::ZERO)
+        }
     };
     FaultRecord {
         fault,

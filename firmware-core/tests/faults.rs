@@ -28,8 +28,8 @@ fn debounce(cfg: &ValidConfig, f: Fault) -> u16 {
         Fault::SupplyUnder | Fault::SupplyOver => p.supply_debounce,
         Fault::DriveMismatch => p.mismatch_debounce,
         Fault::MissedTicks => 1,
-        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin => {
-            unreachable!("{f} is latched by the edge, not debounced")
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => {
+            unreachable!("{f} is latched outside the step, not debounced")
         }
     }
 }
@@ -512,7 +512,7 @@ fn inject(r: &Rig, f: Fault) -> impl Fn(&mut Sample) {
         Fault::SupplyOver => s.supply_counts = FS,
         Fault::DriveMismatch => s.current_counts = mismatch,
         Fault::MissedTicks => s.tick += limit,
-        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin => {
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => {
             unreachable!("{f} is not a sample condition")
         }
     }
@@ -520,7 +520,10 @@ fn inject(r: &Rig, f: Fault) -> impl Fn(&mut Sample) {
 
 #[test]
 fn each_protection_is_armed_exactly_where_documented() {
-    for f in Fault::ALL.into_iter().filter(|f| !f.is_edge()) {
+    for f in Fault::ALL
+        .into_iter()
+        .filter(|f| !f.is_latched_outside_step())
+    {
         for st in STATES {
             let pre = if f == Fault::Overcurrent {
                 Fault::InterlockOpen
