@@ -22,7 +22,8 @@
 //! - every protection, its limit, debounce and arming: [`protect`];
 //! - the configuration and each reason it is refused: [`config`];
 //! - the fault log and its reader: [`fault`]; the latch across a reset:
-//!   [`persist`]; requests from thread mode to the tick: [`mailbox`].
+//!   [`persist`], kept in flash by [`store`]; requests from thread mode to
+//!   the tick: [`mailbox`].
 //!
 //! ```
 //! use diodestat_core::{Controller, Request, Sample, Fx};
@@ -66,6 +67,7 @@ pub mod mailbox;
 pub mod persist;
 pub mod protect;
 pub mod request;
+pub mod store;
 pub mod temp_table;
 pub mod units;
 
