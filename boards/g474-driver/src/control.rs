@@ -3,8 +3,10 @@
 //! the ordered DAC/enable update) and pets the independent watchdog.
 //!
 //! Everything the interrupt uses lives in [`CONTROL`], behind a
-//! critical-section mutex; thread mode takes it only briefly, to pass a
-//! request or copy the status ([`with`]). A critical section delays the
+//! critical-section mutex; thread mode takes it only briefly, to copy the
+//! status or the latch record ([`with`]). Requests go the other way through
+//! the lock-free [`REQUESTS`] mailbox, answers come back through
+//! [`ANSWERS`]. A critical section delays the
 //! tick by at most its own length; a longer stall shows up as a gap in the
 //! tick index (the core's missed-tick protection) and, if the tick stops,
 //! the IWDG resets the MCU, whose enable pin then floats to the board's
@@ -19,7 +21,8 @@ use core::cell::RefCell;
 
 use critical_section::Mutex;
 use diodestat_core::edge::DriverBoard;
-use diodestat_core::Drive;
+use diodestat_core::mailbox::Mailbox;
+use diodestat_core::{Drive, Rejection, Request};
 use embassy_stm32::gpio::{Input, Output};
 use embassy_stm32::interrupt;
 use embassy_stm32::peripherals::{IWDG, TIM6};
@@ -56,6 +59,13 @@ pub struct Control {
 /// The control state, shared between the tick interrupt and thread mode.
 pub static CONTROL: Mutex<RefCell<Option<Control>>> = Mutex::new(RefCell::new(None));
 
+/// Requests from thread mode to the tick (lock-free: thread mode never
+/// blocks the tick to send one).
+pub static REQUESTS: Mailbox<Request, 8> = Mailbox::new();
+
+/// The tick's answer to each request, in order.
+pub static ANSWERS: Mailbox<Result<(), Rejection>, 8> = Mailbox::new();
+
 /// Run `f` on the control state in a critical section (`None` before
 /// [`install`]).
 pub fn with<R>(f: impl FnOnce(&mut Control) -> R) -> Option<R> {
@@ -85,6 +95,12 @@ pub fn install(control: Control) {
 /// One control tick.
 fn tick(c: &mut Control) {
     c.timer.clear_update_interrupt();
+    // At most the mailbox's capacity: thread mode cannot add while the tick
+    // runs. The answers cannot overflow: thread mode keeps at most as many
+    // requests unanswered as the answer mailbox holds.
+    while let Some(req) = REQUESTS.pop() {
+        let _ = ANSWERS.push(c.board.request(req));
+    }
     let now_us = Instant::now().as_micros();
     let index = (now_us + c.period_us / 2) / c.period_us.max(1);
     // The core expects the index to wrap at u32::MAX.

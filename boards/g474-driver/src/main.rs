@@ -5,9 +5,13 @@
 //!   ([`sampler`]), `DriverBoard::tick` from the core's embedded-hal edge,
 //!   DAC1 channel 1 ([`dac`]) and the enable pin out, the interlock in.
 //! - The independent watchdog (IWDG) is petted by every completed tick.
-//! - Thread mode (an embassy executor) turns the user button into requests
-//!   and logs the configuration hash, state changes and faults over defmt
-//!   RTT.
+//! - Thread mode (an embassy executor) turns the user button into requests,
+//!   passed to the tick through the core's lock-free mailbox, and logs the
+//!   configuration hash, state changes, faults and answers over defmt RTT.
+//! - The latch survives a reset: thread mode stores the core's latch record
+//!   in the last flash page whenever it changes (the core's `LatchStore`,
+//!   through embedded-storage), and boot restores it (`Controller::restored`);
+//!   a record that does not check out starts the board latched.
 //!
 //! | signal | pin | note |
 //! |---|---|---|
@@ -44,17 +48,21 @@ use panic_probe as _;
 
 use diodestat_core::edge::{DriverBoard, InterlockLevel};
 use diodestat_core::fault::Cursor;
+use diodestat_core::persist::LatchRecord;
+use diodestat_core::store::LatchStore;
 use diodestat_core::{Controller, Fx, Request, State, Status};
 use embassy_executor::Spawner;
 use embassy_stm32::adc::{Adc, AdcChannel, AdcConfig};
 use embassy_stm32::dac::DacChannel;
 use embassy_stm32::exti::{self, ExtiInput};
+use embassy_stm32::flash::{Flash, FLASH_SIZE, MAX_ERASE_SIZE};
 use embassy_stm32::gpio::{Input, Level, Output, Pull, Speed};
 use embassy_stm32::time::Hertz;
 use embassy_stm32::timer::low_level::{RoundTo, Timer};
 use embassy_stm32::wdg::IndependentWatchdog;
 use embassy_stm32::{bind_interrupts, interrupt};
 use embassy_time::{with_timeout, Duration};
+use heapless::Deque;
 
 use crate::control::Control;
 use crate::dac::OnChipDac;
@@ -98,6 +106,15 @@ fn button_request(state: State) -> Request {
         State::Latched => Request::ClearFaults,
         State::Arming | State::Ramping | State::Regulating | State::Stopping => Request::Disable,
     }
+}
+
+/// Pass a request to the tick through the mailbox (no critical section).
+fn send(pending: &mut Deque<Request, 8>, req: Request) {
+    if pending.is_full() || control::REQUESTS.push(req).is_err() {
+        warn!("request {} dropped: mailbox full", req);
+        return;
+    }
+    let _ = pending.push_back(req);
 }
 
 /// Log a status change and any new fault records (each once, and how many
@@ -166,6 +183,35 @@ async fn main(_spawner: Spawner) {
     let tick_hz = valid.config().tick_hz;
     info!("tick {} Hz", tick_hz);
 
+    // The latch across a reset: the newest record in the last flash page,
+    // compacted here when half full (a page erase is longer than the
+    // watchdog window, so only before the watchdog starts).
+    let flash = Flash::new_blocking(p.FLASH);
+    let latch_page = (FLASH_SIZE - MAX_ERASE_SIZE) as u32;
+    let (mut store, stored) = match LatchStore::open(flash, latch_page) {
+        Ok(s) => s,
+        Err(e) => {
+            error!("latch store refused: {}", e);
+            loop {
+                cortex_m::asm::wfi();
+            }
+        }
+    };
+    if store.free() < store.capacity() / 2 {
+        if let Err(e) = store.compact(&stored) {
+            // The next boot finds a torn page and starts latched.
+            error!("latch page compaction failed: {}", e);
+        }
+    }
+    let (ctl, restored) = Controller::restored(valid, &stored);
+    match restored {
+        Ok(rec) => info!(
+            "latch record restored: faults {=u16:#06x}",
+            rec.faults.bits()
+        ),
+        Err(e) => warn!("latch record refused ({}): starting latched", e),
+    }
+
     let dac = OnChipDac::new(DacChannel::new_blocking(p.DAC1, p.PA4));
     let sampler = Sampler::new(
         Adc::new(p.ADC1, AdcConfig::default()),
@@ -175,13 +221,7 @@ async fn main(_spawner: Spawner) {
         p.PC1.degrade_adc(),
     );
     // Enable low, DAC zero; a failure comes back latched and logged.
-    let board = match DriverBoard::new(
-        Controller::new(valid),
-        dac,
-        enable,
-        interlock,
-        InterlockLevel::ClosedHigh,
-    ) {
+    let board = match DriverBoard::new(ctl, dac, enable, interlock, InterlockLevel::ClosedHigh) {
         Ok(b) => b,
         Err(e) => {
             error!(
@@ -209,6 +249,9 @@ async fn main(_spawner: Spawner) {
     let mut button = ExtiInput::new(p.PC13, p.EXTI13, Pull::Down, Irqs);
     let mut prev = Status::default();
     let mut cursor = Cursor::default();
+    // Requests sent and not yet answered, oldest first.
+    let mut pending: Deque<Request, 8> = Deque::new();
+    let mut saved: Option<LatchRecord> = None;
     loop {
         let pressed = with_timeout(Duration::from_millis(10), button.wait_for_rising_edge())
             .await
@@ -221,19 +264,31 @@ async fn main(_spawner: Spawner) {
         }) else {
             continue;
         };
+        // Store the latch whenever it changes (a latch, a new record, a
+        // clear: none in an emitting state). Programming stalls flash reads,
+        // the tick with them, for a few hundred µs.
+        if let Some(rec) = control::with(|c| c.board.controller().latch_record()) {
+            if saved != Some(rec) {
+                if let Err(e) = store.save(&rec) {
+                    warn!("latch record not stored: {}", e);
+                }
+                saved = Some(rec);
+            }
+        }
+        // Answers to earlier requests, in the order sent.
+        while let Some(answer) = control::ANSWERS.pop() {
+            let req = pending.pop_front();
+            match answer {
+                Ok(()) => info!("request {} accepted", req),
+                Err(why) => warn!("request {} refused: {}", req, why),
+            }
+        }
         if pressed {
             let req = button_request(status.state);
-            let result = control::with(|c| {
-                if req == Request::Enable {
-                    c.board.request(Request::SetPowerMw(BUTTON_SETPOINT_MW))?;
-                }
-                c.board.request(req)
-            });
-            match result {
-                Some(Ok(())) => info!("request {} accepted", req),
-                Some(Err(why)) => warn!("request {} refused: {}", req, why),
-                None => {}
+            if req == Request::Enable {
+                send(&mut pending, Request::SetPowerMw(BUTTON_SETPOINT_MW));
             }
+            send(&mut pending, req);
         }
         log_status(&prev, &status, drive_ma, &mut cursor);
         prev = status;

@@ -96,6 +96,7 @@ fn main() -> ! {
     scenario::source_fails_high(&mut rig, &mut c);
     scenario::interlock_open(&mut rig, &mut c);
     scenario::soft_stop(&mut rig, &mut c);
+    scenario::mailbox_and_reset(&mut rig, &mut c);
 
     // A latched block with the fault condition still present, for the
     // fault path's mean.
