@@ -10,27 +10,31 @@
 //! never a step. A latch restored from a good record stays latched the
 //! same way.
 //!
-//! Layout, little-endian (32 bytes, a multiple of the 8-byte flash word
-//! of common MCUs):
+//! Layout, little-endian (36 bytes; [`crate::store`] pads a slot to the
+//! flash's write size):
 //!
 //! | bytes | field |
 //! |---|---|
 //! | 0..4 | magic `b"dsL1"` (format version 1) |
-//! | 4..6 | latched faults, the [`FaultSet`] mask |
-//! | 6 | 1 when a first-fault record follows, else 0 |
-//! | 7 | its fault (discriminant), 0 when none |
-//! | 8..12 | its sequence number |
-//! | 12..16 | its tick |
-//! | 16..20 | its measured value (raw [`Fx`] bits) |
-//! | 20..24 | its limit (raw [`Fx`] bits) |
-//! | 24..28 | the log's next sequence number |
-//! | 28..32 | CRC-32 of bytes 0..28 |
+//! | 4..8 | latched faults, the [`FaultSet`] mask (32 bits: room for more faults) |
+//! | 8 | 1 when a first-fault record follows, else 0 |
+//! | 9 | its fault (discriminant), 0 when none |
+//! | 10..12 | zero |
+//! | 12..16 | its sequence number |
+//! | 16..20 | its tick |
+//! | 20..24 | its measured value (raw [`Fx`] bits) |
+//! | 24..28 | its limit (raw [`Fx`] bits) |
+//! | 28..32 | the log's next sequence number |
+//! | 32..36 | CRC-32 of bytes 0..32 |
 
 use crate::fault::{Entry, Fault, FaultRecord, FaultSet};
 use crate::units::Fx;
 
 /// Length of a packed latch record, bytes.
-pub const LATCH_RECORD_LEN: usize = 32;
+pub const LATCH_RECORD_LEN: usize = 36;
+
+/// Bytes covered by the check.
+const CHECKED: usize = 32;
 
 const MAGIC: [u8; 4] = *b"dsL1";
 
@@ -134,17 +138,17 @@ impl LatchRecord {
     pub fn to_bytes(&self) -> [u8; LATCH_RECORD_LEN] {
         let mut b = [0u8; LATCH_RECORD_LEN];
         put(&mut b, 0, &MAGIC);
-        put(&mut b, 4, &self.faults.bits().to_le_bytes());
+        put(&mut b, 4, &u32::from(self.faults.bits()).to_le_bytes());
         if let Some(e) = self.first {
-            put(&mut b, 6, &[1, e.record.fault as u8]);
-            put(&mut b, 8, &e.seq.to_le_bytes());
-            put(&mut b, 12, &e.record.tick.to_le_bytes());
-            put(&mut b, 16, &e.record.measured.to_bits().to_le_bytes());
-            put(&mut b, 20, &e.record.limit.to_bits().to_le_bytes());
+            put(&mut b, 8, &[1, e.record.fault as u8]);
+            put(&mut b, 12, &e.seq.to_le_bytes());
+            put(&mut b, 16, &e.record.tick.to_le_bytes());
+            put(&mut b, 20, &e.record.measured.to_bits().to_le_bytes());
+            put(&mut b, 24, &e.record.limit.to_bits().to_le_bytes());
         }
-        put(&mut b, 24, &self.next_seq.to_le_bytes());
-        let crc = crc32(b.get(..28).unwrap_or(&[]));
-        put(&mut b, 28, &crc.to_le_bytes());
+        put(&mut b, 28, &self.next_seq.to_le_bytes());
+        let crc = crc32(b.get(..CHECKED).unwrap_or(&[]));
+        put(&mut b, CHECKED, &crc.to_le_bytes());
         b
     }
 
@@ -153,8 +157,8 @@ impl LatchRecord {
         if b.iter().all(|&x| x == 0xFF) {
             return Err(RestoreError::Erased);
         }
-        let stored = word(b, 28);
-        let computed = crc32(b.get(..28).unwrap_or(&[]));
+        let stored = word(b, CHECKED);
+        let computed = crc32(b.get(..CHECKED).unwrap_or(&[]));
         if stored != computed {
             return Err(RestoreError::Check { stored, computed });
         }
@@ -162,33 +166,36 @@ impl LatchRecord {
         if b.get(..4) != Some(&MAGIC[..]) {
             return Err(format(0));
         }
-        let bits = (word(b, 4) & 0xFFFF) as u16;
+        let bits = u16::try_from(word(b, 4)).map_err(|_| format(4))?;
         let faults = FaultSet::from_bits(bits);
         if faults.bits() != bits {
             return Err(format(4));
         }
-        let first = match (b.get(6), b.get(7)) {
+        if b.get(10..12) != Some(&[0, 0][..]) {
+            return Err(format(10));
+        }
+        let first = match (b.get(8), b.get(9)) {
             (Some(0), Some(0)) => {
-                if let Some(at) = b.get(8..24).and_then(|r| r.iter().position(|&x| x != 0)) {
-                    return Err(format(8 + at as u8));
+                if let Some(at) = b.get(12..28).and_then(|r| r.iter().position(|&x| x != 0)) {
+                    return Err(format(12 + at as u8));
                 }
                 None
             }
-            (Some(0), _) => return Err(format(7)),
+            (Some(0), _) => return Err(format(9)),
             (Some(1), Some(&f)) => Some(Entry {
-                seq: word(b, 8),
+                seq: word(b, 12),
                 record: FaultRecord {
-                    fault: Fault::from_index(f).ok_or(format(7))?,
-                    tick: word(b, 12),
-                    measured: Fx::from_bits(word(b, 16) as i32),
-                    limit: Fx::from_bits(word(b, 20) as i32),
+                    fault: Fault::from_index(f).ok_or(format(9))?,
+                    tick: word(b, 16),
+                    measured: Fx::from_bits(word(b, 20) as i32),
+                    limit: Fx::from_bits(word(b, 24) as i32),
                 },
             }),
-            _ => return Err(format(6)),
+            _ => return Err(format(8)),
         };
-        let next_seq = word(b, 24);
+        let next_seq = word(b, 28);
         if first.is_some_and(|e| e.seq >= next_seq) {
-            return Err(format(24));
+            return Err(format(28));
         }
         Ok(LatchRecord {
             faults,
@@ -251,8 +258,8 @@ mod tests {
 
     /// Bytes with a good check but not a version-1 record.
     fn with_check(mut b: [u8; LATCH_RECORD_LEN]) -> [u8; LATCH_RECORD_LEN] {
-        let crc = crc32(&b[..28]);
-        b[28..].copy_from_slice(&crc.to_le_bytes());
+        let crc = crc32(&b[..CHECKED]);
+        b[CHECKED..].copy_from_slice(&crc.to_le_bytes());
         b
     }
 
@@ -263,19 +270,21 @@ mod tests {
             Err(RestoreError::Erased)
         );
         let good = rec().to_bytes();
-        let cases: [(usize, u8, u8); 6] = [
+        let cases: [(usize, u8, u8); 8] = [
             (0, b'X', 0), // magic
             (5, 0x80, 4), // a fault bit no fault has
-            (6, 2, 6),    // presence flag
-            (7, 200, 7),  // no such fault
-            (24, 3, 24),  // next sequence number at the first's
-            (25, 0, 24),  // ... or below it
+            (6, 1, 4),    // a bit above the 16 of the set
+            (8, 2, 8),    // presence flag
+            (9, 200, 9),  // no such fault
+            (11, 1, 10),  // the zero bytes
+            (28, 3, 28),  // next sequence number at the first's
+            (29, 0, 28),  // ... or below it
         ];
         for (at, v, offset) in cases {
             let mut b = good;
             b[at] = v;
-            if at == 25 {
-                b[24] = 0;
+            if at == 29 {
+                b[28] = 0;
             }
             assert_eq!(
                 LatchRecord::from_bytes(&with_check(b)),
@@ -285,16 +294,16 @@ mod tests {
         }
         // No first record, but a stray byte in its fields.
         let mut b = LatchRecord::default().to_bytes();
-        b[13] = 1;
+        b[17] = 1;
         assert_eq!(
             LatchRecord::from_bytes(&with_check(b)),
-            Err(RestoreError::Format { offset: 13 })
+            Err(RestoreError::Format { offset: 17 })
         );
         let mut b = LatchRecord::default().to_bytes();
-        b[7] = 1;
+        b[9] = 1;
         assert_eq!(
             LatchRecord::from_bytes(&with_check(b)),
-            Err(RestoreError::Format { offset: 7 })
+            Err(RestoreError::Format { offset: 9 })
         );
     }
 

@@ -98,7 +98,8 @@ fn tripped() -> Rig {
 #[test]
 fn a_reset_in_the_latched_state_comes_back_latched_through_the_flash() {
     let (mut store, bytes) = LatchStore::open(RamFlash::new(), BASE).unwrap();
-    assert_eq!(store.capacity(), (ERASE / 32) as u32);
+    // 36-byte records in 40-byte slots (the write size is 8).
+    assert_eq!(store.capacity(), (ERASE / 40) as u32);
     // A new board: nothing stored, refused, latched until a clear.
     let (mut ctl, r) = Controller::restored(demo(), &bytes);
     assert!(r.is_err());
@@ -125,7 +126,7 @@ fn a_write_cut_short_by_a_reset_is_refused_into_a_latch() {
         store.save(&LatchRecord::default()).unwrap();
         flash = store.release();
     }
-    // The latch save is cut after 12 of its 32 bytes.
+    // The latch save is cut after 12 of its 40 bytes.
     flash.cut_after = Some(12);
     let (mut store, _) = LatchStore::open(flash, BASE).unwrap();
     let rec = tripped().ctl.latch_record();
