@@ -211,6 +211,9 @@ async fn main(_spawner: Spawner) {
         ),
         Err(e) => warn!("latch record refused ({}): starting latched", e),
     }
+    // What the flash holds now (a refused record is replaced by the
+    // record-corrupt latch at the first save).
+    let mut saved: Option<LatchRecord> = restored.ok();
 
     let dac = OnChipDac::new(DacChannel::new_blocking(p.DAC1, p.PA4));
     let sampler = Sampler::new(
@@ -251,7 +254,6 @@ async fn main(_spawner: Spawner) {
     let mut cursor = Cursor::default();
     // Requests sent and not yet answered, oldest first.
     let mut pending: Deque<Request, 8> = Deque::new();
-    let mut saved: Option<LatchRecord> = None;
     loop {
         let pressed = with_timeout(Duration::from_millis(10), button.wait_for_rising_edge())
             .await
