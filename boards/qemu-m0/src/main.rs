@@ -74,6 +74,7 @@ fn main() -> ! {
     if timed {
         section("cost of Controller::step on Cortex-M0 (instructions per tick)");
         let _ = report::print_table(&sw, &rig.stats, &rig.snapshots, reg_block, None);
+        report::print_side_costs(&sw);
     }
     hprintln!("qemu-m0: {} passed, {} failed", c.passed(), c.failed());
     finish(c.all_passed());

@@ -157,6 +157,8 @@ fn main() -> ! {
         }
     }
 
+    section("beside the step (instructions)");
+    report::print_side_costs(&sw);
     section("cost of Controller::step (instructions per tick)");
     let [reg, trip, latched, _, reg_jump, trip_jump, latched_jump] =
         report::print_table(&sw, &rig.stats, &rig.snapshots, reg_block, latched_block);
