@@ -1,7 +1,7 @@
 //! The latch across a reset: the first-fault record and the latched faults
 //! as [`LATCH_RECORD_LEN`] bytes with a CRC-32, handed out by
-//! [`Controller::latch_record`] and taken back at boot by
-//! [`Controller::restored`]. Storage stays at the board's edge (flash,
+//! [`crate::Controller::latch_record`] and taken back at boot by
+//! [`crate::Controller::restored`]. Storage stays at the board's edge (flash,
 //! EEPROM, backup RAM); the core only packs, checks and unpacks.
 //!
 //! Fail-safe: a record that does not check out (erased, wrong check,
