@@ -77,7 +77,7 @@ fi
 echo "canary: a reachable panic fails the link, as it must"
 cargo build --release --bin prove-no-panic --bin rt-baseline
 cargo build --release --bin prove-no-panic --bin rt-baseline --target thumbv6m-none-eabi
-echo "prove-no-panic: linked for thumbv7em-none-eabihf and thumbv6m-none-eabi: no panic path in validate, request, step or the edge"
+echo "prove-no-panic: linked for thumbv7em-none-eabihf and thumbv6m-none-eabi: no panic path in validate, restore, request (through the mailbox), step or the edge"
 
 echo "== boards: qemu-m0 (Cortex-M0)"
 cd "$boards/qemu-m0"

@@ -237,6 +237,9 @@ pub const fn debounce_key(fault: Fault) -> &'static str {
         Fault::PowerImplausible => "plausibility.debounce",
         Fault::DiodeOpen | Fault::DiodeShort => "forward_voltage.debounce",
         Fault::ExternalFault => "protection.external_debounce",
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => {
+            "(none: latched by the edge)"
+        }
     }
 }
 
@@ -774,9 +777,9 @@ pub(crate) struct PerTick {
     pub ki: Gain,
     /// The fault a temperature reading at or below the low rail means
     /// (sensor open or short, per [`TempCal::open_rail`]), as a mask bit.
-    pub low_rail_bit: u16,
+    pub low_rail_bit: u32,
     /// The fault a reading at or above the high rail means, as a mask bit.
-    pub high_rail_bit: u16,
+    pub high_rail_bit: u32,
     /// The level of the leaky debounce at which each fault trips
     /// (`intermittent_weight × debounce`), indexed by its bit.
     pub trip_at: [u32; Fault::COUNT],
@@ -1115,6 +1118,9 @@ pub fn debounce_ticks(c: &Config, fault: Fault) -> u16 {
         Fault::PowerImplausible => c.plausibility.as_ref().map_or(1, |pl| pl.debounce),
         Fault::DiodeOpen | Fault::DiodeShort => c.forward_voltage.map_or(1, |f| f.debounce),
         Fault::ExternalFault => p.external_debounce,
+        // Latched by the edge on the failed call itself, or at boot: never
+        // debounced.
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => 1,
     }
 }
 

@@ -19,8 +19,9 @@
 
 use crate::apc::{Limits, PowerLoop};
 use crate::config::ValidConfig;
-use crate::fault::{FaultLog, FaultSet};
+use crate::fault::{Fault, FaultLog, FaultRecord, FaultSet};
 use crate::io::{Drive, Mode, Sample, State, Status, Warnings};
+use crate::persist::{LatchRecord, RestoreError, LATCH_RECORD_LEN};
 use crate::protect::{Measurements, Protections, SLOW_EVERY};
 use crate::request::{Rejection, Request};
 use crate::temp_table::Window;
@@ -87,6 +88,45 @@ impl Controller {
             last_tick: None,
             meas: Measurements::default(),
             temp_segment,
+        }
+    }
+
+    /// A controller for `cfg` that takes back the latch stored before a
+    /// reset ([`crate::persist`]): latched again if it was latched, with
+    /// the first-fault record in its log. A refused record starts it
+    /// latched with [`Fault::RecordCorrupt`] (logged at tick 0, measured:
+    /// [`RestoreError::code`]); only `ClearFaults` leaves either latch.
+    pub fn restored(
+        cfg: ValidConfig,
+        stored: &[u8; LATCH_RECORD_LEN],
+    ) -> (Self, Result<LatchRecord, RestoreError>) {
+        let mut ctl = Controller::new(cfg);
+        let result = LatchRecord::from_bytes(stored);
+        match result {
+            Ok(rec) => {
+                ctl.log = FaultLog::restored(rec.first, rec.next_seq);
+                if !rec.faults.is_empty() {
+                    ctl.status.faults = rec.faults;
+                    ctl.status.state = State::Latched;
+                }
+            }
+            Err(e) => ctl.latch_edge_fault(FaultRecord {
+                fault: Fault::RecordCorrupt,
+                tick: 0,
+                measured: Fx::from_num(e.code()),
+                limit: Fx::ZERO,
+            }),
+        }
+        (ctl, result)
+    }
+
+    /// The latch as it must survive a reset: store
+    /// [`LatchRecord::to_bytes`] whenever the latched faults change.
+    pub fn latch_record(&self) -> LatchRecord {
+        LatchRecord {
+            faults: self.status.faults,
+            first: self.log.first_entry(),
+            next_seq: self.log.end().0,
         }
     }
 
@@ -405,6 +445,22 @@ impl Controller {
                 (clamp_fx(d, Fx::ZERO, ceiling), d >= ceiling)
             }
         }
+    }
+
+    /// Latch a fault found outside [`Controller::step`] (the hardware edge:
+    /// a failed DAC write, enable pin or interlock read) and log `rec`.
+    /// The drive is zero from this call on, as after a trip in `step`; a
+    /// fault already latched is not logged again.
+    pub fn latch_edge_fault(&mut self, rec: FaultRecord) {
+        if self.status.faults.contains(rec.fault) {
+            return;
+        }
+        self.status.faults.insert(rec.fault);
+        self.status.state = State::Latched;
+        self.drive_ma = Fx::ZERO;
+        self.envelope_ma = Fx::ZERO;
+        self.ceiling_ma = Fx::ZERO;
+        self.log.record(rec);
     }
 
     /// The configuration in force.

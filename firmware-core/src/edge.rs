@@ -4,16 +4,27 @@
 //! board's ADC counts, calls [`Controller::step`] and applies the [`Drive`]:
 //! when the drive is disabled the enable line goes low *before* the DAC is
 //! zeroed; when enabled the DAC is written *before* the enable line goes
-//! high. A failed DAC write holds the enable line low until [`DriverBoard::reset_edge`].
+//! high.
+//!
+//! Every failed hardware call is returned ([`EdgeError`] lists each one)
+//! *and* latches a fault of its own in the controller, with a record in
+//! its log: [`Fault::DacBus`], [`Fault::EnablePin`], [`Fault::InterlockPin`].
+//! After any failure the edge still tries what the hardware may allow:
+//! enable low, then DAC zero. A failed DAC write also holds the enable line
+//! low until [`DriverBoard::reset_edge`]. Construction ([`DriverBoard::new`])
+//! puts the hardware in the safe state first.
 //!
 //! The current DAC is anything implementing [`CurrentDac`]; two are provided:
 //! [`SpiDac`] (an SPI DAC with the plain frame defined there) and [`PwmDac`]
 //! (a PWM output filtered into a voltage, through [`SetDutyCycle`]).
 
+use crate::config::ValidConfig;
 use crate::controller::Controller;
+use crate::fault::{Fault, FaultRecord, FaultSet};
 use crate::io::{Drive, Sample};
 use crate::request::{Rejection, Request};
-use embedded_hal::digital::{InputPin, OutputPin};
+use crate::units::Fx;
+use embedded_hal::digital::{ErrorType, InputPin, OutputPin};
 use embedded_hal::pwm::SetDutyCycle;
 use embedded_hal::spi::SpiDevice;
 
@@ -37,17 +48,63 @@ pub enum DacWidth {
     Bits16,
 }
 
-/// An SPI DAC using the frames of [`DacWidth`].
+impl DacWidth {
+    /// The largest code the frame carries.
+    pub const fn full_scale(self) -> u16 {
+        match self {
+            DacWidth::Bits12 => 0x0FFF,
+            DacWidth::Bits16 => 0xFFFF,
+        }
+    }
+}
+
+/// The configuration's largest DAC code does not fit the DAC's frame.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct DacRangeError {
+    /// The configuration's largest code (`calibration.dac.max_code`).
+    pub max_code: u16,
+    /// The largest code the DAC's frame carries.
+    pub full_scale: u16,
+}
+
+impl core::fmt::Display for DacRangeError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        write!(
+            f,
+            "calibration.dac.max_code {} is above the DAC's full scale {}",
+            self.max_code, self.full_scale
+        )
+    }
+}
+
+impl core::error::Error for DacRangeError {}
+
+/// An SPI DAC using the frames of [`DacWidth`]. A code above the
+/// configuration's largest code is clamped to it, never wrapped.
 #[derive(Debug)]
 pub struct SpiDac<S> {
     spi: S,
     width: DacWidth,
+    max_code: u16,
 }
 
 impl<S: SpiDevice> SpiDac<S> {
-    /// Wrap an SPI device.
-    pub fn new(spi: S, width: DacWidth) -> Self {
-        SpiDac { spi, width }
+    /// Wrap an SPI device for the configuration `cfg`; refused when the
+    /// configuration's largest code does not fit the frame.
+    pub fn new(spi: S, width: DacWidth, cfg: &ValidConfig) -> Result<Self, DacRangeError> {
+        let max_code = cfg.config().calibration.dac.max_code;
+        if max_code > width.full_scale() {
+            return Err(DacRangeError {
+                max_code,
+                full_scale: width.full_scale(),
+            });
+        }
+        Ok(SpiDac {
+            spi,
+            width,
+            max_code,
+        })
     }
 
     /// Give the SPI device back.
@@ -59,9 +116,11 @@ impl<S: SpiDevice> SpiDac<S> {
 impl<S: SpiDevice> CurrentDac for SpiDac<S> {
     type Error = S::Error;
     fn set_code(&mut self, code: u16) -> Result<(), Self::Error> {
+        // At most the full scale of the frame (checked at construction).
+        let code = code.min(self.max_code);
         match self.width {
             DacWidth::Bits12 => {
-                let word = 0x4000 | (code & 0x0FFF);
+                let word = 0x4000 | code;
                 self.spi.write(&word.to_be_bytes())
             }
             DacWidth::Bits16 => {
@@ -123,14 +182,67 @@ pub struct AdcCounts {
     pub supply: u16,
 }
 
-/// What went wrong at the edge.
+/// Every hardware call that failed in one call of the edge. Each one has
+/// already latched its own fault in the controller ([`EdgeError::faults`]),
+/// logged with the tick index (0 for [`DriverBoard::new`]). At least one
+/// field is set.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum EdgeError<D, P> {
-    /// The DAC write failed; the enable line is held low.
-    Dac(D),
-    /// The enable pin could not be driven.
-    EnablePin(P),
+pub struct EdgeError<D, P, I> {
+    /// The interlock could not be read (it counted as open):
+    /// [`Fault::InterlockPin`].
+    pub interlock: Option<I>,
+    /// A DAC write failed (the first failure of the call):
+    /// [`Fault::DacBus`]; the enable line is held low until
+    /// [`DriverBoard::reset_edge`].
+    pub dac: Option<D>,
+    /// The enable line could not be driven (the first failure of the
+    /// call): [`Fault::EnablePin`].
+    pub enable: Option<P>,
+}
+
+impl<D, P, I> EdgeError<D, P, I> {
+    const fn none() -> Self {
+        EdgeError {
+            interlock: None,
+            dac: None,
+            enable: None,
+        }
+    }
+
+    fn is_none(&self) -> bool {
+        self.interlock.is_none() && self.dac.is_none() && self.enable.is_none()
+    }
+
+    /// The faults these failures latched.
+    pub fn faults(&self) -> FaultSet {
+        let mut set = FaultSet::EMPTY;
+        for (failed, fault) in [
+            (self.interlock.is_some(), Fault::InterlockPin),
+            (self.dac.is_some(), Fault::DacBus),
+            (self.enable.is_some(), Fault::EnablePin),
+        ] {
+            if failed {
+                set.insert(fault);
+            }
+        }
+        set
+    }
+}
+
+/// The [`EdgeError`] of a board with these parts.
+pub type EdgeErrorOf<D, EN, IL> =
+    EdgeError<<D as CurrentDac>::Error, <EN as ErrorType>::Error, <IL as ErrorType>::Error>;
+
+/// [`DriverBoard::new`] could not put the hardware in the safe state. The
+/// board is handed back with the failures latched, so that the caller keeps
+/// holding the hardware (and may retry with [`DriverBoard::tick`]).
+#[derive(Debug)]
+pub struct StartError<B, E> {
+    /// The board, latched.
+    pub board: B,
+    /// What failed.
+    pub error: E,
 }
 
 /// The controller with its DAC, enable line and interlock input.
@@ -144,22 +256,43 @@ pub struct DriverBoard<D, EN, IL> {
     dac_failed: bool,
 }
 
+/// The board as built by [`DriverBoard::new`], or why it is not yet safe.
+pub type StartResult<D, EN, IL> =
+    Result<DriverBoard<D, EN, IL>, StartError<DriverBoard<D, EN, IL>, EdgeErrorOf<D, EN, IL>>>;
+
 impl<D, EN, IL> DriverBoard<D, EN, IL>
 where
     D: CurrentDac,
     EN: OutputPin,
     IL: InputPin,
 {
-    /// Put the pieces together. The enable line is not touched until the
-    /// first [`DriverBoard::tick`]; the board must hold it low at reset.
-    pub fn new(ctl: Controller, dac: D, enable: EN, interlock: IL, level: InterlockLevel) -> Self {
-        DriverBoard {
+    /// Put the pieces together and the hardware in the safe state: enable
+    /// low, then DAC zero. A failure latches its fault (logged at tick 0)
+    /// and comes back with the board in [`StartError`].
+    // Both arms carry the board, which is the size; there is no heap to
+    // box it into.
+    #[allow(clippy::result_large_err)]
+    pub fn new(
+        ctl: Controller,
+        dac: D,
+        enable: EN,
+        interlock: IL,
+        level: InterlockLevel,
+    ) -> StartResult<D, EN, IL> {
+        let mut board = DriverBoard {
             ctl,
             dac,
             enable,
             interlock,
             level,
             dac_failed: false,
+        };
+        let mut err = EdgeError::none();
+        board.shut(&mut err, 0);
+        if err.is_none() {
+            Ok(board)
+        } else {
+            Err(StartError { board, error: err })
         }
     }
 
@@ -168,8 +301,15 @@ where
         &self.ctl
     }
 
-    /// Pass a request to the controller.
+    /// Pass a request to the controller. While a DAC failure holds the
+    /// enable line low, clearing faults is refused with
+    /// [`Fault::DacBus`] as the condition present.
     pub fn request(&mut self, req: Request) -> Result<(), Rejection> {
+        if self.dac_failed && req == Request::ClearFaults {
+            return Err(Rejection::ConditionPresent {
+                fault: Fault::DacBus,
+            });
+        }
         self.ctl.request(req)
     }
 
@@ -178,19 +318,26 @@ where
         self.dac_failed
     }
 
-    /// Forget a DAC failure (after the board has checked the DAC).
+    /// Forget a DAC failure (after the board has checked the DAC). The
+    /// controller stays latched until its faults are cleared.
     pub fn reset_edge(&mut self) {
         self.dac_failed = false;
     }
 
     /// One tick: read the interlock (a read error counts as open), step the
-    /// controller, apply the drive.
-    pub fn tick(&mut self, adc: AdcCounts) -> Result<Drive, EdgeError<D::Error, EN::Error>> {
-        let closed = match self.level {
+    /// controller, apply the drive. On any hardware error the returned
+    /// error lists every failure, each latched, and the edge has tried
+    /// enable low and DAC zero.
+    pub fn tick(&mut self, adc: AdcCounts) -> Result<Drive, EdgeErrorOf<D, EN, IL>> {
+        let mut err = EdgeError::none();
+        let read = match self.level {
             InterlockLevel::ClosedHigh => self.interlock.is_high(),
             InterlockLevel::ClosedLow => self.interlock.is_low(),
-        }
-        .unwrap_or(false);
+        };
+        let closed = read.unwrap_or_else(|e| {
+            err.interlock = Some(e);
+            false
+        });
         let sample = Sample {
             tick: adc.tick,
             monitor_counts: adc.monitor,
@@ -202,29 +349,81 @@ where
             external_fault: false,
         };
         let mut drive = self.ctl.step(&sample);
-        if self.dac_failed && drive.enable {
-            // Never re-enable after a failed DAC write; stop the controller too.
-            let _ = self.ctl.request(Request::Disable);
-            drive.enable = false;
-            drive.dac_code = 0;
+        // Latched after the step, as a trip in it would be: the drive of
+        // this tick is zero, and the next sample is read with it.
+        if err.interlock.is_some() {
+            self.latch(Fault::InterlockPin, adc.tick, Fx::ZERO, Fx::ONE);
+        }
+        if self.dac_failed || err.interlock.is_some() {
+            drive = self.off();
         }
         if drive.enable {
-            if let Err(e) = self.dac.set_code(drive.dac_code) {
-                self.dac_failed = true;
-                let _ = self.enable.set_low();
-                let _ = self.ctl.request(Request::Disable);
-                return Err(EdgeError::Dac(e));
+            match self.dac.set_code(drive.dac_code) {
+                Err(e) => {
+                    err.dac = Some(e);
+                    self.dac_failed = true;
+                    let max = self.ctl.config().config().calibration.dac.max_code;
+                    self.latch(
+                        Fault::DacBus,
+                        adc.tick,
+                        Fx::saturating_from_num(drive.dac_code),
+                        Fx::saturating_from_num(max),
+                    );
+                    drive = self.off();
+                }
+                Ok(()) => {
+                    if let Err(e) = self.enable.set_high() {
+                        err.enable = Some(e);
+                        self.latch(Fault::EnablePin, adc.tick, Fx::ONE, Fx::ZERO);
+                        drive = self.off();
+                    }
+                }
             }
-            self.enable.set_high().map_err(EdgeError::EnablePin)?;
-        } else {
-            let pin = self.enable.set_low();
-            if let Err(e) = self.dac.set_code(0) {
-                // A DAC that cannot be zeroed is not trusted with emission.
-                self.dac_failed = true;
-                return Err(EdgeError::Dac(e));
-            }
-            pin.map_err(EdgeError::EnablePin)?;
         }
-        Ok(drive)
+        if !drive.enable {
+            self.shut(&mut err, adc.tick);
+            drive.status = self.ctl.status();
+        }
+        if err.is_none() {
+            Ok(drive)
+        } else {
+            Err(err)
+        }
+    }
+
+    /// The drive of a latched controller.
+    fn off(&self) -> Drive {
+        Drive {
+            dac_code: 0,
+            enable: false,
+            status: self.ctl.status(),
+        }
+    }
+
+    /// Enable low, then DAC zero; each failure latches its fault (noted in
+    /// `err` unless one of its kind is there already).
+    fn shut(&mut self, err: &mut EdgeErrorOf<D, EN, IL>, tick: u32) {
+        if let Err(e) = self.enable.set_low() {
+            err.enable.get_or_insert(e);
+            self.latch(Fault::EnablePin, tick, Fx::ZERO, Fx::ZERO);
+        }
+        if let Err(e) = self.dac.set_code(0) {
+            // A DAC that cannot be zeroed is not trusted with emission.
+            err.dac.get_or_insert(e);
+            self.dac_failed = true;
+            let max = self.ctl.config().config().calibration.dac.max_code;
+            self.latch(Fault::DacBus, tick, Fx::ZERO, Fx::saturating_from_num(max));
+        }
+    }
+
+    /// Latch an edge fault with its record.
+    #[cold]
+    fn latch(&mut self, fault: Fault, tick: u32, measured: Fx, limit: Fx) {
+        self.ctl.latch_edge_fault(FaultRecord {
+            fault,
+            tick,
+            measured,
+            limit,
+        });
     }
 }

@@ -53,11 +53,24 @@ pub enum Fault {
     /// The board's external fault input is asserted (a hardware comparator
     /// trip, a watchdog pre-warning) (fast).
     ExternalFault = 15,
+    /// A write to the current DAC failed (the edge, [`crate::edge`]).
+    /// Measured: the code written; limit: the configuration's largest code.
+    DacBus = 16,
+    /// The enable line could not be driven (the edge). Measured: the level
+    /// the edge tried to drive; limit: the safe level, low (0).
+    EnablePin = 17,
+    /// The interlock input could not be read (the edge); the read counts
+    /// as open. Measured: 0 (read as open); limit: 1 (closed).
+    InterlockPin = 18,
+    /// The latch record stored before a reset was refused at boot
+    /// ([`crate::persist`]): the controller starts latched. Measured: the
+    /// cause ([`crate::persist::RestoreError::code`]); limit: 0.
+    RecordCorrupt = 19,
 }
 
 impl Fault {
     /// Every fault, in bit order.
-    pub const ALL: [Fault; 16] = [
+    pub const ALL: [Fault; 20] = [
         Fault::Overcurrent,
         Fault::MonitorRunaway,
         Fault::MonitorLoss,
@@ -74,15 +87,19 @@ impl Fault {
         Fault::DiodeOpen,
         Fault::DiodeShort,
         Fault::ExternalFault,
+        Fault::DacBus,
+        Fault::EnablePin,
+        Fault::InterlockPin,
+        Fault::RecordCorrupt,
     ];
 
     /// Number of distinct faults.
     pub const COUNT: usize = Self::ALL.len();
 
-    /// The mask of every fault (widen [`FaultSet`] before a 17th).
-    pub(crate) const ALL_BITS: u16 = {
-        assert!(Self::COUNT <= 16, "widen FaultSet beyond 16 faults");
-        u16::MAX >> (16 - Self::COUNT)
+    /// The mask of every fault (widen [`FaultSet`] before a 33rd).
+    pub(crate) const ALL_BITS: u32 = {
+        assert!(Self::COUNT <= 32, "widen FaultSet beyond 32 faults");
+        u32::MAX >> (32 - Self::COUNT)
     };
 
     /// A fast fault shuts the drive in the same `step` that sees the sample
@@ -96,6 +113,16 @@ impl Fault {
                 | Fault::InterlockOpen
                 | Fault::DriveMismatch
                 | Fault::ExternalFault
+        )
+    }
+
+    /// Whether this fault is latched outside [`crate::Controller::step`]
+    /// (by the hardware edge on a failed call, [`crate::edge`], or at boot,
+    /// [`crate::persist`]) rather than by a protection on a sample.
+    pub const fn is_latched_outside_step(self) -> bool {
+        matches!(
+            self,
+            Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt
         )
     }
 
@@ -118,6 +145,10 @@ impl Fault {
             Fault::DiodeOpen => "diode-open",
             Fault::DiodeShort => "diode-short",
             Fault::ExternalFault => "external-fault",
+            Fault::DacBus => "dac-bus",
+            Fault::EnablePin => "enable-pin",
+            Fault::InterlockPin => "interlock-pin",
+            Fault::RecordCorrupt => "record-corrupt",
         }
     }
 
@@ -128,17 +159,25 @@ impl Fault {
             Fault::MonitorRunaway | Fault::MonitorLoss => "mW",
             Fault::SensorOpen | Fault::SensorShort => "counts",
             Fault::OverTemperature => "degC",
-            Fault::InterlockOpen => "closed(1)/open(0)",
+            Fault::InterlockOpen | Fault::InterlockPin => "closed(1)/open(0)",
             Fault::SupplyUnder | Fault::SupplyOver => "mV",
             Fault::MissedTicks => "ticks",
             Fault::TickOrder => "ticks (index step)",
             Fault::DiodeOpen | Fault::DiodeShort => "mV",
             Fault::ExternalFault => "asserted(1)",
+            Fault::DacBus => "code",
+            Fault::EnablePin => "high(1)/low(0)",
+            Fault::RecordCorrupt => "cause(1 erased, 2 check, 3 format)",
         }
     }
 
+    /// The fault with discriminant `n`, if any.
+    pub fn from_index(n: u8) -> Option<Fault> {
+        Fault::ALL.get(usize::from(n)).copied()
+    }
+
     /// Bit of this fault in a [`FaultSet`] mask.
-    pub(crate) const fn bit(self) -> u16 {
+    pub(crate) const fn bit(self) -> u32 {
         1 << (self as u8)
     }
 }
@@ -152,7 +191,7 @@ impl core::fmt::Display for Fault {
 /// A set of faults as a bit mask (bit `n` is the fault with discriminant `n`).
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct FaultSet(u16);
+pub struct FaultSet(u32);
 
 impl FaultSet {
     /// The empty set.
@@ -174,12 +213,12 @@ impl FaultSet {
     }
 
     /// The set of a raw bit mask (bits of no fault are dropped).
-    pub(crate) const fn from_bits(bits: u16) -> FaultSet {
+    pub(crate) const fn from_bits(bits: u32) -> FaultSet {
         FaultSet(bits & Fault::ALL_BITS)
     }
 
     /// The raw bit mask.
-    pub const fn bits(self) -> u16 {
+    pub const fn bits(self) -> u32 {
         self.0
     }
 
@@ -211,13 +250,37 @@ pub struct FaultRecord {
 /// Capacity of the fault ring (later faults after the first one).
 pub const FAULT_RING_LEN: usize = 16;
 
+/// A record with its sequence number: the number of records logged before
+/// it since power-up (or since a restore, which continues the count), so
+/// the first record ever is 0. [`FaultLog::forget`] does not restart the
+/// count: a reader's [`Cursor`] stays meaningful.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Entry {
+    /// Sequence number.
+    pub seq: u32,
+    /// The record.
+    pub record: FaultRecord,
+}
+
+/// Where a reader of the log stands: the sequence number of the next record
+/// it has not seen. [`Cursor::default`] is the start of the log.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, PartialOrd, Ord)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Cursor(pub u32);
+
 /// The fault log: the first fault since power-up (or since [`FaultLog::forget`])
-/// kept apart, later ones in a bounded ring.
+/// kept apart, later ones in a bounded ring. Every record has a sequence
+/// number ([`Entry`]); read new records with [`FaultLog::since`], which
+/// never repeats a record and counts the ones the ring overwrote before
+/// they were read.
 #[derive(Clone, Debug, Default)]
 pub struct FaultLog {
     first: Option<FaultRecord>,
+    first_seq: u32,
     later: heapless::Deque<FaultRecord, FAULT_RING_LEN>,
-    dropped: u32,
+    /// Sequence number of the next record.
+    next_seq: u32,
 }
 
 impl FaultLog {
@@ -225,21 +288,48 @@ impl FaultLog {
     pub const fn new() -> Self {
         FaultLog {
             first: None,
+            first_seq: 0,
             later: heapless::Deque::new(),
-            dropped: 0,
+            next_seq: 0,
         }
     }
 
+    /// An empty log whose next record gets sequence number `next_seq` (a
+    /// log continued after a restore).
+    pub(crate) const fn continuing_at(next_seq: u32) -> Self {
+        FaultLog {
+            first: None,
+            first_seq: next_seq,
+            later: heapless::Deque::new(),
+            next_seq,
+        }
+    }
+
+    /// A log restored after a reset: the first record at its sequence
+    /// number, the ones after it gone, the count going on at `next_seq`.
+    pub(crate) fn restored(first: Option<Entry>, next_seq: u32) -> Self {
+        let mut log = FaultLog::continuing_at(next_seq);
+        if let Some(e) = first {
+            log.first = Some(e.record);
+            log.first_seq = e.seq;
+        }
+        log
+    }
+
     /// Record a fault. Never fails: when the ring is full the oldest later
-    /// record is dropped and counted.
+    /// record is overwritten (readers learn it through [`Unread::lost`]).
     pub fn record(&mut self, rec: FaultRecord) {
+        let seq = self.next_seq;
+        // Saturates after 4 294 967 295 records, each of which needs a
+        // latch: unreachable in service.
+        self.next_seq = seq.saturating_add(1);
         if self.first.is_none() {
             self.first = Some(rec);
+            self.first_seq = seq;
             return;
         }
         if self.later.is_full() {
             let _ = self.later.pop_front();
-            self.dropped = self.dropped.saturating_add(1);
         }
         // Cannot fail: a slot was freed above if the ring was full.
         let _ = self.later.push_back(rec);
@@ -250,17 +340,29 @@ impl FaultLog {
         self.first.as_ref()
     }
 
-    /// Later faults, oldest first.
+    /// The first fault recorded, with its sequence number.
+    pub fn first_entry(&self) -> Option<Entry> {
+        self.first.map(|record| Entry {
+            seq: self.first_seq,
+            record,
+        })
+    }
+
+    /// Later faults held, oldest first.
     pub fn later(&self) -> impl Iterator<Item = &FaultRecord> {
         self.later.iter()
     }
 
-    /// How many later records were dropped because the ring was full.
+    /// How many later records the ring overwrote since the first one.
     pub fn dropped(&self) -> u32 {
-        self.dropped
+        let held = self.len() as u32;
+        self.next_seq
+            .saturating_sub(self.first_seq)
+            .saturating_sub(held)
     }
 
-    /// Total records held (first plus later).
+    /// Records held now (first plus later). Not a reading position: the
+    /// ring stops growing at its capacity; read with [`FaultLog::since`].
     pub fn len(&self) -> usize {
         usize::from(self.first.is_some()) + self.later.len()
     }
@@ -270,9 +372,92 @@ impl FaultLog {
         self.first.is_none()
     }
 
-    /// Forget every record (a service action; the controller never calls it).
+    /// The cursor just past the newest record: reading from it yields
+    /// nothing until the next record.
+    pub fn end(&self) -> Cursor {
+        Cursor(self.next_seq)
+    }
+
+    /// The records from `from` on, oldest first, each once; records in that
+    /// range that are no longer held are counted in [`Unread::lost`].
+    /// Continue with [`Unread::resume`].
+    ///
+    /// ```
+    /// use diodestat_core::fault::{Cursor, FaultLog};
+    /// let log = FaultLog::new();
+    /// let mut cursor = Cursor::default();
+    /// // each time the reader looks:
+    /// let unread = log.since(cursor);
+    /// let (lost, next) = (unread.lost(), unread.resume());
+    /// for entry in unread {
+    ///     // report entry.seq, entry.record
+    /// #   let _ = entry;
+    /// }
+    /// cursor = next;
+    /// # assert_eq!((lost, cursor), (0, log.end()));
+    /// ```
+    pub fn since(&self, from: Cursor) -> Unread<'_> {
+        let from = from.0.min(self.next_seq);
+        let first = self.first_entry().filter(|e| e.seq >= from);
+        // Sequence number of the oldest later record held.
+        let oldest = self.next_seq - self.later.len() as u32;
+        let skip = from.saturating_sub(oldest) as usize;
+        let later_count = self.later.len().saturating_sub(skip) as u32;
+        let delivered = u32::from(first.is_some()) + later_count;
+        Unread {
+            first,
+            later: {
+                let (a, b) = self.later.as_slices();
+                a.iter().chain(b.iter()).skip(skip)
+            },
+            seq: oldest.max(from),
+            lost: (self.next_seq - from).saturating_sub(delivered),
+            end: self.end(),
+        }
+    }
+
+    /// Forget every record (a service action; the controller never calls
+    /// it). The sequence numbers go on, so readers lose nothing silently.
     pub fn forget(&mut self) {
-        *self = FaultLog::new();
+        *self = FaultLog::continuing_at(self.next_seq);
+    }
+}
+
+/// The records a reader has not seen yet, from [`FaultLog::since`].
+#[derive(Debug)]
+pub struct Unread<'a> {
+    first: Option<Entry>,
+    later: core::iter::Skip<
+        core::iter::Chain<core::slice::Iter<'a, FaultRecord>, core::slice::Iter<'a, FaultRecord>>,
+    >,
+    /// Sequence number of the next later record.
+    seq: u32,
+    lost: u32,
+    end: Cursor,
+}
+
+impl Unread<'_> {
+    /// Records after the cursor that were overwritten before this read.
+    pub fn lost(&self) -> u32 {
+        self.lost
+    }
+
+    /// Where the next read starts: past every record logged so far.
+    pub fn resume(&self) -> Cursor {
+        self.end
+    }
+}
+
+impl Iterator for Unread<'_> {
+    type Item = Entry;
+    fn next(&mut self) -> Option<Entry> {
+        if let Some(e) = self.first.take() {
+            return Some(e);
+        }
+        let record = *self.later.next()?;
+        let seq = self.seq;
+        self.seq = seq.saturating_add(1);
+        Some(Entry { seq, record })
     }
 }
 
@@ -332,5 +517,106 @@ mod tests {
                 Fault::ExternalFault
             ]
         );
+    }
+}
+
+#[cfg(test)]
+mod reader_tests {
+    extern crate std;
+    use super::*;
+    use std::{vec, vec::Vec};
+
+    fn rec(tick: u32) -> FaultRecord {
+        FaultRecord {
+            fault: Fault::SupplyUnder,
+            tick,
+            measured: Fx::ZERO,
+            limit: Fx::ZERO,
+        }
+    }
+
+    /// Reads `log` from `cursor`: the ticks delivered, the number lost.
+    fn read(log: &FaultLog, cursor: &mut Cursor, seen: &mut Vec<u32>) -> u32 {
+        let unread = log.since(*cursor);
+        let lost = unread.lost();
+        *cursor = unread.resume();
+        for e in unread {
+            // Sequence numbers follow the ticks of this test one to one.
+            assert_eq!(e.seq, e.record.tick);
+            seen.push(e.record.tick);
+        }
+        lost
+    }
+
+    #[test]
+    fn thirty_trips_read_as_they_come_are_all_reported_once() {
+        let mut log = FaultLog::new();
+        let (mut cursor, mut seen) = (Cursor::default(), Vec::new());
+        let mut lost = 0;
+        for t in 0..30 {
+            log.record(rec(t));
+            lost += read(&log, &mut cursor, &mut seen);
+            // A read with nothing new repeats nothing.
+            lost += read(&log, &mut cursor, &mut seen);
+        }
+        assert_eq!(seen, (0..30).collect::<Vec<_>>());
+        assert_eq!(lost, 0);
+        // Counting held records (the old way) saw 17 of them.
+        assert_eq!(log.len(), FAULT_RING_LEN + 1);
+    }
+
+    #[test]
+    fn thirty_trips_read_once_at_the_end_are_reported_or_counted_lost() {
+        let mut log = FaultLog::new();
+        for t in 0..30 {
+            log.record(rec(t));
+        }
+        let (mut cursor, mut seen) = (Cursor::default(), Vec::new());
+        let lost = read(&log, &mut cursor, &mut seen);
+        let mut expected = vec![0];
+        expected.extend(30 - FAULT_RING_LEN as u32..30);
+        assert_eq!(seen, expected);
+        assert_eq!(lost, 30 - 1 - FAULT_RING_LEN as u32);
+        assert_eq!(seen.len() as u32 + lost, 30);
+        assert_eq!(log.dropped(), lost);
+        assert_eq!(cursor, log.end());
+    }
+
+    #[test]
+    fn a_reader_part_way_counts_only_what_it_missed() {
+        let mut log = FaultLog::new();
+        let (mut cursor, mut seen) = (Cursor::default(), Vec::new());
+        for t in 0..5 {
+            log.record(rec(t));
+        }
+        assert_eq!(read(&log, &mut cursor, &mut seen), 0);
+        for t in 5..30 {
+            log.record(rec(t));
+        }
+        // Held now: 0, then 14..=29; the reader stood at 5.
+        let lost = read(&log, &mut cursor, &mut seen);
+        assert_eq!(lost, 14 - 5);
+        assert_eq!(seen.len() as u32 + lost, 30);
+        assert_eq!(seen[5..], (14..30).collect::<Vec<_>>()[..]);
+    }
+
+    #[test]
+    fn forget_keeps_the_count_so_a_reader_loses_nothing_silently() {
+        let mut log = FaultLog::new();
+        let (mut cursor, mut seen) = (Cursor::default(), Vec::new());
+        log.record(rec(0));
+        log.record(rec(1));
+        assert_eq!(read(&log, &mut cursor, &mut seen), 0);
+        log.record(rec(2));
+        log.forget();
+        assert!(log.is_empty());
+        log.record(rec(3));
+        assert_eq!(log.first_entry().map(|e| e.seq), Some(3));
+        // Record 2 was forgotten unread: counted, not hidden.
+        assert_eq!(read(&log, &mut cursor, &mut seen), 1);
+        assert_eq!(seen, [0, 1, 3]);
+        // A cursor past the end (from another log) reads nothing.
+        assert_eq!(log.since(Cursor(99)).count(), 0);
+        assert_eq!(log.since(Cursor(99)).lost(), 0);
     }
 }

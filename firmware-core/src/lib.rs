@@ -20,7 +20,10 @@
 //! - the state machine and the tick sequence: [`controller`];
 //! - the power loop: [`apc`];
 //! - every protection, its limit, debounce and arming: [`protect`];
-//! - the configuration and each reason it is refused: [`config`].
+//! - the configuration and each reason it is refused: [`config`];
+//! - the fault log and its reader: [`fault`]; the latch across a reset:
+//!   [`persist`], kept in flash by [`store`]; requests from thread mode to
+//!   the tick: [`mailbox`].
 //!
 //! ```
 //! use diodestat_core::{Controller, Request, Sample, Fx};
@@ -61,8 +64,11 @@ pub mod edge;
 pub mod example;
 pub mod fault;
 pub mod io;
+pub mod mailbox;
+pub mod persist;
 pub mod protect;
 pub mod request;
+pub mod store;
 pub mod temp_table;
 pub mod units;
 

@@ -102,7 +102,7 @@ impl Measurements {
         missed_ticks: u32,
         last_cmd_ma: Fx,
         temp_segment: &mut Window,
-    ) -> (Self, u16) {
+    ) -> (Self, u32) {
         // The temperature first: its window may have to be found again (a
         // call), before any other value is live.
         let temp_degc = cfg.counts_to_degc_cached(s.temp_counts, temp_segment);
@@ -159,9 +159,9 @@ impl Measurements {
 pub(crate) struct Protections {
     levels: [u32; Fault::COUNT],
     /// Bit mask (as [`FaultSet`]) of the levels that are not zero.
-    counting: u16,
+    counting: u32,
     /// Slow conditions present at their latest evaluation, held.
-    slow: u16,
+    slow: u32,
 }
 
 /// Result of one evaluation.
@@ -173,28 +173,28 @@ pub(crate) struct Verdict {
 }
 
 /// Bit of `fault` in a [`FaultSet`] mask.
-const fn bit(fault: Fault) -> u16 {
+const fn bit(fault: Fault) -> u32 {
     fault.bit()
 }
 
 /// Faults armed in every state (light or current while off is a hardware
 /// failure).
-const ALWAYS_ARMED: u16 = bit(Fault::Overcurrent)
+const ALWAYS_ARMED: u32 = bit(Fault::Overcurrent)
     | bit(Fault::MonitorRunaway)
     | bit(Fault::DriveMismatch)
     | bit(Fault::ExternalFault);
 
 /// Every fault.
-const ALL_FAULTS: u16 = Fault::ALL_BITS;
+const ALL_FAULTS: u32 = Fault::ALL_BITS;
 
 /// Faults that need drive: armed only while ramping or regulating.
-const NEED_DRIVE: u16 = bit(Fault::MonitorLoss)
+const NEED_DRIVE: u32 = bit(Fault::MonitorLoss)
     | bit(Fault::PowerImplausible)
     | bit(Fault::DiodeOpen)
     | bit(Fault::DiodeShort);
 
 /// The faults armed in `state`, as a mask.
-const fn armed(state: State) -> u16 {
+const fn armed(state: State) -> u32 {
     match state {
         State::Off | State::Latched => ALWAYS_ARMED,
         State::Arming | State::Stopping => ALL_FAULTS & !NEED_DRIVE,
@@ -240,7 +240,7 @@ fn difference_within(a: Fx, b: Fx, tol: Fx, neg_tol: Fx) -> bool {
 fn quiet(
     cfg: &ValidConfig,
     m: &Measurements,
-    rails: u16,
+    rails: u32,
     last_cmd_ma: Fx,
     light_expected_ma: impl Fn() -> Fx,
 ) -> bool {
@@ -267,10 +267,10 @@ fn quiet(
 fn present_mask(
     cfg: &ValidConfig,
     m: &Measurements,
-    rails: u16,
+    rails: u32,
     last_cmd_ma: Fx,
     light_expected_ma: impl Fn() -> Fx,
-) -> u16 {
+) -> u32 {
     let c = cfg.config();
     let p = &c.protection;
     let flag = |on: bool, fault: Fault| if on { bit(fault) } else { 0 };
@@ -382,6 +382,11 @@ fn trip_record(
             c.forward_voltage.map_or(Fx::ZERO, |f| f.short_mv),
         ),
         Fault::ExternalFault => (Fx::from_num(u8::from(m.external_fault)), Fx::ONE),
+        // Never a sample condition: the edge or the boot-time restore
+        // latches these with their own record.
+        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => {
+            (Fx::ZERO, Fx::ZERO)
+        }
     };
     FaultRecord {
         fault,
@@ -497,7 +502,7 @@ impl Protections {
         &mut self,
         cfg: &ValidConfig,
         m: &Measurements,
-        direct: u16,
+        direct: u32,
         tick: u32,
         last_cmd_ma: Fx,
         light_expected_ma: impl Fn() -> Fx,
@@ -531,10 +536,10 @@ impl Protections {
         &mut self,
         cfg: &ValidConfig,
         m: &Measurements,
-        present: u16,
+        present: u32,
         tick: u32,
         last_cmd_ma: Fx,
-        may_trip: u16,
+        may_trip: u32,
         log: &mut FaultLog,
     ) -> Verdict {
         if present | self.counting == 0 {
@@ -557,7 +562,7 @@ impl Protections {
                 continue;
             };
             // The bit of fault `i` (a fault's bit is its discriminant).
-            let b = 1u16 << i;
+            let b = 1u32 << i;
             if present & b == 0 {
                 *level = level.saturating_sub(1);
             } else {
@@ -696,7 +701,7 @@ mod tests {
         m: &Measurements,
         last_cmd_ma: Fx,
         light_expected_ma: Fx,
-    ) -> u16 {
+    ) -> u32 {
         let c = cfg.config();
         let p = &c.protection;
         let tc = &c.calibration.temperature;

@@ -344,6 +344,10 @@ pub struct RunResult {
     pub final_state: State,
     /// Tick rate, Hz.
     pub tick_hz: u32,
+    /// Fault records the core's log overwrote before the run read them
+    /// (read every tick through a cursor, so zero unless one tick logs
+    /// more than the ring holds).
+    pub faults_lost: u32,
 }
 
 fn fx(v: f64) -> Fx {
@@ -397,7 +401,7 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
         ..RunResult::default()
     };
     let mut last_state = State::Off;
-    let mut logged = 0usize;
+    let mut log_cursor = diodestat_core::fault::Cursor::default();
     let mut drive = diodestat_core::Drive::default();
     let trace_every = u64::from(sc.trace_every.max(1));
     for tick in 0..n_ticks {
@@ -481,17 +485,17 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
             res.happenings.push(Happening::State { tick, state: st });
             last_state = st;
         }
-        let log = ctl.fault_log();
-        if log.len() > logged {
-            for r in log.first().into_iter().chain(log.later()).skip(logged) {
-                res.happenings.push(Happening::Fault {
-                    tick,
-                    fault: r.fault.name(),
-                    measured: to_f(r.measured),
-                    limit: to_f(r.limit),
-                });
-            }
-            logged = log.len();
+        let unread = ctl.fault_log().since(log_cursor);
+        res.faults_lost += unread.lost();
+        log_cursor = unread.resume();
+        for e in unread {
+            let r = e.record;
+            res.happenings.push(Happening::Fault {
+                tick,
+                fault: r.fault.name(),
+                measured: to_f(r.measured),
+                limit: to_f(r.limit),
+            });
         }
         if tick % trace_every == 0 {
             let m = ctl.measurements();
@@ -651,5 +655,65 @@ mod tests {
         assert_eq!(a.trace, b.trace);
         assert_eq!(a.happenings, b.happenings);
         assert_ne!(a.trace, c.trace);
+    }
+}
+
+#[cfg(test)]
+mod fault_log_tests {
+    use super::*;
+    use crate::board;
+    use crate::scenario::Event;
+
+    /// Thirty interlock trips, each cleared and re-enabled: the run reports
+    /// all thirty (counting the log's held records, as the run once did,
+    /// reported 17: the first and a full ring of 16).
+    #[test]
+    fn thirty_trips_are_all_reported() {
+        let module = DemoModule::visible();
+        let cfg = board::calibrate(diodestat_core::example::config(), &module)
+            .validate()
+            .unwrap();
+        let ev = |at_ms: f64, action: Action| Event { at_ms, action };
+        let mut events = vec![ev(0.0, Action::SetPower { mw: 5.0 })];
+        for k in 0..30 {
+            let t0 = 1.0 + 20.0 * f64::from(k);
+            events.push(ev(t0, Action::Enable));
+            let open = HwFault::InterlockOpen;
+            events.push(ev(t0 + 10.0, Action::Inject { fault: open }));
+            events.push(ev(t0 + 12.0, Action::Repair { fault: open }));
+            events.push(ev(t0 + 14.0, Action::Clear));
+        }
+        let sc = Scenario {
+            name: "thirty-trips".into(),
+            board: String::new(),
+            duration_ms: 620.0,
+            ambient_c: 25.0,
+            seed: 1,
+            diode_model: DiodeModel::QuasiStatic,
+            trace_every: 1000,
+            events,
+        };
+        let r = run(&sc, &module, cfg).unwrap();
+        let trips = r
+            .happenings
+            .iter()
+            .filter(|h| {
+                matches!(
+                    h,
+                    Happening::Fault {
+                        fault: "interlock-open",
+                        ..
+                    }
+                )
+            })
+            .count();
+        let others: Vec<_> = r
+            .happenings
+            .iter()
+            .filter(|h| matches!(h, Happening::Fault { fault, .. } if *fault != "interlock-open"))
+            .collect();
+        assert!(others.is_empty(), "{others:?}");
+        assert_eq!(trips, 30);
+        assert_eq!(r.faults_lost, 0);
     }
 }

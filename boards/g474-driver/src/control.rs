@@ -3,12 +3,15 @@
 //! the ordered DAC/enable update) and pets the independent watchdog.
 //!
 //! Everything the interrupt uses lives in [`CONTROL`], behind a
-//! critical-section mutex; thread mode takes it only briefly, to pass a
-//! request or copy the status ([`with`]). A critical section delays the
+//! critical-section mutex; thread mode takes it only briefly, to copy the
+//! status or the latch record ([`with`]). Requests go the other way through
+//! the lock-free [`REQUESTS`] mailbox, answers come back through
+//! [`ANSWERS`]. A critical section delays the
 //! tick by at most its own length; a longer stall shows up as a gap in the
 //! tick index (the core's missed-tick protection) and, if the tick stops,
 //! the IWDG resets the MCU, whose enable pin then floats to the board's
-//! pull-down: current source off.
+//! pull-down: current source off. A tick whose enable pin refused to be
+//! driven does not pet the IWDG either, for the same reset.
 //!
 //! The tick index is the time since start in tick periods, from the embassy
 //! time driver (`Instant::now`), rounded to the nearest period, so a late or
@@ -17,8 +20,9 @@
 use core::cell::RefCell;
 
 use critical_section::Mutex;
-use diodestat_core::edge::{DriverBoard, EdgeError};
-use diodestat_core::Drive;
+use diodestat_core::edge::DriverBoard;
+use diodestat_core::mailbox::Mailbox;
+use diodestat_core::{Drive, Rejection, Request};
 use embassy_stm32::gpio::{Input, Output};
 use embassy_stm32::interrupt;
 use embassy_stm32::peripherals::{IWDG, TIM6};
@@ -55,6 +59,13 @@ pub struct Control {
 /// The control state, shared between the tick interrupt and thread mode.
 pub static CONTROL: Mutex<RefCell<Option<Control>>> = Mutex::new(RefCell::new(None));
 
+/// Requests from thread mode to the tick (lock-free: thread mode never
+/// blocks the tick to send one).
+pub static REQUESTS: Mailbox<Request, 8> = Mailbox::new();
+
+/// The tick's answer to each request, in order.
+pub static ANSWERS: Mailbox<Result<(), Rejection>, 8> = Mailbox::new();
+
 /// Run `f` on the control state in a critical section (`None` before
 /// [`install`]).
 pub fn with<R>(f: impl FnOnce(&mut Control) -> R) -> Option<R> {
@@ -84,18 +95,33 @@ pub fn install(control: Control) {
 /// One control tick.
 fn tick(c: &mut Control) {
     c.timer.clear_update_interrupt();
+    // At most the mailbox's capacity: thread mode cannot add while the tick
+    // runs. The answers cannot overflow: thread mode keeps at most as many
+    // requests unanswered as the answer mailbox holds.
+    while let Some(req) = REQUESTS.pop() {
+        let _ = ANSWERS.push(c.board.request(req));
+    }
     let now_us = Instant::now().as_micros();
     let index = (now_us + c.period_us / 2) / c.period_us.max(1);
     // The core expects the index to wrap at u32::MAX.
     let adc = c.sampler.read(index as u32);
-    match c.board.tick(adc) {
-        Ok(drive) => c.last = drive,
-        Err(EdgeError::Dac(_)) | Err(EdgeError::EnablePin(_)) => {
-            c.edge_errors = c.edge_errors.saturating_add(1);
+    // Every edge error is latched in the controller (and logged) already.
+    let enable_refused = match c.board.tick(adc) {
+        Ok(drive) => {
+            c.last = drive;
+            false
         }
-    }
+        Err(e) => {
+            c.edge_errors = c.edge_errors.saturating_add(1);
+            e.enable.is_some()
+        }
+    };
     c.ticks = c.ticks.wrapping_add(1);
-    c.watchdog.pet();
+    // An enable line that cannot be driven low is not trusted: no pet, so
+    // the IWDG resets the MCU and the pin floats to the board's pull-down.
+    if !enable_refused {
+        c.watchdog.pet();
+    }
 }
 
 #[interrupt]

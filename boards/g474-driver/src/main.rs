@@ -5,9 +5,13 @@
 //!   ([`sampler`]), `DriverBoard::tick` from the core's embedded-hal edge,
 //!   DAC1 channel 1 ([`dac`]) and the enable pin out, the interlock in.
 //! - The independent watchdog (IWDG) is petted by every completed tick.
-//! - Thread mode (an embassy executor) turns the user button into requests
-//!   and logs the configuration hash, state changes and faults over defmt
-//!   RTT.
+//! - Thread mode (an embassy executor) turns the user button into requests,
+//!   passed to the tick through the core's lock-free mailbox, and logs the
+//!   configuration hash, state changes, faults and answers over defmt RTT.
+//! - The latch survives a reset: thread mode stores the core's latch record
+//!   in the last flash page whenever it changes (the core's `LatchStore`,
+//!   through embedded-storage), and boot restores it (`Controller::restored`);
+//!   a record that does not check out starts the board latched.
 //!
 //! | signal | pin | note |
 //! |---|---|---|
@@ -43,17 +47,22 @@ use defmt_rtt as _;
 use panic_probe as _;
 
 use diodestat_core::edge::{DriverBoard, InterlockLevel};
+use diodestat_core::fault::Cursor;
+use diodestat_core::persist::LatchRecord;
+use diodestat_core::store::LatchStore;
 use diodestat_core::{Controller, Fx, Request, State, Status};
 use embassy_executor::Spawner;
 use embassy_stm32::adc::{Adc, AdcChannel, AdcConfig};
 use embassy_stm32::dac::DacChannel;
 use embassy_stm32::exti::{self, ExtiInput};
+use embassy_stm32::flash::{Flash, FLASH_SIZE, MAX_ERASE_SIZE};
 use embassy_stm32::gpio::{Input, Level, Output, Pull, Speed};
 use embassy_stm32::time::Hertz;
 use embassy_stm32::timer::low_level::{RoundTo, Timer};
 use embassy_stm32::wdg::IndependentWatchdog;
 use embassy_stm32::{bind_interrupts, interrupt};
 use embassy_time::{with_timeout, Duration};
+use heapless::Deque;
 
 use crate::control::Control;
 use crate::dac::OnChipDac;
@@ -99,8 +108,18 @@ fn button_request(state: State) -> Request {
     }
 }
 
-/// Log a status change and any new fault records.
-fn log_status(prev: &Status, now: &Status, drive_ma: Fx, logged: &mut usize) {
+/// Pass a request to the tick through the mailbox (no critical section).
+fn send(pending: &mut Deque<Request, 8>, req: Request) {
+    if pending.is_full() || control::REQUESTS.push(req).is_err() {
+        warn!("request {} dropped: mailbox full", req);
+        return;
+    }
+    let _ = pending.push_back(req);
+}
+
+/// Log a status change and any new fault records (each once, and how many
+/// the log overwrote before this loop saw them).
+fn log_status(prev: &Status, now: &Status, drive_ma: Fx, cursor: &mut Cursor) {
     if prev.state != now.state || prev.faults != now.faults {
         info!(
             "state {} mode {} faults {=u16:#06x} drive {} mA",
@@ -114,11 +133,19 @@ fn log_status(prev: &Status, now: &Status, drive_ma: Fx, logged: &mut usize) {
         info!("warnings {}", now.warnings);
     }
     let _ = control::with(|c| {
-        let log = c.board.controller().fault_log();
-        let records = log.first().into_iter().chain(log.later());
-        for (i, r) in records.enumerate().skip(*logged) {
+        let unread = c.board.controller().fault_log().since(*cursor);
+        if unread.lost() > 0 {
             warn!(
-                "fault {} at tick {}: measured {} {}, limit {} {}",
+                "{} fault records overwritten before they were read",
+                unread.lost()
+            );
+        }
+        *cursor = unread.resume();
+        for e in unread {
+            let r = e.record;
+            warn!(
+                "fault #{} {} at tick {}: measured {} {}, limit {} {}",
+                e.seq,
                 r.fault.name(),
                 r.tick,
                 r.measured,
@@ -126,7 +153,6 @@ fn log_status(prev: &Status, now: &Status, drive_ma: Fx, logged: &mut usize) {
                 r.limit,
                 r.fault.unit()
             );
-            *logged = i + 1;
         }
     });
 }
@@ -157,6 +183,38 @@ async fn main(_spawner: Spawner) {
     let tick_hz = valid.config().tick_hz;
     info!("tick {} Hz", tick_hz);
 
+    // The latch across a reset: the newest record in the last flash page,
+    // compacted here when half full (a page erase is longer than the
+    // watchdog window, so only before the watchdog starts).
+    let flash = Flash::new_blocking(p.FLASH);
+    let latch_page = (FLASH_SIZE - MAX_ERASE_SIZE) as u32;
+    let (mut store, stored) = match LatchStore::open(flash, latch_page) {
+        Ok(s) => s,
+        Err(e) => {
+            error!("latch store refused: {}", e);
+            loop {
+                cortex_m::asm::wfi();
+            }
+        }
+    };
+    if store.free() < store.capacity() / 2 {
+        if let Err(e) = store.compact(&stored) {
+            // The next boot finds a torn page and starts latched.
+            error!("latch page compaction failed: {}", e);
+        }
+    }
+    let (ctl, restored) = Controller::restored(valid, &stored);
+    match restored {
+        Ok(rec) => info!(
+            "latch record restored: faults {=u16:#06x}",
+            rec.faults.bits()
+        ),
+        Err(e) => warn!("latch record refused ({}): starting latched", e),
+    }
+    // What the flash holds now (a refused record is replaced by the
+    // record-corrupt latch at the first save).
+    let mut saved: Option<LatchRecord> = restored.ok();
+
     let dac = OnChipDac::new(DacChannel::new_blocking(p.DAC1, p.PA4));
     let sampler = Sampler::new(
         Adc::new(p.ADC1, AdcConfig::default()),
@@ -165,13 +223,17 @@ async fn main(_spawner: Spawner) {
         p.PC0.degrade_adc(),
         p.PC1.degrade_adc(),
     );
-    let board = DriverBoard::new(
-        Controller::new(valid),
-        dac,
-        enable,
-        interlock,
-        InterlockLevel::ClosedHigh,
-    );
+    // Enable low, DAC zero; a failure comes back latched and logged.
+    let board = match DriverBoard::new(ctl, dac, enable, interlock, InterlockLevel::ClosedHigh) {
+        Ok(b) => b,
+        Err(e) => {
+            error!(
+                "edge start-up failed: faults {=u16:#06x}",
+                e.error.faults().bits()
+            );
+            e.board
+        }
+    };
     let timer = Timer::new(p.TIM6);
     timer.set_frequency(Hertz(tick_hz), RoundTo::Slower);
     let mut watchdog = IndependentWatchdog::new(p.IWDG, WATCHDOG_US);
@@ -189,7 +251,9 @@ async fn main(_spawner: Spawner) {
 
     let mut button = ExtiInput::new(p.PC13, p.EXTI13, Pull::Down, Irqs);
     let mut prev = Status::default();
-    let mut logged = 0usize;
+    let mut cursor = Cursor::default();
+    // Requests sent and not yet answered, oldest first.
+    let mut pending: Deque<Request, 8> = Deque::new();
     loop {
         let pressed = with_timeout(Duration::from_millis(10), button.wait_for_rising_edge())
             .await
@@ -202,21 +266,33 @@ async fn main(_spawner: Spawner) {
         }) else {
             continue;
         };
-        if pressed {
-            let req = button_request(status.state);
-            let result = control::with(|c| {
-                if req == Request::Enable {
-                    c.board.request(Request::SetPowerMw(BUTTON_SETPOINT_MW))?;
+        // Store the latch whenever it changes (a latch, a new record, a
+        // clear: none in an emitting state). Programming stalls flash reads,
+        // the tick with them, for a few hundred µs.
+        if let Some(rec) = control::with(|c| c.board.controller().latch_record()) {
+            if saved != Some(rec) {
+                if let Err(e) = store.save(&rec) {
+                    warn!("latch record not stored: {}", e);
                 }
-                c.board.request(req)
-            });
-            match result {
-                Some(Ok(())) => info!("request {} accepted", req),
-                Some(Err(why)) => warn!("request {} refused: {}", req, why),
-                None => {}
+                saved = Some(rec);
             }
         }
-        log_status(&prev, &status, drive_ma, &mut logged);
+        // Answers to earlier requests, in the order sent.
+        while let Some(answer) = control::ANSWERS.pop() {
+            let req = pending.pop_front();
+            match answer {
+                Ok(()) => info!("request {} accepted", req),
+                Err(why) => warn!("request {} refused: {}", req, why),
+            }
+        }
+        if pressed {
+            let req = button_request(status.state);
+            if req == Request::Enable {
+                send(&mut pending, Request::SetPowerMw(BUTTON_SETPOINT_MW));
+            }
+            send(&mut pending, req);
+        }
+        log_status(&prev, &status, drive_ma, &mut cursor);
         prev = status;
     }
 }

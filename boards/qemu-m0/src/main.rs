@@ -1,7 +1,8 @@
 //! The Cortex-M0 (thumbv6m) image: the core on an ARMv6-M CPU, run on
 //! QEMU's micro:bit model (nRF51, 16 KiB RAM). A short loop check: soft
 //! start to regulation, a setpoint change, the monitor photodiode and then
-//! the interlock opening, and the cost of `step` (ARMv6-M has no 64-bit
+//! the interlock opening, requests through the mailbox and the latch across
+//! a reset, and the cost of `step` (ARMv6-M has no 64-bit
 //! multiply and no divide instruction: those go through `__aeabi_lmul` and
 //! `__aeabi_ldivmod`). The SysTick ratio is calibrated as on the M4 (the
 //! micro:bit model clocks it at 16 MHz of emulated time: 62.5 instructions
@@ -69,9 +70,11 @@ fn main() -> ! {
     let reg_block = report::block_mean_x10(&sw, &rec);
     scenario::monitor_open(&mut rig, &mut c);
     scenario::interlock_open(&mut rig, &mut c);
+    scenario::mailbox_and_reset(&mut rig, &mut c);
     if timed {
         section("cost of Controller::step on Cortex-M0 (instructions per tick)");
         let _ = report::print_table(&sw, &rig.stats, &rig.snapshots, reg_block, None);
+        report::print_side_costs(&sw);
     }
     hprintln!("qemu-m0: {} passed, {} failed", c.passed(), c.failed());
     finish(c.all_passed());

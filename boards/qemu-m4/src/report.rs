@@ -245,3 +245,51 @@ pub fn check_budget(c: &mut Checks, name: &str, value_x10: u64, limit: u64) {
         format_args!("{} instructions (budget <= {})", Tenths(value_x10), limit),
     );
 }
+
+/// Repetitions of the mailbox and latch-record measurements.
+const REPEAT_SIDE: u32 = 200;
+
+/// Instructions (×10) of `f`, run [`REPEAT_SIDE`] times, less the empty
+/// loop, per run.
+fn side_cost_x10(sw: &Stopwatch, mut f: impl FnMut(u32)) -> u64 {
+    let t0 = Stopwatch::now();
+    for i in 0..REPEAT_SIDE {
+        f(core::hint::black_box(i));
+    }
+    let t1 = Stopwatch::now();
+    for i in 0..REPEAT_SIDE {
+        core::hint::black_box(i);
+    }
+    let t2 = Stopwatch::now();
+    let with = Stopwatch::counts(t0, t1);
+    let without = Stopwatch::counts(t1, t2);
+    sw.instructions_x(with.saturating_sub(without), 10) / u64::from(REPEAT_SIDE)
+}
+
+/// The cost of what runs beside `step`: a request through the mailbox
+/// (push in thread mode, pop in the tick) and the latch record (packed on
+/// a latch, checked and unpacked at boot). Printed, not budgeted.
+pub fn print_side_costs(sw: &Stopwatch) {
+    use diodestat_core::mailbox::Mailbox;
+    use diodestat_core::persist::LatchRecord;
+    use diodestat_core::{Fx, Request};
+    let mailbox: Mailbox<Request, 4> = Mailbox::new();
+    let pair = side_cost_x10(sw, |i| {
+        let _ = mailbox.push(Request::SetPowerMw(Fx::from_bits(i as i32)));
+        core::hint::black_box(mailbox.pop());
+    });
+    let rec = LatchRecord::default();
+    let pack = side_cost_x10(sw, |_| {
+        core::hint::black_box(core::hint::black_box(&rec).to_bytes());
+    });
+    let bytes = rec.to_bytes();
+    let unpack = side_cost_x10(sw, |_| {
+        let _ = core::hint::black_box(LatchRecord::from_bytes(core::hint::black_box(&bytes)));
+    });
+    hprintln!(
+        "  mailbox push + pop: {} instructions; latch record pack: {}, check and unpack: {}",
+        Tenths(pair),
+        Tenths(pack),
+        Tenths(unpack)
+    );
+}

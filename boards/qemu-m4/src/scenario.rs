@@ -1,9 +1,12 @@
 //! The scenario phases run on the emulated MCU: start-up through soft start
 //! to regulation, a setpoint change, injected faults with their latching and
-//! clearing, and a soft stop. Each phase records its expected outcomes in
+//! clearing, a soft stop, requests through the mailbox and the latch across
+//! a reset. Each phase records its expected outcomes in
 //! [`Checks`].
 
-use diodestat_core::{Drive, Fault, Fx, Rejection, Request, State};
+use diodestat_core::mailbox::{Full, Mailbox};
+use diodestat_core::persist::crc32;
+use diodestat_core::{Controller, Drive, Fault, Fx, Rejection, Request, State};
 
 use crate::checks::{section, Checks};
 use crate::cost::Snapshots;
@@ -506,4 +509,96 @@ pub fn sensor_trip_relocating<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
         );
         check_clear_accepted(rig, c);
     }
+}
+
+/// Requests from "thread mode" (this code) to the tick through a static
+/// mailbox, as the G474 board passes them.
+static REQUESTS: Mailbox<Request, 4> = Mailbox::new();
+
+/// The tick's side of the mailbox: apply every waiting request; how many
+/// there were and how many were accepted.
+fn drain<S: Snapshots>(rig: &mut Rig<S>) -> (u32, u32) {
+    let (mut n, mut ok) = (0, 0);
+    while let Some(req) = REQUESTS.pop() {
+        n += 1;
+        ok += u32::from(rig.ctl.request(req).is_ok());
+    }
+    (n, ok)
+}
+
+/// Requests through the lock-free mailbox (atomic loads and stores only,
+/// so the same code on ARMv6-M), then a reset in the latched state: the
+/// latch record's bytes taken back by a new controller, and a corrupted
+/// record refused into a latch of its own.
+pub fn mailbox_and_reset<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
+    section("requests through the mailbox; the latch across a reset");
+    let tpm = ticks_per_ms(rig);
+    let sp = Fx::from_num(5);
+    let pushed =
+        REQUESTS.push(Request::SetPowerMw(sp)).is_ok() && REQUESTS.push(Request::Enable).is_ok();
+    let (n, ok) = drain(rig);
+    c.check(
+        "requests pass through the mailbox",
+        pushed && n == 2 && ok == 2 && rig.ctl.state() == State::Arming,
+        format_args!("{} taken, {} accepted, state {:?}", n, ok, rig.ctl.state()),
+    );
+    let mut filled = 0;
+    while REQUESTS.push(Request::SetPowerMw(sp)).is_ok() {
+        filled += 1;
+    }
+    let refused = REQUESTS.push(Request::SetPowerMw(sp));
+    c.check(
+        "a full mailbox hands the request back",
+        filled == REQUESTS.capacity() && refused == Err(Full(Request::SetPowerMw(sp))),
+        format_args!("{} of {} slots filled", filled, REQUESTS.capacity()),
+    );
+    drain(rig);
+    let reg = rig.run_until(40 * tpm, |_, d| d.status.state == State::Regulating);
+    rig.run(5 * tpm);
+    rig.plant.faults.interlock_open = true;
+    rig.tick();
+    rig.plant.faults.interlock_open = false;
+    rig.run(2);
+    c.check(
+        "regulating, then latched by the interlock",
+        reg.is_some() && rig.ctl.state() == State::Latched,
+        format_args!("{:?}", rig.ctl.state()),
+    );
+    let crc = crc32(b"123456789");
+    c.check(
+        "CRC-32/ISO-HDLC check value on this CPU",
+        crc == 0xCBF4_3926,
+        format_args!("{:#010x}", crc),
+    );
+    let bytes = rig.ctl.latch_record().to_bytes();
+    {
+        let (back, r) = Controller::restored(rig.ctl.config().clone(), &bytes);
+        c.check(
+            "a reset in the latched state comes back latched",
+            r.is_ok()
+                && back.state() == State::Latched
+                && back.faults() == rig.ctl.faults()
+                && back.fault_log().first() == rig.ctl.fault_log().first(),
+            format_args!("{:?}, faults {:#06x}", back.state(), back.faults().bits()),
+        );
+    }
+    {
+        let mut bad = bytes;
+        bad[4] ^= 0x01;
+        let (back, r) = Controller::restored(rig.ctl.config().clone(), &bad);
+        c.check(
+            "a corrupted record is refused into a latch",
+            r.is_err()
+                && back.state() == State::Latched
+                && back.faults().contains(Fault::RecordCorrupt),
+            format_args!("{:?}", r),
+        );
+    }
+    let cleared = REQUESTS.push(Request::ClearFaults).is_ok() && drain(rig) == (1, 1);
+    rig.run(2);
+    c.check(
+        "clear through the mailbox",
+        cleared && rig.ctl.state() == State::Off,
+        format_args!("{:?}", rig.ctl.state()),
+    );
 }

@@ -3,8 +3,11 @@
 //!
 //! If any panic path (an index out of bounds, an overflow check, an
 //! `unwrap`, a division by zero...) survives optimisation anywhere in
-//! `Config::validate`, `Controller::request`, `Controller::step` or the
-//! embedded-hal edge (`DriverBoard::tick`), the panic handler is reachable,
+//! `Config::validate`, `Controller::restored` (the latch record's check and
+//! decoding), `Controller::request` through the mailbox, `Controller::step`,
+//! the embedded-hal edge (`DriverBoard::new` and `DriverBoard::tick`, with
+//! every hardware call able to fail) or `Controller::latch_record`, the
+//! panic handler is reachable,
 //! it references `diodestat_panic_reachable`, and the link fails with
 //! "undefined symbol: diodestat_panic_reachable". A successful release
 //! build is the proof.
@@ -28,11 +31,12 @@
 #![no_main]
 #![deny(unsafe_code)]
 
-use core::convert::Infallible;
 use core::panic::PanicInfo;
 
 use cortex_m_rt::entry;
 use diodestat_core::edge::{AdcCounts, CurrentDac, DriverBoard, InterlockLevel};
+use diodestat_core::mailbox::Mailbox;
+use diodestat_core::persist::LATCH_RECORD_LEN;
 use diodestat_core::{Controller, Fx, Mode, Request};
 use embedded_hal::digital::{ErrorType, InputPin, OutputPin};
 
@@ -56,7 +60,11 @@ fn panic(_: &PanicInfo) -> ! {
 /// Inputs, written by a debugger or a test harness (never by this code).
 static mut INPUT: [u32; 8] = [0; 8];
 /// Outputs, so nothing the controller computes is dead code.
-static mut OUTPUT: [u32; 4] = [0; 4];
+static mut OUTPUT: [u32; 5] = [0; 5];
+/// The latch record as stored before a reset (any bytes).
+static mut STORED: [u8; LATCH_RECORD_LEN] = [0; LATCH_RECORD_LEN];
+/// Requests pass through the mailbox, as on the boards.
+static REQUESTS: Mailbox<Request, 4> = Mailbox::new();
 
 #[allow(unsafe_code)]
 fn input<const I: usize>() -> u32 {
@@ -69,6 +77,22 @@ fn input<const I: usize>() -> u32 {
 fn output<const I: usize>(v: u32) {
     // SAFETY: as `input`; single-threaded, no interrupts use it.
     unsafe { core::ptr::write_volatile(&raw mut OUTPUT[I], v) }
+}
+
+#[allow(unsafe_code)]
+fn stored() -> [u8; LATCH_RECORD_LEN] {
+    // SAFETY: as `input`.
+    unsafe { core::ptr::read_volatile(&raw const STORED) }
+}
+
+/// A pin failure (bits 2 and 3 of `INPUT[7]`).
+#[derive(Debug)]
+struct PinFault;
+
+impl embedded_hal::digital::Error for PinFault {
+    fn kind(&self) -> embedded_hal::digital::ErrorKind {
+        embedded_hal::digital::ErrorKind::Other
+    }
 }
 
 /// A DAC whose writes go to `OUTPUT[0]` and whose failure is an input bit.
@@ -94,17 +118,25 @@ impl CurrentDac for VolatileDac {
 struct EnablePin;
 
 impl ErrorType for EnablePin {
-    type Error = Infallible;
+    type Error = PinFault;
+}
+
+fn pin_result(bit: u32) -> Result<(), PinFault> {
+    if input::<7>() & bit != 0 {
+        Err(PinFault)
+    } else {
+        Ok(())
+    }
 }
 
 impl OutputPin for EnablePin {
-    fn set_low(&mut self) -> Result<(), Infallible> {
+    fn set_low(&mut self) -> Result<(), PinFault> {
         output::<1>(0);
-        Ok(())
+        pin_result(4)
     }
-    fn set_high(&mut self) -> Result<(), Infallible> {
+    fn set_high(&mut self) -> Result<(), PinFault> {
         output::<1>(1);
-        Ok(())
+        pin_result(4)
     }
 }
 
@@ -112,15 +144,15 @@ impl OutputPin for EnablePin {
 struct InterlockPin;
 
 impl ErrorType for InterlockPin {
-    type Error = Infallible;
+    type Error = PinFault;
 }
 
 impl InputPin for InterlockPin {
-    fn is_high(&mut self) -> Result<bool, Infallible> {
-        Ok(input::<6>() & 1 != 0)
+    fn is_high(&mut self) -> Result<bool, PinFault> {
+        pin_result(8).map(|()| input::<6>() & 1 != 0)
     }
-    fn is_low(&mut self) -> Result<bool, Infallible> {
-        Ok(input::<6>() & 1 == 0)
+    fn is_low(&mut self) -> Result<bool, PinFault> {
+        pin_result(8).map(|()| input::<6>() & 1 == 0)
     }
 }
 
@@ -172,17 +204,21 @@ fn main() -> ! {
     } else {
         InterlockLevel::ClosedHigh
     };
-    let mut board = DriverBoard::new(
-        Controller::new(valid),
-        VolatileDac,
-        EnablePin,
-        InterlockPin,
-        level,
-    );
+    // A board whose start-up failed comes back latched: keep holding it.
+    // Boot: the latch record taken back, whatever its bytes.
+    let (ctl, restored) = Controller::restored(valid, &stored());
+    output::<4>(u32::from(restored.is_ok()));
+    let mut board = match DriverBoard::new(ctl, VolatileDac, EnablePin, InterlockPin, level) {
+        Ok(b) => b,
+        Err(e) => e.board,
+    };
     loop {
         let kind = input::<3>();
         if kind != 0 {
-            let r = board.request(request(kind, input::<4>()));
+            let _ = REQUESTS.push(request(kind, input::<4>()));
+        }
+        while let Some(req) = REQUESTS.pop() {
+            let r = board.request(req);
             output::<2>(u32::from(r.is_ok()));
         }
         let adc = AdcCounts {
@@ -195,8 +231,7 @@ fn main() -> ! {
         let out = match board.tick(adc) {
             Ok(d) => {
                 u32::from(d.dac_code)
-                    | u32::from(d.enable) << 16
-                    | u32::from(d.status.faults.bits()) << 17
+                    | u32::from(d.enable) << 16 ^ d.status.faults.bits().rotate_left(17)
             }
             Err(_) => u32::MAX,
         };
@@ -204,6 +239,9 @@ fn main() -> ! {
         if input::<7>() & 2 != 0 {
             board.reset_edge();
         }
+        // The record the board would store.
+        let rec = board.controller().latch_record().to_bytes();
+        output::<4>(u32::from_le_bytes([rec[28], rec[29], rec[30], rec[31]]));
         canary();
     }
 }
