@@ -122,7 +122,7 @@ fn send(pending: &mut Deque<Request, 8>, req: Request) {
 fn log_status(prev: &Status, now: &Status, drive_ma: Fx, cursor: &mut Cursor) {
     if prev.state != now.state || prev.faults != now.faults {
         info!(
-            "state {} mode {} faults {=u16:#06x} drive {} mA",
+            "state {} mode {} faults {=u32:#010x} drive {} mA",
             now.state.name(),
             now.mode,
             now.faults.bits(),
@@ -206,7 +206,7 @@ async fn main(_spawner: Spawner) {
     let (ctl, restored) = Controller::restored(valid, &stored);
     match restored {
         Ok(rec) => info!(
-            "latch record restored: faults {=u16:#06x}",
+            "latch record restored: faults {=u32:#010x}",
             rec.faults.bits()
         ),
         Err(e) => warn!("latch record refused ({}): starting latched", e),
@@ -228,7 +228,7 @@ async fn main(_spawner: Spawner) {
         Ok(b) => b,
         Err(e) => {
             error!(
-                "edge start-up failed: faults {=u16:#06x}",
+                "edge start-up failed: faults {=u32:#010x}",
                 e.error.faults().bits()
             );
             e.board
