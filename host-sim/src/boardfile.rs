@@ -897,10 +897,16 @@ fn rail(r: RailName) -> Rail {
     }
 }
 
-/// Read a `counts,degc` table (one header line, then one point a line;
-/// blank lines and lines starting with `#` are skipped).
+/// Read a `counts,degc` table file (at most [`files::MAX_INPUT_BYTES`]).
 fn read_table_csv(path: &Path) -> Result<Vec<TempPoint>, String> {
     let text = files::read_text(path, "temperature.table_csv").map_err(|e| e.to_string())?;
+    parse_table_csv(&text, path)
+}
+
+/// Parse a `counts,degc` table (one header line, then one point a line;
+/// blank lines and lines starting with `#` are skipped); messages name
+/// `path` and the line.
+pub fn parse_table_csv(text: &str, path: &Path) -> Result<Vec<TempPoint>, String> {
     let mut out = Vec::new();
     let mut header = true;
     for (n, line) in text.lines().enumerate() {
