@@ -150,6 +150,11 @@ impl Thermal {
     /// Creates the ladder with every node at `t_initial_k`.
     pub fn new(params: ThermalParams, t_initial_k: f64) -> Result<Self, PlantError> {
         params.validate()?;
+        crate::plant::error::ensure(
+            t_initial_k.is_finite() && t_initial_k > 0.0,
+            "t_initial_k",
+            "must be a finite temperature above 0 K",
+        )?;
         Ok(Self {
             params,
             t: [t_initial_k; 3],
@@ -393,6 +398,15 @@ mod tests {
         let mut p = params();
         p.c_j_j_per_k = 0.0;
         assert!(Thermal::new(p, 300.0).is_err());
+    }
+
+    #[test]
+    fn non_finite_starting_temperature_is_refused() {
+        let p = crate::plant::DemoModule::visible().thermal;
+        for t in [f64::NAN, f64::INFINITY, -1.0] {
+            assert!(Thermal::new(p.clone(), t).is_err(), "{t}");
+        }
+        assert!(Thermal::new(p, 298.15).is_ok());
     }
 
     #[test]
