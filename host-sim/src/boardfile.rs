@@ -899,7 +899,8 @@ fn rail(r: RailName) -> Rail {
 
 /// Read a `counts,degc` table file (at most [`files::MAX_INPUT_BYTES`]).
 fn read_table_csv(path: &Path) -> Result<Vec<TempPoint>, String> {
-    let text = files::read_text(path, "temperature.table_csv").map_err(|e| e.to_string())?;
+    // The caller names the key `temperature.table_csv`.
+    let text = files::read_text(path, "temperature.table_csv").map_err(|e| e.detail())?;
     parse_table_csv(&text, path)
 }
 

@@ -88,6 +88,23 @@ impl fmt::Display for FileError {
     }
 }
 
+impl FileError {
+    /// The message without the key or option it came from, for a caller
+    /// that already names the key.
+    pub fn detail(&self) -> String {
+        let full = self.to_string();
+        match self {
+            FileError::Read { origin, .. }
+            | FileError::TooLarge { origin, .. }
+            | FileError::NotText { origin, .. } => full
+                .strip_prefix(&format!("{origin}: "))
+                .unwrap_or(&full)
+                .to_string(),
+            _ => full,
+        }
+    }
+}
+
 impl std::error::Error for FileError {
     fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
         match self {
@@ -373,6 +390,11 @@ mod tests {
         let s = e.to_string();
         assert!(s.starts_with("board: /dev/zero"), "{s}");
         assert!(s.contains("1000 bytes"), "{s}");
+        assert!(
+            e.detail().starts_with("/dev/zero: larger"),
+            "{}",
+            e.detail()
+        );
     }
 
     #[test]

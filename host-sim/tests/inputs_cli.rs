@@ -247,7 +247,7 @@ fn board_or_table_path_naming_an_endless_file() {
     ]);
     assert!(!ok);
     assert!(
-        text.contains("temperature.table_csv = \"/dev/zero\""),
+        text.contains("temperature.table_csv = \"/dev/zero\": /dev/zero: larger than"),
         "{text}"
     );
     assert!(text.contains("larger than the 4194304 bytes"), "{text}");
