@@ -22,7 +22,35 @@ use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, ValidConfig};
 use serde::{Deserialize, Deserializer};
 
 use crate::board;
+use crate::files::{self, FileError};
+use crate::locate::{locate, plain_message, Place, Seg};
 use crate::plant::DemoModule;
+
+/// Longest board name, characters.
+pub const MAX_NAME_CHARS: usize = 64;
+
+/// Punctuation a board name may hold besides letters, digits and spaces:
+/// nothing that could end a string, a comment or a line in exported source.
+pub const NAME_PUNCTUATION: &str = "- _ . + ( ) /";
+
+/// Range a sensor-built temperature table may span, degC.
+pub const SENSOR_TABLE_RANGE_C: (f64, f64) = (-100.0, 300.0);
+
+/// Whether a board name is plain text that can go into reports and into
+/// a comment of exported source unchanged.
+pub fn name_is_plain(name: &str) -> bool {
+    let n = name.chars().count();
+    (1..=MAX_NAME_CHARS).contains(&n)
+        && name.chars().all(|c| {
+            c.is_ascii_alphanumeric() || matches!(c, ' ' | '-' | '_' | '.' | '+' | '(' | ')' | '/')
+        })
+}
+
+/// The place of a `section.key` in a board file's text.
+fn place_of(text: &str, key: &str) -> Option<Box<Place>> {
+    let segs: Vec<Seg<'_>> = key.split('.').map(Seg::Key).collect();
+    locate(text, &segs).map(Box::new)
+}
 
 /// An engineering value in the core's `Fx` range, read from a TOML number.
 /// Out-of-range or non-finite numbers are refused where they stand in the
@@ -36,7 +64,7 @@ impl<'de> Deserialize<'de> for FxValue {
         // Round to nearest the way the core's literals do.
         if !v.is_finite() || v < Fx::MIN.to_num::<f64>() || v > Fx::MAX.to_num::<f64>() {
             return Err(serde::de::Error::custom(format!(
-                "{v} is outside the core's fixed-point range {} ..= {} (I16F16)",
+                "{v} is outside the core's fixed-point range {} ..= {}",
                 Fx::MIN,
                 Fx::MAX
             )));
@@ -54,7 +82,7 @@ impl<'de> Deserialize<'de> for GainValue {
         let v = f64::deserialize(d)?;
         if !v.is_finite() || v < Gain::MIN.to_num::<f64>() || v > Gain::MAX.to_num::<f64>() {
             return Err(serde::de::Error::custom(format!(
-                "{v} is outside the core's gain range {} ..= {} (I8F24)",
+                "{v} is outside the core's calibration gain range {} ..= {}",
                 Gain::MIN,
                 Gain::MAX
             )));
@@ -406,13 +434,9 @@ pub struct TemperatureSection {
 /// Why a board file could not be used.
 #[derive(Debug)]
 pub enum BoardFileError {
-    /// The file could not be read.
-    Read {
-        /// The file.
-        path: PathBuf,
-        /// The system's reason.
-        source: std::io::Error,
-    },
+    /// The file could not be read (missing, a folder, too large, not text);
+    /// the message names the key or option the path came from.
+    Read(FileError),
     /// Not valid TOML or not this schema: the message names the line, the
     /// column and what was expected.
     Parse {
@@ -428,33 +452,75 @@ pub enum BoardFileError {
         path: PathBuf,
         /// The key at fault, as `section.key`.
         key: String,
+        /// Where the key stands in the file, when it is written there.
+        place: Option<Box<Place>>,
         /// What is wrong.
         why: String,
     },
-    /// The core refused the configuration.
+    /// The core refused the configuration: the board-file key it is about,
+    /// its place and value as written, and what the key must satisfy.
     Refused {
         /// The file.
         path: PathBuf,
-        /// The core's reason.
+        /// The board-file key, as `section.key`.
+        key: String,
+        /// Where the key stands in the file (for a calibration derived from
+        /// the module: `calibration.from`).
+        place: Option<Box<Place>>,
+        /// What the key must satisfy, in the file's units.
+        why: String,
+        /// The core's refusal.
         source: ConfigError,
     },
+}
+
+/// `path: line L, column C: key = value` (or `path: key` when the key is
+/// not written in the file).
+fn at(
+    f: &mut fmt::Formatter<'_>,
+    path: &Path,
+    key: &str,
+    place: &Option<Box<Place>>,
+) -> fmt::Result {
+    match place {
+        Some(p) => write!(
+            f,
+            "{}: line {}, column {}: {key} = {}",
+            path.display(),
+            p.line,
+            p.column,
+            p.text
+        ),
+        None => write!(f, "{}: {key}", path.display()),
+    }
 }
 
 impl fmt::Display for BoardFileError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
-            BoardFileError::Read { path, source } => write!(f, "{}: {source}", path.display()),
+            BoardFileError::Read(e) => write!(f, "{e}"),
             BoardFileError::Parse { path, message } => {
                 write!(f, "{}: {}", path.display(), message.trim_end())
             }
-            BoardFileError::Invalid { path, key, why } => {
-                write!(f, "{}: {key}: {why}", path.display())
+            BoardFileError::Invalid {
+                path,
+                key,
+                place,
+                why,
+            } => {
+                at(f, path, key, place)?;
+                write!(f, ": {why}")
             }
-            BoardFileError::Refused { path, source } => write!(
-                f,
-                "{}: board configuration refused by the core: {source}",
-                path.display()
-            ),
+            BoardFileError::Refused {
+                path,
+                key,
+                place,
+                why,
+                ..
+            } => {
+                at(f, path, key, place)?;
+                write!(f, ": {why} (refused by the core's configuration check)")
+            }
         }
     }
 }
@@ -462,7 +528,7 @@ impl fmt::Display for BoardFileError {
 impl std::error::Error for BoardFileError {
     fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
         match self {
-            BoardFileError::Read { source, .. } => Some(source),
+            BoardFileError::Read(source) => Some(source),
             BoardFileError::Refused { source, .. } => Some(source),
             _ => None,
         }
@@ -487,14 +553,21 @@ pub struct LoadedBoard {
     /// The board's overshoot limit for the loop checks, % of the step
     /// (`[loop_check] max_overshoot_pct`), when the file sets one.
     pub max_overshoot_pct: Option<f64>,
+    /// The temperature table file the board file names
+    /// (`temperature.table_csv`), an input of every command.
+    pub table_csv: Option<PathBuf>,
 }
 
-/// Read and validate a board file.
+/// Read and validate a board file named on the command line.
 pub fn load_board(path: &Path) -> Result<LoadedBoard, BoardFileError> {
-    let text = std::fs::read_to_string(path).map_err(|source| BoardFileError::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    load_board_from(path, "BOARD")
+}
+
+/// Read and validate a board file whose path came from `origin` (an
+/// option, an argument or a key such as a scenario's `board`), which a
+/// read error names.
+pub fn load_board_from(path: &Path, origin: &str) -> Result<LoadedBoard, BoardFileError> {
+    let text = files::read_text(path, origin).map_err(BoardFileError::Read)?;
     let base = path.parent().unwrap_or_else(|| Path::new(""));
     let mut b = parse_board(&text, base).map_err(|e| e.with_path(path))?;
     b.path = path.to_path_buf();
@@ -507,32 +580,52 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
     let path = base_dir.join("board.toml");
     let file: BoardFile = toml::from_str(text).map_err(|e| BoardFileError::Parse {
         path: path.clone(),
-        message: e.to_string(),
+        message: plain_message(&e.to_string()),
     })?;
+    let invalid_at = |key: String, why: String| BoardFileError::Invalid {
+        path: path.clone(),
+        place: place_of(text, &key),
+        key,
+        why,
+    };
+    if !name_is_plain(&file.name) {
+        return Err(invalid_at(
+            "name".into(),
+            format!(
+                "must be 1 to {MAX_NAME_CHARS} characters of letters, digits, space and {NAME_PUNCTUATION} \
+                 (the name is written into reports and exported source)"
+            ),
+        ));
+    }
     let module = file.module.module();
     let max_overshoot_pct = match &file.loop_check {
-        Some(l) if !(l.max_overshoot_pct.is_finite() && l.max_overshoot_pct >= 0.0) => {
-            return Err(BoardFileError::Invalid {
-                path,
-                key: "loop_check.max_overshoot_pct".into(),
-                why: format!("must be a percentage >= 0, not {}", l.max_overshoot_pct),
-            })
+        Some(l)
+            if !(l.max_overshoot_pct.is_finite()
+                && (0.0..=100.0).contains(&l.max_overshoot_pct)) =>
+        {
+            return Err(invalid_at(
+                "loop_check.max_overshoot_pct".into(),
+                "must be a percentage of the step in 0 ..= 100".into(),
+            ))
         }
         l => l.as_ref().map(|l| l.max_overshoot_pct),
     };
-    let config =
-        to_config(&file, &module, base_dir).map_err(|(key, why)| BoardFileError::Invalid {
+    let config = to_config(&file, &module, base_dir).map_err(|(key, why)| invalid_at(key, why))?;
+    let valid = config.clone().validate().map_err(|source| {
+        let (key, why) = refusal(&source, &config, &file);
+        let place = place_of(text, &key).or_else(|| {
+            key.starts_with("calibration.")
+                .then(|| place_of(text, "calibration.from"))
+                .flatten()
+        });
+        BoardFileError::Refused {
             path: path.clone(),
             key,
+            place,
             why,
-        })?;
-    let valid = config
-        .clone()
-        .validate()
-        .map_err(|source| BoardFileError::Refused {
-            path: path.clone(),
             source,
-        })?;
+        }
+    })?;
     Ok(LoadedBoard {
         name: file.name,
         path,
@@ -541,6 +634,11 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
         config,
         valid,
         max_overshoot_pct,
+        table_csv: file
+            .temperature
+            .table_csv
+            .as_ref()
+            .map(|c| base_dir.join(c)),
     })
 }
 
@@ -548,10 +646,29 @@ impl BoardFileError {
     fn with_path(self, p: &Path) -> Self {
         let path = p.to_path_buf();
         match self {
-            BoardFileError::Read { source, .. } => BoardFileError::Read { path, source },
+            BoardFileError::Read(e) => BoardFileError::Read(e),
             BoardFileError::Parse { message, .. } => BoardFileError::Parse { path, message },
-            BoardFileError::Invalid { key, why, .. } => BoardFileError::Invalid { path, key, why },
-            BoardFileError::Refused { source, .. } => BoardFileError::Refused { path, source },
+            BoardFileError::Invalid {
+                key, place, why, ..
+            } => BoardFileError::Invalid {
+                path,
+                key,
+                place,
+                why,
+            },
+            BoardFileError::Refused {
+                key,
+                place,
+                why,
+                source,
+                ..
+            } => BoardFileError::Refused {
+                path,
+                key,
+                place,
+                why,
+                source,
+            },
         }
     }
 }
@@ -765,10 +882,19 @@ fn temperature(
                     "missing (needed with from = \"sensor\")",
                 )
             })?;
-            if !(min.is_finite() && max.is_finite() && min < max) {
+            let (lo, hi) = SENSOR_TABLE_RANGE_C;
+            for (k, v) in [("table_min_degc", min), ("table_max_degc", max)] {
+                if !(v.is_finite() && (lo..=hi).contains(&v)) {
+                    return Err(invalid(
+                        &key(k),
+                        format!("must be a temperature in {lo} ..= {hi} degC"),
+                    ));
+                }
+            }
+            if min >= max {
                 return Err(invalid(
                     &key("table_max_degc"),
-                    format!("table range {min} ..= {max} degC is empty"),
+                    format!("must be above table_min_degc = {min} degC (the table range is empty)"),
                 ));
             }
             if !(2..=TEMP_TABLE_LEN).contains(&points) {
@@ -859,10 +985,17 @@ fn rail(r: RailName) -> Rail {
     }
 }
 
-/// Read a `counts,degc` table (one header line, then one point a line;
-/// blank lines and lines starting with `#` are skipped).
+/// Read a `counts,degc` table file (at most [`files::MAX_INPUT_BYTES`]).
 fn read_table_csv(path: &Path) -> Result<Vec<TempPoint>, String> {
-    let text = std::fs::read_to_string(path).map_err(|e| format!("{}: {e}", path.display()))?;
+    // The caller names the key `temperature.table_csv`.
+    let text = files::read_text(path, "temperature.table_csv").map_err(|e| e.detail())?;
+    parse_table_csv(&text, path)
+}
+
+/// Parse a `counts,degc` table (one header line, then one point a line;
+/// blank lines and lines starting with `#` are skipped); messages name
+/// `path` and the line.
+pub fn parse_table_csv(text: &str, path: &Path) -> Result<Vec<TempPoint>, String> {
     let mut out = Vec::new();
     let mut header = true;
     for (n, line) in text.lines().enumerate() {
@@ -899,6 +1032,241 @@ fn read_table_csv(path: &Path) -> Result<Vec<TempPoint>, String> {
         });
     }
     Ok(out)
+}
+
+/// A value of the core's fixed-point types in the file's units, as text.
+fn num(v: Fx) -> String {
+    let x = v.to_num::<f64>();
+    let r = (x * 1e4).round() / 1e4;
+    format!("{r}")
+}
+
+/// The board-file key a [`ConfigError`] is about and what that key must
+/// satisfy, in the file's units and words.
+pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
+    use diodestat_core::config::{Channel, RampKind};
+    use diodestat_core::Fault;
+    use ConfigError as E;
+    let k = |s: &str| s.to_string();
+    let tick_ms = f64::from(c.tick_hz) / 1e3;
+    let ramp_key = |w: RampKind| match w {
+        RampKind::SoftStart => ("ramp.soft_start_ma_per_ms", "mA/ms"),
+        RampKind::SoftStop => ("ramp.soft_stop_ma_per_ms", "mA/ms"),
+        RampKind::Setpoint => ("ramp.setpoint_mw_per_ms", "mW/ms"),
+        RampKind::Slew => ("apc.slew_ma_per_ms", "mA/ms"),
+    };
+    let channel = |ch: Channel| match ch {
+        Channel::Monitor => ("monitor", "mw_per_count"),
+        Channel::CurrentSense => ("current_sense", "ma_per_count"),
+        Channel::Supply => ("supply", "mv_per_count"),
+        Channel::Dac => ("dac", "codes_per_ma"),
+    };
+    let max_fx = Fx::MAX.to_num::<f64>();
+    let res = Fx::DELTA.to_num::<f64>();
+    match *e {
+        E::TickRateZero | E::TickRateTooHigh { .. } => {
+            (k("tick_hz"), "must be 1 ..= 1000000 Hz".into())
+        }
+        E::AbsoluteLimitNotPositive { .. } => (k("current.absolute_max_ma"), "must be above 0 mA".into()),
+        E::CeilingNotPositive { .. } => (k("current.ceiling_ma"), "must be above 0 mA".into()),
+        E::CeilingAboveAbsolute { absolute_max_ma, .. } => (
+            k("current.ceiling_ma"),
+            format!("must not exceed current.absolute_max_ma = {} mA", num(absolute_max_ma)),
+        ),
+        E::OvercurrentNotAboveCeiling { ceiling_ma, .. } => (
+            k("protection.overcurrent_ma"),
+            format!(
+                "must be above current.ceiling_ma = {} mA (at or below it the trip fires in normal use)",
+                num(ceiling_ma)
+            ),
+        ),
+        E::OvercurrentAboveAbsolute { absolute_max_ma, .. } => (
+            k("protection.overcurrent_ma"),
+            format!("must not exceed current.absolute_max_ma = {} mA", num(absolute_max_ma)),
+        ),
+        E::RampRateNotPositive { which, .. } => {
+            let (key, unit) = ramp_key(which);
+            (k(key), format!("must be above 0 {unit}"))
+        }
+        E::RampRateBelowResolution { which, per_ms, tick_hz } => {
+            let (key, unit) = ramp_key(which);
+            let per_tick = per_ms.to_num::<f64>() / tick_ms;
+            let why = if per_tick >= max_fx {
+                let per = unit.trim_end_matches("/ms");
+                format!(
+                    "is {per_tick:.0} {per} per tick at tick_hz = {tick_hz}, beyond the {} {per} per tick the core holds; \
+                     at most {} {unit} at this tick rate",
+                    max_fx.floor(),
+                    (max_fx * tick_ms).floor()
+                )
+            } else {
+                format!(
+                    "rounds to zero per tick at tick_hz = {tick_hz}; at least {:.6} {unit} at this tick rate",
+                    res * tick_ms
+                )
+            };
+            (k(key), why)
+        }
+        E::EmissionDelayTooLong { .. } => (
+            k("ramp.emission_delay_ms"),
+            format!(
+                "does not fit the 32-bit tick count at tick_hz = {}; at most {:.0} ms",
+                c.tick_hz,
+                f64::from(u32::MAX) / tick_ms
+            ),
+        ),
+        E::HandoverFractionOutOfRange { .. } => {
+            (k("ramp.handover_fraction"), "must be in (0, 1]".into())
+        }
+        E::PowerRangeInvalid { max_setpoint_mw, .. } => (
+            k("power.min_setpoint_mw"),
+            format!(
+                "must be above 0 mW and not above power.max_setpoint_mw = {} mW",
+                num(max_setpoint_mw)
+            ),
+        ),
+        E::RunawayNotAboveSetpointRange { max_setpoint_mw, .. } => (
+            k("protection.runaway_mw"),
+            format!("must be above power.max_setpoint_mw = {} mW", num(max_setpoint_mw)),
+        ),
+        E::MonitorLossFloorNotBelowSetpoints { lowest_handover_mw, .. } => (
+            k("protection.monitor_loss_floor_mw"),
+            format!(
+                "must be below the lowest hand-over level ramp.handover_fraction x power.min_setpoint_mw = {} mW",
+                num(lowest_handover_mw)
+            ),
+        ),
+        E::MonitorLossFloorNegative { .. } => {
+            (k("protection.monitor_loss_floor_mw"), "must be 0 mW or more".into())
+        }
+        E::MonitorLossDriveOutOfRange { ceiling_ma, .. } => (
+            k("protection.monitor_loss_drive_ma"),
+            format!("must be in (0, current.ceiling_ma = {}] mA", num(ceiling_ma)),
+        ),
+        E::DeratingKneeNotBelowCutoff { cutoff_degc, .. } => (
+            k("derating.knee_degc"),
+            format!("must be below derating.cutoff_degc = {} degC", num(cutoff_degc)),
+        ),
+        E::DeratingFloorOutOfRange { ceiling_ma, .. } => (
+            k("derating.floor_ma"),
+            format!("must be in 0 ..= current.ceiling_ma = {} mA", num(ceiling_ma)),
+        ),
+        E::TempTableTooShort { len } => (
+            k(table_key(f)),
+            format!("has {len} points; the table needs at least 2"),
+        ),
+        E::TempTableNotMonotonic { index } => (
+            k(table_key(f)),
+            format!(
+                "point {} breaks the order: counts must strictly increase and degc strictly rise or strictly fall",
+                index + 1
+            ),
+        ),
+        E::SensorRailsInconsistent { low_fault_counts, high_fault_counts } => {
+            let t = &c.calibration.temperature.table;
+            let (first, last) = (
+                t.first().map_or(0, |p| p.counts),
+                t.last().map_or(0, |p| p.counts),
+            );
+            (
+                k("temperature.low_fault_counts"),
+                format!(
+                    "low_fault_counts = {low_fault_counts} must be below the table's first point ({first} counts) \
+                     and high_fault_counts = {high_fault_counts} above its last ({last} counts)"
+                ),
+            )
+        }
+        E::DebounceZero { fault } => {
+            let key = match fault {
+                Fault::Overcurrent => "protection.overcurrent_debounce_ticks",
+                Fault::MonitorRunaway => "protection.runaway_debounce_ticks",
+                Fault::MonitorLoss => "protection.monitor_loss_debounce_ticks",
+                Fault::SensorOpen | Fault::SensorShort => "protection.sensor_debounce_ticks",
+                Fault::OverTemperature => "protection.over_temp_debounce_ticks",
+                Fault::InterlockOpen => "protection.interlock_debounce_ticks",
+                Fault::SupplyUnder | Fault::SupplyOver => "protection.supply_debounce_ticks",
+                Fault::DriveMismatch => "protection.mismatch_debounce_ticks",
+                Fault::MissedTicks => "protection.missed_tick_limit",
+            };
+            (k(key), "must be at least 1 tick".into())
+        }
+        E::MissedTickLimitZero => (k("protection.missed_tick_limit"), "must be at least 1 tick".into()),
+        E::GainNotPositive { proportional: true, .. } => {
+            (k("apc.kp_ma_per_mw"), "must be above 0 mA/mW".into())
+        }
+        E::GainNotPositive { proportional: false, .. } => {
+            (k("apc.ki_ma_per_mw_ms"), "must be 0 mA/(mW ms) or more".into())
+        }
+        E::ProportionalGainOverflow { runaway_mw, .. } => (
+            k("apc.kp_ma_per_mw"),
+            format!(
+                "times protection.runaway_mw = {} mW must stay below {max_fx:.0} mA; at most {:.4} mA/mW",
+                num(runaway_mw),
+                max_fx / runaway_mw.to_num::<f64>().max(res)
+            ),
+        ),
+        E::IntegralGainOutOfRange { tick_hz, .. } => (
+            k("apc.ki_ma_per_mw_ms"),
+            format!(
+                "per tick at tick_hz = {tick_hz} it rounds to zero or overflows the core's per-tick gain; \
+                 accepted about {:.3e} ..= {:.4} mA/(mW ms) at this tick rate",
+                diodestat_core::Gain::DELTA.to_num::<f64>() * tick_ms,
+                diodestat_core::Gain::MAX.to_num::<f64>() * tick_ms
+            ),
+        ),
+        E::CalibrationGainNotPositive { channel: ch } => {
+            let (sec, key) = channel(ch);
+            (format!("calibration.{sec}.{key}"), "must be above 0".into())
+        }
+        E::CalibrationOffsetOutOfRange { channel: ch, full_scale, .. } => {
+            let (sec, _) = channel(ch);
+            (
+                format!("calibration.{sec}.offset_counts"),
+                format!(
+                    "must be in 0 ..= {} counts (below full_scale_counts = {full_scale})",
+                    i32::from(full_scale) - 1
+                ),
+            )
+        }
+        E::CeilingNotRepresentable { code, max_code, .. } => (
+            k("current.ceiling_ma"),
+            format!("needs DAC code {code}, above calibration.dac.max_code = {max_code}"),
+        ),
+        E::RunawayBeyondMonitorRange { full_scale_mw, .. } => (
+            k("protection.runaway_mw"),
+            format!(
+                "must not exceed what the monitor channel reads at full scale, {} mW",
+                num(full_scale_mw)
+            ),
+        ),
+        E::OvercurrentBeyondSenseRange { full_scale_ma, .. } => (
+            k("protection.overcurrent_ma"),
+            format!(
+                "must not exceed what the current sense reads at full scale, {} mA",
+                num(full_scale_ma)
+            ),
+        ),
+        E::SupplyWindowInvalid { supply_max_mv, full_scale_mv, .. } => (
+            k("protection.supply_min_mv"),
+            format!(
+                "the window supply_min_mv ..= supply_max_mv = {} mV must be non-empty and within the supply channel's full scale {} mV",
+                num(supply_max_mv),
+                num(full_scale_mv)
+            ),
+        ),
+        E::MismatchToleranceNotPositive { .. } => {
+            (k("protection.mismatch_tolerance_ma"), "must be above 0 mA".into())
+        }
+    }
+}
+
+/// The key that holds the temperature table of a file.
+fn table_key(f: &BoardFile) -> &'static str {
+    match (f.temperature.from, &f.temperature.table_csv) {
+        (TableSource::Sensor, _) => "temperature.table_points",
+        (TableSource::Explicit, Some(_)) => "temperature.table_csv",
+        (TableSource::Explicit, None) => "temperature.table",
+    }
 }
 
 #[cfg(test)]
@@ -982,7 +1350,8 @@ table_points = 25
     fn wrong_type_names_line_column_and_expectation() {
         let e = err(&MINIMAL.replace("ceiling_ma = 50", "ceiling_ma = \"fifty\""));
         assert!(e.contains("line 7, column 14"), "{e}");
-        assert!(e.contains("expected f64"), "{e}");
+        assert!(e.contains("expected a number"), "{e}");
+        assert!(!e.contains("f64"), "{e}");
         assert!(e.starts_with("dir/board.toml"), "{e}");
     }
 
@@ -1036,6 +1405,90 @@ table_points = 25
     }
 
     #[test]
+    fn core_refusals_name_the_key_line_and_value_in_file_units() {
+        // Each was reported as a core enum or a wrong range before.
+        let e = err(&MINIMAL.replace("soft_start_ma_per_ms = 10", "soft_start_ma_per_ms = 0.0001"));
+        assert!(
+            e.contains("line 13, column 24: ramp.soft_start_ma_per_ms = 0.0001"),
+            "{e}"
+        );
+        assert!(
+            e.contains("rounds to zero per tick at tick_hz = 20000; at least 0.000305 mA/ms"),
+            "{e}"
+        );
+        assert!(!e.contains("SoftStart"), "{e}");
+        let e = err(&MINIMAL
+            .replace("soft_start_ma_per_ms = 10", "soft_start_ma_per_ms = 500")
+            .replace("tick_hz = 20000", "tick_hz = 10"));
+        assert!(e.contains("ramp.soft_start_ma_per_ms = 500"), "{e}");
+        assert!(
+            e.contains("is 50000 mA per tick at tick_hz = 10, beyond the 32767 mA per tick")
+                && e.contains("at most 327 mA/ms"),
+            "{e}"
+        );
+        assert!(!e.contains("rounds to zero"), "{e}");
+        let e = err(&MINIMAL.replace(
+            "overcurrent_debounce_ticks = 1",
+            "overcurrent_debounce_ticks = 70000",
+        ));
+        assert!(e.contains("expected an integer in 0 ..= 65535"), "{e}");
+        assert!(!e.contains("u16"), "{e}");
+        let text = MINIMAL.replace(
+            "[calibration]\nfrom = \"module\"",
+            "[calibration]\nfrom = \"module\"\n[calibration.dac]\ncodes_per_ma = 60\noffset_codes = 5\nmax_code = 4095\n[calibration.supply]\noffset_counts = 4095\nmv_per_count = 2\nfull_scale_counts = 4095",
+        );
+        let e = err(&text);
+        assert!(e.contains("calibration.supply.offset_counts = 4095"), "{e}");
+        assert!(e.contains("0 ..= 4094 counts"), "{e}");
+        assert!(!e.contains("Supply"), "{e}");
+        let e = err(&MINIMAL.replace("overcurrent_ma = 55", "overcurrent_ma = 45"));
+        assert!(
+            e.contains("protection.overcurrent_ma = 45: must be above current.ceiling_ma = 50 mA"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn every_core_refusal_names_a_board_file_key() {
+        // A refusal of each kind the file can cause maps to a key the file has.
+        let file: BoardFile = toml::from_str(MINIMAL).unwrap();
+        let b = parse_board(MINIMAL, Path::new("dir")).unwrap();
+        let all = [
+            ConfigError::TickRateZero,
+            ConfigError::MissedTickLimitZero,
+            ConfigError::TempTableTooShort { len: 1 },
+            ConfigError::TempTableNotMonotonic { index: 3 },
+            ConfigError::DebounceZero {
+                fault: diodestat_core::Fault::SensorShort,
+            },
+            ConfigError::GainNotPositive {
+                proportional: false,
+                gain: Fx::ZERO,
+            },
+            ConfigError::CalibrationGainNotPositive {
+                channel: diodestat_core::config::Channel::Dac,
+            },
+        ];
+        for e in all {
+            let (key, why) = refusal(&e, &b.config, &file);
+            assert!(
+                place_of(MINIMAL, &key).is_some() || key.starts_with("calibration."),
+                "{e:?} -> {key}"
+            );
+            assert!(!why.contains("Fx") && !why.contains("::"), "{why}");
+        }
+    }
+
+    #[test]
+    fn names_that_would_put_text_into_exported_source_are_refused() {
+        for bad in ["a\\nfn evil() {}", "x\\\"", "a*/b", "", "a`b"] {
+            let e = err(&MINIMAL.replace("name = \"t\"", &format!("name = \"{bad}\"")));
+            assert!(e.contains("line 2, column 8: name"), "{bad}: {e}");
+        }
+        assert!(name_is_plain("Demo red 30 mW (rev. B) / 650-nm"));
+    }
+
+    #[test]
     fn explicit_calibration_needs_every_channel() {
         let e = err(&MINIMAL.replace("from = \"module\"", "from = \"explicit\""));
         assert!(e.contains("calibration.monitor: missing"), "{e}");
@@ -1069,7 +1522,7 @@ table_points = 25
         assert!(e.contains("temperature.table_points"), "{e}");
         // An explicit-only key with the sensor table.
         let e = err(&MINIMAL.replace("table_points = 25", "table_points = 25\ntable = []"));
-        assert!(e.contains("temperature.table:"), "{e}");
+        assert!(e.contains("temperature.table = []"), "{e}");
         // Too many sensor points.
         let e = err(&MINIMAL.replace("table_points = 25", "table_points = 40"));
         assert!(e.contains("holds 2 to 33"), "{e}");
@@ -1101,6 +1554,14 @@ table_points = 25
         let e = load_board(Path::new("no/such/board.toml"))
             .unwrap_err()
             .to_string();
-        assert!(e.starts_with("no/such/board.toml"), "{e}");
+        assert!(e.starts_with("BOARD: no/such/board.toml"), "{e}");
+        let e = load_board_from(Path::new("/dev/zero"), "board")
+            .unwrap_err()
+            .to_string();
+        assert!(e.starts_with("board: /dev/zero"), "{e}");
+        assert!(
+            e.contains(&format!("{} bytes", files::MAX_INPUT_BYTES)),
+            "{e}"
+        );
     }
 }

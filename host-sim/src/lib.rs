@@ -16,6 +16,8 @@ pub mod board;
 pub mod boardfile;
 pub mod campaign;
 pub mod export;
+pub mod files;
+pub mod locate;
 pub mod plant;
 pub mod report;
 pub mod scenario;

@@ -8,6 +8,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::files::{self, FileError, Staging};
 use diodestat_sim::report::SAFETY_CAUTION;
 use diodestat_sim::stability::assessment::{
     assess, default_setpoint_mw, slug, Assessment, PassLines, DEFAULT_MAX_OVERSHOOT_PCT,
@@ -52,13 +53,73 @@ fn overshoot_limit(b: &LoadedBoard, cli: Option<f64>) -> f64 {
         .unwrap_or(DEFAULT_MAX_OVERSHOOT_PCT)
 }
 
+/// The setpoint of the corners: `--setpoint-mw` when given (it must lie in
+/// the board's setpoint range), else the default.
+fn corner_setpoint(b: &LoadedBoard, setpoint_mw: Option<f64>) -> Result<f64, String> {
+    let p = &b.config.power;
+    let (lo, hi) = (
+        p.min_setpoint_mw.to_num::<f64>(),
+        p.max_setpoint_mw.to_num::<f64>(),
+    );
+    match setpoint_mw {
+        Some(v) if !(v >= lo && v <= hi) => Err(format!(
+            "--setpoint-mw {v}: outside board {}'s setpoint range {lo} ..= {hi} mW (power.min_setpoint_mw ..= power.max_setpoint_mw in {})",
+            b.name,
+            b.path.display()
+        )),
+        Some(v) => Ok(v),
+        None => Ok(default_setpoint_mw(&b.valid)),
+    }
+}
+
+/// Load every board, then refuse before anything runs: two boards that map
+/// to one output folder, an output folder that would replace an input.
+fn load_all(boards: &[PathBuf], out: Option<&Path>) -> Result<Vec<LoadedBoard>, String> {
+    let loaded = boards
+        .iter()
+        .map(|p| load_board(p).map_err(|e| e.to_string()))
+        .collect::<Result<Vec<_>, _>>()?;
+    if let Some(out) = out {
+        let inputs: Vec<PathBuf> = loaded
+            .iter()
+            .flat_map(|b| std::iter::once(b.path.clone()).chain(b.table_csv.clone()))
+            .collect();
+        files::check_out_dir(out, "--out", &[], &inputs).map_err(|e| e.to_string())?;
+        for (i, b) in loaded.iter().enumerate() {
+            let dir = slug(&b.name);
+            if let Some(o) = loaded[..i].iter().find(|o| slug(&o.name) == dir) {
+                return Err(FileError::Conflict {
+                    origin: "--out".into(),
+                    path: out.join(&dir),
+                    why: format!(
+                        "boards {} ({}) and {} ({}) both map to this folder; give them different names",
+                        o.name,
+                        o.path.display(),
+                        b.name,
+                        b.path.display()
+                    ),
+                }
+                .to_string());
+            }
+            files::check_out_dir(
+                &out.join(&dir),
+                "--out",
+                &["loop-report.md", "bode.svg"],
+                &inputs,
+            )
+            .map_err(|e| e.to_string())?;
+        }
+    }
+    Ok(loaded)
+}
+
 fn assess_board(
     b: &LoadedBoard,
     setpoint_mw: Option<f64>,
     max_overshoot_pct: Option<f64>,
 ) -> Result<Assessment, String> {
     let max_overshoot_pct = overshoot_limit(b, max_overshoot_pct);
-    let sp = setpoint_mw.unwrap_or_else(|| default_setpoint_mw(&b.valid));
+    let sp = corner_setpoint(b, setpoint_mw)?;
     assess(
         &b.name,
         b.module_name,
@@ -70,12 +131,16 @@ fn assess_board(
     .map_err(|e| e.to_string())
 }
 
+/// Write a board's report and Bode plots into `out/BOARD`, all of them
+/// staged and moved into place together.
 fn write_report(a: &Assessment, out: &Path) -> Result<PathBuf, String> {
     let dir = out.join(slug(&a.board));
-    std::fs::create_dir_all(&dir).map_err(|e| format!("{}: {e}", dir.display()))?;
-    let md = dir.join("loop-report.md");
-    std::fs::write(&md, a.markdown()).map_err(|e| format!("{}: {e}", md.display()))?;
-    a.write_bode(&dir).map_err(|e| e.to_string())?;
+    let stage = Staging::new(&dir).map_err(|e| e.to_string())?;
+    let md = stage.path("loop-report.md");
+    std::fs::write(&md, a.markdown())
+        .map_err(|e| format!("{}: {e}", dir.join("loop-report.md").display()))?;
+    a.write_bode(stage.dir()).map_err(|e| e.to_string())?;
+    stage.commit().map_err(|e| e.to_string())?;
     Ok(dir)
 }
 
@@ -140,8 +205,8 @@ pub fn report(
     } else {
         boards.to_vec()
     };
-    for path in &boards {
-        let b = load_board(path).map_err(|e| e.to_string())?;
+    for b in load_all(&boards, Some(out))? {
+        let path = &b.path;
         let t0 = Instant::now();
         let a = assess_board(&b, setpoint_mw, max_overshoot_pct)?;
         let dir = write_report(&a, out)?;
@@ -183,8 +248,8 @@ pub fn gate(
         boards.to_vec()
     };
     let mut failures = Vec::new();
-    for path in &boards {
-        let b = load_board(path).map_err(|e| e.to_string())?;
+    for b in load_all(&boards, out)? {
+        let path = &b.path;
         let a = assess_board(&b, setpoint_mw, max_overshoot_pct)?;
         if let Some(out) = out {
             write_report(&a, out)?;
@@ -256,7 +321,21 @@ pub fn tune(
     min_gm_db: f64,
 ) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
-    let sp = setpoint_mw.unwrap_or_else(|| default_setpoint_mw(&b.valid));
+    let sp = corner_setpoint(&b, setpoint_mw)?;
+    let nyquist = f64::from(b.config.tick_hz) / 2.0;
+    match target {
+        TuneTarget::CrossoverHz(f) if f >= nyquist => {
+            return Err(format!(
+                "--crossover-hz {f}: must be below half the board's tick rate, {nyquist} Hz"
+            ))
+        }
+        TuneTarget::BandwidthHz(f) if f >= nyquist => {
+            return Err(format!(
+                "--bandwidth-hz {f}: must be below half the board's tick rate, {nyquist} Hz"
+            ))
+        }
+        _ => {}
+    }
     let corners = standard_corners(&b.valid, sp);
     let loops = corners
         .iter()

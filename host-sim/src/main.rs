@@ -5,7 +5,8 @@ use std::process::ExitCode;
 use std::time::Instant;
 
 use clap::{Parser, Subcommand};
-use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::boardfile::{load_board, load_board_from, LoadedBoard};
+use diodestat_sim::files::{self, Staging};
 use diodestat_sim::plant::DemoModule;
 use diodestat_sim::{report, scenario, sim};
 
@@ -36,11 +37,11 @@ enum Cmd {
     Liv {
         /// Module: visible or pump.
         module: String,
-        /// Junction temperatures, degC.
-        #[arg(long, value_delimiter = ',', default_value = "25")]
+        /// Junction temperatures, degC (-55 to 150, at most 16 of them).
+        #[arg(long, value_delimiter = ',', default_value = "25", value_parser = finite_in(-55.0, 150.0, " degC"))]
         temps_c: Vec<f64>,
-        /// Highest current, mA (default: the driver's full scale).
-        #[arg(long)]
+        /// Highest current, mA, above 0 and at most the driver's full scale (the default).
+        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mA"))]
         max_ma: Option<f64>,
         /// Output folder.
         #[arg(long, default_value = "out")]
@@ -50,8 +51,8 @@ enum Cmd {
     Campaign {
         /// Board configuration file (TOML), e.g. examples/demo-pump-5w/board.toml.
         board: PathBuf,
-        /// Allowed excess over the optical ceiling, fraction.
-        #[arg(long, default_value_t = 0.10)]
+        /// Allowed excess over the optical ceiling, fraction (0 to 1).
+        #[arg(long, default_value_t = 0.10, value_parser = finite_in(0.0, 1.0, ""))]
         margin: f64,
         /// Output folder for campaign.md and campaign.json.
         #[arg(long, default_value = "out")]
@@ -64,12 +65,12 @@ enum Cmd {
         /// Output folder; each board gets OUT/BOARD/loop-report.md, bode.svg and bode/*.svg.
         #[arg(long, default_value = "out")]
         out: PathBuf,
-        /// Setpoint of the corners, mW (default: two thirds of the board's highest setpoint).
-        #[arg(long)]
+        /// Setpoint of the corners, mW, within the board's setpoint range (default: two thirds of the board's highest setpoint).
+        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
         setpoint_mw: Option<f64>,
         /// Largest overshoot of the optical power, % of the step (default: the board file's
-        /// `[loop_check] max_overshoot_pct`, else 10).
-        #[arg(long)]
+        /// `[loop_check] max_overshoot_pct`, else 10); 0 to 100.
+        #[arg(long, value_parser = finite_in(0.0, 100.0, " %"))]
         max_overshoot_pct: Option<f64>,
     },
     /// Propose PI gains for a crossover or bandwidth target keeping the margins at every plant corner.
@@ -80,20 +81,21 @@ enum Cmd {
         #[arg(
             long,
             conflicts_with = "bandwidth_hz",
-            required_unless_present = "bandwidth_hz"
+            required_unless_present = "bandwidth_hz",
+            value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " Hz")
         )]
         crossover_hz: Option<f64>,
-        /// Target closed-loop bandwidth of the slowest corner, Hz.
-        #[arg(long)]
+        /// Target closed-loop bandwidth of the slowest corner, Hz (below half the tick rate).
+        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " Hz"))]
         bandwidth_hz: Option<f64>,
-        /// Setpoint of the corners, mW (default: two thirds of the board's highest setpoint).
-        #[arg(long)]
+        /// Setpoint of the corners, mW, within the board's setpoint range (default: two thirds of the board's highest setpoint).
+        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
         setpoint_mw: Option<f64>,
-        /// Phase margin every corner keeps, degrees.
-        #[arg(long, default_value_t = loop_cmd::TUNE_PM_DEG)]
+        /// Phase margin every corner keeps, degrees (0 to 90).
+        #[arg(long, default_value_t = loop_cmd::TUNE_PM_DEG, value_parser = finite_in(0.0, 90.0, " deg"))]
         min_pm_deg: f64,
-        /// Gain margin every corner keeps, dB.
-        #[arg(long, default_value_t = loop_cmd::TUNE_GM_DB)]
+        /// Gain margin every corner keeps, dB (0 to 60).
+        #[arg(long, default_value_t = loop_cmd::TUNE_GM_DB, value_parser = finite_in(0.0, 60.0, " dB"))]
         min_gm_db: f64,
     },
     /// Loop gate: exits non-zero, naming board, corner and figure, if any corner misses PM 45 deg, GM 6 dB, the overshoot limit, or shows a limit cycle.
@@ -103,12 +105,12 @@ enum Cmd {
         /// Also write the reports and Bode plots here.
         #[arg(long)]
         out: Option<PathBuf>,
-        /// Setpoint of the corners, mW (default: two thirds of each board's highest setpoint).
-        #[arg(long)]
+        /// Setpoint of the corners, mW, within each board's setpoint range (default: two thirds of each board's highest setpoint).
+        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
         setpoint_mw: Option<f64>,
         /// Largest overshoot of the optical power, % of the step (default: the board file's
-        /// `[loop_check] max_overshoot_pct`, else 10).
-        #[arg(long)]
+        /// `[loop_check] max_overshoot_pct`, else 10); 0 to 100.
+        #[arg(long, value_parser = finite_in(0.0, 100.0, " %"))]
         max_overshoot_pct: Option<f64>,
     },
     /// Export a board configuration file as Rust source, with its hash.
@@ -121,6 +123,41 @@ enum Cmd {
     },
 }
 
+/// A command-line number parser: finite and within `lo ..= hi`; clap's
+/// message names the option and the value.
+fn finite_in(
+    lo: f64,
+    hi: f64,
+    unit: &'static str,
+) -> impl Fn(&str) -> Result<f64, String> + Clone + Send + Sync + 'static {
+    move |s: &str| {
+        let v: f64 = s
+            .trim()
+            .parse()
+            .map_err(|_| format!("expected a number{}", range_text(lo, hi, unit)))?;
+        if v.is_finite() && v >= lo && v <= hi {
+            Ok(v)
+        } else {
+            Err(format!(
+                "must be a finite number{}",
+                range_text(lo, hi, unit)
+            ))
+        }
+    }
+}
+
+fn range_text(lo: f64, hi: f64, unit: &str) -> String {
+    match (lo == f64::MIN_POSITIVE, hi == f64::MAX) {
+        (true, true) => format!(" above 0{unit}"),
+        (false, true) => format!(" >= {lo}{unit}"),
+        (true, false) => format!(" in (0, {hi}]{unit}"),
+        (false, false) => format!(" in {lo} ..= {hi}{unit}"),
+    }
+}
+
+/// Most temperatures one `liv` sweep takes.
+const MAX_LIV_TEMPS: usize = 16;
+
 fn module_by_name(name: &str) -> Result<DemoModule, String> {
     match name {
         "visible" => Ok(DemoModule::visible()),
@@ -131,17 +168,27 @@ fn module_by_name(name: &str) -> Result<DemoModule, String> {
     }
 }
 
-fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
-    let text = std::fs::read_to_string(path).map_err(|e| format!("{}: {e}", path.display()))?;
+fn run(path: &Path, out: &Path) -> Result<(), String> {
+    let text = files::read_text(path, "SCENARIO").map_err(|e| e.to_string())?;
     let sc = scenario::parse(&text).map_err(|e| format!("{}: {e}", path.display()))?;
-    let board = load_board(&sc.board_path(path)).map_err(|e| e.to_string())?;
+    let board_path = sc.board_path(path);
+    let board = load_board_from(&board_path, &format!("{}: board", path.display()))
+        .map_err(|e| e.to_string())?;
+    scenario::check_for_board(&sc, &text, board.config.tick_hz, &board.module)
+        .map_err(|e| format!("{}: {e}", path.display()))?;
+    let mut inputs = vec![path.to_path_buf(), board_path];
+    inputs.extend(board.table_csv.clone());
+    files::check_out_dir(out, "--out", &["trace.csv", "plot.svg"], &inputs)
+        .map_err(|e| e.to_string())?;
     println!("{}", board_line(&board));
     let t0 = Instant::now();
     let res = sim::run(&sc, &board.module, board.valid).map_err(|e| e.to_string())?;
     let secs = t0.elapsed().as_secs_f64();
-    std::fs::create_dir_all(out).map_err(|e| format!("{}: {e}", out.display()))?;
-    report::write_csv(&out.join("trace.csv"), &res).map_err(|e| e.to_string())?;
-    report::write_svg(&out.join("plot.svg"), &sc.name, &res)?;
+    let stage = Staging::new(out).map_err(|e| e.to_string())?;
+    report::write_csv(&stage.path("trace.csv"), &res)
+        .map_err(|e| format!("{}: {e}", out.join("trace.csv").display()))?;
+    report::write_svg(&stage.path("plot.svg"), &sc.name, &res)?;
+    stage.commit().map_err(|e| e.to_string())?;
     print!("{}", report::summary(&sc, &res));
     println!(
         "timing: {} ticks in {:.3} s = {:.2} Mticks/s ({:.0}x real time)",
@@ -158,12 +205,23 @@ fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
     Ok(())
 }
 
-fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &PathBuf) -> Result<(), String> {
+fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &Path) -> Result<(), String> {
     let m = module_by_name(module)?;
     let diode = diodestat_sim::plant::Diode::new(m.diode.clone()).map_err(|e| e.to_string())?;
-    let i_max =
-        max_ma.unwrap_or(m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3) * 1e-3;
-    std::fs::create_dir_all(out).map_err(|e| e.to_string())?;
+    let full_ma = m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3;
+    if let Some(v) = max_ma.filter(|v| *v > full_ma) {
+        return Err(format!(
+            "--max-ma {v}: above the {module} driver's full scale {full_ma} mA"
+        ));
+    }
+    if temps_c.len() > MAX_LIV_TEMPS {
+        return Err(format!(
+            "--temps-c: {} temperatures; at most {MAX_LIV_TEMPS}",
+            temps_c.len()
+        ));
+    }
+    files::check_out_dir(out, "--out", &["liv.csv", "liv.svg"], &[]).map_err(|e| e.to_string())?;
+    let i_max = max_ma.unwrap_or(full_ma) * 1e-3;
     let mut csv = String::from("t_c,i_ma,p_mw,v_f_v,wavelength_nm\n");
     let mut curves = Vec::new();
     for &t in temps_c {
@@ -182,8 +240,11 @@ fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &PathBuf) -> Res
         }
         curves.push((t, pts));
     }
-    std::fs::write(out.join("liv.csv"), csv).map_err(|e| e.to_string())?;
-    report::write_liv_svg(&out.join("liv.svg"), module, &curves)?;
+    let stage = Staging::new(out).map_err(|e| e.to_string())?;
+    std::fs::write(stage.path("liv.csv"), csv)
+        .map_err(|e| format!("{}: {e}", out.join("liv.csv").display()))?;
+    report::write_liv_svg(&stage.path("liv.svg"), module, &curves)?;
+    stage.commit().map_err(|e| e.to_string())?;
     for (t, pts) in &curves {
         let ith = diode.threshold_current_a(diodestat_sim::plant::c_to_k(*t)) * 1e3;
         let pmax = pts.iter().map(|p| p.1).fold(0.0, f64::max);
@@ -215,16 +276,23 @@ fn board_line(b: &LoadedBoard) -> String {
 
 fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
+    let mut inputs = vec![board.to_path_buf()];
+    inputs.extend(b.table_csv.clone());
+    files::check_out_dir(out, "--out", &["campaign.md", "campaign.json"], &inputs)
+        .map_err(|e| e.to_string())?;
     println!("{}", board_line(&b));
     let (m, cfg) = (&b.module, &b.valid);
     let t0 = Instant::now();
     let results = diodestat_sim::campaign::run(&b.name, m, cfg, margin)?;
     let ceiling = cfg.config().protection.runaway_mw.to_num::<f64>();
-    std::fs::create_dir_all(out).map_err(|e| e.to_string())?;
     let md = diodestat_sim::campaign::markdown(&b.name, &results, margin, ceiling);
-    std::fs::write(out.join("campaign.md"), &md).map_err(|e| e.to_string())?;
     let json = serde_json::to_string_pretty(&results).map_err(|e| e.to_string())?;
-    std::fs::write(out.join("campaign.json"), json).map_err(|e| e.to_string())?;
+    let stage = Staging::new(out).map_err(|e| e.to_string())?;
+    for (name, body) in [("campaign.md", md), ("campaign.json", json)] {
+        std::fs::write(stage.path(name), body)
+            .map_err(|e| format!("{}: {e}", out.join(name).display()))?;
+    }
+    stage.commit().map_err(|e| e.to_string())?;
     let bad: Vec<_> = results.iter().filter(|r| !r.safe).collect();
     println!(
         "{} cases in {:.1} s, {} unsafe; wrote {}",
@@ -249,8 +317,11 @@ fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
 
 fn export(board: &Path, out: &Path) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
+    let mut inputs = vec![board.to_path_buf()];
+    inputs.extend(b.table_csv.clone());
+    files::check_out_file(out, "--out", &inputs).map_err(|e| e.to_string())?;
     let src = diodestat_sim::export::rust_module(&b.name, &b.config);
-    std::fs::write(out, &src).map_err(|e| format!("{}: {e}", out.display()))?;
+    files::write_atomic(out, src.as_bytes()).map_err(|e| e.to_string())?;
     println!(
         "wrote {} from {} (CONFIG_HASH {:016x})",
         out.display(),

@@ -3,9 +3,13 @@
 //! duration, the ambient, and timed events (requests, ambient changes,
 //! injected hardware faults).
 
+use std::fmt;
 use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
+
+use crate::locate::{keys, locate, plain_message, Place, Seg};
+use crate::plant::DemoModule;
 
 /// A whole scenario.
 #[derive(Clone, Debug, Serialize, Deserialize)]
@@ -239,21 +243,359 @@ impl HwFault {
     }
 }
 
-/// Parse a scenario; the error names the line, column and what was expected.
-pub fn parse(text: &str) -> Result<Scenario, String> {
-    let sc: Scenario = toml::from_str(text).map_err(|e| e.to_string())?;
-    if !(sc.duration_ms > 0.0 && sc.duration_ms.is_finite()) {
-        return Err("duration_ms must be a positive number".into());
+/// Longest run, ms of simulated time (one hour).
+pub const MAX_DURATION_MS: f64 = 3_600_000.0;
+
+/// Most control ticks in one run: the run's tick counter and the plant's
+/// sample counter stay far from 32 bits, and a run ends in minutes.
+pub const MAX_TICKS: f64 = 1e9;
+
+/// Most rows in `trace.csv`: the trace is held in memory (about 100 bytes
+/// a row), so a run whose trace would not fit is refused with the
+/// `trace_every` that makes it fit.
+pub const MAX_TRACE_ROWS: f64 = 1e6;
+
+/// Ambient range the plant models are run in, degC: the extended
+/// temperature grade of electronic parts, -55 to +125 degC (common
+/// practice).
+pub const AMBIENT_RANGE_C: (f64, f64) = (-55.0, 125.0);
+
+/// Largest magnitude of a setpoint in an event, the core's fixed-point
+/// range (the core itself refuses setpoints outside the board's limits,
+/// and the run shows the refusal).
+pub const SETPOINT_LIMIT: f64 = 32767.0;
+
+/// Accepted range of the `monitor-degrade` and `sense-gain` factors.
+pub const GAIN_FACTOR_RANGE: (f64, f64) = (0.0, 10.0);
+
+/// Accepted range of the `heatsink-loss` factor: a loss raises the
+/// heatsink's thermal resistance; 1000 times is a stopped fan on a heatsink
+/// that relied on it.
+pub const HEATSINK_FACTOR_RANGE: (f64, f64) = (1.0, 1000.0);
+
+/// Largest `aging` step, operating hours (about 114 years).
+pub const MAX_AGING_HOURS: f64 = 1e6;
+
+/// Longest text of `name`, characters.
+pub const MAX_NAME_CHARS: usize = 200;
+
+/// Why a scenario cannot be run.
+#[derive(Clone, Debug, PartialEq)]
+pub enum ScenarioError {
+    /// Not valid TOML or not this schema: the TOML reader's message names
+    /// the line, the column and what was expected.
+    Parse {
+        /// The message.
+        message: String,
+    },
+    /// A value refused where it stands.
+    Value {
+        /// The key, as `event[2].fault.factor` (events counted from 1).
+        key: String,
+        /// Where it stands and how it is written.
+        place: Option<Place>,
+        /// What is wrong and what is accepted.
+        why: String,
+    },
+}
+
+impl fmt::Display for ScenarioError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ScenarioError::Parse { message } => write!(f, "{}", message.trim_end()),
+            ScenarioError::Value {
+                key,
+                place: Some(p),
+                why,
+            } => write!(
+                f,
+                "line {}, column {}: {key} = {}: {why}",
+                p.line, p.column, p.text
+            ),
+            ScenarioError::Value {
+                key,
+                place: None,
+                why,
+            } => write!(f, "{key}: {why}"),
+        }
     }
+}
+
+impl std::error::Error for ScenarioError {}
+
+/// Builds errors for values at their place in one file.
+struct Where<'t> {
+    text: &'t str,
+}
+
+impl Where<'_> {
+    fn err(&self, path: &[Seg<'_>], why: String) -> ScenarioError {
+        ScenarioError::Value {
+            key: key_name(path),
+            place: locate(self.text, path),
+            why,
+        }
+    }
+
+    /// `v` must be finite and within `lo ..= hi` (`unit` as written in docs).
+    fn range(
+        &self,
+        path: &[Seg<'_>],
+        v: f64,
+        lo: f64,
+        hi: f64,
+        unit: &str,
+    ) -> Result<(), ScenarioError> {
+        if v.is_finite() && v >= lo && v <= hi {
+            Ok(())
+        } else {
+            Err(self.err(
+                path,
+                format!("must be a finite number in {lo} ..= {hi}{unit}"),
+            ))
+        }
+    }
+}
+
+/// `event[2].fault.factor` from a key path (events counted from 1, as a
+/// reader counts them in the file).
+fn key_name(path: &[Seg<'_>]) -> String {
+    let mut s = String::new();
+    for seg in path {
+        match seg {
+            Seg::Key(k) => {
+                if !s.is_empty() {
+                    s.push('.');
+                }
+                s.push_str(k);
+            }
+            Seg::Index(i) => s.push_str(&format!("[{}]", i + 1)),
+        }
+    }
+    s
+}
+
+/// The keys an event of kind `do` may have.
+fn event_keys(action: &Action) -> &'static [&'static str] {
+    match action {
+        Action::Enable | Action::Disable | Action::Clear => &["at_ms", "do"],
+        Action::SetPower { .. } => &["at_ms", "do", "mw"],
+        Action::SetCurrent { .. } => &["at_ms", "do", "ma"],
+        Action::Mode { .. } => &["at_ms", "do", "mode"],
+        Action::AmbientStep { .. } => &["at_ms", "do", "to_c"],
+        Action::AmbientRamp { .. } => &["at_ms", "do", "to_c", "over_ms"],
+        Action::Inject { .. } | Action::Repair { .. } => &["at_ms", "do", "fault"],
+    }
+}
+
+/// The keys a fault table may have.
+fn fault_keys(f: &HwFault) -> &'static [&'static str] {
+    match f {
+        HwFault::MonitorDegrade { .. }
+        | HwFault::SenseGain { .. }
+        | HwFault::HeatsinkLoss { .. } => &["kind", "factor"],
+        HwFault::DacStuck { .. } => &["kind", "code"],
+        HwFault::SupplySag { .. } => &["kind", "to_v"],
+        HwFault::Aging { .. } => &["kind", "hours"],
+        HwFault::AdcStuck { .. } => &["kind", "channel", "code"],
+        HwFault::MissedTicks { .. } => &["kind", "ticks"],
+        _ => &["kind"],
+    }
+}
+
+fn unknown_keys(
+    w: &Where<'_>,
+    path: &[Seg<'_>],
+    allowed: &[&str],
+    what: &str,
+) -> Result<(), ScenarioError> {
+    for (k, place) in keys(w.text, path) {
+        if !allowed.contains(&k.as_str()) {
+            let mut p = path.to_vec();
+            p.push(Seg::Key(&k));
+            return Err(ScenarioError::Value {
+                key: key_name(&p),
+                place: Some(place),
+                why: format!(
+                    "unknown key for {what}; expected one of {}",
+                    allowed.join(", ")
+                ),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// Parse a scenario and refuse, at its place in the file, every value that
+/// cannot be run whatever the board: non-finite or physically meaningless
+/// numbers, events at or after the end of the run, unknown keys inside
+/// events, a run longer than [`MAX_DURATION_MS`]. [`check_for_board`] then
+/// checks what depends on the board.
+pub fn parse(text: &str) -> Result<Scenario, ScenarioError> {
+    let sc: Scenario = toml::from_str(text).map_err(|e| ScenarioError::Parse {
+        message: plain_message(&e.to_string()),
+    })?;
+    let w = Where { text };
+    if sc.name.chars().count() > MAX_NAME_CHARS || sc.name.chars().any(char::is_control) {
+        return Err(w.err(
+            &[Seg::Key("name")],
+            format!("must be one line of at most {MAX_NAME_CHARS} characters"),
+        ));
+    }
+    if !(sc.duration_ms > 0.0 && sc.duration_ms <= MAX_DURATION_MS) {
+        return Err(w.err(
+            &[Seg::Key("duration_ms")],
+            format!("must be a number in (0, {MAX_DURATION_MS}] ms (one hour of simulated time)"),
+        ));
+    }
+    let (alo, ahi) = AMBIENT_RANGE_C;
+    w.range(&[Seg::Key("ambient_c")], sc.ambient_c, alo, ahi, " degC")?;
     if sc.trace_every == 0 {
-        return Err("trace_every must be at least 1".into());
+        return Err(w.err(&[Seg::Key("trace_every")], "must be at least 1".into()));
     }
-    for e in &sc.events {
-        if !(e.at_ms >= 0.0 && e.at_ms.is_finite()) {
-            return Err(format!("event at_ms {} must be >= 0", e.at_ms));
+    for (i, e) in sc.events.iter().enumerate() {
+        let ev = [Seg::Key("event"), Seg::Index(i)];
+        let at = |k: &'static str| [ev[0], ev[1], Seg::Key(k)];
+        unknown_keys(&w, &ev, event_keys(&e.action), "this event")?;
+        if !(e.at_ms >= 0.0 && e.at_ms < sc.duration_ms) {
+            return Err(w.err(
+                &at("at_ms"),
+                format!(
+                    "must be in 0 ..< duration_ms = {} ms (an event at or after the end never happens)",
+                    sc.duration_ms
+                ),
+            ));
+        }
+        let lim = SETPOINT_LIMIT;
+        match &e.action {
+            Action::SetPower { mw } => w.range(&at("mw"), *mw, -lim, lim, " mW")?,
+            Action::SetCurrent { ma } => w.range(&at("ma"), *ma, -lim, lim, " mA")?,
+            Action::AmbientStep { to_c } => w.range(&at("to_c"), *to_c, alo, ahi, " degC")?,
+            Action::AmbientRamp { to_c, over_ms } => {
+                w.range(&at("to_c"), *to_c, alo, ahi, " degC")?;
+                if !(*over_ms > 0.0 && *over_ms <= MAX_DURATION_MS) {
+                    return Err(w.err(
+                        &at("over_ms"),
+                        format!("must be a number in (0, {MAX_DURATION_MS}] ms"),
+                    ));
+                }
+            }
+            Action::Inject { fault } | Action::Repair { fault } => {
+                let fp = [ev[0], ev[1], Seg::Key("fault")];
+                unknown_keys(&w, &fp, fault_keys(fault), "this fault")?;
+                let fk = |k: &'static str| [ev[0], ev[1], Seg::Key("fault"), Seg::Key(k)];
+                match *fault {
+                    HwFault::MonitorDegrade { factor } | HwFault::SenseGain { factor } => {
+                        let (lo, hi) = GAIN_FACTOR_RANGE;
+                        w.range(&fk("factor"), factor, lo, hi, "")?;
+                    }
+                    HwFault::HeatsinkLoss { factor } => {
+                        let (lo, hi) = HEATSINK_FACTOR_RANGE;
+                        w.range(&fk("factor"), factor, lo, hi, "")?;
+                    }
+                    HwFault::SupplySag { to_v } => {
+                        // The board's nominal supply bounds it in check_for_board.
+                        w.range(&fk("to_v"), to_v, 0.0, f64::MAX, " V")?;
+                    }
+                    HwFault::Aging { hours } => {
+                        w.range(&fk("hours"), hours, 0.0, MAX_AGING_HOURS, " h")?;
+                    }
+                    HwFault::MissedTicks { ticks: 0 } => {
+                        return Err(w.err(&fk("ticks"), "must be at least 1".into()));
+                    }
+                    _ => {}
+                }
+            }
+            Action::Enable | Action::Disable | Action::Clear | Action::Mode { .. } => {}
         }
     }
     Ok(sc)
+}
+
+/// Refuse, at its place in the file, what a scenario asks of a board that
+/// the board cannot give: more ticks than [`MAX_TICKS`], a trace longer
+/// than [`MAX_TRACE_ROWS`], a supply sag above the module's nominal supply,
+/// a stuck code beyond the converter's range. `text` is the scenario file's
+/// text, `tick_hz` the board's tick rate.
+pub fn check_for_board(
+    sc: &Scenario,
+    text: &str,
+    tick_hz: u32,
+    module: &DemoModule,
+) -> Result<(), ScenarioError> {
+    let w = Where { text };
+    let ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round();
+    if ticks > MAX_TICKS {
+        return Err(w.err(
+            &[Seg::Key("duration_ms")],
+            format!(
+                "{ticks:.0} ticks at the board's {tick_hz} Hz; a run has at most {MAX_TICKS:.0} ticks ({:.0} ms at this rate)",
+                MAX_TICKS / f64::from(tick_hz) * 1e3
+            ),
+        ));
+    }
+    let rows = (ticks / f64::from(sc.trace_every)).ceil();
+    if rows > MAX_TRACE_ROWS {
+        let need = (ticks / MAX_TRACE_ROWS).ceil();
+        return Err(w.err(
+            &[Seg::Key("duration_ms")],
+            format!(
+                "with trace_every = {} the trace would have {rows:.0} rows, more than the {MAX_TRACE_ROWS:.0} a trace may hold; \
+                 set trace_every to at least {need:.0} or shorten the run",
+                sc.trace_every
+            ),
+        ));
+    }
+    let max_code = |bits: u8| (1u32 << bits.min(16)) - 1;
+    for (i, e) in sc.events.iter().enumerate() {
+        let (Action::Inject { fault } | Action::Repair { fault }) = &e.action else {
+            continue;
+        };
+        let fk = |k: &'static str| {
+            [
+                Seg::Key("event"),
+                Seg::Index(i),
+                Seg::Key("fault"),
+                Seg::Key(k),
+            ]
+        };
+        match *fault {
+            HwFault::SupplySag { to_v } => w.range(
+                &fk("to_v"),
+                to_v,
+                0.0,
+                module.supply_v,
+                " V (a sag from the module's nominal supply)",
+            )?,
+            HwFault::DacStuck { code } => {
+                let hi = max_code(module.driver.dac_bits);
+                if u32::from(code) > hi {
+                    return Err(w.err(
+                        &fk("code"),
+                        format!(
+                            "must be a DAC code in 0 ..= {hi} ({}-bit DAC)",
+                            module.driver.dac_bits
+                        ),
+                    ));
+                }
+            }
+            HwFault::AdcStuck { channel, code } => {
+                let bits = match channel {
+                    AdcChannel::Temperature => module.sensor.front_end.adc_bits,
+                    _ => module.adc.bits,
+                };
+                let hi = max_code(bits);
+                if u32::from(code) > hi {
+                    return Err(w.err(
+                        &fk("code"),
+                        format!("must be an ADC code in 0 ..= {hi} ({bits}-bit converter)"),
+                    ));
+                }
+            }
+            _ => {}
+        }
+    }
+    Ok(())
 }
 
 #[cfg(test)]
@@ -290,7 +632,8 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
     #[test]
     fn the_module_key_is_gone_the_board_names_it() {
         let err = parse("name = \"t\"\nmodule = \"visible\"\nduration_ms = 1\nambient_c = 1\n")
-            .unwrap_err();
+            .unwrap_err()
+            .to_string();
         assert!(err.contains("unknown field `module`"), "{err}");
         assert!(err.contains("board"), "{err}");
     }
@@ -298,7 +641,116 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
     #[test]
     fn malformed_names_line_and_column() {
         let err = parse("name = \"t\"\nboard = \"b.toml\"\nduration_ms = \"x\"\nambient_c = 1\n")
-            .unwrap_err();
+            .unwrap_err()
+            .to_string();
         assert!(err.contains("line 3"), "{err}");
+    }
+
+    const HEAD: &str = "name = \"t\"\nboard = \"b.toml\"\nduration_ms = 10\nambient_c = 25\n";
+
+    fn refused(tail: &str) -> String {
+        parse(&format!("{HEAD}{tail}")).unwrap_err().to_string()
+    }
+
+    #[test]
+    fn non_finite_setpoint_is_refused_where_it_stands() {
+        let e = refused("[[event]]\nat_ms = 1\ndo = \"set-power\"\nmw = nan\n");
+        assert!(e.starts_with("line 8, column 6: event[1].mw = nan"), "{e}");
+        assert!(e.contains("-32767 ..= 32767 mW"), "{e}");
+    }
+
+    #[test]
+    fn events_at_or_after_the_end_are_refused() {
+        let e = refused("[[event]]\nat_ms = 10\ndo = \"enable\"\n");
+        assert!(e.contains("event[1].at_ms = 10"), "{e}");
+        assert!(e.contains("never happens"), "{e}");
+        assert!(parse(&format!("{HEAD}[[event]]\nat_ms = 9.9\ndo = \"enable\"\n")).is_ok());
+    }
+
+    #[test]
+    fn unknown_keys_inside_events_and_faults_are_refused() {
+        let e = refused("[[event]]\nat_ms = 1\ndo = \"set-power\"\nmw = 3\nma = 4\n");
+        assert!(e.contains("line 9, column 1: event[1].ma"), "{e}");
+        assert!(e.contains("expected one of at_ms, do, mw"), "{e}");
+        let e = refused(
+            "[[event]]\nat_ms = 1\ndo = \"inject\"\nfault = { kind = \"sensor-open\", factor = 2 }\n",
+        );
+        assert!(e.contains("event[1].fault.factor"), "{e}");
+    }
+
+    #[test]
+    fn physically_meaningless_fault_parameters_are_refused() {
+        for (fault, key) in [
+            ("{ kind = \"heatsink-loss\", factor = 0 }", "factor"),
+            ("{ kind = \"heatsink-loss\", factor = inf }", "factor"),
+            ("{ kind = \"monitor-degrade\", factor = -1 }", "factor"),
+            ("{ kind = \"sense-gain\", factor = nan }", "factor"),
+            ("{ kind = \"supply-sag\", to_v = -1 }", "to_v"),
+            ("{ kind = \"aging\", hours = 1e300 }", "hours"),
+            ("{ kind = \"missed-ticks\", ticks = 0 }", "ticks"),
+        ] {
+            let e = refused(&format!(
+                "[[event]]\nat_ms = 1\ndo = \"inject\"\nfault = {fault}\n"
+            ));
+            assert!(e.contains(&format!("event[1].fault.{key}")), "{e}");
+            assert!(e.contains("line 8"), "{e}");
+        }
+    }
+
+    #[test]
+    fn ambient_outside_the_model_range_is_refused() {
+        let e = parse(&HEAD.replace("ambient_c = 25", "ambient_c = inf"))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("ambient_c = inf") && e.contains("-55 ..= 125 degC"),
+            "{e}"
+        );
+        let e = refused("[[event]]\nat_ms = 1\ndo = \"ambient-step\"\nto_c = 1e308\n");
+        assert!(e.contains("event[1].to_c = 1e308"), "{e}");
+        let e = refused("[[event]]\nat_ms = 1\ndo = \"ambient-ramp\"\nto_c = 30\nover_ms = 0\n");
+        assert!(e.contains("event[1].over_ms"), "{e}");
+    }
+
+    #[test]
+    fn duration_is_bounded_and_the_trace_must_fit() {
+        let e = parse(&HEAD.replace("duration_ms = 10", "duration_ms = 1e7"))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("duration_ms = 1e7") && e.contains("3600000"),
+            "{e}"
+        );
+        let m = DemoModule::visible();
+        let text = HEAD.replace("duration_ms = 10", "duration_ms = 3600000");
+        let sc = parse(&text).unwrap();
+        let e = check_for_board(&sc, &text, 20_000, &m)
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("set trace_every to at least 72"), "{e}");
+        let text = format!("{text}trace_every = 72\n");
+        let sc = parse(&text).unwrap();
+        check_for_board(&sc, &text, 20_000, &m).unwrap();
+        let e = check_for_board(&sc, &text, 1_000_000, &m)
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("at most 1000000000 ticks"), "{e}");
+    }
+
+    #[test]
+    fn board_dependent_fault_values_are_refused() {
+        let m = DemoModule::visible();
+        for fault in [
+            "{ kind = \"supply-sag\", to_v = 12 }",
+            "{ kind = \"dac-stuck\", code = 65535 }",
+            "{ kind = \"adc-stuck\", channel = \"monitor\", code = 65535 }",
+        ] {
+            let text = format!("{HEAD}[[event]]\nat_ms = 1\ndo = \"inject\"\nfault = {fault}\n");
+            let sc = parse(&text).unwrap();
+            let e = check_for_board(&sc, &text, 20_000, &m)
+                .unwrap_err()
+                .to_string();
+            assert!(e.contains("line 8") && e.contains("event[1].fault."), "{e}");
+        }
     }
 }

@@ -947,6 +947,13 @@ where
             } else {
                 0.2
             };
+            if !en.is_finite() && hs <= h_min {
+                // Non-finite inputs (a NaN temperature or current) give no
+                // finite step at any size: stop instead of stepping the
+                // whole span by the smallest step.
+                *h = h_nat;
+                return (stats, t);
+            }
             if en <= 1.0 || hs <= h_min {
                 stats.steps += 1;
                 t = if last { t_span } else { t + hs };
@@ -1774,6 +1781,19 @@ mod tests {
         }
         let ex = osc_exact(t_end);
         ((y[0] - ex[0]).powi(2) + (y[1] - ex[1]).powi(2)).sqrt()
+    }
+
+    #[test]
+    fn non_finite_temperature_or_current_ends_the_dynamic_step() {
+        // A NaN junction temperature (from a non-finite ambient) made every
+        // step fail its error test at the smallest step size, so one tick
+        // took about 1e14 steps.
+        let mut d = Diode::new(DiodeParams::demo_visible()).unwrap();
+        for (i, t) in [(0.03, f64::NAN), (f64::NAN, 300.0), (0.03, f64::INFINITY)] {
+            d.reset_stats();
+            let _ = d.step_dynamic(i, t, 5e-5);
+            assert!(d.stats().steps < 1000, "{:?}", d.stats());
+        }
     }
 
     #[test]

@@ -82,8 +82,14 @@ fn mat_exp(m: &M3) -> M3 {
         .iter()
         .map(|r| r.iter().map(|v| v.abs()).sum::<f64>())
         .fold(0.0, f64::max);
+    // A non-finite matrix (a zero or non-finite resistance or capacitance)
+    // has no exponential: NaN, instead of squaring about 2^31 times.
+    if !norm.is_finite() {
+        return [[f64::NAN; 3]; 3];
+    }
     let mut s = 0i32;
     if norm > 0.5 {
+        // Finite norms stay below 2^1024, so s <= 1025.
         s = (norm / 0.5).log2().ceil() as i32;
     }
     let scale = 0.5f64.powi(s);
@@ -144,6 +150,11 @@ impl Thermal {
     /// Creates the ladder with every node at `t_initial_k`.
     pub fn new(params: ThermalParams, t_initial_k: f64) -> Result<Self, PlantError> {
         params.validate()?;
+        crate::plant::error::ensure(
+            t_initial_k.is_finite() && t_initial_k > 0.0,
+            "t_initial_k",
+            "must be a finite temperature above 0 K",
+        )?;
         Ok(Self {
             params,
             t: [t_initial_k; 3],
@@ -387,5 +398,25 @@ mod tests {
         let mut p = params();
         p.c_j_j_per_k = 0.0;
         assert!(Thermal::new(p, 300.0).is_err());
+    }
+
+    #[test]
+    fn non_finite_starting_temperature_is_refused() {
+        let p = crate::plant::DemoModule::visible().thermal;
+        for t in [f64::NAN, f64::INFINITY, -1.0] {
+            assert!(Thermal::new(p.clone(), t).is_err(), "{t}");
+        }
+        assert!(Thermal::new(p, 298.15).is_ok());
+    }
+
+    #[test]
+    fn zero_heatsink_loss_factor_ends_at_once_with_nan() {
+        // A zero factor made the resistance zero and the scaling-and-squaring
+        // count about 2^31; it returns NaN at once instead.
+        let mut t = Thermal::new(crate::plant::DemoModule::visible().thermal, 298.15).unwrap();
+        t.heatsink_loss_factor = 0.0;
+        assert!(t.step(0.1, 298.15, 5e-5).is_nan());
+        t.heatsink_loss_factor = f64::INFINITY;
+        assert!(t.step(0.1, 298.15, 5e-5).is_nan());
     }
 }

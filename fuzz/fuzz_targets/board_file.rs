@@ -1,0 +1,27 @@
+//! Fuzz target: board files. Any text either loads (and then exports to
+//! source whose hash line and name comment are intact) or is refused with a
+//! message; never a panic, a hang or unbounded memory.
+#![no_main]
+
+use std::path::Path;
+
+use libfuzzer_sys::fuzz_target;
+
+fuzz_target!(|data: &[u8]| {
+    let Ok(text) = std::str::from_utf8(data) else {
+        return;
+    };
+    // Files a board names are looked up under a folder that does not exist.
+    match diodestat_sim::boardfile::parse_board(text, Path::new("fuzz-no-such-folder")) {
+        Ok(b) => {
+            assert!(diodestat_sim::boardfile::name_is_plain(&b.name));
+            let src = diodestat_sim::export::rust_module(&b.name, &b.config);
+            assert_eq!(src.lines().next().map(|l| l.starts_with("//! ")), Some(true));
+            assert!(src.contains("pub const CONFIG_HASH"));
+        }
+        Err(e) => {
+            let msg = e.to_string();
+            assert!(!msg.is_empty());
+        }
+    }
+});
