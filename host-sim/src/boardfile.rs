@@ -1045,7 +1045,6 @@ fn num(v: Fx) -> String {
 /// satisfy, in the file's units and words.
 pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
     use diodestat_core::config::{Channel, RampKind};
-    use diodestat_core::Fault;
     use ConfigError as E;
     let k = |s: &str| s.to_string();
     let tick_ms = f64::from(c.tick_hz) / 1e3;
@@ -1060,6 +1059,7 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         Channel::CurrentSense => ("current_sense", "ma_per_count"),
         Channel::Supply => ("supply", "mv_per_count"),
         Channel::Dac => ("dac", "codes_per_ma"),
+        Channel::ForwardVoltage => ("forward_voltage", "mv_per_count"),
     };
     let max_fx = Fx::MAX.to_num::<f64>();
     let res = Fx::DELTA.to_num::<f64>();
@@ -1177,19 +1177,54 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
             )
         }
         E::DebounceZero { fault } => {
-            let key = match fault {
-                Fault::Overcurrent => "protection.overcurrent_debounce_ticks",
-                Fault::MonitorRunaway => "protection.runaway_debounce_ticks",
-                Fault::MonitorLoss => "protection.monitor_loss_debounce_ticks",
-                Fault::SensorOpen | Fault::SensorShort => "protection.sensor_debounce_ticks",
-                Fault::OverTemperature => "protection.over_temp_debounce_ticks",
-                Fault::InterlockOpen => "protection.interlock_debounce_ticks",
-                Fault::SupplyUnder | Fault::SupplyOver => "protection.supply_debounce_ticks",
-                Fault::DriveMismatch => "protection.mismatch_debounce_ticks",
-                Fault::MissedTicks => "protection.missed_tick_limit",
-            };
-            (k(key), "must be at least 1 tick".into())
+            (k(debounce_board_key(fault)), "must be at least 1 tick".into())
         }
+        E::FastDebounceTooLong { fault, max, .. } => (
+            k(debounce_board_key(fault)),
+            format!(
+                "must be 1 ..= {max} ticks at tick_hz = {} (a fast protection trips within {} us)",
+                c.tick_hz,
+                diodestat_core::config::FAST_DEBOUNCE_MAX_US
+            ),
+        ),
+        E::IntermittentWeightOutOfRange { .. } => (
+            k("protection.intermittent_weight"),
+            format!(
+                "must be 1 ..= {}",
+                diodestat_core::config::MAX_INTERMITTENT_WEIGHT
+            ),
+        ),
+        E::TempTableShortOfCutoff { hottest_degc, needed_degc } => (
+            k(table_key(f)),
+            format!(
+                "reaches {} degC; it must reach derating.cutoff_degc + {} = {} degC so that over-temperature is read from the table",
+                num(hottest_degc),
+                num(diodestat_core::config::TEMP_COVER_MARGIN_DEGC),
+                num(needed_degc)
+            ),
+        ),
+        E::ForwardVoltageLimitsInvalid { full_scale_mv, .. } => (
+            k("forward_voltage.open_mv"),
+            format!(
+                "forward_voltage needs 0 <= short_mv < open_mv <= {} mV (the channel's full scale)",
+                num(full_scale_mv)
+            ),
+        ),
+        E::ForwardDriveOutOfRange { ceiling_ma, .. } => (
+            k("forward_voltage.min_drive_ma"),
+            format!("must be in (0, current.ceiling_ma = {}] mA", num(ceiling_ma)),
+        ),
+        E::PlausibilityPointInvalid { index } => (
+            k("plausibility.points_degc"),
+            format!(
+                "point {} is out of order or gives the diode a negative threshold or a slope not above 0",
+                index + 1
+            ),
+        ),
+        E::PlausibilityMarginsInvalid { .. } => (
+            k("plausibility.fault_margin"),
+            "needs 0 <= plausibility.warning_margin <= plausibility.fault_margin <= 4 and plausibility.allowance_ma >= 0".into(),
+        ),
         E::MissedTickLimitZero => (k("protection.missed_tick_limit"), "must be at least 1 tick".into()),
         E::GainNotPositive { proportional: true, .. } => {
             (k("apc.kp_ma_per_mw"), "must be above 0 mA/mW".into())
@@ -1261,6 +1296,30 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
 }
 
 /// The key that holds the temperature table of a file.
+/// The board-file key of a fault's debounce.
+fn debounce_board_key(fault: diodestat_core::Fault) -> &'static str {
+    use diodestat_core::Fault;
+    match fault {
+        Fault::Overcurrent => "protection.overcurrent_debounce_ticks",
+        Fault::MonitorRunaway => "protection.runaway_debounce_ticks",
+        Fault::MonitorLoss => "protection.monitor_loss_debounce_ticks",
+        Fault::SensorOpen | Fault::SensorShort => "protection.sensor_debounce_ticks",
+        Fault::OverTemperature => "protection.over_temp_debounce_ticks",
+        Fault::InterlockOpen => "protection.interlock_debounce_ticks",
+        Fault::SupplyUnder | Fault::SupplyOver => "protection.supply_debounce_ticks",
+        Fault::DriveMismatch => "protection.mismatch_debounce_ticks",
+        Fault::ExternalFault => "protection.external_debounce_ticks",
+        Fault::PowerImplausible => "plausibility.debounce_ticks",
+        Fault::DiodeOpen | Fault::DiodeShort => "forward_voltage.debounce_ticks",
+        Fault::MissedTicks
+        | Fault::TickOrder
+        | Fault::DacBus
+        | Fault::EnablePin
+        | Fault::InterlockPin
+        | Fault::RecordCorrupt => "protection.missed_tick_limit",
+    }
+}
+
 fn table_key(f: &BoardFile) -> &'static str {
     match (f.temperature.from, &f.temperature.table_csv) {
         (TableSource::Sensor, _) => "temperature.table_points",

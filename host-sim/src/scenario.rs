@@ -388,6 +388,9 @@ fn event_keys(action: &Action) -> &'static [&'static str] {
     }
 }
 
+/// Largest monitor drift, fraction of the nominal responsivity per second.
+pub const MAX_DRIFT_PER_S: f64 = 1000.0;
+
 /// The keys a fault table may have.
 fn fault_keys(f: &HwFault) -> &'static [&'static str] {
     match f {
@@ -399,7 +402,14 @@ fn fault_keys(f: &HwFault) -> &'static [&'static str] {
         HwFault::Aging { .. } => &["kind", "hours"],
         HwFault::AdcStuck { .. } => &["kind", "channel", "code"],
         HwFault::MissedTicks { .. } => &["kind", "ticks"],
-        _ => &["kind"],
+        HwFault::MonitorIntermittent { .. } => &["kind", "open_fraction"],
+        HwFault::MonitorDrift { .. } => &["kind", "per_s"],
+        HwFault::SensorOpen
+        | HwFault::SensorShort
+        | HwFault::MonitorOpen
+        | HwFault::SourceFailHigh
+        | HwFault::InterlockOpen
+        | HwFault::ExternalFault => &["kind"],
     }
 }
 
@@ -502,6 +512,14 @@ pub fn parse(text: &str) -> Result<Scenario, ScenarioError> {
                     }
                     HwFault::MissedTicks { ticks: 0 } => {
                         return Err(w.err(&fk("ticks"), "must be at least 1".into()));
+                    }
+                    HwFault::MonitorIntermittent { open_fraction } => {
+                        w.range(&fk("open_fraction"), open_fraction, 0.0, 1.0, "")?;
+                    }
+                    HwFault::MonitorDrift { per_s } => {
+                        // Above 1000 per second the monitor is gone within a
+                        // tick: that is monitor-open, not a drift.
+                        w.range(&fk("per_s"), per_s, 0.0, MAX_DRIFT_PER_S, " /s")?;
                     }
                     _ => {}
                 }
@@ -676,6 +694,15 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
             "[[event]]\nat_ms = 1\ndo = \"inject\"\nfault = { kind = \"sensor-open\", factor = 2 }\n",
         );
         assert!(e.contains("event[1].fault.factor"), "{e}");
+        // Every fault kind with parameters names its own keys.
+        assert!(parse(&format!(
+            "{HEAD}[[event]]\nat_ms = 1\ndo = \"inject\"\nfault = {{ kind = \"monitor-drift\", per_s = 0.5 }}\n"
+        ))
+        .is_ok());
+        let e = refused(
+            "[[event]]\nat_ms = 1\ndo = \"inject\"\nfault = { kind = \"monitor-drift\", per_s = 0.1, factor = 2 }\n",
+        );
+        assert!(e.contains("factor") && e.contains("per_s"), "{e}");
     }
 
     #[test]
@@ -688,6 +715,16 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
             ("{ kind = \"supply-sag\", to_v = -1 }", "to_v"),
             ("{ kind = \"aging\", hours = 1e300 }", "hours"),
             ("{ kind = \"missed-ticks\", ticks = 0 }", "ticks"),
+            (
+                "{ kind = \"monitor-intermittent\", open_fraction = 1.5 }",
+                "open_fraction",
+            ),
+            (
+                "{ kind = \"monitor-intermittent\", open_fraction = nan }",
+                "open_fraction",
+            ),
+            ("{ kind = \"monitor-drift\", per_s = -0.1 }", "per_s"),
+            ("{ kind = \"monitor-drift\", per_s = inf }", "per_s"),
         ] {
             let e = refused(&format!(
                 "[[event]]\nat_ms = 1\ndo = \"inject\"\nfault = {fault}\n"
