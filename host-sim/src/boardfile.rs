@@ -23,6 +23,7 @@ use serde::{Deserialize, Deserializer};
 
 use crate::board;
 use crate::plant::DemoModule;
+use crate::sim::DacLatency;
 
 /// An engineering value in the core's `Fx` range, read from a TOML number.
 /// Out-of-range or non-finite numbers are refused where they stand in the
@@ -60,6 +61,20 @@ impl<'de> Deserialize<'de> for GainValue {
             )));
         }
         Ok(GainValue(Gain::from_num(v)))
+    }
+}
+
+/// A drive latency in whole ticks, refused where it stands in the file when
+/// out of range.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LatencyValue(pub DacLatency);
+
+impl<'de> Deserialize<'de> for LatencyValue {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let v = u32::deserialize(d)?;
+        DacLatency::ticks(v)
+            .map(LatencyValue)
+            .map_err(serde::de::Error::custom)
     }
 }
 
@@ -101,6 +116,12 @@ pub struct BoardFile {
     pub module: ModuleName,
     /// Control tick rate, Hz.
     pub tick_hz: u32,
+    /// Whole ticks from a tick's sampling instant until the drive computed
+    /// from it takes effect (host only: the simulator's and the loop
+    /// analysis's timing; not part of the exported configuration or its
+    /// hash). Default 1.
+    #[serde(default)]
+    pub dac_latency_ticks: Option<LatencyValue>,
     /// Drive-current limits.
     pub current: CurrentSection,
     /// Accepted power setpoints.
@@ -443,6 +464,9 @@ pub struct LoadedBoard {
     /// The board's overshoot limit for the loop checks, % of the step
     /// (`[loop_check] max_overshoot_pct`), when the file sets one.
     pub max_overshoot_pct: Option<f64>,
+    /// Ticks from a sample to its drive taking effect
+    /// (`dac_latency_ticks`, default 1).
+    pub latency: DacLatency,
 }
 
 /// Read and validate a board file.
@@ -466,6 +490,9 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
         message: e.to_string(),
     })?;
     let module = file.module.module();
+    let latency = file
+        .dac_latency_ticks
+        .map_or(DacLatency::default(), |l| l.0);
     let max_overshoot_pct = match &file.loop_check {
         Some(l) if !(l.max_overshoot_pct.is_finite() && l.max_overshoot_pct >= 0.0) => {
             return Err(BoardFileError::Invalid {
@@ -497,6 +524,7 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
         config,
         valid,
         max_overshoot_pct,
+        latency,
     })
 }
 
@@ -888,6 +916,26 @@ table_points = 25
         let e = err(&with("-1"));
         assert!(e.contains("loop_check.max_overshoot_pct"), "{e}");
         assert!(e.contains("-1"), "{e}");
+    }
+
+    #[test]
+    fn dac_latency_defaults_to_one_tick_and_is_checked_where_it_stands() {
+        let b = parse_board(MINIMAL, Path::new("dir")).unwrap();
+        assert_eq!(b.latency, DacLatency::ONE_TICK);
+        let with = |v: &str| {
+            MINIMAL.replace(
+                "tick_hz = 20000",
+                &format!("tick_hz = 20000\ndac_latency_ticks = {v}"),
+            )
+        };
+        let b = parse_board(&with("3"), Path::new("dir")).unwrap();
+        assert_eq!(b.latency.get(), 3);
+        for bad in ["0", "17"] {
+            let e = err(&with(bad));
+            assert!(e.contains("dac_latency_ticks"), "{e}");
+            assert!(e.contains(&format!("{bad} ticks: must be 1..=16")), "{e}");
+            assert!(e.contains("line 5"), "{e}");
+        }
     }
 
     #[test]

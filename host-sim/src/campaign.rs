@@ -16,7 +16,7 @@ use diodestat_core::{State, ValidConfig};
 
 use crate::plant::DemoModule;
 use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, Scenario};
-use crate::sim::{self, Happening};
+use crate::sim::{self, DacLatency, Happening};
 use crate::stability::corners::{SLOPE_SPREAD, THRESHOLD_SPREAD};
 
 /// When the fault is injected.
@@ -319,12 +319,13 @@ pub fn run_case(
     corner: &Corner,
     ceiling_mw: f64,
     margin: f64,
+    latency: DacLatency,
 ) -> Result<CaseResult, String> {
     let plan = Plan::new(module, cfg);
     let fault = plan.fault(fault);
     let (sc, _inject_ms) = scenario(module_name, &plan, fault, moment, corner);
     let module = module.with_spread(corner.threshold, corner.slope);
-    let res = sim::run(&sc, &module, cfg.clone()).map_err(|e| e.to_string())?;
+    let res = sim::run(&sc, &module, cfg.clone(), latency).map_err(|e| e.to_string())?;
     let inject_tick = res
         .happenings
         .iter()
@@ -393,6 +394,7 @@ pub fn run(
     module: &DemoModule,
     cfg: &ValidConfig,
     margin: f64,
+    latency: DacLatency,
 ) -> Result<Vec<CaseResult>, String> {
     let ceiling_mw = cfg.config().protection.runaway_mw.to_num::<f64>();
     let moments = [
@@ -417,7 +419,17 @@ pub fn run(
     let out: Result<Vec<_>, String> = cases
         .par_iter()
         .map(|(f, m, c)| {
-            let r = run_case(module_name, module, cfg, *f, *m, c, ceiling_mw, margin);
+            let r = run_case(
+                module_name,
+                module,
+                cfg,
+                *f,
+                *m,
+                c,
+                ceiling_mw,
+                margin,
+                latency,
+            );
             pb.inc(1);
             r
         })

@@ -137,7 +137,8 @@ fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
     let board = load_board(&sc.board_path(path)).map_err(|e| e.to_string())?;
     println!("{}", board_line(&board));
     let t0 = Instant::now();
-    let res = sim::run(&sc, &board.module, board.valid).map_err(|e| e.to_string())?;
+    let res =
+        sim::run(&sc, &board.module, board.valid, board.latency).map_err(|e| e.to_string())?;
     let secs = t0.elapsed().as_secs_f64();
     std::fs::create_dir_all(out).map_err(|e| format!("{}: {e}", out.display()))?;
     report::write_csv(&out.join("trace.csv"), &res).map_err(|e| e.to_string())?;
@@ -218,7 +219,7 @@ fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
     println!("{}", board_line(&b));
     let (m, cfg) = (&b.module, &b.valid);
     let t0 = Instant::now();
-    let results = diodestat_sim::campaign::run(&b.name, m, cfg, margin)?;
+    let results = diodestat_sim::campaign::run(&b.name, m, cfg, margin, b.latency)?;
     let ceiling = cfg.config().protection.runaway_mw.to_num::<f64>();
     std::fs::create_dir_all(out).map_err(|e| e.to_string())?;
     let md = diodestat_sim::campaign::markdown(&b.name, &results, margin, ceiling);

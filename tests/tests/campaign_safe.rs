@@ -17,7 +17,7 @@ fn shipped(name: &str) -> LoadedBoard {
 }
 
 fn every_case_is_safe(b: &LoadedBoard) {
-    let results = campaign::run(&b.name, &b.module, &b.valid, 0.10).unwrap();
+    let results = campaign::run(&b.name, &b.module, &b.valid, 0.10, b.latency).unwrap();
     assert_eq!(
         results.len(),
         campaign::faults().len() * 4 * campaign::CORNERS.len()
@@ -95,6 +95,7 @@ fn source_failing_high_without_a_hardware_clamp_is_reported_unsafe() {
         &c,
         cfg.config().protection.runaway_mw.to_num::<f64>(),
         0.10,
+        diodestat_sim::sim::DacLatency::ONE_TICK,
     )
     .unwrap();
     assert!(r.detected);
@@ -118,6 +119,7 @@ fn pump_source_failing_high_to_the_output_stage_limit_damages_the_facet() {
         &campaign::CORNERS[0],
         b.config.protection.runaway_mw.to_num::<f64>(),
         0.10,
+        b.latency,
     )
     .unwrap();
     assert!(r.detected && r.latency_ticks == Some(1), "{r:?}");

@@ -251,6 +251,7 @@ fn excessive_integral_gain_fails_on_margins_and_limit_cycles() {
         &b.valid,
         default_setpoint_mw(&b.valid),
         PassLines::default(),
+        &CornerOptions::for_latency(b.latency),
     )
     .unwrap();
     let f = a.findings();

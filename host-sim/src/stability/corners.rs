@@ -38,7 +38,7 @@
 use diodestat_core::{Fx, ValidConfig};
 
 use crate::plant::{c_to_k, k_to_c, DemoModule, Diode, DiodeParams, Monitor, PlantError, Thermal};
-use crate::sim::MONITOR_FILTER_HZ;
+use crate::sim::{DacLatency, MONITOR_FILTER_HZ};
 
 use super::design::{design_pi, Design, DesignError, DesignSpec};
 use super::loop_model::{loop_margins, LoopParams};
@@ -178,13 +178,21 @@ pub struct CornerOptions {
     pub monitor_filter_hz: f64,
 }
 
-impl Default for CornerOptions {
-    /// One tick of delay, the simulator's monitor filter.
-    fn default() -> Self {
+impl CornerOptions {
+    /// The simulator's timing for a board whose drive takes effect
+    /// `latency` after its sample, with the simulator's monitor filter.
+    pub fn for_latency(latency: DacLatency) -> Self {
         CornerOptions {
-            delay_ticks: 1,
+            delay_ticks: latency.get(),
             monitor_filter_hz: MONITOR_FILTER_HZ,
         }
+    }
+}
+
+impl Default for CornerOptions {
+    /// The default latency (one tick), the simulator's monitor filter.
+    fn default() -> Self {
+        Self::for_latency(DacLatency::default())
     }
 }
 
