@@ -3,8 +3,9 @@
 //!
 //! A case is **unsafe** when the fault was not latched (for faults that must
 //! latch), when the optical power stayed above the optical ceiling by more
-//! than the margin for more than one tick, or when the facet reached its
-//! damage limit. Faults the core is meant to ride through (an aging step, a
+//! than the margin for longer than the firmware can react (one tick until
+//! the next sample sees the fault, plus the board's drive latency), or when
+//! the facet reached its damage limit. Faults the core is meant to ride through (an aging step, a
 //! heatsink-fan loss that only derates) are safe without a latch as long as
 //! the power stays within the ceiling.
 
@@ -366,7 +367,10 @@ pub fn run_case(
         .filter(|r| r.p_mw > ceiling_mw * (1.0 + margin))
         .count() as u64;
     let detected = res.final_state == State::Latched;
-    let safe = (detected || !must_latch) && ticks_over <= 1 && !res.damaged;
+    // The fastest firmware: the next sample sees the fault, its drive takes
+    // effect the latency later.
+    let reaction_ticks = 1 + u64::from(latency.get());
+    let safe = (detected || !must_latch) && ticks_over <= reaction_ticks && !res.damaged;
     let latency_ticks = first_fault_tick.map(|t| t - inject_tick);
     Ok(CaseResult {
         fault: fault.name(),

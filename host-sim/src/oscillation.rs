@@ -5,7 +5,8 @@
 //!
 //! A stretch is a run of ticks in Regulating between scenario events (a
 //! request, an ambient change or an injected fault starts a new one). Its
-//! steady end is its second half, at most [`WINDOW_TICKS`] ticks, at least
+//! steady end is its last three quarters (the first quarter is the
+//! transient of what started it), at most [`WINDOW_TICKS`] ticks, at least
 //! [`MIN_TICKS`]. There:
 //!
 //! * the DAC code the core computed is detrended (least-squares line) and
@@ -18,7 +19,11 @@
 //!   when its peak-to-peak amplitude exceeds [`LIMIT_CYCLE_MIN_STEPS`] DAC
 //!   steps, **hunting** below (an integrating loop with a quantised DAC
 //!   and a quantised monitor ADC moves by one code either side of its
-//!   operating point, and none avoids it: common practice);
+//!   operating point, and none avoids it: common practice); an
+//!   oscillation whose drive moves by the core's slew limit on some tick
+//!   is **slew-bound**: it grew until the slew limit stopped it, the mark
+//!   of a loop that is unstable in itself (a quantisation cycle of a
+//!   stable loop stays far below the slew limit);
 //! * a drive on the ceiling in force for at least [`PINNED_SHARE`] of the
 //!   window is **pinned**: the loop does not regulate, and the power
 //!   shortfall (setpoint minus the mean monitor reading, and the true
@@ -47,8 +52,9 @@ pub const RINGING_DECAY: f64 = 0.5;
 pub const PINNED_SHARE: f64 = 0.9;
 /// Longest steady window analysed, ticks (the end of a longer stretch).
 pub const WINDOW_TICKS: usize = 4096;
-/// Shortest steady window analysed, ticks.
-pub const MIN_TICKS: usize = 64;
+/// Shortest steady window analysed, ticks (eight periods of the shortest
+/// oscillation, two ticks, plus its lags).
+pub const MIN_TICKS: usize = 24;
 
 /// What the detector needs of one tick.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -105,6 +111,8 @@ pub struct Oscillation {
     pub power_pp_pct: f64,
     /// Share of the window with the drive on the ceiling.
     pub on_ceiling_share: f64,
+    /// The drive moved by the slew limit on some tick of the window.
+    pub slew_bound: bool,
 }
 
 /// The drive pinned on its ceiling at the steady end of a stretch.
@@ -191,6 +199,9 @@ impl fmt::Display for Found {
                     o.power_pp_mw,
                     o.power_pp_pct
                 )?;
+                if o.slew_bound {
+                    write!(f, ", bounded by the slew limit (the loop is unstable)")?;
+                }
                 if o.on_ceiling_share > 0.0 {
                     write!(
                         f,
@@ -229,6 +240,7 @@ impl fmt::Display for Found {
 #[derive(Clone, Debug)]
 pub struct Watch {
     tick_hz: f64,
+    slew_ma_per_tick: f64,
     /// The last ticks of the open stretch (at most [`WINDOW_TICKS`] · 2).
     buf: VecDeque<TickSample>,
     /// Length of the open stretch, ticks, and its last tick.
@@ -238,10 +250,12 @@ pub struct Watch {
 }
 
 impl Watch {
-    /// A watch for a run at `tick_hz`.
-    pub fn new(tick_hz: u32) -> Self {
+    /// A watch for a run at `tick_hz` whose drive slews by at most
+    /// `slew_ma_per_tick` in regulation.
+    pub fn new(tick_hz: u32, slew_ma_per_tick: f64) -> Self {
         Watch {
             tick_hz: f64::from(tick_hz),
+            slew_ma_per_tick,
             buf: VecDeque::with_capacity(2 * WINDOW_TICKS),
             len: 0,
             last_tick: 0,
@@ -266,13 +280,13 @@ impl Watch {
     /// A scenario event: the open stretch ends before this tick.
     pub fn cut(&mut self) {
         if self.len > 0 {
-            let n = (self.len / 2).min(WINDOW_TICKS);
+            let n = (self.len - self.len / 4).min(WINDOW_TICKS);
             if n >= MIN_TICKS {
                 let (a, b) = self.buf.as_slices();
                 let all: Vec<TickSample> = a.iter().chain(b).copied().collect();
                 let w = &all[all.len() - n..];
                 let from_tick = self.last_tick + 1 - n as u64;
-                for finding in analyse(w, self.tick_hz) {
+                for finding in analyse(w, self.tick_hz, self.slew_ma_per_tick) {
                     self.found.push(Found {
                         from_tick,
                         to_tick: self.last_tick,
@@ -312,7 +326,7 @@ fn rms(xs: &[f64]) -> f64 {
 
 /// Judge one steady window (see the module documentation): the drive
 /// pinned on the ceiling, and a periodic oscillation of the DAC code.
-pub fn analyse(w: &[TickSample], tick_hz: f64) -> Vec<Finding> {
+pub fn analyse(w: &[TickSample], tick_hz: f64, slew_ma_per_tick: f64) -> Vec<Finding> {
     let mut out = Vec::new();
     if w.len() < MIN_TICKS {
         return out;
@@ -345,6 +359,10 @@ pub fn analyse(w: &[TickSample], tick_hz: f64) -> Vec<Finding> {
     let p: Vec<f64> = w.iter().map(|s| s.p_mw).collect();
     let power_pp_mw = pp(&detrend(&p));
     let drive = w.iter().map(|s| s.cmd_ma);
+    let max_move = w
+        .windows(2)
+        .map(|p| (p[1].cmd_ma - p[0].cmd_ma).abs())
+        .fold(0.0, f64::max);
     out.push(Finding::Oscillation(Oscillation {
         kind,
         period_ticks,
@@ -358,6 +376,7 @@ pub fn analyse(w: &[TickSample], tick_hz: f64) -> Vec<Finding> {
         power_pp_mw,
         power_pp_pct: 100.0 * power_pp_mw / mean(p.iter().copied()).abs(),
         on_ceiling_share: on_share,
+        slew_bound: max_move >= 0.99 * slew_ma_per_tick,
     }));
     out
 }
@@ -438,7 +457,7 @@ mod tests {
     }
 
     fn found(ticks: &[TickSample]) -> Vec<Found> {
-        let mut w = Watch::new(1000);
+        let mut w = Watch::new(1000, 20.0);
         for (i, s) in ticks.iter().enumerate() {
             w.push(i as u64, *s);
         }
@@ -469,10 +488,11 @@ mod tests {
         assert_eq!(o.period_ticks, 2);
         assert!((o.freq_hz - 500.0).abs() < 1e-9);
         assert_eq!(o.drive_ma, (30.0, 50.0));
+        assert!(o.slew_bound, "a 20 mA move with a 20 mA/tick slew");
         assert!((o.pp_steps / 2000.0 - 1.0).abs() < 0.02, "{}", o.pp_steps);
         assert!((o.power_pp_mw / 8.0 - 1.0).abs() < 0.02);
-        // The window is the second half of the stretch.
-        assert_eq!((f[0].from_tick, f[0].to_tick), (500, 999));
+        // The window is the last three quarters of the stretch.
+        assert_eq!((f[0].from_tick, f[0].to_tick), (250, 999));
         let line = f[0].to_string();
         assert!(
             line.contains("LIMIT CYCLE") && line.contains("500.0 Hz"),
@@ -523,7 +543,7 @@ mod tests {
     }
 
     /// A drive on the ceiling is pinned, with the shortfall from the
-    /// setpoint; a stretch shorter than [`MIN_TICKS`] twice is not judged.
+    /// setpoint; a stretch too short for [`MIN_TICKS`] is not judged.
     #[test]
     fn pinned_with_shortfall() {
         let t: Vec<TickSample> = (0..400)
@@ -539,14 +559,15 @@ mod tests {
         };
         assert!((p.shortfall_mw().unwrap() - 3.0).abs() < 1e-12);
         assert!(f[0].to_string().contains("3.000 mW (15.0 %) short"));
-        assert!(found(&t[..2 * MIN_TICKS - 2]).is_empty());
+        assert!(found(&t[..MIN_TICKS]).is_empty());
+        assert_eq!(found(&t[..MIN_TICKS * 4 / 3 + 1]).len(), 1);
     }
 
     /// A tick out of regulation or a cut ends a stretch: two stretches,
     /// two findings.
     #[test]
     fn stretches_are_judged_apart() {
-        let mut w = Watch::new(1000);
+        let mut w = Watch::new(1000, 20.0);
         for i in 0..600u64 {
             let s = if i % 2 == 0 {
                 tick(3000, 12.0)
@@ -560,7 +581,7 @@ mod tests {
         }
         let f = w.finish();
         assert_eq!(f.len(), 2);
-        assert_eq!((f[0].from_tick, f[0].to_tick), (150, 299));
-        assert_eq!((f[1].from_tick, f[1].to_tick), (450, 599));
+        assert_eq!((f[0].from_tick, f[0].to_tick), (75, 299));
+        assert_eq!((f[1].from_tick, f[1].to_tick), (375, 599));
     }
 }

@@ -503,7 +503,7 @@ fn run_plant(
         std::iter::repeat_n(None, latency.get() as usize).collect();
     let mut applied = diodestat_core::Drive::default();
     let mut last_computed = applied;
-    let mut watch = Watch::new(tick_hz);
+    let mut watch = Watch::new(tick_hz, to_f(ctl.config().slew_ma_per_tick()));
     let trace_every = u64::from(sc.trace_every.max(1));
     for tick in 0..n_ticks {
         // Timed events for this tick.
