@@ -29,7 +29,8 @@
 //!   commanded, without quantisation);
 //! * the driver pole is the module's driver bandwidth, the monitor pole the
 //!   simulator's front-end filter ([`crate::sim::MONITOR_FILTER_HZ`]), the
-//!   delay one tick unless set otherwise.
+//!   delay the board's drive latency ([`CornerOptions::for_latency`]; one
+//!   tick by default).
 //!
 //! Spreads map onto the rate-equation model by
 //! [`DemoModule::with_spread`]. The standard spreads here are demo values,

@@ -60,11 +60,11 @@
 //!
 //! The linear model predicts these responses at small amplitude;
 //! [`small_step_agreement`] compares a small setpoint step of the
-//! simulator with it. The simulator samples, steps the core and applies
-//! the drive within one tick, and its monitor front end is a per-tick
-//! smoother, so the matching linear loop has no whole-tick delay and the
-//! [`Discretisation::SampledSmoother`] monitor (the margins report uses
-//! one tick of delay, as on hardware).
+//! simulator with it. Both are timed alike: the simulator applies each
+//! drive the corner loop's `delay_ticks` after its sample (the board's
+//! latency) and filters the continuous monitor signal exactly, so the
+//! matching linear loop is the very one the margins are taken on
+//! ([`Discretisation::ExactZoh`] with the board's delay).
 
 use diodestat_core::{State, ValidConfig};
 use rayon::prelude::*;
@@ -691,9 +691,8 @@ pub struct Agreement {
 /// Steps the setpoint of the noise-free simulator at `corner` by
 /// `fraction` of the setpoint after `settle_ms`, and compares the optical
 /// power change over `ticks` ticks with the linear loop at the same
-/// corner, timed as the simulator is (no whole-tick delay, sampled
-/// smoother for the monitor front end), driven by the setpoint ramp the
-/// core applies (its configured mW per tick). The simulated change is
+/// corner (the margins' loop: the board's delay, exact ZOH), driven by the
+/// setpoint ramp the core applies (its configured mW per tick). The simulated change is
 /// normalised by its mean over the last tenth of the window.
 pub fn small_step_agreement(
     module: &DemoModule,
