@@ -171,25 +171,33 @@ impl Driver {
         self.last_rate_per_s
     }
 
-    /// The output of the last step of length `dt_s` as at most
-    /// [`RAMP_PIECES`] consecutive pieces `(length s, mean current A)`:
-    /// each piece carries an equal share of the change from the start of
-    /// the step toward the target (the first ones short, where the
-    /// exponential is steep), the last runs to the end of the step; each
-    /// mean is the exact mean of the exponential over its piece. A change
-    /// below half a DAC step, or an output that was set rather than lagged,
-    /// is one piece at the output current.
+    /// The output of the last step of length `dt_s` as consecutive pieces
+    /// `(length s, mean current A)`. The change from the start of the step
+    /// toward the target is cut into `n` equal shares, `n` the change over
+    /// [`RAMP_SHARE_OF_FULL_SCALE`] of full scale, rounded up, at most
+    /// [`MAX_RAMP_PIECES`]: the first `n - 1` pieces each carry one share
+    /// (the first ones short, where the exponential is steep), the next the
+    /// last share over four time constants, the last the rest of the step
+    /// (within e^-4 of that share of the output). Each mean is the exact
+    /// mean of the exponential over its piece. A change of one share or
+    /// less, or an output that was set rather than lagged, is one piece at
+    /// the output current.
     pub fn ramp_pieces(&self, dt_s: f64) -> RampPieces {
         let r = self.last_rate_per_s;
         let (from, to) = (self.last_from_a, self.last_target_a);
-        let single = r <= 0.0 || (self.i_out - from).abs() < 0.5 * self.amps_per_code;
+        let share_a = RAMP_SHARE_OF_FULL_SCALE * self.params.full_scale_a();
+        let n = ((self.i_out - from).abs() / share_a)
+            .ceil()
+            .min(MAX_RAMP_PIECES as f64) as usize;
+        let single = r <= 0.0 || n <= 1;
         RampPieces {
             from,
             to,
             rate: r,
             dt: dt_s,
             t: 0.0,
-            k: if single { RAMP_PIECES } else { 0 },
+            n,
+            k: if single { n + 1 } else { 0 },
             single_a: single.then_some(self.i_out),
         }
     }
@@ -335,8 +343,13 @@ impl Driver {
     }
 }
 
-/// Most pieces [`Driver::ramp_pieces`] cuts a step into.
-pub const RAMP_PIECES: usize = 16;
+/// Largest current change of one piece of [`Driver::ramp_pieces`], share of
+/// the full-scale current (our choice: a step of the rate equations this
+/// small rings by about 1 % of the output).
+pub const RAMP_SHARE_OF_FULL_SCALE: f64 = 1.0 / 200.0;
+/// Most pieces of equal current change [`Driver::ramp_pieces`] cuts the
+/// rise of a step into (then one more to the end of the step).
+pub const MAX_RAMP_PIECES: usize = 64;
 
 /// The pieces of one driver step (see [`Driver::ramp_pieces`]).
 #[derive(Clone, Debug)]
@@ -348,6 +361,7 @@ pub struct RampPieces {
     t: f64,
     k: usize,
     single_a: Option<f64>,
+    n: usize,
 }
 
 impl Iterator for RampPieces {
@@ -357,21 +371,24 @@ impl Iterator for RampPieces {
         if let Some(i) = self.single_a.take() {
             return Some((self.dt, i));
         }
-        if self.k >= RAMP_PIECES || self.t >= self.dt {
+        if self.k > self.n || self.t >= self.dt {
             return None;
         }
         self.k += 1;
-        // The share k/N of the change is done at t = -ln(1 - k/N) / rate.
-        let end = if self.k == RAMP_PIECES {
-            self.dt
-        } else {
-            let share = self.k as f64 / RAMP_PIECES as f64;
+        // The share k/n of the change is done at t = -ln(1 - k/n) / rate;
+        // the last share gets four time constants, then the rest.
+        let end = if self.k < self.n {
+            let share = self.k as f64 / self.n as f64;
             (-(1.0 - share).ln() / self.rate).min(self.dt)
+        } else if self.k == self.n {
+            (self.t + 4.0 / self.rate).min(self.dt)
+        } else {
+            self.dt
         };
         let (t0, h) = (self.t, end - self.t);
         self.t = end;
         if end >= self.dt {
-            self.k = RAMP_PIECES;
+            self.k = self.n + 1;
         }
         if h <= 0.0 {
             return None;
@@ -448,9 +465,10 @@ mod tests {
         let dt = 50e-6;
         d.step(2000, true, 2.0, 5.0, dt);
         let target = d.setpoint_a(2000);
+        // 29 mA of a 60 mA full scale: 98 shares of 0.3 mA, at most 64.
         let r = d.last_rate_per_s();
         let pieces: Vec<(f64, f64)> = d.ramp_pieces(dt).collect();
-        assert_eq!(pieces.len(), RAMP_PIECES);
+        assert_eq!(pieces.len(), MAX_RAMP_PIECES + 1);
         let total: f64 = pieces.iter().map(|p| p.0).sum();
         assert!((total - dt).abs() < 1e-18);
         let charge: f64 = pieces.iter().map(|p| p.0 * p.1).sum();
