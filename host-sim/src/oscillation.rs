@@ -51,7 +51,10 @@ pub const RINGING_DECAY: f64 = 0.5;
 /// pinned there (our choice).
 pub const PINNED_SHARE: f64 = 0.9;
 /// Longest steady window analysed, ticks (the end of a longer stretch).
-pub const WINDOW_TICKS: usize = 4096;
+pub const WINDOW_TICKS: usize = 1024;
+/// Longest period searched by the run summary's detector, ticks (the
+/// autocorrelation costs the window length per lag).
+pub const MAX_PERIOD_TICKS: usize = 128;
 /// Shortest steady window analysed, ticks (eight periods of the shortest
 /// oscillation, two ticks, plus its lags).
 pub const MIN_TICKS: usize = 24;
@@ -342,7 +345,7 @@ pub fn analyse(w: &[TickSample], tick_hz: f64, slew_ma_per_tick: f64) -> Vec<Fin
         }));
     }
     let codes: Vec<f64> = w.iter().map(|s| f64::from(s.dac_code)).collect();
-    let Some((period_ticks, correlation)) = periodicity(&codes) else {
+    let Some((period_ticks, correlation)) = periodicity_up_to(&codes, MAX_PERIOD_TICKS) else {
         return out;
     };
     let d = detrend(&codes);
@@ -387,6 +390,11 @@ pub fn analyse(w: &[TickSample], tick_hz: f64, slew_ma_per_tick: f64) -> Vec<Fin
 /// within 10 % of the highest, lags up to a third of the length; `None` if
 /// flat or no peak reaches [`PERIODIC_CORRELATION`].
 pub fn periodicity(xs: &[f64]) -> Option<(usize, f64)> {
+    periodicity_up_to(xs, xs.len() / 3)
+}
+
+/// [`periodicity`] with lags up to `max_lag` (and a third of the length).
+pub fn periodicity_up_to(xs: &[f64], max_lag: usize) -> Option<(usize, f64)> {
     let d = detrend(xs);
     let n = d.len();
     let r0 = d.iter().map(|x| x * x).sum::<f64>() / n as f64;
@@ -402,7 +410,7 @@ pub fn periodicity(xs: &[f64]) -> Option<(usize, f64)> {
             / (n - k) as f64
             / r0
     };
-    let max_lag = n / 3;
+    let max_lag = max_lag.min(n / 3);
     let first_neg = (1..=max_lag).find(|&k| r(k) < 0.0)?;
     let rs: Vec<f64> = (first_neg..=max_lag).map(r).collect();
     let top = rs.iter().copied().fold(f64::MIN, f64::max);
