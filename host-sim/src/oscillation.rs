@@ -33,7 +33,6 @@
 //! the peak-to-peak of the true front-facet power; the period in ticks,
 //! milliseconds and hertz.
 
-use std::collections::VecDeque;
 use std::fmt;
 
 /// Normalised autocorrelation at the period for an oscillation to count
@@ -244,8 +243,10 @@ impl fmt::Display for Found {
 pub struct Watch {
     tick_hz: f64,
     slew_ma_per_tick: f64,
-    /// The last ticks of the open stretch (at most [`WINDOW_TICKS`] · 2).
-    buf: VecDeque<TickSample>,
+    /// The last ticks of the open stretch, a ring of [`WINDOW_TICKS`]
+    /// (the next write at `pos`).
+    buf: Vec<TickSample>,
+    pos: usize,
     /// Length of the open stretch, ticks, and its last tick.
     len: usize,
     last_tick: u64,
@@ -259,7 +260,8 @@ impl Watch {
         Watch {
             tick_hz: f64::from(tick_hz),
             slew_ma_per_tick,
-            buf: VecDeque::with_capacity(2 * WINDOW_TICKS),
+            buf: Vec::with_capacity(WINDOW_TICKS),
+            pos: 0,
             len: 0,
             last_tick: 0,
             found: Vec::new(),
@@ -272,10 +274,15 @@ impl Watch {
             self.cut();
             return;
         }
-        if self.buf.len() == 2 * WINDOW_TICKS {
-            self.buf.pop_front();
+        if self.buf.len() < WINDOW_TICKS {
+            self.buf.push(s);
+        } else {
+            self.buf[self.pos] = s;
         }
-        self.buf.push_back(s);
+        self.pos += 1;
+        if self.pos == WINDOW_TICKS {
+            self.pos = 0;
+        }
         self.len += 1;
         self.last_tick = tick;
     }
@@ -285,8 +292,9 @@ impl Watch {
         if self.len > 0 {
             let n = (self.len - self.len / 4).min(WINDOW_TICKS);
             if n >= MIN_TICKS {
-                let (a, b) = self.buf.as_slices();
-                let all: Vec<TickSample> = a.iter().chain(b).copied().collect();
+                // Oldest first: the ring from `pos` on, then up to `pos`.
+                let (newer, older) = self.buf.split_at(self.pos.min(self.buf.len()));
+                let all: Vec<TickSample> = older.iter().chain(newer).copied().collect();
                 let w = &all[all.len() - n..];
                 let from_tick = self.last_tick + 1 - n as u64;
                 for finding in analyse(w, self.tick_hz, self.slew_ma_per_tick) {
@@ -300,6 +308,7 @@ impl Watch {
             }
         }
         self.buf.clear();
+        self.pos = 0;
         self.len = 0;
     }
 

@@ -38,8 +38,6 @@
 
 use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig};
 
-use std::collections::VecDeque;
-
 use crate::oscillation::{Found, TickSample, Watch};
 use crate::plant::{
     c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, SensorChain, Thermal,
@@ -441,6 +439,14 @@ fn to_f(v: Fx) -> f64 {
     v.to_num::<f64>()
 }
 
+/// [`to_f`] on the tick's hot path: a 16.16 value is its bits over 2^16,
+/// exactly (every i32 is an f64, and the division by a power of two is
+/// exact).
+#[inline]
+fn fx_exact(v: Fx) -> f64 {
+    f64::from(v.to_bits()) * (1.0 / 65_536.0)
+}
+
 /// Run a scenario on a validated board configuration whose drive takes
 /// effect `latency` after its sample.
 pub fn run(
@@ -498,10 +504,12 @@ fn run_plant(
     };
     let mut last_state = State::Off;
     let mut logged = 0usize;
-    // The drives on their way to the DAC, oldest first; `None`: a missed
-    // tick wrote nothing. The board starts with the DAC at zero, enable low.
-    let mut pipeline: VecDeque<Option<diodestat_core::Drive>> =
-        std::iter::repeat_n(None, latency.get() as usize).collect();
+    // The drives on their way to the DAC: a ring of `latency` slots, the
+    // one at `slot` written `latency` ticks ago; `None`: a missed tick
+    // wrote nothing. The board starts with the DAC at zero, enable low.
+    let lat = latency.get() as usize;
+    let mut pipeline = [None::<diodestat_core::Drive>; DacLatency::MAX_TICKS as usize];
+    let mut slot = 0usize;
     let mut applied = diodestat_core::Drive::default();
     let mut last_computed = applied;
     let mut watch = Watch::new(tick_hz, to_f(ctl.config().slew_ma_per_tick()));
@@ -575,9 +583,12 @@ fn run_plant(
         if let Some(d) = computed {
             last_computed = d;
         }
-        pipeline.push_back(computed);
-        if let Some(Some(d)) = pipeline.pop_front() {
+        if let Some(d) = std::mem::replace(&mut pipeline[slot], computed) {
             applied = d;
+        }
+        slot += 1;
+        if slot == lat {
+            slot = 0;
         }
         plant.advance(
             applied.dac_code,
@@ -593,18 +604,22 @@ fn run_plant(
             res.happenings.push(Happening::FacetDamage { tick });
         }
         let st = ctl.state();
-        watch.push(
-            tick,
-            TickSample {
-                regulating: st == State::Regulating,
-                dac_code: last_computed.dac_code,
-                cmd_ma: to_f(ctl.drive_ma()),
-                ceiling_ma: to_f(ctl.ceiling_ma()),
-                p_mw,
-                monitor_mw: to_f(ctl.measurements().monitor_mw),
-                setpoint_mw: (ctl.mode() == Mode::Apc).then(|| to_f(ctl.power_target_mw())),
-            },
-        );
+        if st == State::Regulating {
+            watch.push(
+                tick,
+                TickSample {
+                    regulating: true,
+                    dac_code: last_computed.dac_code,
+                    cmd_ma: fx_exact(ctl.drive_ma()),
+                    ceiling_ma: fx_exact(ctl.ceiling_ma()),
+                    p_mw,
+                    monitor_mw: fx_exact(ctl.measurements().monitor_mw),
+                    setpoint_mw: (ctl.mode() == Mode::Apc).then(|| fx_exact(ctl.power_target_mw())),
+                },
+            );
+        } else {
+            watch.cut();
+        }
         if st != last_state {
             res.happenings.push(Happening::State { tick, state: st });
             last_state = st;
@@ -838,6 +853,26 @@ mod tests {
             ramp_peak < 1.05 * ramp_end,
             "ramp: peak {ramp_peak} vs {ramp_end}"
         );
+    }
+
+    /// The hot-path conversion equals the fixed crate's, bit for bit.
+    #[test]
+    fn fx_exact_equals_to_num() {
+        for bits in [
+            i32::MIN,
+            -65_537,
+            -1,
+            0,
+            1,
+            3,
+            65_535,
+            65_536,
+            1_234_567,
+            i32::MAX,
+        ] {
+            let v = Fx::from_bits(bits);
+            assert_eq!(fx_exact(v).to_bits(), to_f(v).to_bits(), "{bits}");
+        }
     }
 
     /// The same scenario and seed give the same trace bit for bit; another
