@@ -50,10 +50,10 @@ pub const RINGING_DECAY: f64 = 0.5;
 /// pinned there (our choice).
 pub const PINNED_SHARE: f64 = 0.9;
 /// Longest steady window analysed, ticks (the end of a longer stretch).
-pub const WINDOW_TICKS: usize = 1024;
+pub const WINDOW_TICKS: usize = 512;
 /// Longest period searched by the run summary's detector, ticks (the
 /// autocorrelation costs the window length per lag).
-pub const MAX_PERIOD_TICKS: usize = 128;
+pub const MAX_PERIOD_TICKS: usize = 64;
 /// Shortest steady window analysed, ticks (eight periods of the shortest
 /// oscillation, two ticks, plus its lags).
 pub const MIN_TICKS: usize = 24;
@@ -508,8 +508,12 @@ mod tests {
         assert!(o.slew_bound, "a 20 mA move with a 20 mA/tick slew");
         assert!((o.pp_steps / 2000.0 - 1.0).abs() < 0.02, "{}", o.pp_steps);
         assert!((o.power_pp_mw / 8.0 - 1.0).abs() < 0.02);
-        // The window is the last three quarters of the stretch.
-        assert_eq!((f[0].from_tick, f[0].to_tick), (250, 999));
+        // The window is the last three quarters of the stretch, at most
+        // WINDOW_TICKS.
+        assert_eq!(
+            (f[0].from_tick, f[0].to_tick),
+            (1000 - WINDOW_TICKS as u64, 999)
+        );
         let line = f[0].to_string();
         assert!(
             line.contains("LIMIT CYCLE") && line.contains("500.0 Hz"),
