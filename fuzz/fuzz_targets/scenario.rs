@@ -30,7 +30,7 @@ fuzz_target!(|data: &[u8]| {
     if sc.duration_ms * 1e-3 * f64::from(tick_hz) > RUN_TICKS {
         return;
     }
-    let res = diodestat_sim::sim::run(&sc, &module, valid).expect("a checked scenario runs");
+    let res = diodestat_sim::sim::run(&sc, &module, valid, Default::default()).expect("a checked scenario runs");
     assert!(res.peak_mw.is_finite(), "peak {}", res.peak_mw);
     for r in &res.trace {
         assert!(r.ambient_c.is_finite() && r.tj_c.is_finite(), "{r:?}");

@@ -116,9 +116,14 @@ fn bench(c: &mut Criterion) {
     g.bench_function("quasi_static_100ms", |b| {
         b.iter(|| {
             black_box(
-                sim::run(black_box(&sc), &module, cfg.clone())
-                    .unwrap()
-                    .ticks,
+                sim::run(
+                    black_box(&sc),
+                    &module,
+                    cfg.clone(),
+                    sim::DacLatency::ONE_TICK,
+                )
+                .unwrap()
+                .ticks,
             )
         })
     });

@@ -25,6 +25,7 @@ use crate::board;
 use crate::files::{self, FileError};
 use crate::locate::{locate, plain_message, Place, Seg};
 use crate::plant::DemoModule;
+use crate::sim::DacLatency;
 
 /// Longest board name, characters.
 pub const MAX_NAME_CHARS: usize = 64;
@@ -91,6 +92,20 @@ impl<'de> Deserialize<'de> for GainValue {
     }
 }
 
+/// A drive latency in whole ticks, refused where it stands in the file when
+/// out of range.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LatencyValue(pub DacLatency);
+
+impl<'de> Deserialize<'de> for LatencyValue {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let v = u32::deserialize(d)?;
+        DacLatency::ticks(v)
+            .map(LatencyValue)
+            .map_err(serde::de::Error::custom)
+    }
+}
+
 /// Built-in simulated modules a board file can name.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Deserialize)]
 #[serde(rename_all = "kebab-case")]
@@ -129,6 +144,12 @@ pub struct BoardFile {
     pub module: ModuleName,
     /// Control tick rate, Hz.
     pub tick_hz: u32,
+    /// Whole ticks from a tick's sampling instant until the drive computed
+    /// from it takes effect (host only: the simulator's and the loop
+    /// analysis's timing; not part of the exported configuration or its
+    /// hash). Default 1.
+    #[serde(default)]
+    pub dac_latency_ticks: Option<LatencyValue>,
     /// Drive-current limits.
     pub current: CurrentSection,
     /// Accepted power setpoints.
@@ -556,6 +577,9 @@ pub struct LoadedBoard {
     /// The temperature table file the board file names
     /// (`temperature.table_csv`), an input of every command.
     pub table_csv: Option<PathBuf>,
+    /// Ticks from a sample to its drive taking effect
+    /// (`dac_latency_ticks`, default 1).
+    pub latency: DacLatency,
 }
 
 /// Read and validate a board file named on the command line.
@@ -598,6 +622,9 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
         ));
     }
     let module = file.module.module();
+    let latency = file
+        .dac_latency_ticks
+        .map_or(DacLatency::default(), |l| l.0);
     let max_overshoot_pct = match &file.loop_check {
         Some(l)
             if !(l.max_overshoot_pct.is_finite()
@@ -639,6 +666,7 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
             .table_csv
             .as_ref()
             .map(|c| base_dir.join(c)),
+        latency,
     })
 }
 
@@ -1403,6 +1431,26 @@ table_points = 25
         let e = err(&with("-1"));
         assert!(e.contains("loop_check.max_overshoot_pct"), "{e}");
         assert!(e.contains("-1"), "{e}");
+    }
+
+    #[test]
+    fn dac_latency_defaults_to_one_tick_and_is_checked_where_it_stands() {
+        let b = parse_board(MINIMAL, Path::new("dir")).unwrap();
+        assert_eq!(b.latency, DacLatency::ONE_TICK);
+        let with = |v: &str| {
+            MINIMAL.replace(
+                "tick_hz = 20000",
+                &format!("tick_hz = 20000\ndac_latency_ticks = {v}"),
+            )
+        };
+        let b = parse_board(&with("3"), Path::new("dir")).unwrap();
+        assert_eq!(b.latency.get(), 3);
+        for bad in ["0", "17"] {
+            let e = err(&with(bad));
+            assert!(e.contains("dac_latency_ticks"), "{e}");
+            assert!(e.contains(&format!("{bad} ticks: must be 1..=16")), "{e}");
+            assert!(e.contains("line 5"), "{e}");
+        }
     }
 
     #[test]

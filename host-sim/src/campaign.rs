@@ -3,8 +3,9 @@
 //!
 //! A case is **unsafe** when the fault was not latched (for faults that must
 //! latch), when the optical power stayed above the optical ceiling by more
-//! than the margin for more than one tick, or when the facet reached its
-//! damage limit. Faults the core is meant to ride through (an aging step, a
+//! than the margin for longer than the firmware can react (one tick until
+//! the next sample sees the fault, plus the board's drive latency), or when
+//! the facet reached its damage limit. Faults the core is meant to ride through (an aging step, a
 //! heatsink-fan loss that only derates) are safe without a latch as long as
 //! the power stays within the ceiling.
 
@@ -16,7 +17,7 @@ use diodestat_core::{State, ValidConfig};
 
 use crate::plant::DemoModule;
 use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, Scenario};
-use crate::sim::{self, Happening};
+use crate::sim::{self, DacLatency, Happening};
 use crate::stability::corners::{SLOPE_SPREAD, THRESHOLD_SPREAD};
 
 /// When the fault is injected.
@@ -344,12 +345,13 @@ pub fn run_case(
     corner: &Corner,
     ceiling_mw: f64,
     margin: f64,
+    latency: DacLatency,
 ) -> Result<CaseResult, String> {
     let plan = Plan::new(module, cfg);
     let fault = plan.fault(fault);
     let (sc, _inject_ms) = scenario(module_name, &plan, fault, moment, corner);
     let module = module.with_spread(corner.threshold, corner.slope);
-    let res = sim::run(&sc, &module, cfg.clone()).map_err(|e| e.to_string())?;
+    let res = sim::run(&sc, &module, cfg.clone(), latency).map_err(|e| e.to_string())?;
     let inject_tick = res
         .happenings
         .iter()
@@ -399,7 +401,10 @@ pub fn run_case(
         && res.trace.iter().all(|r| !r.state.is_emitting())
         && res.final_state == State::Off;
     let detected = res.final_state == State::Latched || refused;
-    let safe = (detected || !must_latch) && ticks_over <= 1 && !res.damaged;
+    // The fastest firmware: the next sample sees the fault, its drive takes
+    // effect the latency later.
+    let reaction_ticks = 1 + u64::from(latency.get());
+    let safe = (detected || !must_latch) && ticks_over <= reaction_ticks && !res.damaged;
     let latency_ticks = first_fault_tick.map(|t| t - inject_tick);
     Ok(CaseResult {
         fault: fault.name(),
@@ -427,6 +432,7 @@ pub fn run(
     module: &DemoModule,
     cfg: &ValidConfig,
     margin: f64,
+    latency: DacLatency,
 ) -> Result<Vec<CaseResult>, String> {
     let ceiling_mw = cfg.config().protection.runaway_mw.to_num::<f64>();
     let moments = [
@@ -455,7 +461,17 @@ pub fn run(
     let out: Result<Vec<_>, String> = cases
         .par_iter()
         .map(|(f, m, c)| {
-            let r = run_case(module_name, module, cfg, *f, *m, c, ceiling_mw, margin);
+            let r = run_case(
+                module_name,
+                module,
+                cfg,
+                *f,
+                *m,
+                c,
+                ceiling_mw,
+                margin,
+                latency,
+            );
             pb.inc(1);
             r
         })

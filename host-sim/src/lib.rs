@@ -18,6 +18,7 @@ pub mod campaign;
 pub mod export;
 pub mod files;
 pub mod locate;
+pub mod oscillation;
 pub mod plant;
 pub mod report;
 pub mod scenario;

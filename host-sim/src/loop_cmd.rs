@@ -127,6 +127,7 @@ fn assess_board(
         &b.valid,
         sp,
         lines(max_overshoot_pct),
+        &CornerOptions::for_latency(b.latency),
     )
     .map_err(|e| e.to_string())
 }
@@ -339,7 +340,14 @@ pub fn tune(
     let corners = standard_corners(&b.valid, sp);
     let loops = corners
         .iter()
-        .map(|c| corner_loop(&b.module, &b.valid, c, &CornerOptions::default()))
+        .map(|c| {
+            corner_loop(
+                &b.module,
+                &b.valid,
+                c,
+                &CornerOptions::for_latency(b.latency),
+            )
+        })
         .collect::<Result<Vec<_>, _>>()
         .map_err(|e| e.to_string())?;
     let params: Vec<LoopParams> = loops.iter().map(|l| l.params).collect();
@@ -400,6 +408,7 @@ pub fn tune(
             min_gm_db,
             max_overshoot_pct: overshoot_limit(&b, None),
         },
+        &CornerOptions::for_latency(b.latency),
     )
     .map_err(|e| e.to_string())?;
     print!("{}", margins_table(&a.analyses, min_pm_deg, min_gm_db));

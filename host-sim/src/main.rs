@@ -182,7 +182,8 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
         .map_err(|e| e.to_string())?;
     println!("{}", board_line(&board));
     let t0 = Instant::now();
-    let res = sim::run(&sc, &board.module, board.valid).map_err(|e| e.to_string())?;
+    let res =
+        sim::run(&sc, &board.module, board.valid, board.latency).map_err(|e| e.to_string())?;
     let secs = t0.elapsed().as_secs_f64();
     let stage = Staging::new(out).map_err(|e| e.to_string())?;
     report::write_csv(&stage.path("trace.csv"), &res)
@@ -283,7 +284,7 @@ fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
     println!("{}", board_line(&b));
     let (m, cfg) = (&b.module, &b.valid);
     let t0 = Instant::now();
-    let results = diodestat_sim::campaign::run(&b.name, m, cfg, margin)?;
+    let results = diodestat_sim::campaign::run(&b.name, m, cfg, margin, b.latency)?;
     let ceiling = cfg.config().protection.runaway_mw.to_num::<f64>();
     let md = diodestat_sim::campaign::markdown(&b.name, &results, margin, ceiling);
     let json = serde_json::to_string_pretty(&results).map_err(|e| e.to_string())?;

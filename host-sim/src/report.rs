@@ -155,6 +155,9 @@ pub fn summary(sc: &Scenario, res: &RunResult) -> String {
             }
         );
     }
+    for f in &res.loop_findings {
+        let _ = writeln!(s, "loop: {f}");
+    }
     let _ = writeln!(s, "peak optical power: {:.3} mW", res.peak_mw);
     let _ = writeln!(
         s,

@@ -165,7 +165,7 @@ fn every_shipped_scenario_names_a_board_file_that_loads() {
 fn pump_start_up_regulates_and_the_failed_source_latches_in_one_tick() {
     let p = examples().join("demo-pump-5w/startup.toml");
     let (sc, b) = load(&p);
-    let res = sim::run(&sc, &b.module, b.valid.clone()).unwrap();
+    let res = sim::run(&sc, &b.module, b.valid.clone(), b.latency).unwrap();
     let at = |ms: f64| {
         res.trace
             .iter()

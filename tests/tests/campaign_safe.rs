@@ -17,7 +17,7 @@ fn shipped(name: &str) -> LoadedBoard {
 }
 
 fn every_case_is_safe(b: &LoadedBoard) {
-    let results = campaign::run(&b.name, &b.module, &b.valid, 0.10).unwrap();
+    let results = campaign::run(&b.name, &b.module, &b.valid, 0.10, b.latency).unwrap();
     // Five moments; missed ticks (an event, not a standing state) is not
     // run as a latent fault.
     assert_eq!(
@@ -99,6 +99,7 @@ fn source_failing_high_without_a_hardware_clamp_is_reported_unsafe() {
         &c,
         cfg.config().protection.runaway_mw.to_num::<f64>(),
         0.10,
+        diodestat_sim::sim::DacLatency::ONE_TICK,
     )
     .unwrap();
     assert!(r.detected);
@@ -122,6 +123,7 @@ fn pump_source_failing_high_to_the_output_stage_limit_damages_the_facet() {
         &campaign::CORNERS[0],
         b.config.protection.runaway_mw.to_num::<f64>(),
         0.10,
+        b.latency,
     )
     .unwrap();
     assert!(r.detected && r.latency_ticks == Some(1), "{r:?}");
@@ -149,7 +151,7 @@ fn plausibility_catches_a_degrading_monitor_before_the_rated_power() {
     ] {
         for corner in &campaign::CORNERS {
             let r = campaign::run_case(
-                &b.name, &b.module, &b.valid, fault, moment, corner, ceiling_mw, 0.10,
+                &b.name, &b.module, &b.valid, fault, moment, corner, ceiling_mw, 0.10, b.latency,
             )
             .unwrap();
             assert_eq!(r.core_faults, ["power-implausible"], "{r:?}");
@@ -179,6 +181,7 @@ fn an_intermittent_monitor_contact_latches_monitor_loss() {
             corner,
             ceiling_mw,
             0.10,
+            b.latency,
         )
         .unwrap();
         assert!(r.core_faults.contains(&"monitor-loss"), "{r:?}");
@@ -214,6 +217,7 @@ fn latent_faults_refuse_the_start_or_latch() {
             corner,
             ceiling_mw,
             0.10,
+            b.latency,
         )
         .unwrap();
         assert!(r.detected && r.safe, "{r:?}");

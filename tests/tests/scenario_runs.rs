@@ -22,7 +22,7 @@ fn load(path: &Path) -> Scenario {
 
 fn run(path: &Path, sc: &Scenario) -> RunResult {
     let b = load_board(&sc.board_path(path)).unwrap_or_else(|e| panic!("{e}"));
-    sim::run(sc, &b.module, b.valid).unwrap()
+    sim::run(sc, &b.module, b.valid, b.latency).unwrap()
 }
 
 fn faults(r: &RunResult) -> Vec<&'static str> {

@@ -12,7 +12,7 @@ use diodestat_sim::stability::time_domain::{
     settled_from, small_step_agreement, StepPlan, LIMIT_CYCLE_MIN_STEPS,
 };
 use diodestat_sim::stability::{
-    closed_loop_step_front, corner_loop, standard_corners, CornerLoop, CornerOptions,
+    closed_loop_step_front, corner_loop, standard_corners, CornerLoop, CornerOptions, LoopParams,
 };
 
 fn root() -> PathBuf {
@@ -26,7 +26,15 @@ fn board(name: &str) -> LoadedBoard {
 fn loops(b: &LoadedBoard) -> Vec<CornerLoop> {
     standard_corners(&b.valid, default_setpoint_mw(&b.valid))
         .iter()
-        .map(|c| corner_loop(&b.module, &b.valid, c, &CornerOptions::default()).unwrap())
+        .map(|c| {
+            corner_loop(
+                &b.module,
+                &b.valid,
+                c,
+                &CornerOptions::for_latency(b.latency),
+            )
+            .unwrap()
+        })
         .collect()
 }
 
@@ -171,20 +179,26 @@ fn small_steps_of_the_simulator_follow_the_linear_model() {
             );
             let (s, p) = (a.settling_ms.0.unwrap(), a.settling_ms.1.unwrap());
             assert!((s - p).abs() <= SETTLING_MS, "{who}: settling {s} vs {p}");
-            // The comparison tells timings apart: the hardware model with
-            // one more tick of delay misses the simulator by far more than
-            // the tolerance (on the visible board the 2 % step fits in one
-            // tick of the setpoint ramp, so the prediction is a plain step
-            // response).
+            // The comparison tells timings apart: the linear model with one
+            // tick more or one tick less of delay than the board's latency
+            // misses the simulator by far more than the tolerance (on the
+            // visible board the 2 % step fits in one tick of the setpoint
+            // ramp, so the prediction is a plain step response).
             if name == "demo-red-30" {
-                let late = closed_loop_step_front(&l.params, 200);
-                let dev = a
-                    .simulated
-                    .iter()
-                    .zip(&late)
-                    .map(|(x, y)| (x - y).abs())
-                    .fold(0.0, f64::max);
-                assert!(dev > 3.0 * MAX_DEV, "{who}: late model within {dev}");
+                for d in [l.params.delay_ticks - 1, l.params.delay_ticks + 1] {
+                    let other = LoopParams {
+                        delay_ticks: d,
+                        ..l.params
+                    };
+                    let dev = a
+                        .simulated
+                        .iter()
+                        .zip(&closed_loop_step_front(&other, 200))
+                        .map(|(x, y)| (x - y).abs())
+                        .fold(0.0, f64::max);
+                    println!("{who}: model with {d} ticks of delay misses by {dev:.3}");
+                    assert!(dev > 3.0 * MAX_DEV, "{who}: {d}-tick model within {dev}");
+                }
             }
         }
     }
@@ -251,6 +265,7 @@ fn excessive_integral_gain_fails_on_margins_and_limit_cycles() {
         &b.valid,
         default_setpoint_mw(&b.valid),
         PassLines::default(),
+        &CornerOptions::for_latency(b.latency),
     )
     .unwrap();
     let f = a.findings();

@@ -9,6 +9,14 @@
 //! The source can only put `supply - compliance_v` across the diode: beyond
 //! that it is out of regulation and the diode current is set by the diode's
 //! own I-V curve at that voltage.
+//!
+//! Inside a step the output is the exponential from the current at the
+//! start of the step toward the target, not a jump at the start:
+//! [`Driver::ramp_pieces`] cuts that exponential into pieces of equal
+//! current change with their exact mean currents (for the rate equations,
+//! so the diode sees the source's own rise and no turn-on spike a real
+//! source could not make), and [`Driver::last_rate_per_s`] gives its rate
+//! (for the monitor front end, which filters the continuous signal).
 
 use serde::{Deserialize, Serialize};
 
@@ -91,6 +99,11 @@ pub struct Driver {
     i_lag: f64,
     i_out: f64,
     saturated: bool,
+    /// The last step: output at its start, its target and the rate of the
+    /// exponential between them, 1/s (0: the output was set, not lagged).
+    last_from_a: f64,
+    last_target_a: f64,
+    last_rate_per_s: f64,
     /// Fault hook: the source fails high and drives `fail_high_current_a`;
     /// only the enable line stops it.
     pub fail_high: bool,
@@ -119,6 +132,9 @@ impl Driver {
             i_lag: 0.0,
             i_out: 0.0,
             saturated: false,
+            last_from_a: 0.0,
+            last_target_a: 0.0,
+            last_rate_per_s: 0.0,
             fail_high: false,
             dac_stuck: None,
             sense_gain_error: 1.0,
@@ -147,16 +163,58 @@ impl Driver {
         self.i_out
     }
 
+    /// Rate of the exponential the output followed in the last step, 1/s:
+    /// `1/tau` of the current loop, or of the shutdown when enable was low;
+    /// 0 when the output was set directly (compliance, no supply).
+    #[inline]
+    pub fn last_rate_per_s(&self) -> f64 {
+        self.last_rate_per_s
+    }
+
+    /// The output of the last step of length `dt_s` as consecutive pieces
+    /// `(length s, mean current A)`. The change from the start of the step
+    /// toward the target is cut into `n` equal shares, `n` the change over
+    /// [`RAMP_SHARE_OF_FULL_SCALE`] of full scale, rounded up, at most
+    /// [`MAX_RAMP_PIECES`]: the first `n - 1` pieces each carry one share
+    /// (the first ones short, where the exponential is steep), the next the
+    /// last share over four time constants, the last the rest of the step
+    /// (within e^-4 of that share of the output). Each mean is the exact
+    /// mean of the exponential over its piece. A change of one share or
+    /// less, or an output that was set rather than lagged, is one piece at
+    /// the output current.
+    pub fn ramp_pieces(&self, dt_s: f64) -> RampPieces {
+        let r = self.last_rate_per_s;
+        let (from, to) = (self.last_from_a, self.last_target_a);
+        let share_a = RAMP_SHARE_OF_FULL_SCALE * self.params.full_scale_a();
+        let n = ((self.i_out - from).abs() / share_a)
+            .ceil()
+            .min(MAX_RAMP_PIECES as f64) as usize;
+        let single = r <= 0.0 || n <= 1;
+        RampPieces {
+            from,
+            to,
+            rate: r,
+            dt: dt_s,
+            t: 0.0,
+            n,
+            k: if single { n + 1 } else { 0 },
+            single_a: single.then_some(self.i_out),
+        }
+    }
+
     /// Advances the lag toward the target and returns the unlimited current.
     #[inline]
     fn advance_lag(&mut self, dac_code: u16, enable: bool, dt_s: f64) -> f64 {
+        self.last_from_a = self.i_out;
         let (target, decay) = if !enable {
             if dt_s != self.off_dt {
                 self.off_decay = (-dt_s / self.params.shutdown_tau_s).exp();
                 self.off_dt = dt_s;
             }
+            self.last_rate_per_s = 1.0 / self.params.shutdown_tau_s;
             (0.0, self.off_decay)
         } else {
+            self.last_rate_per_s = 1.0 / self.tau_s;
             if dt_s != self.on_dt {
                 self.on_decay = (-dt_s / self.tau_s).exp();
                 self.on_dt = dt_s;
@@ -168,8 +226,15 @@ impl Driver {
             };
             (t, self.on_decay)
         };
+        self.last_target_a = target;
         self.i_lag = target + (self.i_lag - target) * decay;
         self.i_lag
+    }
+
+    /// The output was set (limited), not lagged, in this step.
+    #[inline]
+    fn set_directly(&mut self) {
+        self.last_rate_per_s = 0.0;
     }
 
     /// Advances the driver by `dt_s` and returns the diode current, A.
@@ -198,12 +263,14 @@ impl Driver {
             i = 0.0;
             self.i_lag = 0.0;
             self.saturated = false;
+            self.set_directly();
         } else if self.i_out > 0.0 && v_f_v > 0.0 && (v_f_v > v_avail || self.saturated) {
             let limit = self.i_out * v_avail / v_f_v;
             self.saturated = i > limit;
             if self.saturated {
                 i = limit;
                 self.i_lag = limit;
+                self.set_directly();
             }
         } else {
             self.saturated = false;
@@ -230,6 +297,7 @@ impl Driver {
         if v_avail <= 0.0 {
             i = 0.0;
             self.i_lag = 0.0;
+            self.set_directly();
         } else if i > 0.0 && v_of_i(i) > v_avail {
             let (mut a, mut b) = (0.0, i);
             let (mut fa, mut fb) = (v_of_i(0.0) - v_avail, v_of_i(i) - v_avail);
@@ -262,6 +330,7 @@ impl Driver {
                 i = a;
             }
             self.i_lag = i;
+            self.set_directly();
         }
         self.i_out = i;
         i
@@ -271,6 +340,65 @@ impl Driver {
     #[inline]
     pub fn sense_voltage(&self, i_a: f64) -> f64 {
         i_a * self.params.sense_ohm * self.params.sense_gain * self.sense_gain_error
+    }
+}
+
+/// Largest current change of one piece of [`Driver::ramp_pieces`], share of
+/// the full-scale current (our choice: a step of the rate equations this
+/// small rings by about 1 % of the output).
+pub const RAMP_SHARE_OF_FULL_SCALE: f64 = 1.0 / 200.0;
+/// Most pieces of equal current change [`Driver::ramp_pieces`] cuts the
+/// rise of a step into (then one more to the end of the step).
+pub const MAX_RAMP_PIECES: usize = 64;
+
+/// The pieces of one driver step (see [`Driver::ramp_pieces`]).
+#[derive(Clone, Debug)]
+pub struct RampPieces {
+    from: f64,
+    to: f64,
+    rate: f64,
+    dt: f64,
+    t: f64,
+    k: usize,
+    single_a: Option<f64>,
+    n: usize,
+}
+
+impl Iterator for RampPieces {
+    type Item = (f64, f64);
+
+    fn next(&mut self) -> Option<(f64, f64)> {
+        if let Some(i) = self.single_a.take() {
+            return Some((self.dt, i));
+        }
+        if self.k > self.n || self.t >= self.dt {
+            return None;
+        }
+        self.k += 1;
+        // The share k/n of the change is done at t = -ln(1 - k/n) / rate;
+        // the last share gets four time constants, then the rest.
+        let end = if self.k < self.n {
+            let share = self.k as f64 / self.n as f64;
+            (-(1.0 - share).ln() / self.rate).min(self.dt)
+        } else if self.k == self.n {
+            (self.t + 4.0 / self.rate).min(self.dt)
+        } else {
+            self.dt
+        };
+        let (t0, h) = (self.t, end - self.t);
+        self.t = end;
+        if end >= self.dt {
+            self.k = self.n + 1;
+        }
+        if h <= 0.0 {
+            return None;
+        }
+        // Mean of to + (from - to) e^{-rate t} over [t0, end].
+        let (e0, e1) = ((-self.rate * t0).exp(), (-self.rate * end).exp());
+        Some((
+            h,
+            self.to + (self.from - self.to) * (e0 - e1) / (self.rate * h),
+        ))
     }
 }
 
@@ -327,6 +455,36 @@ mod tests {
         assert!((d.current_a() - d.setpoint_a(2048)).abs() < 1e-9);
         d.sense_gain_error = 1.1;
         assert!((d.sense_voltage(0.05) - 0.05 * 40.0 * 1.1).abs() < 1e-15);
+    }
+
+    /// The pieces of a step tile it, each carries 1/N of the change, and
+    /// their mean currents integrate the exponential exactly (charge).
+    #[test]
+    fn ramp_pieces_tile_the_step_and_keep_its_charge() {
+        let mut d = Driver::new(params()).unwrap();
+        let dt = 50e-6;
+        d.step(2000, true, 2.0, 5.0, dt);
+        let target = d.setpoint_a(2000);
+        // 29 mA of a 60 mA full scale: 98 shares of 0.3 mA, at most 64.
+        let r = d.last_rate_per_s();
+        let pieces: Vec<(f64, f64)> = d.ramp_pieces(dt).collect();
+        assert_eq!(pieces.len(), MAX_RAMP_PIECES + 1);
+        let total: f64 = pieces.iter().map(|p| p.0).sum();
+        assert!((total - dt).abs() < 1e-18);
+        let charge: f64 = pieces.iter().map(|p| p.0 * p.1).sum();
+        let exact = target * dt - target * (1.0 - (-r * dt).exp()) / r;
+        assert!(
+            (charge - exact).abs() < 1e-12 * exact,
+            "{charge} vs {exact}"
+        );
+        // Means rise monotonically toward the target, the first well below
+        // it: a ramp, not a step at the start of the tick.
+        assert!(pieces.windows(2).all(|w| w[1].1 > w[0].1));
+        assert!(pieces[0].1 < 0.1 * target);
+        // Settled: one piece at the output.
+        d.step(2000, true, 2.0, 5.0, dt);
+        let p: Vec<(f64, f64)> = d.ramp_pieces(dt).collect();
+        assert_eq!(p, vec![(dt, d.current_a())]);
     }
 
     #[test]

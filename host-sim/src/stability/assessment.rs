@@ -208,7 +208,8 @@ pub struct Assessment {
 }
 
 /// Assesses `board` (`module` driven by `cfg`) at the standard corners at
-/// `setpoint_mw`.
+/// `setpoint_mw`, with the loop timed by `opts` (the board's latency) in
+/// both the linear analysis and the simulator.
 pub fn assess(
     board: &str,
     module_name: &str,
@@ -216,14 +217,13 @@ pub fn assess(
     cfg: &ValidConfig,
     setpoint_mw: f64,
     lines: PassLines,
+    opts: &CornerOptions,
 ) -> Result<Assessment, AssessError> {
     let corners = standard_corners(cfg, setpoint_mw);
     let analyses =
-        analyse_corners(module, cfg, &corners, &CornerOptions::default()).map_err(|source| {
-            AssessError::Corner {
-                board: board.into(),
-                source,
-            }
+        analyse_corners(module, cfg, &corners, opts).map_err(|source| AssessError::Corner {
+            board: board.into(),
+            source,
         })?;
     let plan = StepPlan::for_config(cfg);
     let loops: Vec<_> = analyses.iter().map(|a| a.corner.clone()).collect();

@@ -29,7 +29,8 @@
 //!   commanded, without quantisation);
 //! * the driver pole is the module's driver bandwidth, the monitor pole the
 //!   simulator's front-end filter ([`crate::sim::MONITOR_FILTER_HZ`]), the
-//!   delay one tick unless set otherwise.
+//!   delay the board's drive latency ([`CornerOptions::for_latency`]; one
+//!   tick by default).
 //!
 //! Spreads map onto the rate-equation model by
 //! [`DemoModule::with_spread`]. The standard spreads here are demo values,
@@ -38,7 +39,7 @@
 use diodestat_core::{Fx, ValidConfig};
 
 use crate::plant::{c_to_k, k_to_c, DemoModule, Diode, DiodeParams, Monitor, PlantError, Thermal};
-use crate::sim::MONITOR_FILTER_HZ;
+use crate::sim::{DacLatency, MONITOR_FILTER_HZ};
 
 use super::design::{design_pi, Design, DesignError, DesignSpec};
 use super::loop_model::{loop_margins, LoopParams};
@@ -178,13 +179,21 @@ pub struct CornerOptions {
     pub monitor_filter_hz: f64,
 }
 
-impl Default for CornerOptions {
-    /// One tick of delay, the simulator's monitor filter.
-    fn default() -> Self {
+impl CornerOptions {
+    /// The simulator's timing for a board whose drive takes effect
+    /// `latency` after its sample, with the simulator's monitor filter.
+    pub fn for_latency(latency: DacLatency) -> Self {
         CornerOptions {
-            delay_ticks: 1,
+            delay_ticks: latency.get(),
             monitor_filter_hz: MONITOR_FILTER_HZ,
         }
+    }
+}
+
+impl Default for CornerOptions {
+    /// The default latency (one tick), the simulator's monitor filter.
+    fn default() -> Self {
+        Self::for_latency(DacLatency::default())
     }
 }
 

@@ -14,8 +14,10 @@
 //! * `z^-d`: whole ticks between the sampling instant and the DAC update,
 //!   on top of the hold. `d = 1`: the output computed from the sample of
 //!   tick `n` is written at tick `n+1` (a synchronous DAC update, the
-//!   core's "applied at the next tick"). `d = 0`: written at the sampling
-//!   instant (the host simulator's order: sample, step, advance).
+//!   core's "applied at the next tick"), the default board latency and
+//!   the host simulator's timing (`crate::sim::DacLatency`). `d = 0`:
+//!   written at the sampling instant, which no board can do (kept for
+//!   comparisons).
 //! * The DAC holds its value for a tick (zero-order hold). The driver's
 //!   current loop is a first-order lag at `driver_bandwidth_hz`, the diode
 //!   is linearised to its slope `dP/dI` at the operating point, the monitor

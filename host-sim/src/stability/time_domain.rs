@@ -60,32 +60,25 @@
 //!
 //! The linear model predicts these responses at small amplitude;
 //! [`small_step_agreement`] compares a small setpoint step of the
-//! simulator with it. The simulator samples, steps the core and applies
-//! the drive within one tick, and its monitor front end is a per-tick
-//! smoother, so the matching linear loop has no whole-tick delay and the
-//! [`Discretisation::SampledSmoother`] monitor (the margins report uses
-//! one tick of delay, as on hardware).
+//! simulator with it. Both are timed alike: the simulator applies each
+//! drive the corner loop's `delay_ticks` after its sample (the board's
+//! latency) and filters the continuous monitor signal exactly, so the
+//! matching linear loop is the very one the margins are taken on
+//! ([`Discretisation::ExactZoh`] with the board's delay).
 
 use diodestat_core::{State, ValidConfig};
 use rayon::prelude::*;
 
 use crate::plant::{DemoModule, PlantError};
 use crate::scenario::{Action, DiodeModel, Event, HwFault, Scenario};
-use crate::sim::{self, Happening, RunResult, TraceRow};
+use crate::sim::{self, DacLatency, Happening, RunResult, TraceRow};
 
 use super::corners::{CornerLoop, PlantCorner};
 use super::loop_model::{closed_loop_step_front_with, Discretisation};
 
 /// Settling band, fraction of the final value (±1 %).
 pub const SETTLING_BAND: f64 = 0.01;
-/// Normalised autocorrelation at the period for an oscillation to count
-/// as periodic (our choice).
-pub const PERIODIC_CORRELATION: f64 = 0.5;
-/// Peak-to-peak amplitude, in DAC steps of optical power, above which a
-/// periodic oscillation is a limit cycle (our choice; hunting by one code
-/// either side is common practice for an integrating loop with quantised
-/// converters).
-pub const LIMIT_CYCLE_MIN_STEPS: f64 = 2.5;
+pub use crate::oscillation::{detrend, periodicity, LIMIT_CYCLE_MIN_STEPS, PERIODIC_CORRELATION};
 
 /// What the time-domain run does (see the module documentation).
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -399,65 +392,6 @@ pub fn overshoot_pct(xs: &[f64], initial: f64, final_value: f64) -> f64 {
     100.0 * beyond
 }
 
-/// The period (ticks) and normalised autocorrelation of the strongest
-/// periodic component of `xs` after removing its least-squares line: the
-/// first autocorrelation peak after the first zero crossing that comes
-/// within 10 % of the highest, lags up to a third of the length; `None` if
-/// flat or no peak reaches [`PERIODIC_CORRELATION`].
-pub fn periodicity(xs: &[f64]) -> Option<(usize, f64)> {
-    let d = detrend(xs);
-    let n = d.len();
-    let r0 = d.iter().map(|x| x * x).sum::<f64>() / n as f64;
-    if n < 8 || r0 <= 1e-24 {
-        return None;
-    }
-    let r = |k: usize| {
-        d[..n - k]
-            .iter()
-            .zip(&d[k..])
-            .map(|(a, b)| a * b)
-            .sum::<f64>()
-            / (n - k) as f64
-            / r0
-    };
-    let max_lag = n / 3;
-    let first_neg = (1..=max_lag).find(|&k| r(k) < 0.0)?;
-    let rs: Vec<f64> = (first_neg..=max_lag).map(r).collect();
-    let top = rs.iter().copied().fold(f64::MIN, f64::max);
-    if top < PERIODIC_CORRELATION {
-        return None;
-    }
-    // The fundamental: the first peak within 10 % of the highest (the
-    // multiples of the period peak nearly as high).
-    let i = (0..rs.len()).find(|&i| {
-        rs[i] >= 0.9 * top
-            && rs.get(i + 1).is_none_or(|n| *n <= rs[i])
-            && (i == 0 || rs[i - 1] <= rs[i])
-    })?;
-    Some((first_neg + i, rs[i]))
-}
-
-/// `xs` minus its least-squares straight line.
-pub fn detrend(xs: &[f64]) -> Vec<f64> {
-    let n = xs.len() as f64;
-    if xs.len() < 2 {
-        return vec![0.0; xs.len()];
-    }
-    let mx = (n - 1.0) / 2.0;
-    let my = xs.iter().sum::<f64>() / n;
-    let (mut sxy, mut sxx) = (0.0, 0.0);
-    for (i, y) in xs.iter().enumerate() {
-        let dx = i as f64 - mx;
-        sxy += dx * (y - my);
-        sxx += dx * dx;
-    }
-    let b = sxy / sxx;
-    xs.iter()
-        .enumerate()
-        .map(|(i, y)| y - my - b * (i as f64 - mx))
-        .collect()
-}
-
 /// The periodic oscillation of a steady stretch of optical power, if any.
 pub fn oscillation_in(
     p_mw: &[f64],
@@ -600,8 +534,20 @@ fn step_figures(
     }
 }
 
+/// The simulator's latency for `corner`: the whole-tick delay of its
+/// linear loop, so both are timed alike.
+fn latency_of(corner: &CornerLoop) -> Result<DacLatency, TimeDomainError> {
+    let d = corner.params.delay_ticks;
+    DacLatency::ticks(d).map_err(|_| TimeDomainError::Plan {
+        what: "delay_ticks",
+        value: f64::from(d),
+        requirement: "1..=16 ticks (the simulator cannot apply a drive at its sampling instant)",
+    })
+}
+
 /// Runs the time-domain checks of one corner (its loop from
-/// [`super::corner_loop`] gives the DAC step in optical power).
+/// [`super::corner_loop`] gives the DAC step in optical power, its delay
+/// the simulator's latency).
 pub fn corner_response(
     module: &DemoModule,
     cfg: &ValidConfig,
@@ -635,16 +581,19 @@ pub fn corner_response(
         corner: c.name.clone(),
         source,
     };
+    let latency = latency_of(corner)?;
     let noisy = sim::run(
         &scenario(c, plan, low, plan.seed),
         &corner_module(module, c, false),
         cfg.clone(),
+        latency,
     )
     .map_err(plant_err)?;
     let quiet = sim::run(
         &scenario(c, plan, low, 0),
         &corner_module(module, c, true),
         cfg.clone(),
+        latency,
     )
     .map_err(plant_err)?;
     let tr = &noisy.trace;
@@ -742,9 +691,8 @@ pub struct Agreement {
 /// Steps the setpoint of the noise-free simulator at `corner` by
 /// `fraction` of the setpoint after `settle_ms`, and compares the optical
 /// power change over `ticks` ticks with the linear loop at the same
-/// corner, timed as the simulator is (no whole-tick delay, sampled
-/// smoother for the monitor front end), driven by the setpoint ramp the
-/// core applies (its configured mW per tick). The simulated change is
+/// corner (the margins' loop: the board's delay, exact ZOH), driven by the
+/// setpoint ramp the core applies (its configured mW per tick). The simulated change is
 /// normalised by its mean over the last tenth of the window.
 pub fn small_step_agreement(
     module: &DemoModule,
@@ -801,11 +749,15 @@ pub fn small_step_agreement(
         trace_every: 1,
         events,
     };
-    let res = sim::run(&sc, &corner_module(module, c, true), cfg.clone()).map_err(|source| {
-        TimeDomainError::Plant {
-            corner: c.name.clone(),
-            source,
-        }
+    let res = sim::run(
+        &sc,
+        &corner_module(module, c, true),
+        cfg.clone(),
+        latency_of(corner)?,
+    )
+    .map_err(|source| TimeDomainError::Plant {
+        corner: c.name.clone(),
+        source,
     })?;
     let p: Vec<f64> = res.trace.iter().map(|r| r.p_mw).collect();
     let before = mean(p[k0.saturating_sub(20)..k0].iter().copied());
@@ -816,9 +768,7 @@ pub fn small_step_agreement(
         .collect();
     let fin = mean(raw[ticks - ticks / 10..].iter().copied());
     let simulated: Vec<f64> = raw.iter().map(|x| x / fin).collect();
-    let mut lp = corner.params;
-    lp.delay_ticks = 0;
-    let unit = closed_loop_step_front_with(&lp, Discretisation::SampledSmoother, ticks);
+    let unit = closed_loop_step_front_with(&corner.params, Discretisation::ExactZoh, ticks);
     // The core moves its setpoint toward the request by a configured
     // amount per tick: the linear input is that ramp, the response the
     // sum of the step responses of its increments.
