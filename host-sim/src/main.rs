@@ -7,7 +7,7 @@ use std::time::Instant;
 use clap::{Parser, Subcommand};
 use diodestat_sim::boardfile::{load_board, LoadedBoard};
 use diodestat_sim::plant::DemoModule;
-use diodestat_sim::{report, scenario, sim};
+use diodestat_sim::{check, report};
 
 mod loop_cmd;
 
@@ -24,13 +24,22 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Cmd {
-    /// Run a scenario file: CSV trace, SVG plot and a printed summary.
+    /// Run a scenario file: CSV trace, SVG plot, summary (printed, summary.txt, summary.json); exits non-zero when an expectation fails.
     Run {
         /// Scenario file (TOML).
         scenario: PathBuf,
-        /// Output folder for trace.csv and plot.svg.
+        /// Output folder for trace.csv, plot.svg, summary.txt and summary.json.
         #[arg(long, default_value = "out")]
         out: PathBuf,
+    },
+    /// Run scenarios as a test suite: a table of their expectations, optional JUnit XML; exits non-zero on any failure.
+    Check {
+        /// Scenario files, or folders searched for scenarios (TOML files with a `board` key).
+        #[arg(required = true)]
+        paths: Vec<PathBuf>,
+        /// Write the results as JUnit XML to this file.
+        #[arg(long)]
+        junit: Option<PathBuf>,
     },
     /// L-I-V sweep of a demo module's diode at chosen temperatures (CSV and SVG).
     Liv {
@@ -131,18 +140,20 @@ fn module_by_name(name: &str) -> Result<DemoModule, String> {
     }
 }
 
-fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
-    let text = std::fs::read_to_string(path).map_err(|e| format!("{}: {e}", path.display()))?;
-    let sc = scenario::parse(&text).map_err(|e| format!("{}: {e}", path.display()))?;
-    let board = load_board(&sc.board_path(path)).map_err(|e| e.to_string())?;
-    println!("{}", board_line(&board));
-    let t0 = Instant::now();
-    let res = sim::run(&sc, &board.module, board.valid).map_err(|e| e.to_string())?;
-    let secs = t0.elapsed().as_secs_f64();
+fn run(path: &Path, out: &Path) -> Result<(), String> {
+    let ran = check::run_file(path)?;
+    let (sc, res, secs) = (&ran.scenario, &ran.result, ran.seconds);
+    println!("{}", board_line(&ran.board));
+    let summary = report::summary(sc, res, ran.outcomes.clone());
     std::fs::create_dir_all(out).map_err(|e| format!("{}: {e}", out.display()))?;
-    report::write_csv(&out.join("trace.csv"), &res).map_err(|e| e.to_string())?;
-    report::write_svg(&out.join("plot.svg"), &sc.name, &res)?;
-    print!("{}", report::summary(&sc, &res));
+    report::write_csv(&out.join("trace.csv"), res).map_err(|e| e.to_string())?;
+    report::write_svg(&out.join("plot.svg"), &sc.name, res)?;
+    let text = summary.text();
+    std::fs::write(out.join("summary.txt"), &text)
+        .map_err(|e| format!("{}: {e}", out.join("summary.txt").display()))?;
+    std::fs::write(out.join("summary.json"), summary.json())
+        .map_err(|e| format!("{}: {e}", out.join("summary.json").display()))?;
+    print!("{text}");
     println!(
         "timing: {} ticks in {:.3} s = {:.2} Mticks/s ({:.0}x real time)",
         res.ticks,
@@ -151,10 +162,38 @@ fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
         res.ticks as f64 / f64::from(res.tick_hz) / secs
     );
     println!(
-        "wrote {} and {}",
+        "wrote {}, {}, {} and {}",
         out.join("trace.csv").display(),
-        out.join("plot.svg").display()
+        out.join("plot.svg").display(),
+        out.join("summary.txt").display(),
+        out.join("summary.json").display()
     );
+    let failed = ran.outcomes.iter().filter(|o| !o.passed).count();
+    if failed > 0 {
+        return Err(format!(
+            "{failed} of {} expectations failed (see FAIL above)",
+            ran.outcomes.len()
+        ));
+    }
+    Ok(())
+}
+
+fn check_cmd(paths: &[PathBuf], junit: Option<&Path>) -> Result<(), String> {
+    let files = check::collect(paths)?;
+    if files.is_empty() {
+        return Err("no scenario files found".into());
+    }
+    let cases: Vec<check::Case> = files.iter().map(|f| check::Case::run(f)).collect();
+    print!("{}", check::table(&cases));
+    if let Some(j) = junit {
+        std::fs::write(j, check::junit(&cases))
+            .map_err(|e| format!("--junit {}: {e}", j.display()))?;
+        println!("wrote {}", j.display());
+    }
+    let failed = cases.iter().filter(|c| !c.passed()).count();
+    if failed > 0 {
+        return Err(format!("{failed} of {} scenarios failed", cases.len()));
+    }
     Ok(())
 }
 
@@ -264,6 +303,7 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let r = match &cli.cmd {
         Cmd::Run { scenario, out } => run(scenario, out),
+        Cmd::Check { paths, junit } => check_cmd(paths, junit.as_deref()),
         Cmd::Liv {
             module,
             temps_c,

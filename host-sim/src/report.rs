@@ -1,13 +1,17 @@
-//! Run reports: the printed summary (settling, overshoot, peak power,
-//! faults with their latency), the CSV trace and the SVG plot.
+//! Run reports: the run summary ([`Summary`]: step figures, refused
+//! requests, unreachable setpoints with the shortfall, warnings with when,
+//! faults with their latency, expectations; printed as text and written as
+//! `summary.json`), the CSV trace and the SVG plot.
 
 use std::fmt::Write as _;
 use std::path::Path;
 
-use diodestat_core::State;
+use diodestat_core::{Fault, State};
 use plotters::prelude::*;
+use serde::Serialize;
 
-use crate::scenario::{Action, Scenario};
+use crate::expect::Outcome;
+use crate::scenario::{Action, ModeName, Scenario};
 use crate::sim::{Happening, RunResult, TraceRow};
 use crate::stability::time_domain::{on_ceiling, overshoot_pct, settled_from, SETTLING_BAND};
 
@@ -26,15 +30,18 @@ interlock gating of the enable line, an independent watchdog and eye protection.
 local regulations and your site's laser safety officer.";
 
 /// Step-response figures of one stretch of regulation: from the hand-over
-/// or from a setpoint request, up to the next scenario event or the end of
-/// Regulating (so a later fault or ambient step does not count as
-/// overshoot of the step before it).
-#[derive(Clone, Debug, PartialEq)]
+/// or from an accepted setpoint or mode request, up to the next scenario
+/// event or the end of Regulating (so a later fault or ambient step does
+/// not count as overshoot of the step before it). Refused requests start
+/// no stretch.
+#[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Figures {
     /// What started the stretch.
     pub label: String,
     /// Start of the stretch, ms.
     pub start_ms: f64,
+    /// Mode in force during the stretch (`apc` or `acc`).
+    pub mode: &'static str,
     /// Optical power before the stretch, mW (0 for the hand-over).
     pub initial_mw: f64,
     /// Final value (mean of the last 5 % of the stretch), mW.
@@ -47,28 +54,89 @@ pub struct Figures {
     /// The drive ended the stretch on its ceiling: the request was beyond
     /// what the ceiling in force allows.
     pub on_ceiling: bool,
+    /// The setpoint in force (mW in APC, mA in ACC), if one was requested.
+    pub target: Option<Target>,
+}
+
+/// A setpoint in force, what the run reached and how far short it fell.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Target {
+    /// The setpoint.
+    pub setpoint: f64,
+    /// Its unit: `mW` (APC, front power) or `mA` (ACC, drive current).
+    pub unit: &'static str,
+    /// Reached (final front power, or final drive current), same unit.
+    pub reached: f64,
+    /// Setpoint minus reached, when the drive sat on its ceiling.
+    pub shortfall: Option<f64>,
 }
 
 /// Fewest trace rows a stretch needs for its figures to mean anything.
 const MIN_ROWS: usize = 20;
 
+/// Shortest time on the ceiling reported as an unreachable setpoint, ms
+/// (shorter touches are slew transients).
+pub const MIN_ON_CEILING_MS: f64 = 5.0;
+
+/// The requests a run refused: indices into the scenario's events.
+fn refused_events(res: &RunResult) -> Vec<usize> {
+    res.happenings
+        .iter()
+        .filter_map(|h| match h {
+            Happening::Rejected { event, .. } => Some(*event),
+            _ => None,
+        })
+        .collect()
+}
+
+/// Setpoints and mode in force after every accepted request up to `t_ms`
+/// (inclusive): (power setpoint mW, current setpoint mA, mode).
+fn in_force(sc: &Scenario, refused: &[usize], t_ms: f64) -> (Option<f64>, Option<f64>, ModeName) {
+    let mut order: Vec<usize> = (0..sc.events.len()).collect();
+    order.sort_by(|&a, &b| sc.events[a].at_ms.total_cmp(&sc.events[b].at_ms));
+    let (mut p, mut i, mut mode) = (None, None, ModeName::Apc);
+    for k in order {
+        let e = &sc.events[k];
+        if e.at_ms > t_ms || refused.contains(&k) {
+            continue;
+        }
+        match e.action {
+            Action::SetPower { mw } => p = Some(mw),
+            Action::SetCurrent { ma } => i = Some(ma),
+            Action::Mode { mode: m } => mode = m,
+            _ => {}
+        }
+    }
+    (p, i, mode)
+}
+
+fn mode_name(m: ModeName) -> &'static str {
+    match m {
+        ModeName::Apc => "apc",
+        ModeName::Acc => "acc",
+    }
+}
+
 /// The figures of every stretch of regulation that starts at the hand-over,
-/// a set-power or set-current request or a mode change.
+/// an accepted set-power or set-current request or an accepted mode change.
 pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
     let tr = &res.trace;
     let ms = |r: &TraceRow| r.t_s * 1e3;
+    let refused = refused_events(res);
     let mut starts: Vec<(f64, String)> = Vec::new();
     if let Some(h) = tr.iter().find(|r| r.state == State::Regulating) {
         starts.push((ms(h), "start-up (from hand-over)".into()));
     }
-    for e in &sc.events {
+    for (k, e) in sc.events.iter().enumerate() {
+        if refused.contains(&k) {
+            continue;
+        }
         match e.action {
             Action::SetPower { mw } => starts.push((e.at_ms, format!("set power {mw} mW"))),
             Action::SetCurrent { ma } => starts.push((e.at_ms, format!("set current {ma} mA"))),
-            Action::Mode { mode } => starts.push((
-                e.at_ms,
-                format!("mode {}", format!("{mode:?}").to_uppercase()),
-            )),
+            Action::Mode { mode } => {
+                starts.push((e.at_ms, format!("mode {}", mode_name(mode).to_uppercase())))
+            }
             _ => {}
         }
     }
@@ -96,7 +164,8 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
         if w.len() < MIN_ROWS {
             continue;
         }
-        let tail = &w[w.len() - w.len() / 20..];
+        let n_tail = w.len() / 20;
+        let tail = &w[w.len() - n_tail..];
         let final_mw = tail.iter().sum::<f64>() / tail.len() as f64;
         let initial_mw = if label.starts_with("start-up") {
             0.0
@@ -108,9 +177,24 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
         } else {
             0.0
         };
-        let on_ceiling = on_ceiling(&tr[b - tail.len()..b]);
+        let on_ceiling = on_ceiling(&tr[b - n_tail..b]);
+        let (p_sp, i_sp, mode) = in_force(sc, &refused, t0);
+        let target = match mode {
+            ModeName::Apc => p_sp.map(|sp| (sp, "mW", final_mw)),
+            ModeName::Acc => i_sp.map(|sp| {
+                let i = tr[b - n_tail..b].iter().map(|r| r.i_ma).sum::<f64>() / n_tail as f64;
+                (sp, "mA", i)
+            }),
+        }
+        .map(|(setpoint, unit, reached)| Target {
+            setpoint,
+            unit,
+            reached,
+            shortfall: on_ceiling.then_some(setpoint - reached),
+        });
         out.push(Figures {
             label,
+            mode: mode_name(mode),
             on_ceiling,
             start_ms: ms(&tr[a]),
             initial_mw,
@@ -118,59 +202,149 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
             overshoot_pct: overshoot_pct(&w, initial_mw, final_mw),
             settling_ms: settled_from(&w, final_mw, SETTLING_BAND * final_mw.abs())
                 .map(|i| i as f64 * row_ms),
+            target,
         });
     }
     out
 }
 
-/// The printed summary.
-pub fn summary(sc: &Scenario, res: &RunResult) -> String {
-    let mut s = String::new();
-    let dt_us = 1e6 / f64::from(res.tick_hz);
-    let _ = writeln!(s, "scenario: {}", sc.name);
-    let _ = writeln!(
-        s,
-        "ticks: {} at {} Hz ({:.1} ms)",
-        res.ticks,
-        res.tick_hz,
-        res.ticks as f64 * dt_us / 1e3
-    );
-    for f in figures(sc, res) {
-        let settle = f.settling_ms.map_or(
-            "does not settle to ±1 % before the next event".into(),
-            |t| format!("settles to ±1 % in {t:.3} ms"),
-        );
-        let _ = writeln!(
-            s,
-            "t={:.3} ms {}: {:.3} -> {:.3} mW, overshoot {:.2} % of the step, {settle}{}",
-            f.start_ms,
-            f.label,
-            f.initial_mw,
-            f.final_mw,
-            f.overshoot_pct,
-            if f.on_ceiling {
-                " (drive on its ceiling: the request is beyond reach)"
-            } else {
-                ""
-            }
-        );
+/// A request the core refused.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Refused {
+    /// When, ms.
+    pub at_ms: f64,
+    /// The request, as in the scenario file.
+    pub request: String,
+    /// The core's reason.
+    pub reason: String,
+}
+
+/// The drive held on its ceiling for at least [`MIN_ON_CEILING_MS`]: the
+/// setpoint in force was beyond reach.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Unreached {
+    /// From, ms.
+    pub from_ms: f64,
+    /// To, ms (`None`: until the end of the run).
+    pub to_ms: Option<f64>,
+    /// Drive on the ceiling at the end of the stretch, mA.
+    pub ceiling_ma: f64,
+    /// Mode in force.
+    pub mode: &'static str,
+    /// The setpoint, what was reached, the shortfall (`None` when no
+    /// setpoint was requested).
+    pub target: Option<Target>,
+}
+
+/// A span of a warning of the core.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct WarningNote {
+    /// `derating`, `at-ceiling` or `sensor-suspect`.
+    pub warning: &'static str,
+    /// Raised at, ms.
+    pub from_ms: f64,
+    /// Cleared at, ms (`None`: still raised at the end of the run).
+    pub to_ms: Option<f64>,
+    /// Times raised in this span (raisings closer than 10 ms are one span).
+    pub raised: u32,
+}
+
+/// A fault the core latched.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct FaultNote {
+    /// When, ms.
+    pub at_ms: f64,
+    /// The fault.
+    pub fault: &'static str,
+    /// Measured value at the trip.
+    pub measured: f64,
+    /// The limit.
+    pub limit: f64,
+    /// Unit of both.
+    pub unit: &'static str,
+    /// Time since the last injected hardware fault, ms.
+    pub latency_ms: Option<f64>,
+}
+
+/// One line of the run's timeline.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct TimelineEntry {
+    /// When, ms.
+    pub at_ms: f64,
+    /// `state`, `inject`, `fault`, `refused`, `warning`, `facet-damage`.
+    pub kind: &'static str,
+    /// What, in words.
+    pub what: String,
+}
+
+/// Everything the run summary says, for the text and for `summary.json`.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Summary {
+    /// Scenario name.
+    pub scenario: String,
+    /// Ticks run.
+    pub ticks: u64,
+    /// Tick rate, Hz.
+    pub tick_hz: u32,
+    /// Length of the run, ms.
+    pub duration_ms: f64,
+    /// Step-response figures of each stretch of regulation.
+    pub steps: Vec<Figures>,
+    /// Requests the core refused.
+    pub refused: Vec<Refused>,
+    /// Setpoints the drive could not reach.
+    pub unreached: Vec<Unreached>,
+    /// Warnings of the core with when.
+    pub warnings: Vec<WarningNote>,
+    /// Warning spans not kept (more than 64 of one warning).
+    pub warning_spans_dropped: u64,
+    /// Faults latched.
+    pub faults: Vec<FaultNote>,
+    /// Highest front-facet power of any tick, mW.
+    pub peak_mw: f64,
+    /// Whether the facet reached its damage limit.
+    pub facet_damage: bool,
+    /// State at the end.
+    pub final_state: &'static str,
+    /// Every event in order.
+    pub timeline: Vec<TimelineEntry>,
+    /// The scenario's expectations and their verdicts.
+    pub expectations: Vec<Outcome>,
+    /// The safety caution.
+    pub caution: &'static str,
+}
+
+/// A scenario event as written in the file.
+fn request_text(a: &Action) -> String {
+    match a {
+        Action::Enable => "enable".into(),
+        Action::Disable => "disable".into(),
+        Action::Clear => "clear".into(),
+        Action::SetPower { mw } => format!("set-power {mw} mW"),
+        Action::SetCurrent { ma } => format!("set-current {ma} mA"),
+        Action::Mode { mode } => format!("mode {}", mode_name(*mode)),
+        Action::AmbientStep { to_c } => format!("ambient-step to {to_c} degC"),
+        Action::AmbientRamp { to_c, over_ms } => {
+            format!("ambient-ramp to {to_c} degC over {over_ms} ms")
+        }
+        Action::Inject { fault } => format!("inject {}", fault.name()),
+        Action::Repair { fault } => format!("repair {}", fault.name()),
     }
-    let _ = writeln!(s, "peak optical power: {:.3} mW", res.peak_mw);
-    let _ = writeln!(
-        s,
-        "facet damage: {}",
-        if res.damaged { "YES" } else { "no" }
-    );
+}
+
+/// The summary of a run and its expectations' verdicts.
+pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Summary {
+    let ms = |tick: u64| tick as f64 * 1e3 / f64::from(res.tick_hz);
+    let refused_idx = refused_events(res);
+    let mut refused = Vec::new();
+    let mut faults = Vec::new();
+    let mut timeline = Vec::new();
     let mut injected: Option<u64> = None;
     for h in &res.happenings {
-        match h {
+        let (tick, kind, what) = match h {
             Happening::Injected { tick, fault } => {
                 injected = Some(*tick);
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms injected {fault}",
-                    *tick as f64 * dt_us / 1e3
-                );
+                (*tick, "inject", format!("injected {fault}"))
             }
             Happening::Fault {
                 tick,
@@ -178,44 +352,259 @@ pub fn summary(sc: &Scenario, res: &RunResult) -> String {
                 measured,
                 limit,
             } => {
-                let lat = injected
-                    .map(|i| {
-                        format!(
-                            ", latency {} ticks = {:.0} us",
-                            tick - i,
-                            (tick - i) as f64 * dt_us
-                        )
-                    })
-                    .unwrap_or_default();
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms FAULT {fault} (measured {measured:.3}, limit {limit:.3}){lat}",
-                    *tick as f64 * dt_us / 1e3
-                );
+                let unit = Fault::ALL
+                    .iter()
+                    .find(|f| f.name() == *fault)
+                    .map_or("", |f| f.unit());
+                let latency_ms = injected.map(|i| ms(tick - i));
+                faults.push(FaultNote {
+                    at_ms: ms(*tick),
+                    fault,
+                    measured: *measured,
+                    limit: *limit,
+                    unit,
+                    latency_ms,
+                });
+                let lat = latency_ms.map_or(String::new(), |l| {
+                    format!(
+                        ", {} ticks = {l:.3} ms after the injection",
+                        tick - injected.unwrap_or(*tick)
+                    )
+                });
+                (
+                    *tick,
+                    "fault",
+                    format!(
+                        "FAULT {fault} latched (measured {measured:.3} {unit}, limit {limit:.3} {unit}){lat}"
+                    ),
+                )
             }
-            Happening::State { tick, state } => {
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms -> {}",
-                    *tick as f64 * dt_us / 1e3,
-                    state.name()
-                );
+            Happening::State { tick, state } => (*tick, "state", format!("-> {}", state.name())),
+            Happening::Rejected { tick, event, why } => {
+                let request = sc
+                    .events
+                    .get(*event)
+                    .map_or_else(|| "?".into(), |e| request_text(&e.action));
+                refused.push(Refused {
+                    at_ms: ms(*tick),
+                    request: request.clone(),
+                    reason: why.clone(),
+                });
+                (*tick, "refused", format!("REFUSED {request}: {why}"))
             }
-            Happening::Rejected { tick, why } => {
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms request refused: {why}",
-                    *tick as f64 * dt_us / 1e3
-                );
+            Happening::FacetDamage { tick } => (*tick, "facet-damage", "FACET DAMAGE".into()),
+        };
+        timeline.push(TimelineEntry {
+            at_ms: ms(tick),
+            kind,
+            what,
+        });
+    }
+    let mut warnings = Vec::new();
+    let mut unreached = Vec::new();
+    for s in &res.warning_spans {
+        let (from_ms, to_ms) = (ms(s.from_tick), s.to_tick.map(ms));
+        warnings.push(WarningNote {
+            warning: s.warning,
+            from_ms,
+            to_ms,
+            raised: s.raised,
+        });
+        timeline.push(TimelineEntry {
+            at_ms: from_ms,
+            kind: "warning",
+            what: format!(
+                "warning {} raised{}",
+                s.warning,
+                match to_ms {
+                    Some(t) => format!(" (until {t:.3} ms)"),
+                    None => " (until the end)".into(),
+                }
+            ),
+        });
+        let end_ms = to_ms.unwrap_or(ms(res.ticks));
+        if s.warning == "at-ceiling" && end_ms - from_ms >= MIN_ON_CEILING_MS {
+            let (p_sp, i_sp, _) = in_force(sc, &refused_idx, end_ms);
+            let target = match s.last_mode {
+                diodestat_core::Mode::Apc => p_sp.map(|sp| (sp, "mW", s.last_p_mw)),
+                diodestat_core::Mode::Acc => i_sp.map(|sp| (sp, "mA", s.last_drive_ma)),
             }
-            Happening::FacetDamage { tick } => {
-                let _ = writeln!(s, "  t={:.3} ms FACET DAMAGE", *tick as f64 * dt_us / 1e3);
-            }
+            .map(|(setpoint, unit, reached)| Target {
+                setpoint,
+                unit,
+                reached,
+                shortfall: Some(setpoint - reached),
+            });
+            unreached.push(Unreached {
+                from_ms,
+                to_ms,
+                ceiling_ma: s.last_drive_ma,
+                mode: match s.last_mode {
+                    diodestat_core::Mode::Apc => "apc",
+                    diodestat_core::Mode::Acc => "acc",
+                },
+                target,
+            });
         }
     }
-    let _ = writeln!(s, "final state: {}", res.final_state.name());
-    let _ = writeln!(s, "CAUTION: {SAFETY_CAUTION}");
-    s
+    // Stable: at one time, the order of the run (then warnings).
+    timeline.sort_by(|a, b| a.at_ms.total_cmp(&b.at_ms));
+    Summary {
+        scenario: sc.name.clone(),
+        ticks: res.ticks,
+        tick_hz: res.tick_hz,
+        duration_ms: ms(res.ticks),
+        steps: figures(sc, res),
+        refused,
+        unreached,
+        warnings,
+        warning_spans_dropped: res.warning_spans_dropped,
+        faults,
+        peak_mw: res.peak_mw,
+        facet_damage: res.damaged,
+        final_state: res.final_state.name(),
+        timeline,
+        expectations,
+        caution: SAFETY_CAUTION,
+    }
+}
+
+/// Shortfall in words: "600.000 mW (13.3 %) short of the 4500 mW setpoint".
+fn shortfall_text(t: &Target) -> String {
+    match t.shortfall {
+        Some(d) => format!(
+            "{d:.3} {u} ({:.1} %) short of the {} {u} setpoint",
+            100.0 * d / t.setpoint,
+            t.setpoint,
+            u = t.unit
+        ),
+        None => format!("setpoint {} {}", t.setpoint, t.unit),
+    }
+}
+
+impl Summary {
+    /// The summary as printed text (and `summary.txt`).
+    pub fn text(&self) -> String {
+        let mut s = String::new();
+        let _ = writeln!(s, "scenario: {}", self.scenario);
+        let _ = writeln!(
+            s,
+            "ticks: {} at {} Hz ({:.1} ms)",
+            self.ticks, self.tick_hz, self.duration_ms
+        );
+        if !self.steps.is_empty() {
+            let _ = writeln!(s, "steps:");
+        }
+        for f in &self.steps {
+            let settle = f.settling_ms.map_or(
+                "does not settle to ±1 % before the next event".into(),
+                |t| format!("settles to ±1 % in {t:.3} ms"),
+            );
+            let ceiling = match (&f.target, f.on_ceiling) {
+                (Some(t), true) => format!(
+                    "; DRIVE ON ITS CEILING: {:.3} {}, {}",
+                    t.reached,
+                    t.unit,
+                    shortfall_text(t)
+                ),
+                (None, true) => "; DRIVE ON ITS CEILING: the request is beyond reach".into(),
+                _ => String::new(),
+            };
+            let _ = writeln!(
+                s,
+                "  t={:.3} ms {}: {:.3} -> {:.3} mW, overshoot {:.2} % of the step, {settle}{ceiling}",
+                f.start_ms, f.label, f.initial_mw, f.final_mw, f.overshoot_pct,
+            );
+        }
+        if !self.refused.is_empty() {
+            let _ = writeln!(s, "refused requests (not applied):");
+        }
+        for r in &self.refused {
+            let _ = writeln!(s, "  t={:.3} ms {}: {}", r.at_ms, r.request, r.reason);
+        }
+        if !self.unreached.is_empty() {
+            let _ = writeln!(s, "setpoint not reached (drive held on its ceiling):");
+        }
+        for u in &self.unreached {
+            let until = u.to_ms.map_or("the end".into(), |t| format!("{t:.3} ms"));
+            let what = u
+                .target
+                .as_ref()
+                .map_or("no setpoint requested".to_string(), |t| {
+                    format!(
+                        "{} {:.3} {}, {}",
+                        if t.unit == "mW" {
+                            "front power"
+                        } else {
+                            "drive"
+                        },
+                        t.reached,
+                        t.unit,
+                        shortfall_text(t)
+                    )
+                });
+            let _ = writeln!(
+                s,
+                "  t={:.3} ms to {until}, {}: ceiling {:.3} mA; {what}",
+                u.from_ms,
+                u.mode.to_uppercase(),
+                u.ceiling_ma
+            );
+        }
+        if !self.warnings.is_empty() {
+            let _ = writeln!(s, "warnings:");
+        }
+        for w in &self.warnings {
+            let until = w.to_ms.map_or("the end".into(), |t| format!("{t:.3} ms"));
+            let times = if w.raised > 1 {
+                format!(" (raised {} times)", w.raised)
+            } else {
+                String::new()
+            };
+            let _ = writeln!(
+                s,
+                "  {} from t={:.3} ms to {until}{times}",
+                w.warning, w.from_ms
+            );
+        }
+        if self.warning_spans_dropped > 0 {
+            let _ = writeln!(
+                s,
+                "  ... and {} more warning spans not kept",
+                self.warning_spans_dropped
+            );
+        }
+        let _ = writeln!(s, "peak optical power: {:.3} mW", self.peak_mw);
+        let _ = writeln!(
+            s,
+            "facet damage: {}",
+            if self.facet_damage { "YES" } else { "no" }
+        );
+        let _ = writeln!(s, "timeline:");
+        for t in &self.timeline {
+            let _ = writeln!(s, "  t={:.3} ms {}", t.at_ms, t.what);
+        }
+        let _ = writeln!(s, "final state: {}", self.final_state);
+        if !self.expectations.is_empty() {
+            let failed = self.expectations.iter().filter(|o| !o.passed).count();
+            let _ = writeln!(
+                s,
+                "expectations: {} of {} passed",
+                self.expectations.len() - failed,
+                self.expectations.len()
+            );
+            s.push_str(&crate::expect::text(&self.expectations));
+        }
+        let _ = writeln!(s, "CAUTION: {}", self.caution);
+        s
+    }
+
+    /// The summary as JSON (`summary.json`): the same figures as the text.
+    pub fn json(&self) -> String {
+        // Serialising plain data (strings, numbers, options) cannot fail;
+        // NaN and infinite values become null.
+        serde_json::to_string_pretty(self).unwrap_or_default()
+    }
 }
 
 /// Write the trace as CSV.

@@ -1,11 +1,14 @@
 //! Scenario files (TOML, diodestat's own schema; see `docs/scenarios.md`):
 //! which board file (and through it the module and the tick rate), the
-//! duration, the ambient, and timed events (requests, ambient changes,
-//! injected hardware faults).
+//! duration, the ambient, timed events (requests, ambient changes,
+//! injected hardware faults) and expectations (`[[expect]]`: what the run
+//! must show; evaluated in `crate::expect`).
 
 use std::path::{Path, PathBuf};
 
+use diodestat_core::{Fault, State};
 use serde::{Deserialize, Serialize};
+use toml::Spanned;
 
 /// A whole scenario.
 #[derive(Clone, Debug, Serialize, Deserialize)]
@@ -32,6 +35,9 @@ pub struct Scenario {
     /// Timed events.
     #[serde(default, rename = "event")]
     pub events: Vec<Event>,
+    /// Expectations, each with its place in the file.
+    #[serde(default, rename = "expect", skip_serializing)]
+    pub expects: Vec<Spanned<Expect>>,
 }
 
 fn one() -> u32 {
@@ -221,9 +227,375 @@ impl HwFault {
     }
 }
 
+/// One expectation: what the run must show. `name` is an optional label
+/// for reports (the test case name in JUnit XML).
+#[derive(Clone, Debug, PartialEq, Deserialize)]
+#[serde(try_from = "RawExpect")]
+pub struct Expect {
+    /// Line of the entry in its file (1-based; 0 when not read from a file).
+    pub line: usize,
+    /// Optional label.
+    pub name: Option<String>,
+    /// What is checked.
+    pub check: Check,
+}
+
+/// The kinds of expectation (`check = ...` in the file).
+#[derive(Clone, Debug, PartialEq)]
+pub enum Check {
+    /// `check = "state"`: the controller is in `state` at `at_ms` (after
+    /// the core's step of that tick).
+    State {
+        /// When, ms.
+        at_ms: f64,
+        /// The state.
+        state: State,
+    },
+    /// `check = "fault"`: `fault` latches no later than `within_ms` after
+    /// the reference (`after_ms`, or the first injection `after_inject`),
+    /// and not before it.
+    Fault {
+        /// The core's fault.
+        fault: Fault,
+        /// The reference moment.
+        after: After,
+        /// Deadline after the reference, ms.
+        within_ms: f64,
+    },
+    /// `check = "power-band"`: front-facet optical power (the plant's, not
+    /// the monitor reading) stays within `min_mw..=max_mw` at every tick
+    /// from `from_ms` to `to_ms`.
+    PowerBand {
+        /// Start of the interval, ms.
+        from_ms: f64,
+        /// End of the interval, ms.
+        to_ms: f64,
+        /// Lowest allowed power, mW.
+        min_mw: f64,
+        /// Highest allowed power, mW.
+        max_mw: f64,
+    },
+    /// `check = "never-above"`: front-facet optical power never exceeds
+    /// `mw` at any tick from `from_ms` (default 0) to `to_ms` (default the
+    /// end of the run).
+    NeverAbove {
+        /// The level, mW.
+        mw: f64,
+        /// Start of the interval, ms.
+        from_ms: f64,
+        /// End of the interval, ms (`None`: the end of the run).
+        to_ms: Option<f64>,
+    },
+}
+
+/// The reference moment of a fault deadline.
+#[derive(Clone, Debug, PartialEq)]
+pub enum After {
+    /// A time, ms from the start (`after_ms`).
+    Ms(f64),
+    /// The first injection of this hardware fault kind (`after_inject`).
+    Inject(String),
+}
+
+/// The file form of an expectation, checked into an [`Expect`].
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawExpect {
+    check: String,
+    name: Option<String>,
+    at_ms: Option<f64>,
+    state: Option<String>,
+    fault: Option<String>,
+    after_ms: Option<f64>,
+    after_inject: Option<String>,
+    within_ms: Option<f64>,
+    from_ms: Option<f64>,
+    to_ms: Option<f64>,
+    min_mw: Option<f64>,
+    max_mw: Option<f64>,
+    mw: Option<f64>,
+    tolerance_pct: Option<f64>,
+}
+
+/// Every `check` and the keys it takes (besides `check` and `name`).
+const CHECK_KEYS: [(&str, &[&str]); 4] = [
+    ("state", &["at_ms", "state"]),
+    ("fault", &["fault", "after_ms", "after_inject", "within_ms"]),
+    (
+        "power-band",
+        &[
+            "from_ms",
+            "to_ms",
+            "min_mw",
+            "max_mw",
+            "mw",
+            "tolerance_pct",
+        ],
+    ),
+    ("never-above", &["mw", "from_ms", "to_ms"]),
+];
+
+/// Every controller state, for names in files.
+const STATES: [State; 6] = [
+    State::Off,
+    State::Arming,
+    State::Ramping,
+    State::Regulating,
+    State::Stopping,
+    State::Latched,
+];
+
+impl RawExpect {
+    /// The keys given, besides `check` and `name`, with their values.
+    fn present(&self) -> Vec<(&'static str, String)> {
+        let mut v = Vec::new();
+        let mut num = |k: &'static str, x: Option<f64>| {
+            if let Some(x) = x {
+                v.push((k, x.to_string()));
+            }
+        };
+        num("at_ms", self.at_ms);
+        num("after_ms", self.after_ms);
+        num("within_ms", self.within_ms);
+        num("from_ms", self.from_ms);
+        num("to_ms", self.to_ms);
+        num("min_mw", self.min_mw);
+        num("max_mw", self.max_mw);
+        num("mw", self.mw);
+        num("tolerance_pct", self.tolerance_pct);
+        for (k, x) in [
+            ("state", &self.state),
+            ("fault", &self.fault),
+            ("after_inject", &self.after_inject),
+        ] {
+            if let Some(x) = x {
+                v.push((k, format!("\"{x}\"")));
+            }
+        }
+        v
+    }
+}
+
+/// `key` is required by this check.
+fn need<T: Clone>(check: &str, key: &str, v: &Option<T>) -> Result<T, String> {
+    v.clone()
+        .ok_or_else(|| format!("check = \"{check}\" needs `{key}`"))
+}
+
+/// A finite number `> 0` (`positive`) or `>= 0`.
+fn number(key: &str, v: f64, positive: bool) -> Result<f64, String> {
+    let ok = v.is_finite() && if positive { v > 0.0 } else { v >= 0.0 };
+    if ok {
+        Ok(v)
+    } else {
+        Err(format!(
+            "`{key}` = {v} must be a finite number {}",
+            if positive { "> 0" } else { ">= 0" }
+        ))
+    }
+}
+
+impl TryFrom<RawExpect> for Expect {
+    type Error = String;
+
+    fn try_from(r: RawExpect) -> Result<Self, String> {
+        let c = r.check.as_str();
+        let Some((_, keys)) = CHECK_KEYS.iter().find(|(k, _)| *k == c) else {
+            let all: Vec<_> = CHECK_KEYS.iter().map(|(k, _)| *k).collect();
+            return Err(format!(
+                "`check` = \"{c}\" is not a check (expected one of: {})",
+                all.join(", ")
+            ));
+        };
+        for (k, v) in r.present() {
+            if !keys.contains(&k) {
+                return Err(format!(
+                    "`{k}` = {v} does not belong to check = \"{c}\" (its keys: {})",
+                    keys.join(", ")
+                ));
+            }
+        }
+        let check = match c {
+            "state" => {
+                let name = need(c, "state", &r.state)?;
+                let state = STATES
+                    .into_iter()
+                    .find(|s| s.name() == name)
+                    .ok_or_else(|| {
+                        let all: Vec<_> = STATES.iter().map(|s| s.name()).collect();
+                        format!(
+                            "`state` = \"{name}\" is not a state (expected one of: {})",
+                            all.join(", ")
+                        )
+                    })?;
+                Check::State {
+                    at_ms: number("at_ms", need(c, "at_ms", &r.at_ms)?, false)?,
+                    state,
+                }
+            }
+            "fault" => {
+                let name = need(c, "fault", &r.fault)?;
+                let fault = Fault::ALL
+                    .into_iter()
+                    .find(|f| f.name() == name)
+                    .ok_or_else(|| {
+                        let all: Vec<_> = Fault::ALL.iter().map(|f| f.name()).collect();
+                        format!(
+                            "`fault` = \"{name}\" is not a fault of the core (expected one of: {})",
+                            all.join(", ")
+                        )
+                    })?;
+                let after =
+                    match (r.after_ms, r.after_inject) {
+                        (Some(t), None) => After::Ms(number("after_ms", t, false)?),
+                        (None, Some(kind)) => After::Inject(kind),
+                        _ => return Err(
+                            "check = \"fault\" needs exactly one of `after_ms` and `after_inject`"
+                                .into(),
+                        ),
+                    };
+                Check::Fault {
+                    fault,
+                    after,
+                    within_ms: number("within_ms", need(c, "within_ms", &r.within_ms)?, true)?,
+                }
+            }
+            "power-band" => {
+                let from_ms = number("from_ms", need(c, "from_ms", &r.from_ms)?, false)?;
+                let to_ms = number("to_ms", need(c, "to_ms", &r.to_ms)?, false)?;
+                let (min_mw, max_mw) = match (r.min_mw, r.max_mw, r.mw, r.tolerance_pct) {
+                    (Some(lo), Some(hi), None, None) => {
+                        (number("min_mw", lo, false)?, number("max_mw", hi, true)?)
+                    }
+                    (None, None, Some(mw), Some(pct)) => {
+                        let mw = number("mw", mw, true)?;
+                        let pct = number("tolerance_pct", pct, true)?;
+                        if pct >= 100.0 {
+                            return Err(format!("`tolerance_pct` = {pct} must be below 100"));
+                        }
+                        (mw * (1.0 - pct / 100.0), mw * (1.0 + pct / 100.0))
+                    }
+                    _ => {
+                        return Err(
+                            "check = \"power-band\" needs either `min_mw` and `max_mw`, \
+                                    or `mw` and `tolerance_pct`"
+                                .into(),
+                        )
+                    }
+                };
+                if min_mw > max_mw {
+                    return Err(format!("`min_mw` = {min_mw} is above `max_mw` = {max_mw}"));
+                }
+                if from_ms >= to_ms {
+                    return Err(format!(
+                        "`to_ms` = {to_ms} must be after `from_ms` = {from_ms}"
+                    ));
+                }
+                Check::PowerBand {
+                    from_ms,
+                    to_ms,
+                    min_mw,
+                    max_mw,
+                }
+            }
+            _ => {
+                let from_ms = number("from_ms", r.from_ms.unwrap_or(0.0), false)?;
+                let to_ms = r.to_ms.map(|t| number("to_ms", t, false)).transpose()?;
+                if let Some(t) = to_ms.filter(|&t| t <= from_ms) {
+                    return Err(format!("`to_ms` = {t} must be after `from_ms` = {from_ms}"));
+                }
+                Check::NeverAbove {
+                    mw: number("mw", need(c, "mw", &r.mw)?, true)?,
+                    from_ms,
+                    to_ms,
+                }
+            }
+        };
+        Ok(Expect {
+            line: 0,
+            name: r.name,
+            check,
+        })
+    }
+}
+
+impl Expect {
+    /// The times this expectation names, with their keys, ms.
+    fn times(&self) -> Vec<(&'static str, f64)> {
+        match &self.check {
+            Check::State { at_ms, .. } => vec![("at_ms", *at_ms)],
+            Check::Fault { after, .. } => match after {
+                After::Ms(t) => vec![("after_ms", *t)],
+                After::Inject(_) => vec![],
+            },
+            Check::PowerBand { from_ms, to_ms, .. } => {
+                vec![("from_ms", *from_ms), ("to_ms", *to_ms)]
+            }
+            Check::NeverAbove { from_ms, to_ms, .. } => {
+                let mut v = vec![("from_ms", *from_ms)];
+                v.extend(to_ms.map(|t| ("to_ms", t)));
+                v
+            }
+        }
+    }
+}
+
+/// Line (1-based) of a byte offset in `text`.
+fn line_of(text: &str, offset: usize) -> usize {
+    text.get(..offset).map_or(0, |s| s.matches('\n').count()) + 1
+}
+
+/// The checks of expectations against the rest of the scenario: times
+/// inside the run, injections that the scenario makes.
+fn check_expects(sc: &Scenario) -> Result<(), String> {
+    let injected: Vec<&str> = sc
+        .events
+        .iter()
+        .filter_map(|e| match &e.action {
+            Action::Inject { fault } => Some(fault.name()),
+            _ => None,
+        })
+        .collect();
+    for e in &sc.expects {
+        let x = e.get_ref();
+        let line = x.line;
+        for (key, t) in x.times() {
+            if t > sc.duration_ms {
+                return Err(format!(
+                    "line {line}: [[expect]] `{key}` = {t} is after the end of the run \
+                     (duration_ms = {})",
+                    sc.duration_ms
+                ));
+            }
+        }
+        if let Check::Fault {
+            after: After::Inject(kind),
+            ..
+        } = &x.check
+        {
+            if !injected.contains(&kind.as_str()) {
+                return Err(format!(
+                    "line {line}: [[expect]] `after_inject` = \"{kind}\" is not injected by any \
+                     event of this scenario (injected: {})",
+                    if injected.is_empty() {
+                        "none".to_string()
+                    } else {
+                        injected.join(", ")
+                    }
+                ));
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Parse a scenario; the error names the line, column and what was expected.
 pub fn parse(text: &str) -> Result<Scenario, String> {
-    let sc: Scenario = toml::from_str(text).map_err(|e| e.to_string())?;
+    let mut sc: Scenario = toml::from_str(text).map_err(|e| e.to_string())?;
+    for e in &mut sc.expects {
+        let line = line_of(text, e.span().start);
+        e.get_mut().line = line;
+    }
     if !(sc.duration_ms > 0.0 && sc.duration_ms.is_finite()) {
         return Err("duration_ms must be a positive number".into());
     }
@@ -235,6 +607,7 @@ pub fn parse(text: &str) -> Result<Scenario, String> {
             return Err(format!("event at_ms {} must be >= 0", e.at_ms));
         }
     }
+    check_expects(&sc)?;
     Ok(sc)
 }
 

@@ -9,8 +9,13 @@
 //! same equations the straightforward way; the tests hold the two to 1e-9
 //! in optical power and 1e-8 K in junction temperature, with identical ADC
 //! codes, core states and events.
+//!
+//! Besides the (decimated) trace, a run keeps what reports and
+//! expectations need at every tick: the spans of the core's warnings
+//! ([`WarningSpan`]) and the optical power over chosen intervals
+//! ([`PowerWindow`], see [`run_watching`]).
 
-use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig};
+use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
 use crate::plant::{
     c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, SensorChain, Thermal,
@@ -69,6 +74,8 @@ pub enum Happening {
     Rejected {
         /// Tick.
         tick: u64,
+        /// The refused request: its index in the scenario's events.
+        event: usize,
         /// Why.
         why: String,
     },
@@ -292,6 +299,92 @@ impl Plant {
     }
 }
 
+/// Front-facet optical power over the ticks `from_tick..=to_tick`, seen at
+/// every tick (not from the decimated trace).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PowerWindow {
+    /// First tick.
+    pub from_tick: u64,
+    /// Last tick (inclusive).
+    pub to_tick: u64,
+    /// Ticks seen (0 when the run ended before `from_tick`).
+    pub ticks: u64,
+    /// Lowest power, mW, and its tick.
+    pub min_mw: f64,
+    /// Tick of the lowest power.
+    pub min_tick: u64,
+    /// Highest power, mW.
+    pub max_mw: f64,
+    /// Tick of the highest power.
+    pub max_tick: u64,
+}
+
+impl PowerWindow {
+    /// A window over `from_tick..=to_tick`, nothing seen yet.
+    pub fn new(from_tick: u64, to_tick: u64) -> Self {
+        PowerWindow {
+            from_tick,
+            to_tick,
+            ticks: 0,
+            min_mw: f64::INFINITY,
+            min_tick: from_tick,
+            max_mw: f64::NEG_INFINITY,
+            max_tick: from_tick,
+        }
+    }
+
+    fn observe(&mut self, tick: u64, p_mw: f64) {
+        if tick < self.from_tick || tick > self.to_tick {
+            return;
+        }
+        self.ticks += 1;
+        // NaN power counts as out of every band: it becomes both extremes.
+        if p_mw < self.min_mw || p_mw.is_nan() {
+            self.min_mw = p_mw;
+            self.min_tick = tick;
+        }
+        if p_mw > self.max_mw || p_mw.is_nan() {
+            self.max_mw = p_mw;
+            self.max_tick = tick;
+        }
+    }
+}
+
+/// The warnings of the core, by the names reports use.
+pub const WARNINGS: [&str; 3] = ["derating", "at-ceiling", "sensor-suspect"];
+
+fn warning_flags(w: Warnings) -> [bool; 3] {
+    [w.derating, w.at_ceiling, w.sensor_suspect]
+}
+
+/// A stretch of ticks during which the core raised a warning. Raisings
+/// closer than [`WARNING_MERGE_MS`] to the end of the previous span of the
+/// same warning extend that span.
+#[derive(Clone, Debug, PartialEq)]
+pub struct WarningSpan {
+    /// One of [`WARNINGS`].
+    pub warning: &'static str,
+    /// First tick with the warning.
+    pub from_tick: u64,
+    /// First tick without it again (`None`: still raised at the end).
+    pub to_tick: Option<u64>,
+    /// Times it was raised within the span (1 unless it came and went).
+    pub raised: u32,
+    /// Front-facet power at the last tick of the span, mW.
+    pub last_p_mw: f64,
+    /// Commanded drive at the last tick of the span, mA.
+    pub last_drive_ma: f64,
+    /// Mode at the last tick of the span.
+    pub last_mode: Mode,
+}
+
+/// Gap below which a warning raised again continues its previous span, ms.
+pub const WARNING_MERGE_MS: f64 = 10.0;
+
+/// Most spans kept per warning; later ones are counted in
+/// [`RunResult::warning_spans_dropped`].
+pub const MAX_WARNING_SPANS: usize = 64;
+
 /// The result of a run.
 #[derive(Clone, Debug, Default)]
 pub struct RunResult {
@@ -309,6 +402,78 @@ pub struct RunResult {
     pub final_state: State,
     /// Tick rate, Hz.
     pub tick_hz: u32,
+    /// Spans of the core's warnings, in order of their start.
+    pub warning_spans: Vec<WarningSpan>,
+    /// Warning spans beyond [`MAX_WARNING_SPANS`] per warning, not kept.
+    pub warning_spans_dropped: u64,
+    /// The power windows asked for by [`run_watching`], filled.
+    pub windows: Vec<PowerWindow>,
+}
+
+impl RunResult {
+    /// Record the warnings of `tick` (`now`) against those of the tick
+    /// before (`was`); `prev` holds power, drive and mode of the tick before.
+    fn warnings_changed(
+        &mut self,
+        tick: u64,
+        was: Warnings,
+        now: Warnings,
+        prev: (f64, f64, Mode),
+        merge_ticks: u64,
+    ) {
+        let (was, now) = (warning_flags(was), warning_flags(now));
+        for k in 0..WARNINGS.len() {
+            let name = WARNINGS[k];
+            if was[k] && !now[k] {
+                if let Some(s) = self
+                    .warning_spans
+                    .iter_mut()
+                    .rev()
+                    .find(|s| s.warning == name && s.to_tick.is_none())
+                {
+                    s.to_tick = Some(tick);
+                    (s.last_p_mw, s.last_drive_ma, s.last_mode) = prev;
+                }
+            } else if now[k] && !was[k] {
+                let last = self
+                    .warning_spans
+                    .iter_mut()
+                    .rev()
+                    .find(|s| s.warning == name);
+                match last {
+                    Some(s) if s.to_tick.is_some_and(|t| tick - t < merge_ticks) => {
+                        s.to_tick = None;
+                        s.raised += 1;
+                    }
+                    _ => {
+                        let kept = self
+                            .warning_spans
+                            .iter()
+                            .filter(|s| s.warning == name)
+                            .count();
+                        if kept < MAX_WARNING_SPANS {
+                            self.warning_spans.push(WarningSpan {
+                                warning: name,
+                                from_tick: tick,
+                                to_tick: None,
+                                raised: 1,
+                                last_p_mw: f64::NAN,
+                                last_drive_ma: f64::NAN,
+                                last_mode: prev.2,
+                            });
+                        } else {
+                            self.warning_spans_dropped += 1;
+                        }
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// The tick at which something timed at `ms` happens: events, expectations.
+pub fn tick_at(ms: f64, tick_hz: u32) -> u64 {
+    (ms * 1e-3 * f64::from(tick_hz)).round() as u64
 }
 
 fn fx(v: f64) -> Fx {
@@ -321,7 +486,18 @@ fn to_f(v: Fx) -> f64 {
 
 /// Run a scenario on a validated board configuration.
 pub fn run(sc: &Scenario, module: &DemoModule, cfg: ValidConfig) -> Result<RunResult, PlantError> {
-    run_plant(sc, cfg, Plant::new(module, sc.ambient_c, sc.seed)?)
+    run_watching(sc, module, cfg, Vec::new())
+}
+
+/// [`run`], also filling `windows` with the optical power of every tick
+/// inside them ([`RunResult::windows`], in the same order).
+pub fn run_watching(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+    windows: Vec<PowerWindow>,
+) -> Result<RunResult, PlantError> {
+    run_plant(sc, cfg, Plant::new(module, sc.ambient_c, sc.seed)?, windows)
 }
 
 /// [`run`] on the reference plant ([`Plant::new_reference`]): same
@@ -335,23 +511,25 @@ pub fn run_reference(
         sc,
         cfg,
         Plant::new_reference(module, sc.ambient_c, sc.seed)?,
+        Vec::new(),
     )
 }
 
-fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunResult, PlantError> {
+fn run_plant(
+    sc: &Scenario,
+    cfg: ValidConfig,
+    mut plant: Plant,
+    windows: Vec<PowerWindow>,
+) -> Result<RunResult, PlantError> {
     let tick_hz = cfg.config().tick_hz;
     let dt = 1.0 / f64::from(tick_hz);
     let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
     let mut ctl = Controller::new(cfg);
-    let mut events: Vec<(u64, &Action)> = sc
+    let mut events: Vec<(u64, usize, &Action)> = sc
         .events
         .iter()
-        .map(|e| {
-            (
-                (e.at_ms * 1e-3 * f64::from(tick_hz)).round() as u64,
-                &e.action,
-            )
-        })
+        .enumerate()
+        .map(|(k, e)| (tick_at(e.at_ms, tick_hz), k, &e.action))
         .collect();
     events.sort_by_key(|e| e.0);
     let mut next_event = 0usize;
@@ -359,15 +537,19 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
     let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
     let mut res = RunResult {
         tick_hz,
+        windows,
         ..RunResult::default()
     };
+    let merge_ticks = (WARNING_MERGE_MS * 1e-3 * f64::from(tick_hz)).round() as u64;
+    let mut last_warnings = Warnings::default();
+    let mut prev = (0.0, 0.0, Mode::Apc);
     let mut last_state = State::Off;
     let mut logged = 0usize;
     let mut drive = diodestat_core::Drive::default();
     let trace_every = u64::from(sc.trace_every.max(1));
     for tick in 0..n_ticks {
         // Timed events for this tick.
-        while let Some(&(at, action)) = events.get(next_event) {
+        while let Some(&(at, event, action)) = events.get(next_event) {
             if at > tick {
                 break;
             }
@@ -409,6 +591,7 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
                 if let Err(why) = ctl.request(r) {
                     res.happenings.push(Happening::Rejected {
                         tick,
+                        event,
                         why: why.to_string(),
                     });
                 }
@@ -437,6 +620,15 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
         );
         let p_mw = plant.p_front_w * 1e3;
         res.peak_mw = res.peak_mw.max(p_mw);
+        for w in &mut res.windows {
+            w.observe(tick, p_mw);
+        }
+        let status = ctl.status();
+        if status.warnings != last_warnings {
+            res.warnings_changed(tick, last_warnings, status.warnings, prev, merge_ticks);
+            last_warnings = status.warnings;
+        }
+        prev = (p_mw, to_f(ctl.drive_ma()), status.mode);
         if !res.damaged && plant.diode.damaged() {
             res.damaged = true;
             res.happenings.push(Happening::FacetDamage { tick });
@@ -477,6 +669,9 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
         res.ticks = tick + 1;
     }
     res.final_state = ctl.state();
+    for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
+        (s.last_p_mw, s.last_drive_ma, s.last_mode) = prev;
+    }
     Ok(res)
 }
 
@@ -531,6 +726,7 @@ mod tests {
                     },
                 ),
             ],
+            expects: Vec::new(),
         }
     }
 

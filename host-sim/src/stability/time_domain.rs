@@ -544,6 +544,7 @@ fn scenario(corner: &PlantCorner, plan: &StepPlan, low_mw: f64, seed: u64) -> Sc
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
         events,
+        expects: Vec::new(),
     }
 }
 
@@ -800,6 +801,7 @@ pub fn small_step_agreement(
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
         events,
+        expects: Vec::new(),
     };
     let res = sim::run(&sc, &corner_module(module, c, true), cfg.clone()).map_err(|source| {
         TimeDomainError::Plant {
