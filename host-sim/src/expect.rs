@@ -266,3 +266,156 @@ pub fn text(outcomes: &[Outcome]) -> String {
     }
     s
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::scenario::parse;
+
+    /// A scenario of 10 ms at 1 kHz (one tick per ms) with `expects`.
+    fn scenario(expects: &str) -> Scenario {
+        parse(&format!(
+            "name = \"t\"\nboard = \"b.toml\"\nduration_ms = 10\nambient_c = 25\n\
+             [[event]]\nat_ms = 4\ndo = \"inject\"\nfault = {{ kind = \"interlock-open\" }}\n\
+             {expects}"
+        ))
+        .unwrap()
+    }
+
+    /// A run of 10 ticks at 1 kHz: regulating from tick 2, the injection at
+    /// tick 4, the interlock fault latching at tick 6; power 5 mW, with
+    /// `spike` mW at tick 3.
+    fn run(sc: &Scenario, spike: f64) -> RunResult {
+        let mut res = RunResult {
+            ticks: 10,
+            tick_hz: 1000,
+            windows: windows(sc, 1000),
+            happenings: vec![
+                Happening::State {
+                    tick: 2,
+                    state: State::Regulating,
+                },
+                Happening::Injected {
+                    tick: 4,
+                    fault: "interlock-open",
+                },
+                Happening::State {
+                    tick: 6,
+                    state: State::Latched,
+                },
+                Happening::Fault {
+                    tick: 6,
+                    fault: "interlock-open",
+                    measured: 0.0,
+                    limit: 1.0,
+                },
+            ],
+            ..RunResult::default()
+        };
+        for w in &mut res.windows {
+            for t in 0..10 {
+                w.observe(t, if t == 3 { spike } else { 5.0 });
+            }
+        }
+        res
+    }
+
+    fn verdicts(expects: &str, spike: f64) -> Vec<Outcome> {
+        let sc = scenario(expects);
+        evaluate(&sc, &run(&sc, spike))
+    }
+
+    #[test]
+    fn state_at_a_time() {
+        let e = "[[expect]]\ncheck = \"state\"\nat_ms = ";
+        let o = verdicts(
+            &format!(
+                "{e}1\nstate = \"off\"\n{e}2\nstate = \"regulating\"\n{e}5\nstate = \"regulating\"\n\
+                 {e}6\nstate = \"regulating\"\n{e}10\nstate = \"latched\"\n"
+            ),
+            5.0,
+        );
+        let passed: Vec<bool> = o.iter().map(|o| o.passed).collect();
+        assert_eq!(passed, [true, true, true, false, true]);
+        assert_eq!(o[3].measured, "latched at 6 ms");
+        assert_eq!(o[3].line, 21);
+    }
+
+    #[test]
+    fn fault_within_a_deadline_after_an_injection_or_a_time() {
+        let f = "[[expect]]\ncheck = \"fault\"\nfault = \"interlock-open\"\n";
+        let o = verdicts(
+            &format!(
+                "{f}after_inject = \"interlock-open\"\nwithin_ms = 2\n\
+                 {f}after_inject = \"interlock-open\"\nwithin_ms = 1\n\
+                 {f}after_ms = 7\nwithin_ms = 3\n\
+                 [[expect]]\ncheck = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 0\nwithin_ms = 9\n"
+            ),
+            5.0,
+        );
+        assert!(o[0].passed, "{:?}", o[0]);
+        assert!(
+            o[0].measured.contains("2 ticks = 2.000 ms after"),
+            "{}",
+            o[0].measured
+        );
+        // One tick late.
+        assert!(!o[1].passed);
+        // Latched before the reference time: it cannot latch again.
+        assert!(!o[2].passed);
+        assert!(o[2].measured.contains("before 7 ms"), "{}", o[2].measured);
+        assert!(!o[3].passed);
+        assert!(
+            o[3].measured.starts_with("never latched"),
+            "{}",
+            o[3].measured
+        );
+    }
+
+    #[test]
+    fn power_band_and_never_above_see_every_tick() {
+        let band = "[[expect]]\ncheck = \"power-band\"\nfrom_ms = 1\nto_ms = 6\nmw = 5\ntolerance_pct = 1\n";
+        let above = "[[expect]]\ncheck = \"never-above\"\nmw = 5.5\n";
+        // The interval ends before tick 3 or starts after it: the spike is not in it.
+        let late = "[[expect]]\ncheck = \"never-above\"\nmw = 5.5\nfrom_ms = 4\n";
+        let early = "[[expect]]\ncheck = \"never-above\"\nmw = 5.5\nto_ms = 3\n";
+        let all = format!("{band}{above}{late}{early}");
+        let ok = verdicts(&all, 5.0);
+        assert!(ok.iter().all(|o| o.passed), "{ok:?}");
+        let high = verdicts(&all, 6.0);
+        let passed: Vec<bool> = high.iter().map(|o| o.passed).collect();
+        assert_eq!(passed, [false, false, true, true]);
+        assert!(
+            high[0].measured.contains("above the band at 3.000 ms"),
+            "{}",
+            high[0].measured
+        );
+        assert_eq!(high[1].measured, "peak 6.0000 mW at 3.000 ms");
+        let low = verdicts(&all, 4.0);
+        assert!(!low[0].passed && low[0].measured.contains("below the band at 3.000 ms"));
+        // NaN power is outside every band and above every level.
+        let nan = verdicts(&all, f64::NAN);
+        assert!(!nan[0].passed && !nan[1].passed);
+    }
+
+    #[test]
+    fn descriptions_and_the_printed_lines() {
+        let o = verdicts(
+            "[[expect]]\nname = \"holds\"\ncheck = \"power-band\"\nfrom_ms = 1\nto_ms = 6\nmin_mw = 4.9\nmax_mw = 5.1\n\
+             [[expect]]\ncheck = \"never-above\"\nmw = 5.5\nfrom_ms = 2\n",
+            6.0,
+        );
+        assert_eq!(o[0].name, "holds");
+        assert_eq!(
+            o[0].expected,
+            "front power within 4.9 to 5.1 mW from 1 to 6 ms"
+        );
+        assert_eq!(
+            o[1].name,
+            "front power never above 5.5 mW from 2 ms to the end"
+        );
+        let t = text(&o);
+        assert!(t.contains("  FAIL holds: front power within 4.9 to 5.1 mW from 1 to 6 ms (line 9): measured 5.0000 to 6.0000 mW"), "{t}");
+        assert!(t.contains("  FAIL front power never above 5.5 mW from 2 ms to the end (line 16): measured peak 6.0000 mW at 3.000 ms"), "{t}");
+    }
+}

@@ -245,8 +245,11 @@ pub struct WarningNote {
     pub from_ms: f64,
     /// Cleared at, ms (`None`: still raised at the end of the run).
     pub to_ms: Option<f64>,
-    /// Times raised in this span (raisings closer than 10 ms are one span).
+    /// Times raised in this span (raisings closer than the larger of 10 ms
+    /// and 1 % of the run are one span).
     pub raised: u32,
+    /// Time within the span with the warning raised, ms.
+    pub raised_ms: f64,
 }
 
 /// A fault the core latched.
@@ -409,6 +412,7 @@ pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Su
             from_ms,
             to_ms,
             raised: s.raised,
+            raised_ms: ms(s.raised_ticks),
         });
         timeline.push(TimelineEntry {
             at_ms: from_ms,
@@ -556,8 +560,13 @@ impl Summary {
         }
         for w in &self.warnings {
             let until = w.to_ms.map_or("the end".into(), |t| format!("{t:.3} ms"));
+            let span_ms = w.to_ms.unwrap_or(self.duration_ms) - w.from_ms;
             let times = if w.raised > 1 {
-                format!(" (raised {} times)", w.raised)
+                format!(
+                    " (raised {} times, {:.0} % of the span)",
+                    w.raised,
+                    100.0 * w.raised_ms / span_ms.max(f64::MIN_POSITIVE)
+                )
             } else {
                 String::new()
             };

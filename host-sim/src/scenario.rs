@@ -264,7 +264,7 @@ pub enum Check {
     },
     /// `check = "power-band"`: front-facet optical power (the plant's, not
     /// the monitor reading) stays within `min_mw..=max_mw` at every tick
-    /// from `from_ms` to `to_ms`.
+    /// from `from_ms` up to, not including, `to_ms`.
     PowerBand {
         /// Start of the interval, ms.
         from_ms: f64,
@@ -276,8 +276,8 @@ pub enum Check {
         max_mw: f64,
     },
     /// `check = "never-above"`: front-facet optical power never exceeds
-    /// `mw` at any tick from `from_ms` (default 0) to `to_ms` (default the
-    /// end of the run).
+    /// `mw` at any tick from `from_ms` (default 0) up to, not including,
+    /// `to_ms` (default: to the end of the run).
     NeverAbove {
         /// The level, mW.
         mw: f64,
@@ -540,6 +540,25 @@ impl Expect {
     }
 }
 
+/// The error of the first malformed `[[expect]]` entry of `text`, with its
+/// line (the TOML reader places such errors at the first entry of the
+/// array, so they are looked for again entry by entry).
+fn expect_error(text: &str) -> Option<String> {
+    #[derive(Deserialize)]
+    struct Entries {
+        #[serde(default)]
+        expect: Vec<Spanned<toml::Table>>,
+    }
+    let entries: Entries = toml::from_str(text).ok()?;
+    entries.expect.into_iter().find_map(|e| {
+        let line = line_of(text, e.span().start);
+        toml::Value::Table(e.into_inner())
+            .try_into::<Expect>()
+            .err()
+            .map(|err| format!("line {line}: [[expect]] {}", err.message()))
+    })
+}
+
 /// Line (1-based) of a byte offset in `text`.
 fn line_of(text: &str, offset: usize) -> usize {
     text.get(..offset).map_or(0, |s| s.matches('\n').count()) + 1
@@ -591,7 +610,8 @@ fn check_expects(sc: &Scenario) -> Result<(), String> {
 
 /// Parse a scenario; the error names the line, column and what was expected.
 pub fn parse(text: &str) -> Result<Scenario, String> {
-    let mut sc: Scenario = toml::from_str(text).map_err(|e| e.to_string())?;
+    let mut sc: Scenario =
+        toml::from_str(text).map_err(|e| expect_error(text).unwrap_or(e.to_string()))?;
     for e in &mut sc.expects {
         let line = line_of(text, e.span().start);
         e.get_mut().line = line;
@@ -648,6 +668,152 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
             .unwrap_err();
         assert!(err.contains("unknown field `module`"), "{err}");
         assert!(err.contains("board"), "{err}");
+    }
+
+    const HEAD: &str = "name = \"t\"\nboard = \"b.toml\"\nduration_ms = 100\nambient_c = 25\n\
+                        [[event]]\nat_ms = 50\ndo = \"inject\"\nfault = { kind = \"monitor-open\" }\n";
+
+    /// The scenario head (8 lines) with `tail` after it.
+    fn with(tail: &str) -> Result<Scenario, String> {
+        parse(&format!("{HEAD}{tail}"))
+    }
+
+    #[test]
+    fn parses_every_kind_of_expectation_with_its_line() {
+        let sc = with(
+            "[[expect]]\ncheck = \"state\"\nat_ms = 10\nstate = \"regulating\"\n\
+             [[expect]]\nname = \"trips\"\ncheck = \"fault\"\nfault = \"monitor-loss\"\n\
+             after_inject = \"monitor-open\"\nwithin_ms = 2\n\
+             [[expect]]\ncheck = \"power-band\"\nfrom_ms = 10\nto_ms = 20\nmw = 20\n\
+             tolerance_pct = 1\n\
+             [[expect]]\ncheck = \"power-band\"\nfrom_ms = 10\nto_ms = 20\nmin_mw = 1\n\
+             max_mw = 2\n\
+             [[expect]]\ncheck = \"never-above\"\nmw = 30\n\
+             [[expect]]\ncheck = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 5\n\
+             within_ms = 0.1\n",
+        )
+        .unwrap();
+        let x: Vec<&Expect> = sc.expects.iter().map(|e| e.get_ref()).collect();
+        assert_eq!(x.len(), 6);
+        assert_eq!(x[0].line, 9);
+        assert_eq!(
+            x[0].check,
+            Check::State {
+                at_ms: 10.0,
+                state: State::Regulating
+            }
+        );
+        assert_eq!(x[1].name.as_deref(), Some("trips"));
+        assert_eq!(
+            x[1].check,
+            Check::Fault {
+                fault: Fault::MonitorLoss,
+                after: After::Inject("monitor-open".into()),
+                within_ms: 2.0
+            }
+        );
+        let Check::PowerBand { min_mw, max_mw, .. } = x[2].check else {
+            panic!("{:?}", x[2].check)
+        };
+        assert!((min_mw - 19.8).abs() < 1e-12 && (max_mw - 20.2).abs() < 1e-12);
+        assert_eq!(
+            x[3].check,
+            Check::PowerBand {
+                from_ms: 10.0,
+                to_ms: 20.0,
+                min_mw: 1.0,
+                max_mw: 2.0
+            }
+        );
+        assert_eq!(
+            x[4].check,
+            Check::NeverAbove {
+                mw: 30.0,
+                from_ms: 0.0,
+                to_ms: None
+            }
+        );
+        assert_eq!(
+            x[5].check,
+            Check::Fault {
+                fault: Fault::Overcurrent,
+                after: After::Ms(5.0),
+                within_ms: 0.1
+            }
+        );
+    }
+
+    /// Every malformed expectation is refused with its line and the key.
+    #[test]
+    fn malformed_expectations_are_refused_with_line_and_key() {
+        let cases: [(&str, &[&str]); 14] = [
+            (
+                "check = \"sometimes\"",
+                &["`check` = \"sometimes\"", "never-above"],
+            ),
+            (
+                "check = \"state\"\nat_ms = 1\nstate = \"regulatin\"",
+                &["`state` = \"regulatin\"", "regulating"],
+            ),
+            (
+                "check = \"fault\"\nfault = \"overcurent\"\nafter_ms = 1\nwithin_ms = 1",
+                &["`fault` = \"overcurent\"", "overcurrent"],
+            ),
+            (
+                "check = \"state\"\nat_ms = 1\nstate = \"off\"\nmw = 3",
+                &["`mw` = 3 does not belong to check = \"state\""],
+            ),
+            (
+                "check = \"state\"\nat_ms = 1\nstate = \"off\"\ncolour = 3",
+                &["unknown field `colour`"],
+            ),
+            ("check = \"state\"\nstate = \"off\"", &["needs `at_ms`"]),
+            (
+                "check = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 1\n\
+                 after_inject = \"monitor-open\"\nwithin_ms = 1",
+                &["exactly one of `after_ms` and `after_inject`"],
+            ),
+            (
+                "check = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 1\nwithin_ms = 0",
+                &["`within_ms` = 0 must be a finite number > 0"],
+            ),
+            (
+                "check = \"never-above\"\nmw = nan",
+                &["`mw` = NaN must be a finite number > 0"],
+            ),
+            (
+                "check = \"power-band\"\nfrom_ms = 1\nto_ms = 2\nmin_mw = 3\nmax_mw = 2",
+                &["`min_mw` = 3 is above `max_mw` = 2"],
+            ),
+            (
+                "check = \"power-band\"\nfrom_ms = 2\nto_ms = 2\nmw = 3\ntolerance_pct = 1",
+                &["`to_ms` = 2 must be after `from_ms` = 2"],
+            ),
+            (
+                "check = \"power-band\"\nfrom_ms = 1\nto_ms = 2\nmw = 3\nmax_mw = 4",
+                &["either `min_mw` and `max_mw`, or `mw` and `tolerance_pct`"],
+            ),
+            (
+                "check = \"state\"\nat_ms = 150\nstate = \"off\"",
+                &["`at_ms` = 150 is after the end of the run (duration_ms = 100)"],
+            ),
+            (
+                "check = \"fault\"\nfault = \"overcurrent\"\nafter_inject = \"sensor-open\"\n\
+                 within_ms = 1",
+                &["`after_inject` = \"sensor-open\"", "injected: monitor-open"],
+            ),
+        ];
+        for (body, wanted) in cases {
+            // One good entry first, so the bad one is the second, at line 12.
+            let err = with(&format!(
+                "[[expect]]\ncheck = \"never-above\"\nmw = 1\n[[expect]]\n{body}\n"
+            ))
+            .unwrap_err();
+            assert!(err.contains("line 12"), "{body}: {err}");
+            for w in wanted {
+                assert!(err.contains(w), "{body}: wanted `{w}` in: {err}");
+            }
+        }
     }
 
     #[test]

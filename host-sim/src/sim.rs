@@ -299,13 +299,14 @@ impl Plant {
     }
 }
 
-/// Front-facet optical power over the ticks `from_tick..=to_tick`, seen at
-/// every tick (not from the decimated trace).
+/// Front-facet optical power over the ticks `from_tick..to_tick` (the end
+/// excluded, so a window that ends at an event does not see its effect),
+/// seen at every tick (not from the decimated trace).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct PowerWindow {
     /// First tick.
     pub from_tick: u64,
-    /// Last tick (inclusive).
+    /// End tick (excluded).
     pub to_tick: u64,
     /// Ticks seen (0 when the run ended before `from_tick`).
     pub ticks: u64,
@@ -320,7 +321,7 @@ pub struct PowerWindow {
 }
 
 impl PowerWindow {
-    /// A window over `from_tick..=to_tick`, nothing seen yet.
+    /// A window over `from_tick..to_tick`, nothing seen yet.
     pub fn new(from_tick: u64, to_tick: u64) -> Self {
         PowerWindow {
             from_tick,
@@ -333,8 +334,9 @@ impl PowerWindow {
         }
     }
 
-    fn observe(&mut self, tick: u64, p_mw: f64) {
-        if tick < self.from_tick || tick > self.to_tick {
+    /// Take the power of `tick` into account if it falls in the window.
+    pub fn observe(&mut self, tick: u64, p_mw: f64) {
+        if tick < self.from_tick || tick >= self.to_tick {
             return;
         }
         self.ticks += 1;
@@ -357,9 +359,12 @@ fn warning_flags(w: Warnings) -> [bool; 3] {
     [w.derating, w.at_ceiling, w.sensor_suspect]
 }
 
-/// A stretch of ticks during which the core raised a warning. Raisings
-/// closer than [`WARNING_MERGE_MS`] to the end of the previous span of the
-/// same warning extend that span.
+/// A stretch of ticks during which the core raised a warning. A raising
+/// closer to the end of the previous span of the same warning than the
+/// merge gap (the larger of [`WARNING_MERGE_MS`] and
+/// [`WARNING_MERGE_FRACTION`] of the run) extends that span, so a warning
+/// that chatters (a temperature at the knee, a drive at its ceiling with
+/// noise) is one span with a count and the time it was actually raised.
 #[derive(Clone, Debug, PartialEq)]
 pub struct WarningSpan {
     /// One of [`WARNINGS`].
@@ -370,6 +375,10 @@ pub struct WarningSpan {
     pub to_tick: Option<u64>,
     /// Times it was raised within the span (1 unless it came and went).
     pub raised: u32,
+    /// Ticks of the span with the warning actually raised.
+    pub raised_ticks: u64,
+    /// Tick of the latest raising.
+    pub last_raised_tick: u64,
     /// Front-facet power at the last tick of the span, mW.
     pub last_p_mw: f64,
     /// Commanded drive at the last tick of the span, mA.
@@ -378,8 +387,13 @@ pub struct WarningSpan {
     pub last_mode: Mode,
 }
 
-/// Gap below which a warning raised again continues its previous span, ms.
+/// Shortest gap below which a warning raised again continues its previous
+/// span, ms.
 pub const WARNING_MERGE_MS: f64 = 10.0;
+
+/// The merge gap of warning spans as a fraction of the run, when longer
+/// than [`WARNING_MERGE_MS`].
+pub const WARNING_MERGE_FRACTION: f64 = 0.01;
 
 /// Most spans kept per warning; later ones are counted in
 /// [`RunResult::warning_spans_dropped`].
@@ -432,6 +446,7 @@ impl RunResult {
                     .find(|s| s.warning == name && s.to_tick.is_none())
                 {
                     s.to_tick = Some(tick);
+                    s.raised_ticks += tick - s.last_raised_tick;
                     (s.last_p_mw, s.last_drive_ma, s.last_mode) = prev;
                 }
             } else if now[k] && !was[k] {
@@ -444,6 +459,7 @@ impl RunResult {
                     Some(s) if s.to_tick.is_some_and(|t| tick - t < merge_ticks) => {
                         s.to_tick = None;
                         s.raised += 1;
+                        s.last_raised_tick = tick;
                     }
                     _ => {
                         let kept = self
@@ -457,6 +473,8 @@ impl RunResult {
                                 from_tick: tick,
                                 to_tick: None,
                                 raised: 1,
+                                raised_ticks: 0,
+                                last_raised_tick: tick,
                                 last_p_mw: f64::NAN,
                                 last_drive_ma: f64::NAN,
                                 last_mode: prev.2,
@@ -540,7 +558,10 @@ fn run_plant(
         windows,
         ..RunResult::default()
     };
-    let merge_ticks = (WARNING_MERGE_MS * 1e-3 * f64::from(tick_hz)).round() as u64;
+    let merge_ticks = tick_at(
+        WARNING_MERGE_MS.max(WARNING_MERGE_FRACTION * sc.duration_ms),
+        tick_hz,
+    );
     let mut last_warnings = Warnings::default();
     let mut prev = (0.0, 0.0, Mode::Apc);
     let mut last_state = State::Off;
@@ -670,6 +691,7 @@ fn run_plant(
     }
     res.final_state = ctl.state();
     for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
+        s.raised_ticks += res.ticks - s.last_raised_tick;
         (s.last_p_mw, s.last_drive_ma, s.last_mode) = prev;
     }
     Ok(res)
