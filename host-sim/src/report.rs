@@ -861,3 +861,143 @@ pub fn write_liv_svg(path: &Path, name: &str, curves: &LivCurves) -> Result<(), 
     root.present().map_err(|x| e(x.to_string()))?;
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::boardfile::load_board;
+    use crate::scenario::parse;
+
+    /// The demo red board at 50 degC ambient: the derated ceiling holds the
+    /// power far below the 25 mW asked for; a 40 mW request is refused (the
+    /// board's highest setpoint is 30 mW).
+    fn hot_run() -> (Scenario, RunResult) {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../examples/demo-red-30/board.toml");
+        let b = load_board(&path).unwrap();
+        let sc = parse(
+            "name = \"hot\"\nboard = \"board.toml\"\nduration_ms = 60\nambient_c = 50\nseed = 3\n\
+             [[event]]\nat_ms = 0.5\ndo = \"set-power\"\nmw = 25\n\
+             [[event]]\nat_ms = 1\ndo = \"enable\"\n\
+             [[event]]\nat_ms = 30\ndo = \"set-power\"\nmw = 40\n",
+        )
+        .unwrap();
+        let res = crate::sim::run(&sc, &b.module, b.valid).unwrap();
+        (sc, res)
+    }
+
+    #[test]
+    fn refused_requests_are_shown_as_refused_not_as_steps() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        assert_eq!(s.refused.len(), 1, "{:?}", s.refused);
+        let r = &s.refused[0];
+        assert_eq!((r.at_ms, r.request.as_str()), (30.0, "set-power 40 mW"));
+        assert!(r.reason.contains("40"), "{}", r.reason);
+        assert!(
+            s.steps.iter().all(|f| !f.label.contains("40")),
+            "a refused request was analysed as a step: {:?}",
+            s.steps
+        );
+        let text = s.text();
+        assert!(text.contains("refused requests (not applied):\n  t=30.000 ms set-power 40 mW: "));
+        assert!(
+            text.contains("t=30.000 ms REFUSED set-power 40 mW"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn an_unreachable_setpoint_is_reported_with_its_shortfall() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        assert_eq!(s.unreached.len(), 1, "{:?}", s.unreached);
+        let u = &s.unreached[0];
+        assert!(u.from_ms < 10.0 && u.to_ms.is_none(), "{u:?}");
+        let t = u.target.as_ref().unwrap();
+        assert_eq!((t.setpoint, t.unit), (25.0, "mW"));
+        // The power reached is what the plant gave at the end.
+        let last = res.trace.last().unwrap().p_mw;
+        assert!(
+            (t.reached - last).abs() < 0.05 * last,
+            "{} vs {last}",
+            t.reached
+        );
+        assert_eq!(t.shortfall, Some(25.0 - t.reached));
+        assert!(t.reached < 20.0, "{t:?}");
+        // The ceiling it sits on is the derated one, below the 50 mA ceiling.
+        assert!(u.ceiling_ma < 48.0, "{}", u.ceiling_ma);
+        // The start-up step says so too.
+        let step = &s.steps[0];
+        assert!(step.on_ceiling);
+        assert!(step.target.as_ref().unwrap().shortfall.unwrap() > 5.0);
+        let text = s.text();
+        assert!(
+            text.contains("setpoint not reached (drive held on its ceiling):"),
+            "{text}"
+        );
+        assert!(
+            text.contains(&format!(
+                "{:.3} mW ({:.1} %) short of the 25 mW setpoint",
+                25.0 - t.reached,
+                4.0 * (25.0 - t.reached)
+            )),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn warnings_are_shown_with_when() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        let derating = s.warnings.iter().find(|w| w.warning == "derating").unwrap();
+        assert_eq!((derating.from_ms, derating.to_ms), (0.0, None));
+        assert!(s.warnings.iter().any(|w| w.warning == "at-ceiling"));
+        let text = s.text();
+        assert!(
+            text.contains("warnings:\n  derating from t=0.000 ms to the end"),
+            "{text}"
+        );
+        assert!(
+            text.contains("warning derating raised (until the end)"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn the_json_summary_holds_the_same_figures_as_the_text() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        let j: serde_json::Value = serde_json::from_str(&s.json()).unwrap();
+        assert_eq!(j["scenario"], "hot");
+        assert_eq!(j["ticks"], res.ticks);
+        // Numbers survive JSON to the last digit or so (serde_json parses
+        // without exact round trip).
+        let same = |v: &serde_json::Value, x: f64| {
+            let y = v.as_f64().unwrap();
+            assert!((y - x).abs() <= 1e-12 * x.abs(), "{y} vs {x}");
+        };
+        same(&j["peak_mw"], s.peak_mw);
+        assert_eq!(j["final_state"], s.final_state);
+        assert_eq!(j["steps"].as_array().unwrap().len(), s.steps.len());
+        same(&j["steps"][0]["final_mw"], s.steps[0].final_mw);
+        assert_eq!(j["refused"][0]["request"], "set-power 40 mW");
+        let t = s.unreached[0].target.as_ref().unwrap();
+        same(
+            &j["unreached"][0]["target"]["shortfall"],
+            t.shortfall.unwrap(),
+        );
+        assert_eq!(j["warnings"][0]["warning"], s.warnings[0].warning);
+        assert_eq!(j["caution"], SAFETY_CAUTION);
+        // Every figure the text prints is in the JSON.
+        let text = s.text();
+        assert!(text.contains(&format!(
+            "peak optical power: {:.3} mW",
+            j["peak_mw"].as_f64().unwrap()
+        )));
+        assert!(text.contains(&format!(
+            "ceiling {:.3} mA",
+            j["unreached"][0]["ceiling_ma"].as_f64().unwrap()
+        )));
+    }
+}

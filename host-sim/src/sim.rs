@@ -823,6 +823,32 @@ mod tests {
         }
     }
 
+    /// A warning that comes and goes within the merge gap is one span with
+    /// a count and the ticks it was raised; a later one is a new span.
+    #[test]
+    fn chattering_warnings_make_one_span() {
+        let mut res = RunResult::default();
+        let on = Warnings {
+            derating: true,
+            ..Warnings::default()
+        };
+        let off = Warnings::default();
+        let prev = (1.0, 2.0, Mode::Apc);
+        for (tick, was, now) in [(10, off, on), (12, on, off), (15, off, on), (16, on, off)] {
+            res.warnings_changed(tick, was, now, prev, 5);
+        }
+        // 16 -> 30 is longer than the gap of 5 ticks.
+        res.warnings_changed(30, off, on, prev, 5);
+        assert_eq!(res.warning_spans.len(), 2);
+        let s = &res.warning_spans[0];
+        assert_eq!(
+            (s.warning, s.from_tick, s.to_tick, s.raised, s.raised_ticks),
+            ("derating", 10, Some(16), 2, 3)
+        );
+        assert_eq!((s.last_p_mw, s.last_drive_ma), (1.0, 2.0));
+        assert_eq!(res.warning_spans[1].to_tick, None);
+    }
+
     /// The same scenario and seed give the same trace bit for bit; another
     /// seed gives another noise realisation.
     #[test]
