@@ -164,9 +164,9 @@ pub fn evaluate(sc: &Scenario, res: &RunResult) -> Vec<Outcome> {
                             (Some(&t), _) => (
                                 t <= deadline,
                                 format!(
-                                    "latched at {:.3} ms, {} ticks = {:.3} ms after {what}",
+                                    "latched at {:.3} ms, {} = {:.3} ms after {what}",
                                     ms(t),
-                                    t - t0,
+                                    ticks(t - t0),
                                     ms(t - t0)
                                 ),
                             ),
@@ -230,6 +230,15 @@ pub fn evaluate(sc: &Scenario, res: &RunResult) -> Vec<Outcome> {
         });
     }
     out
+}
+
+/// "1 tick", "2 ticks".
+pub fn ticks(n: u64) -> String {
+    if n == 1 {
+        "1 tick".into()
+    } else {
+        format!("{n} ticks")
+    }
 }
 
 /// The controller state after the core's step at `tick` (at the end of

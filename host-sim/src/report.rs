@@ -124,8 +124,22 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
     let ms = |r: &TraceRow| r.t_s * 1e3;
     let refused = refused_events(res);
     let mut starts: Vec<(f64, String)> = Vec::new();
-    if let Some(h) = tr.iter().find(|r| r.state == State::Regulating) {
-        starts.push((ms(h), "start-up (from hand-over)".into()));
+    // Every hand-over from soft start to regulation (each enable).
+    let mut last = State::Off;
+    for h in &res.happenings {
+        if let Happening::State { tick, state } = h {
+            if *state == State::Regulating && last == State::Ramping {
+                let t = *tick as f64 * 1e3 / f64::from(res.tick_hz);
+                // From the first traced row in regulation.
+                if let Some(r) = tr
+                    .iter()
+                    .find(|r| ms(r) >= t && r.state == State::Regulating)
+                {
+                    starts.push((ms(r), "start-up (from hand-over)".into()));
+                }
+            }
+            last = *state;
+        }
     }
     for (k, e) in sc.events.iter().enumerate() {
         if refused.contains(&k) {
@@ -140,6 +154,7 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
             _ => {}
         }
     }
+    starts.sort_by(|a, b| a.0.total_cmp(&b.0));
     let mut out = Vec::new();
     for (t0, label) in starts {
         let Some(a) = tr.iter().position(|r| ms(r) >= t0) else {
@@ -370,8 +385,8 @@ pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Su
                 });
                 let lat = latency_ms.map_or(String::new(), |l| {
                     format!(
-                        ", {} ticks = {l:.3} ms after the injection",
-                        tick - injected.unwrap_or(*tick)
+                        ", {} = {l:.3} ms after the injection",
+                        crate::expect::ticks(tick - injected.unwrap_or(*tick))
                     )
                 });
                 (
@@ -512,6 +527,10 @@ impl Summary {
                     shortfall_text(t)
                 ),
                 (None, true) => "; DRIVE ON ITS CEILING: the request is beyond reach".into(),
+                // In ACC the setpoint is a current: say what the drive reached.
+                (Some(t), false) if t.unit == "mA" => {
+                    format!("; setpoint {} mA, drive {:.3} mA", t.setpoint, t.reached)
+                }
                 _ => String::new(),
             };
             let _ = writeln!(
@@ -944,6 +963,31 @@ mod tests {
             )),
             "{text}"
         );
+    }
+
+    /// Each enable gives a start-up step, in time order with the others.
+    #[test]
+    fn every_hand_over_is_a_start_up_step() {
+        let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/demo-red-30");
+        let b = load_board(&dir.join("board.toml")).unwrap();
+        let sc =
+            parse(&std::fs::read_to_string(dir.join("modes-and-interlock.toml")).unwrap()).unwrap();
+        let res = crate::sim::run(&sc, &b.module, b.valid).unwrap();
+        let steps = figures(&sc, &res);
+        let labels: Vec<&str> = steps.iter().map(|f| f.label.as_str()).collect();
+        assert_eq!(
+            labels,
+            [
+                "start-up (from hand-over)",
+                "mode ACC",
+                "mode APC",
+                "start-up (from hand-over)"
+            ]
+        );
+        assert!(steps[3].start_ms > 60.0);
+        let acc = steps[1].target.as_ref().unwrap();
+        assert_eq!((acc.setpoint, acc.unit), (35.0, "mA"));
+        assert!((acc.reached - 35.0).abs() < 0.5, "{acc:?}");
     }
 
     #[test]
