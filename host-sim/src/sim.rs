@@ -563,7 +563,7 @@ fn run_plant(
         tick_hz,
     );
     let mut last_warnings = Warnings::default();
-    let mut prev = (0.0, 0.0, Mode::Apc);
+    let mut prev = (0.0, Fx::ZERO, Mode::Apc);
     let mut last_state = State::Off;
     let mut logged = 0usize;
     let mut drive = diodestat_core::Drive::default();
@@ -641,15 +641,20 @@ fn run_plant(
         );
         let p_mw = plant.p_front_w * 1e3;
         res.peak_mw = res.peak_mw.max(p_mw);
-        for w in &mut res.windows {
-            w.observe(tick, p_mw);
+        if !res.windows.is_empty() {
+            for w in &mut res.windows {
+                w.observe(tick, p_mw);
+            }
         }
-        let status = ctl.status();
-        if status.warnings != last_warnings {
-            res.warnings_changed(tick, last_warnings, status.warnings, prev, merge_ticks);
-            last_warnings = status.warnings;
+        // Warnings change seldom: the power, drive and mode of the tick
+        // before are kept raw and converted only when one does.
+        let warnings = ctl.status().warnings;
+        if warnings != last_warnings {
+            let (p, d, m) = prev;
+            res.warnings_changed(tick, last_warnings, warnings, (p, to_f(d), m), merge_ticks);
+            last_warnings = warnings;
         }
-        prev = (p_mw, to_f(ctl.drive_ma()), status.mode);
+        prev = (p_mw, ctl.drive_ma(), ctl.mode());
         if !res.damaged && plant.diode.damaged() {
             res.damaged = true;
             res.happenings.push(Happening::FacetDamage { tick });
@@ -692,7 +697,7 @@ fn run_plant(
     res.final_state = ctl.state();
     for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
         s.raised_ticks += res.ticks - s.last_raised_tick;
-        (s.last_p_mw, s.last_drive_ma, s.last_mode) = prev;
+        (s.last_p_mw, s.last_drive_ma, s.last_mode) = (prev.0, to_f(prev.1), prev.2);
     }
     Ok(res)
 }
