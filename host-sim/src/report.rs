@@ -432,15 +432,27 @@ pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Su
         timeline.push(TimelineEntry {
             at_ms: from_ms,
             kind: "warning",
-            what: format!(
-                "warning {} raised{}",
-                s.warning,
-                match to_ms {
-                    Some(t) => format!(" (until {t:.3} ms)"),
-                    None => " (until the end)".into(),
-                }
-            ),
+            what: format!("warning {} raised", s.warning),
         });
+        if let Some(t) = to_ms {
+            timeline.push(TimelineEntry {
+                at_ms: t,
+                kind: "warning",
+                what: format!(
+                    "warning {} cleared{}",
+                    s.warning,
+                    if s.raised > 1 {
+                        format!(
+                            " (raised {} times since {})",
+                            s.raised,
+                            when(from_ms, ms(res.ticks))
+                        )
+                    } else {
+                        String::new()
+                    }
+                ),
+            });
+        }
         let end_ms = to_ms.unwrap_or(ms(res.ticks));
         if s.warning == "at-ceiling" && end_ms - from_ms >= MIN_ON_CEILING_MS {
             let (p_sp, i_sp, _) = in_force(sc, &refused_idx, end_ms);
@@ -488,6 +500,16 @@ pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Su
     }
 }
 
+/// A time in a summary of a run of `run_ms`: ms, or s for runs of 10 s
+/// and more.
+fn when(t_ms: f64, run_ms: f64) -> String {
+    if run_ms >= 10_000.0 {
+        format!("{:.3} s", t_ms / 1e3)
+    } else {
+        format!("{t_ms:.3} ms")
+    }
+}
+
 /// Shortfall in words: "600.000 mW (13.3 %) short of the 4500 mW setpoint".
 fn shortfall_text(t: &Target) -> String {
     match t.shortfall {
@@ -502,14 +524,21 @@ fn shortfall_text(t: &Target) -> String {
 }
 
 impl Summary {
+    /// A time as the text gives it (ms; s for runs of 10 s and more).
+    fn when(&self, t_ms: f64) -> String {
+        when(t_ms, self.duration_ms)
+    }
+
     /// The summary as printed text (and `summary.txt`).
     pub fn text(&self) -> String {
         let mut s = String::new();
         let _ = writeln!(s, "scenario: {}", self.scenario);
         let _ = writeln!(
             s,
-            "ticks: {} at {} Hz ({:.1} ms)",
-            self.ticks, self.tick_hz, self.duration_ms
+            "ticks: {} at {} Hz ({})",
+            self.ticks,
+            self.tick_hz,
+            self.when(self.duration_ms)
         );
         if !self.steps.is_empty() {
             let _ = writeln!(s, "steps:");
@@ -533,23 +562,25 @@ impl Summary {
                 }
                 _ => String::new(),
             };
-            let _ = writeln!(
+            let _ =
+                writeln!(
                 s,
-                "  t={:.3} ms {}: {:.3} -> {:.3} mW, overshoot {:.2} % of the step, {settle}{ceiling}",
-                f.start_ms, f.label, f.initial_mw, f.final_mw, f.overshoot_pct,
+                "  t={} {}: {:.3} -> {:.3} mW, overshoot {:.2} % of the step, {settle}{ceiling}",
+                self.when(f.start_ms),
+                f.label, f.initial_mw, f.final_mw, f.overshoot_pct,
             );
         }
         if !self.refused.is_empty() {
             let _ = writeln!(s, "refused requests (not applied):");
         }
         for r in &self.refused {
-            let _ = writeln!(s, "  t={:.3} ms {}: {}", r.at_ms, r.request, r.reason);
+            let _ = writeln!(s, "  t={} {}: {}", self.when(r.at_ms), r.request, r.reason);
         }
         if !self.unreached.is_empty() {
             let _ = writeln!(s, "setpoint not reached (drive held on its ceiling):");
         }
         for u in &self.unreached {
-            let until = u.to_ms.map_or("the end".into(), |t| format!("{t:.3} ms"));
+            let until = u.to_ms.map_or("the end".into(), |t| self.when(t));
             let what = u
                 .target
                 .as_ref()
@@ -568,8 +599,8 @@ impl Summary {
                 });
             let _ = writeln!(
                 s,
-                "  t={:.3} ms to {until}, {}: ceiling {:.3} mA; {what}",
-                u.from_ms,
+                "  t={} to {until}, {}: ceiling {:.3} mA; {what}",
+                self.when(u.from_ms),
                 u.mode.to_uppercase(),
                 u.ceiling_ma
             );
@@ -578,7 +609,7 @@ impl Summary {
             let _ = writeln!(s, "warnings:");
         }
         for w in &self.warnings {
-            let until = w.to_ms.map_or("the end".into(), |t| format!("{t:.3} ms"));
+            let until = w.to_ms.map_or("the end".into(), |t| self.when(t));
             let span_ms = w.to_ms.unwrap_or(self.duration_ms) - w.from_ms;
             let times = if w.raised > 1 {
                 format!(
@@ -591,8 +622,9 @@ impl Summary {
             };
             let _ = writeln!(
                 s,
-                "  {} from t={:.3} ms to {until}{times}",
-                w.warning, w.from_ms
+                "  {} from t={} to {until}{times}",
+                w.warning,
+                self.when(w.from_ms)
             );
         }
         if self.warning_spans_dropped > 0 {
@@ -610,7 +642,7 @@ impl Summary {
         );
         let _ = writeln!(s, "timeline:");
         for t in &self.timeline {
-            let _ = writeln!(s, "  t={:.3} ms {}", t.at_ms, t.what);
+            let _ = writeln!(s, "  t={} {}", self.when(t.at_ms), t.what);
         }
         let _ = writeln!(s, "final state: {}", self.final_state);
         if !self.expectations.is_empty() {
@@ -1003,7 +1035,7 @@ mod tests {
             "{text}"
         );
         assert!(
-            text.contains("warning derating raised (until the end)"),
+            text.contains("t=0.000 ms warning derating raised\n"),
             "{text}"
         );
     }
