@@ -313,3 +313,39 @@ pub fn junit(cases: &[Case]) -> String {
     s.push_str("</testsuites>\n");
     s
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    proptest::proptest! {
+        /// Escaped text holds no markup character and no character XML 1.0
+        /// refuses, and unescaping the five entities gives the text back
+        /// (control characters aside).
+        #[test]
+        fn escaped_text_is_plain_xml_character_data(s in "\\PC*|[<>&\"'\\x00-\\x1f]*") {
+            let e = xml_escape(&s);
+            proptest::prop_assert!(!e.contains('<') && !e.contains('>') && !e.contains('"'));
+            proptest::prop_assert!(e
+                .chars()
+                .all(|c| (c as u32) >= 0x20 || matches!(c, '\t' | '\n' | '\r')));
+            let back = e
+                .replace("&lt;", "<")
+                .replace("&gt;", ">")
+                .replace("&quot;", "\"")
+                .replace("&apos;", "'")
+                .replace("&amp;", "&");
+            let plain: String = s
+                .chars()
+                .map(|c| {
+                    if (c as u32) < 0x20 && !matches!(c, '\t' | '\n' | '\r') {
+                        '\u{FFFD}'
+                    } else {
+                        c
+                    }
+                })
+                .collect();
+            proptest::prop_assert_eq!(back, plain);
+        }
+    }
+}

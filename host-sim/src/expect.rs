@@ -407,6 +407,41 @@ mod tests {
         assert!(!nan[0].passed && !nan[1].passed);
     }
 
+    proptest::proptest! {
+        /// A window's extremes and count are those of the ticks inside it,
+        /// whatever the order of the powers, and the band verdict is the
+        /// plain "every tick in the band".
+        #[test]
+        fn windows_agree_with_a_plain_scan(
+            powers in proptest::collection::vec(0.0f64..10.0, 1..200),
+            from in 0u64..250,
+            len in 1u64..250,
+            lo in 0.0f64..10.0,
+            width in 0.0f64..10.0,
+        ) {
+            let mut w = PowerWindow::new(from, from + len);
+            for (t, p) in powers.iter().enumerate() {
+                w.observe(t as u64, *p);
+            }
+            let inside: Vec<f64> = powers
+                .iter()
+                .enumerate()
+                .filter(|(t, _)| (from..from + len).contains(&(*t as u64)))
+                .map(|(_, p)| *p)
+                .collect();
+            proptest::prop_assert_eq!(w.ticks as usize, inside.len());
+            if !inside.is_empty() {
+                let min = inside.iter().cloned().fold(f64::INFINITY, f64::min);
+                let max = inside.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+                proptest::prop_assert_eq!((w.min_mw, w.max_mw), (min, max));
+                proptest::prop_assert_eq!(powers[w.min_tick as usize], min);
+                proptest::prop_assert_eq!(powers[w.max_tick as usize], max);
+                let band = inside.iter().all(|p| (lo..=lo + width).contains(p));
+                proptest::prop_assert_eq!(w.min_mw >= lo && w.max_mw <= lo + width, band);
+            }
+        }
+    }
+
     #[test]
     fn descriptions_and_the_printed_lines() {
         let o = verdicts(
