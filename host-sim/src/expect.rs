@@ -52,6 +52,7 @@ pub fn describe(e: &Expect) -> String {
             match after {
                 After::Ms(t) => format!("{t} ms"),
                 After::Inject(k) => format!("the {k} injection"),
+                After::Event(k) => format!("the first {k} event"),
             }
         ),
         Check::PowerBand {
@@ -133,6 +134,9 @@ pub fn evaluate(sc: &Scenario, res: &RunResult) -> Vec<Outcome> {
                         }
                         _ => None,
                     }),
+                    After::Event(k) => sc
+                        .first_event(k)
+                        .map(|t| (tick_at(t, res.tick_hz), format!("the {k} event at {t} ms"))),
                 };
                 match reference {
                     None => (
@@ -140,7 +144,7 @@ pub fn evaluate(sc: &Scenario, res: &RunResult) -> Vec<Outcome> {
                         format!(
                             "no {} injection took place before the run ended",
                             match after {
-                                After::Inject(k) => k.as_str(),
+                                After::Inject(k) | After::Event(k) => k.as_str(),
                                 After::Ms(_) => "",
                             }
                         ),
@@ -358,6 +362,7 @@ mod tests {
                 "{f}after_inject = \"interlock-open\"\nwithin_ms = 2\n\
                  {f}after_inject = \"interlock-open\"\nwithin_ms = 1\n\
                  {f}after_ms = 7\nwithin_ms = 3\n\
+                 {f}after_event = \"inject\"\nwithin_ms = 2\n\
                  [[expect]]\ncheck = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 0\nwithin_ms = 9\n"
             ),
             5.0,
@@ -373,11 +378,17 @@ mod tests {
         // Latched before the reference time: it cannot latch again.
         assert!(!o[2].passed);
         assert!(o[2].measured.contains("before 7 ms"), "{}", o[2].measured);
-        assert!(!o[3].passed);
+        assert!(o[3].passed, "{:?}", o[3]);
         assert!(
-            o[3].measured.starts_with("never latched"),
+            o[3].measured.contains("after the inject event at 4 ms"),
             "{}",
             o[3].measured
+        );
+        assert!(!o[4].passed);
+        assert!(
+            o[4].measured.starts_with("never latched"),
+            "{}",
+            o[4].measured
         );
     }
 

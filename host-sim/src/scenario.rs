@@ -45,6 +45,15 @@ fn one() -> u32 {
 }
 
 impl Scenario {
+    /// The time of the first event whose `do` is `name`, ms.
+    pub fn first_event(&self, name: &str) -> Option<f64> {
+        self.events
+            .iter()
+            .filter(|e| e.action.name() == name)
+            .map(|e| e.at_ms)
+            .reduce(f64::min)
+    }
+
     /// The board file of a scenario read from `scenario_path`.
     pub fn board_path(&self, scenario_path: &Path) -> PathBuf {
         scenario_path
@@ -122,6 +131,24 @@ pub enum Action {
         /// The fault.
         fault: HwFault,
     },
+}
+
+impl Action {
+    /// Its `do` value in scenario files.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Action::Enable => "enable",
+            Action::Disable => "disable",
+            Action::SetPower { .. } => "set-power",
+            Action::SetCurrent { .. } => "set-current",
+            Action::Mode { .. } => "mode",
+            Action::Clear => "clear",
+            Action::AmbientStep { .. } => "ambient-step",
+            Action::AmbientRamp { .. } => "ambient-ramp",
+            Action::Inject { .. } => "inject",
+            Action::Repair { .. } => "repair",
+        }
+    }
 }
 
 /// Mode names in scenario files.
@@ -252,7 +279,8 @@ pub enum Check {
         state: State,
     },
     /// `check = "fault"`: `fault` latches no later than `within_ms` after
-    /// the reference (`after_ms`, or the first injection `after_inject`),
+    /// the reference (`after_ms`, the first injection `after_inject`, or
+    /// the first event `after_event`),
     /// and not before it.
     Fault {
         /// The core's fault.
@@ -295,6 +323,8 @@ pub enum After {
     Ms(f64),
     /// The first injection of this hardware fault kind (`after_inject`).
     Inject(String),
+    /// The first event with this `do` (`after_event`), e.g. `ambient-step`.
+    Event(String),
 }
 
 /// The file form of an expectation, checked into an [`Expect`].
@@ -308,6 +338,7 @@ struct RawExpect {
     fault: Option<String>,
     after_ms: Option<f64>,
     after_inject: Option<String>,
+    after_event: Option<String>,
     within_ms: Option<f64>,
     from_ms: Option<f64>,
     to_ms: Option<f64>,
@@ -320,7 +351,16 @@ struct RawExpect {
 /// Every `check` and the keys it takes (besides `check` and `name`).
 const CHECK_KEYS: [(&str, &[&str]); 4] = [
     ("state", &["at_ms", "state"]),
-    ("fault", &["fault", "after_ms", "after_inject", "within_ms"]),
+    (
+        "fault",
+        &[
+            "fault",
+            "after_ms",
+            "after_inject",
+            "after_event",
+            "within_ms",
+        ],
+    ),
     (
         "power-band",
         &[
@@ -367,6 +407,7 @@ impl RawExpect {
             ("state", &self.state),
             ("fault", &self.fault),
             ("after_inject", &self.after_inject),
+            ("after_event", &self.after_event),
         ] {
             if let Some(x) = x {
                 v.push((k, format!("\"{x}\"")));
@@ -446,11 +487,13 @@ impl TryFrom<RawExpect> for Expect {
                         )
                     })?;
                 let after =
-                    match (r.after_ms, r.after_inject) {
-                        (Some(t), None) => After::Ms(number("after_ms", t, false)?),
-                        (None, Some(kind)) => After::Inject(kind),
+                    match (r.after_ms, r.after_inject, r.after_event) {
+                        (Some(t), None, None) => After::Ms(number("after_ms", t, false)?),
+                        (None, Some(kind), None) => After::Inject(kind),
+                        (None, None, Some(event)) => After::Event(event),
                         _ => return Err(
-                            "check = \"fault\" needs exactly one of `after_ms` and `after_inject`"
+                            "check = \"fault\" needs exactly one of `after_ms`, `after_inject` \
+                             and `after_event`"
                                 .into(),
                         ),
                     };
@@ -526,7 +569,7 @@ impl Expect {
             Check::State { at_ms, .. } => vec![("at_ms", *at_ms)],
             Check::Fault { after, .. } => match after {
                 After::Ms(t) => vec![("after_ms", *t)],
-                After::Inject(_) => vec![],
+                After::Inject(_) | After::Event(_) => vec![],
             },
             Check::PowerBand { from_ms, to_ms, .. } => {
                 vec![("from_ms", *from_ms), ("to_ms", *to_ms)]
@@ -600,6 +643,25 @@ fn check_expects(sc: &Scenario) -> Result<(), String> {
                         "none".to_string()
                     } else {
                         injected.join(", ")
+                    }
+                ));
+            }
+        }
+        if let Check::Fault {
+            after: After::Event(name),
+            ..
+        } = &x.check
+        {
+            if sc.first_event(name).is_none() {
+                let mut present: Vec<&str> = sc.events.iter().map(|e| e.action.name()).collect();
+                present.dedup();
+                return Err(format!(
+                    "line {line}: [[expect]] `after_event` = \"{name}\" is no event of this \
+                     scenario (its events: {})",
+                    if present.is_empty() {
+                        "none".to_string()
+                    } else {
+                        present.join(", ")
                     }
                 ));
             }
@@ -746,7 +808,15 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
     /// Every malformed expectation is refused with its line and the key.
     #[test]
     fn malformed_expectations_are_refused_with_line_and_key() {
-        let cases: [(&str, &[&str]); 14] = [
+        let cases: [(&str, &[&str]); 15] = [
+            (
+                "check = \"fault\"\nfault = \"over-temperature\"\nafter_event = \"ambient-step\"\n\
+                 within_ms = 1",
+                &[
+                    "`after_event` = \"ambient-step\" is no event",
+                    "its events: inject",
+                ],
+            ),
             (
                 "check = \"sometimes\"",
                 &["`check` = \"sometimes\"", "never-above"],
@@ -771,7 +841,7 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
             (
                 "check = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 1\n\
                  after_inject = \"monitor-open\"\nwithin_ms = 1",
-                &["exactly one of `after_ms` and `after_inject`"],
+                &["exactly one of `after_ms`, `after_inject` and `after_event`"],
             ),
             (
                 "check = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 1\nwithin_ms = 0",
