@@ -150,7 +150,7 @@ pub fn evaluate(sc: &Scenario, res: &RunResult) -> Vec<Outcome> {
                         ),
                     ),
                     Some((t0, what)) => {
-                        let deadline = t0 + tick_at(*within_ms, res.tick_hz);
+                        let deadline = t0.saturating_add(tick_at(*within_ms, res.tick_hz));
                         let latched: Vec<u64> = res
                             .happenings
                             .iter()
@@ -390,6 +390,18 @@ mod tests {
             "{}",
             o[4].measured
         );
+    }
+
+    /// A deadline far beyond any run (1e300 ms) neither overflows nor fails
+    /// a fault that latched.
+    #[test]
+    fn a_huge_deadline_does_not_overflow() {
+        let o = verdicts(
+            "[[expect]]\ncheck = \"fault\"\nfault = \"interlock-open\"\n\
+             after_inject = \"interlock-open\"\nwithin_ms = 1e300\n",
+            5.0,
+        );
+        assert!(o[0].passed, "{:?}", o[0]);
     }
 
     #[test]
