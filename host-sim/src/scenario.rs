@@ -886,6 +886,43 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
         }
     }
 
+    proptest::proptest! {
+        /// Any mix of expectation keys and values parses or is refused with
+        /// a line; never a panic.
+        #[test]
+        fn any_expectation_parses_or_is_refused_with_a_line(
+            entries in proptest::collection::vec(
+                proptest::collection::vec((0usize..16, 0usize..12), 0..6),
+                1..4,
+            )
+        ) {
+            const KEYS: [&str; 16] = [
+                "check", "name", "at_ms", "state", "fault", "after_ms", "after_inject",
+                "after_event", "within_ms", "from_ms", "to_ms", "min_mw", "max_mw", "mw",
+                "tolerance_pct", "colour",
+            ];
+            const VALUES: [&str; 12] = [
+                "\"state\"", "\"fault\"", "\"power-band\"", "\"never-above\"",
+                "\"monitor-open\"", "\"inject\"", "\"latched\"", "nan", "inf", "-1", "5",
+                "1e300",
+            ];
+            let mut tail = String::new();
+            for e in &entries {
+                tail.push_str("[[expect]]\n");
+                let mut seen = Vec::new();
+                for &(k, v) in e {
+                    if !seen.contains(&k) {
+                        seen.push(k);
+                        tail.push_str(&format!("{} = {}\n", KEYS[k], VALUES[v]));
+                    }
+                }
+            }
+            if let Err(e) = with(&tail) {
+                proptest::prop_assert!(e.contains("line "), "{}", e);
+            }
+        }
+    }
+
     #[test]
     fn malformed_names_line_and_column() {
         let err = parse("name = \"t\"\nboard = \"b.toml\"\nduration_ms = \"x\"\nambient_c = 1\n")
