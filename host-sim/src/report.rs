@@ -654,6 +654,12 @@ impl Summary {
                 self.expectations.len()
             );
             s.push_str(&crate::expect::text(&self.expectations));
+        } else {
+            let _ = writeln!(
+                s,
+                "expectations: none (add [[expect]] entries to make the scenario a test; \
+                 see docs/scenarios.md)"
+            );
         }
         let _ = writeln!(s, "CAUTION: {}", self.caution);
         s
@@ -954,6 +960,10 @@ mod tests {
         assert!(text.contains("refused requests (not applied):\n  t=30.000 ms set-power 40 mW: "));
         assert!(
             text.contains("t=30.000 ms REFUSED set-power 40 mW"),
+            "{text}"
+        );
+        assert!(
+            text.contains("expectations: none (add [[expect]] entries"),
             "{text}"
         );
     }
