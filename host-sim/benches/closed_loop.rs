@@ -110,6 +110,7 @@ fn bench(c: &mut Criterion) {
                 action: Action::Enable,
             },
         ],
+        expects: Vec::new(),
     };
     let mut g = c.benchmark_group("closed_loop");
     g.throughput(Throughput::Elements(u64::from(TICKS)));

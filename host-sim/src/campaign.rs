@@ -329,6 +329,7 @@ fn scenario(
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
             events: ev,
+            expects: Vec::new(),
         },
         inject_ms,
     )

@@ -15,6 +15,8 @@
 pub mod board;
 pub mod boardfile;
 pub mod campaign;
+pub mod check;
+pub mod expect;
 pub mod export;
 pub mod files;
 pub mod locate;

@@ -5,10 +5,10 @@ use std::process::ExitCode;
 use std::time::Instant;
 
 use clap::{Parser, Subcommand};
-use diodestat_sim::boardfile::{load_board, load_board_from, LoadedBoard};
+use diodestat_sim::boardfile::{load_board, LoadedBoard};
 use diodestat_sim::files::{self, Staging};
 use diodestat_sim::plant::DemoModule;
-use diodestat_sim::{report, scenario, sim};
+use diodestat_sim::{check, report};
 
 mod loop_cmd;
 
@@ -25,13 +25,22 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Cmd {
-    /// Run a scenario file: CSV trace, SVG plot and a printed summary.
+    /// Run a scenario file: CSV trace, SVG plot, summary (printed, summary.txt, summary.json); exits non-zero when an expectation fails.
     Run {
         /// Scenario file (TOML).
         scenario: PathBuf,
-        /// Output folder for trace.csv and plot.svg.
+        /// Output folder for trace.csv, plot.svg, summary.txt and summary.json.
         #[arg(long, default_value = "out")]
         out: PathBuf,
+    },
+    /// Run scenarios as a test suite: a table of their expectations, optional JUnit XML; exits non-zero on any failure.
+    Check {
+        /// Scenario files, or folders searched for scenarios (TOML files with a `board` key).
+        #[arg(required = true)]
+        paths: Vec<PathBuf>,
+        /// Write the results as JUnit XML to this file.
+        #[arg(long)]
+        junit: Option<PathBuf>,
     },
     /// L-I-V sweep of a demo module's diode at chosen temperatures (CSV and SVG).
     Liv {
@@ -169,28 +178,29 @@ fn module_by_name(name: &str) -> Result<DemoModule, String> {
 }
 
 fn run(path: &Path, out: &Path) -> Result<(), String> {
-    let text = files::read_text(path, "SCENARIO").map_err(|e| e.to_string())?;
-    let sc = scenario::parse(&text).map_err(|e| format!("{}: {e}", path.display()))?;
-    let board_path = sc.board_path(path);
-    let board = load_board_from(&board_path, &format!("{}: board", path.display()))
-        .map_err(|e| e.to_string())?;
-    scenario::check_for_board(&sc, &text, board.config.tick_hz, &board.module)
-        .map_err(|e| format!("{}: {e}", path.display()))?;
-    let mut inputs = vec![path.to_path_buf(), board_path];
-    inputs.extend(board.table_csv.clone());
-    files::check_out_dir(out, "--out", &["trace.csv", "plot.svg"], &inputs)
-        .map_err(|e| e.to_string())?;
-    println!("{}", board_line(&board));
-    let t0 = Instant::now();
-    let res =
-        sim::run(&sc, &board.module, board.valid, board.latency).map_err(|e| e.to_string())?;
-    let secs = t0.elapsed().as_secs_f64();
+    let loaded = check::load(path)?;
+    files::check_out_dir(
+        out,
+        "--out",
+        &["trace.csv", "plot.svg", "summary.txt", "summary.json"],
+        &loaded.inputs,
+    )
+    .map_err(|e| e.to_string())?;
+    println!("{}", board_line(&loaded.board));
+    let ran = loaded.run()?;
+    let (sc, res, secs) = (&ran.scenario, &ran.result, ran.seconds);
+    let summary = report::summary(sc, res, ran.outcomes.clone());
+    let text = summary.text();
     let stage = Staging::new(out).map_err(|e| e.to_string())?;
-    report::write_csv(&stage.path("trace.csv"), &res)
+    report::write_csv(&stage.path("trace.csv"), res)
         .map_err(|e| format!("{}: {e}", out.join("trace.csv").display()))?;
-    report::write_svg(&stage.path("plot.svg"), &sc.name, &res)?;
+    report::write_svg(&stage.path("plot.svg"), &sc.name, res)?;
+    std::fs::write(stage.path("summary.txt"), &text)
+        .map_err(|e| format!("{}: {e}", out.join("summary.txt").display()))?;
+    std::fs::write(stage.path("summary.json"), summary.json())
+        .map_err(|e| format!("{}: {e}", out.join("summary.json").display()))?;
     stage.commit().map_err(|e| e.to_string())?;
-    print!("{}", report::summary(&sc, &res));
+    print!("{text}");
     println!(
         "timing: {} ticks in {:.3} s = {:.2} Mticks/s ({:.0}x real time)",
         res.ticks,
@@ -199,10 +209,38 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
         res.ticks as f64 / f64::from(res.tick_hz) / secs
     );
     println!(
-        "wrote {} and {}",
+        "wrote {}, {}, {} and {}",
         out.join("trace.csv").display(),
-        out.join("plot.svg").display()
+        out.join("plot.svg").display(),
+        out.join("summary.txt").display(),
+        out.join("summary.json").display()
     );
+    let failed = ran.outcomes.iter().filter(|o| !o.passed).count();
+    if failed > 0 {
+        return Err(format!(
+            "{failed} of {} expectations failed (see FAIL above)",
+            ran.outcomes.len()
+        ));
+    }
+    Ok(())
+}
+
+fn check_cmd(paths: &[PathBuf], junit: Option<&Path>) -> Result<(), String> {
+    let files = check::collect(paths)?;
+    if files.is_empty() {
+        return Err("no scenario files found".into());
+    }
+    let cases: Vec<check::Case> = files.iter().map(|f| check::Case::run(f)).collect();
+    print!("{}", check::table(&cases));
+    if let Some(j) = junit {
+        files::write_atomic(j, check::junit(&cases).as_bytes())
+            .map_err(|e| format!("--junit {}: {e}", j.display()))?;
+        println!("wrote {}", j.display());
+    }
+    let failed = cases.iter().filter(|c| !c.passed()).count();
+    if failed > 0 {
+        return Err(format!("{failed} of {} scenarios failed", cases.len()));
+    }
     Ok(())
 }
 
@@ -336,6 +374,7 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let r = match &cli.cmd {
         Cmd::Run { scenario, out } => run(scenario, out),
+        Cmd::Check { paths, junit } => check_cmd(paths, junit.as_deref()),
         Cmd::Liv {
             module,
             temps_c,

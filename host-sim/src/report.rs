@@ -1,13 +1,17 @@
-//! Run reports: the printed summary (settling, overshoot, peak power,
-//! faults with their latency), the CSV trace and the SVG plot.
+//! Run reports: the run summary ([`Summary`]: step figures, refused
+//! requests, unreachable setpoints with the shortfall, warnings with when,
+//! faults with their latency, expectations; printed as text and written as
+//! `summary.json`), the CSV trace and the SVG plot.
 
 use std::fmt::Write as _;
 use std::path::Path;
 
-use diodestat_core::State;
+use diodestat_core::{Fault, State};
 use plotters::prelude::*;
+use serde::Serialize;
 
-use crate::scenario::{Action, Scenario};
+use crate::expect::Outcome;
+use crate::scenario::{Action, ModeName, Scenario};
 use crate::sim::{Happening, RunResult, TraceRow};
 use crate::stability::time_domain::{on_ceiling, overshoot_pct, settled_from, SETTLING_BAND};
 
@@ -26,15 +30,18 @@ interlock gating of the enable line, an independent watchdog and eye protection.
 local regulations and your site's laser safety officer.";
 
 /// Step-response figures of one stretch of regulation: from the hand-over
-/// or from a setpoint request, up to the next scenario event or the end of
-/// Regulating (so a later fault or ambient step does not count as
-/// overshoot of the step before it).
-#[derive(Clone, Debug, PartialEq)]
+/// or from an accepted setpoint or mode request, up to the next scenario
+/// event or the end of Regulating (so a later fault or ambient step does
+/// not count as overshoot of the step before it). Refused requests start
+/// no stretch.
+#[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Figures {
     /// What started the stretch.
     pub label: String,
     /// Start of the stretch, ms.
     pub start_ms: f64,
+    /// Mode in force during the stretch (`apc` or `acc`).
+    pub mode: &'static str,
     /// Optical power before the stretch, mW (0 for the hand-over).
     pub initial_mw: f64,
     /// Final value (mean of the last 5 % of the stretch), mW.
@@ -47,31 +54,107 @@ pub struct Figures {
     /// The drive ended the stretch on its ceiling: the request was beyond
     /// what the ceiling in force allows.
     pub on_ceiling: bool,
+    /// The setpoint in force (mW in APC, mA in ACC), if one was requested.
+    pub target: Option<Target>,
+}
+
+/// A setpoint in force, what the run reached and how far short it fell.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Target {
+    /// The setpoint.
+    pub setpoint: f64,
+    /// Its unit: `mW` (APC, front power) or `mA` (ACC, drive current).
+    pub unit: &'static str,
+    /// Reached (final front power, or final drive current), same unit.
+    pub reached: f64,
+    /// Setpoint minus reached, when the drive sat on its ceiling.
+    pub shortfall: Option<f64>,
 }
 
 /// Fewest trace rows a stretch needs for its figures to mean anything.
 const MIN_ROWS: usize = 20;
 
-/// The figures of every stretch of regulation that starts at the hand-over,
-/// a set-power or set-current request or a mode change.
-pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
-    let tr = &res.trace;
-    let ms = |r: &TraceRow| r.t_s * 1e3;
-    let mut starts: Vec<(f64, String)> = Vec::new();
-    if let Some(h) = tr.iter().find(|r| r.state == State::Regulating) {
-        starts.push((ms(h), "start-up (from hand-over)".into()));
-    }
-    for e in &sc.events {
+/// Shortest time on the ceiling reported as an unreachable setpoint, ms
+/// (shorter touches are slew transients).
+pub const MIN_ON_CEILING_MS: f64 = 5.0;
+
+/// The requests a run refused: indices into the scenario's events.
+fn refused_events(res: &RunResult) -> Vec<usize> {
+    res.happenings
+        .iter()
+        .filter_map(|h| match h {
+            Happening::Rejected { event, .. } => Some(*event),
+            _ => None,
+        })
+        .collect()
+}
+
+/// Setpoints and mode in force after every accepted request up to `t_ms`
+/// (inclusive): (power setpoint mW, current setpoint mA, mode).
+fn in_force(sc: &Scenario, refused: &[usize], t_ms: f64) -> (Option<f64>, Option<f64>, ModeName) {
+    let mut order: Vec<usize> = (0..sc.events.len()).collect();
+    order.sort_by(|&a, &b| sc.events[a].at_ms.total_cmp(&sc.events[b].at_ms));
+    let (mut p, mut i, mut mode) = (None, None, ModeName::Apc);
+    for k in order {
+        let e = &sc.events[k];
+        if e.at_ms > t_ms || refused.contains(&k) {
+            continue;
+        }
         match e.action {
-            Action::SetPower { mw } => starts.push((e.at_ms, format!("set power {mw} mW"))),
-            Action::SetCurrent { ma } => starts.push((e.at_ms, format!("set current {ma} mA"))),
-            Action::Mode { mode } => starts.push((
-                e.at_ms,
-                format!("mode {}", format!("{mode:?}").to_uppercase()),
-            )),
+            Action::SetPower { mw } => p = Some(mw),
+            Action::SetCurrent { ma } => i = Some(ma),
+            Action::Mode { mode: m } => mode = m,
             _ => {}
         }
     }
+    (p, i, mode)
+}
+
+fn mode_name(m: ModeName) -> &'static str {
+    match m {
+        ModeName::Apc => "apc",
+        ModeName::Acc => "acc",
+    }
+}
+
+/// The figures of every stretch of regulation that starts at the hand-over,
+/// an accepted set-power or set-current request or an accepted mode change.
+pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
+    let tr = &res.trace;
+    let ms = |r: &TraceRow| r.t_s * 1e3;
+    let refused = refused_events(res);
+    let mut starts: Vec<(f64, String)> = Vec::new();
+    // Every hand-over from soft start to regulation (each enable).
+    let mut last = State::Off;
+    for h in &res.happenings {
+        if let Happening::State { tick, state } = h {
+            if *state == State::Regulating && last == State::Ramping {
+                let t = *tick as f64 * 1e3 / f64::from(res.tick_hz);
+                // From the first traced row in regulation.
+                if let Some(r) = tr
+                    .iter()
+                    .find(|r| ms(r) >= t && r.state == State::Regulating)
+                {
+                    starts.push((ms(r), "start-up (from hand-over)".into()));
+                }
+            }
+            last = *state;
+        }
+    }
+    for (k, e) in sc.events.iter().enumerate() {
+        if refused.contains(&k) {
+            continue;
+        }
+        match e.action {
+            Action::SetPower { mw } => starts.push((e.at_ms, format!("set power {mw} mW"))),
+            Action::SetCurrent { ma } => starts.push((e.at_ms, format!("set current {ma} mA"))),
+            Action::Mode { mode } => {
+                starts.push((e.at_ms, format!("mode {}", mode_name(mode).to_uppercase())))
+            }
+            _ => {}
+        }
+    }
+    starts.sort_by(|a, b| a.0.total_cmp(&b.0));
     let mut out = Vec::new();
     for (t0, label) in starts {
         let Some(a) = tr.iter().position(|r| ms(r) >= t0) else {
@@ -96,7 +179,8 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
         if w.len() < MIN_ROWS {
             continue;
         }
-        let tail = &w[w.len() - w.len() / 20..];
+        let n_tail = w.len() / 20;
+        let tail = &w[w.len() - n_tail..];
         let final_mw = tail.iter().sum::<f64>() / tail.len() as f64;
         let initial_mw = if label.starts_with("start-up") {
             0.0
@@ -108,9 +192,24 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
         } else {
             0.0
         };
-        let on_ceiling = on_ceiling(&tr[b - tail.len()..b]);
+        let on_ceiling = on_ceiling(&tr[b - n_tail..b]);
+        let (p_sp, i_sp, mode) = in_force(sc, &refused, t0);
+        let target = match mode {
+            ModeName::Apc => p_sp.map(|sp| (sp, "mW", final_mw)),
+            ModeName::Acc => i_sp.map(|sp| {
+                let i = tr[b - n_tail..b].iter().map(|r| r.i_ma).sum::<f64>() / n_tail as f64;
+                (sp, "mA", i)
+            }),
+        }
+        .map(|(setpoint, unit, reached)| Target {
+            setpoint,
+            unit,
+            reached,
+            shortfall: on_ceiling.then_some(setpoint - reached),
+        });
         out.push(Figures {
             label,
+            mode: mode_name(mode),
             on_ceiling,
             start_ms: ms(&tr[a]),
             initial_mw,
@@ -118,62 +217,158 @@ pub fn figures(sc: &Scenario, res: &RunResult) -> Vec<Figures> {
             overshoot_pct: overshoot_pct(&w, initial_mw, final_mw),
             settling_ms: settled_from(&w, final_mw, SETTLING_BAND * final_mw.abs())
                 .map(|i| i as f64 * row_ms),
+            target,
         });
     }
     out
 }
 
-/// The printed summary.
-pub fn summary(sc: &Scenario, res: &RunResult) -> String {
-    let mut s = String::new();
-    let dt_us = 1e6 / f64::from(res.tick_hz);
-    let _ = writeln!(s, "scenario: {}", sc.name);
-    let _ = writeln!(
-        s,
-        "ticks: {} at {} Hz ({:.1} ms)",
-        res.ticks,
-        res.tick_hz,
-        res.ticks as f64 * dt_us / 1e3
-    );
-    for f in figures(sc, res) {
-        let settle = f.settling_ms.map_or(
-            "does not settle to ±1 % before the next event".into(),
-            |t| format!("settles to ±1 % in {t:.3} ms"),
-        );
-        let _ = writeln!(
-            s,
-            "t={:.3} ms {}: {:.3} -> {:.3} mW, overshoot {:.2} % of the step, {settle}{}",
-            f.start_ms,
-            f.label,
-            f.initial_mw,
-            f.final_mw,
-            f.overshoot_pct,
-            if f.on_ceiling {
-                " (drive on its ceiling: the request is beyond reach)"
-            } else {
-                ""
-            }
-        );
+/// A request the core refused.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Refused {
+    /// When, ms.
+    pub at_ms: f64,
+    /// The request, as in the scenario file.
+    pub request: String,
+    /// The core's reason.
+    pub reason: String,
+}
+
+/// The drive held on its ceiling for at least [`MIN_ON_CEILING_MS`]: the
+/// setpoint in force was beyond reach.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Unreached {
+    /// From, ms.
+    pub from_ms: f64,
+    /// To, ms (`None`: until the end of the run).
+    pub to_ms: Option<f64>,
+    /// Drive on the ceiling at the end of the stretch, mA.
+    pub ceiling_ma: f64,
+    /// Mode in force.
+    pub mode: &'static str,
+    /// The setpoint, what was reached, the shortfall (`None` when no
+    /// setpoint was requested).
+    pub target: Option<Target>,
+}
+
+/// A span of a warning of the core.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct WarningNote {
+    /// `derating`, `at-ceiling` or `sensor-suspect`.
+    pub warning: &'static str,
+    /// Raised at, ms.
+    pub from_ms: f64,
+    /// Cleared at, ms (`None`: still raised at the end of the run).
+    pub to_ms: Option<f64>,
+    /// Times raised in this span (raisings closer than the larger of 10 ms
+    /// and 1 % of the run are one span).
+    pub raised: u32,
+    /// Time within the span with the warning raised, ms.
+    pub raised_ms: f64,
+}
+
+/// A fault the core latched.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct FaultNote {
+    /// When, ms.
+    pub at_ms: f64,
+    /// The fault.
+    pub fault: &'static str,
+    /// Measured value at the trip.
+    pub measured: f64,
+    /// The limit.
+    pub limit: f64,
+    /// Unit of both.
+    pub unit: &'static str,
+    /// Time since the last injected hardware fault, ms.
+    pub latency_ms: Option<f64>,
+}
+
+/// One line of the run's timeline.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct TimelineEntry {
+    /// When, ms.
+    pub at_ms: f64,
+    /// `state`, `inject`, `fault`, `refused`, `warning`, `facet-damage`.
+    pub kind: &'static str,
+    /// What, in words.
+    pub what: String,
+}
+
+/// Everything the run summary says, for the text and for `summary.json`.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Summary {
+    /// Scenario name.
+    pub scenario: String,
+    /// Ticks run.
+    pub ticks: u64,
+    /// Tick rate, Hz.
+    pub tick_hz: u32,
+    /// Length of the run, ms.
+    pub duration_ms: f64,
+    /// Step-response figures of each stretch of regulation.
+    pub steps: Vec<Figures>,
+    /// Requests the core refused.
+    pub refused: Vec<Refused>,
+    /// Setpoints the drive could not reach.
+    pub unreached: Vec<Unreached>,
+    /// Warnings of the core with when.
+    pub warnings: Vec<WarningNote>,
+    /// Warning spans not kept (more than 64 of one warning).
+    pub warning_spans_dropped: u64,
+    /// Faults latched.
+    pub faults: Vec<FaultNote>,
+    /// Fault records the core's log overwrote before the run read them.
+    pub faults_lost: u32,
+    /// Limit cycles, ringing, hunting and a drive pinned on its ceiling,
+    /// found on every tick of each stretch of regulation
+    /// ([`crate::oscillation`]), in words.
+    pub loop_findings: Vec<String>,
+    /// Highest front-facet power of any tick, mW.
+    pub peak_mw: f64,
+    /// Whether the facet reached its damage limit.
+    pub facet_damage: bool,
+    /// State at the end.
+    pub final_state: &'static str,
+    /// Every event in order.
+    pub timeline: Vec<TimelineEntry>,
+    /// The scenario's expectations and their verdicts.
+    pub expectations: Vec<Outcome>,
+    /// The safety caution.
+    pub caution: &'static str,
+}
+
+/// A scenario event as written in the file.
+fn request_text(a: &Action) -> String {
+    match a {
+        Action::Enable => "enable".into(),
+        Action::Disable => "disable".into(),
+        Action::Clear => "clear".into(),
+        Action::SetPower { mw } => format!("set-power {mw} mW"),
+        Action::SetCurrent { ma } => format!("set-current {ma} mA"),
+        Action::Mode { mode } => format!("mode {}", mode_name(*mode)),
+        Action::AmbientStep { to_c } => format!("ambient-step to {to_c} degC"),
+        Action::AmbientRamp { to_c, over_ms } => {
+            format!("ambient-ramp to {to_c} degC over {over_ms} ms")
+        }
+        Action::Inject { fault } => format!("inject {}", fault.name()),
+        Action::Repair { fault } => format!("repair {}", fault.name()),
     }
-    for f in &res.loop_findings {
-        let _ = writeln!(s, "loop: {f}");
-    }
-    let _ = writeln!(s, "peak optical power: {:.3} mW", res.peak_mw);
-    let _ = writeln!(
-        s,
-        "facet damage: {}",
-        if res.damaged { "YES" } else { "no" }
-    );
+}
+
+/// The summary of a run and its expectations' verdicts.
+pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Summary {
+    let ms = |tick: u64| tick as f64 * 1e3 / f64::from(res.tick_hz);
+    let refused_idx = refused_events(res);
+    let mut refused = Vec::new();
+    let mut faults = Vec::new();
+    let mut timeline = Vec::new();
     let mut injected: Option<u64> = None;
     for h in &res.happenings {
-        match h {
+        let (tick, kind, what) = match h {
             Happening::Injected { tick, fault } => {
                 injected = Some(*tick);
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms injected {fault}",
-                    *tick as f64 * dt_us / 1e3
-                );
+                (*tick, "inject", format!("injected {fault}"))
             }
             Happening::Fault {
                 tick,
@@ -181,44 +376,319 @@ pub fn summary(sc: &Scenario, res: &RunResult) -> String {
                 measured,
                 limit,
             } => {
-                let lat = injected
-                    .map(|i| {
+                let unit = Fault::ALL
+                    .iter()
+                    .find(|f| f.name() == *fault)
+                    .map_or("", |f| f.unit());
+                let latency_ms = injected.map(|i| ms(tick - i));
+                faults.push(FaultNote {
+                    at_ms: ms(*tick),
+                    fault,
+                    measured: *measured,
+                    limit: *limit,
+                    unit,
+                    latency_ms,
+                });
+                let lat = latency_ms.map_or(String::new(), |l| {
+                    format!(
+                        ", {} = {l:.3} ms after the injection",
+                        crate::expect::ticks(tick - injected.unwrap_or(*tick))
+                    )
+                });
+                (
+                    *tick,
+                    "fault",
+                    format!(
+                        "FAULT {fault} latched (measured {measured:.3} {unit}, limit {limit:.3} {unit}){lat}"
+                    ),
+                )
+            }
+            Happening::State { tick, state } => (*tick, "state", format!("-> {}", state.name())),
+            Happening::Rejected { tick, event, why } => {
+                let request = sc
+                    .events
+                    .get(*event)
+                    .map_or_else(|| "?".into(), |e| request_text(&e.action));
+                refused.push(Refused {
+                    at_ms: ms(*tick),
+                    request: request.clone(),
+                    reason: why.clone(),
+                });
+                (*tick, "refused", format!("REFUSED {request}: {why}"))
+            }
+            Happening::FacetDamage { tick } => (*tick, "facet-damage", "FACET DAMAGE".into()),
+        };
+        timeline.push(TimelineEntry {
+            at_ms: ms(tick),
+            kind,
+            what,
+        });
+    }
+    let mut warnings = Vec::new();
+    let mut unreached = Vec::new();
+    for s in &res.warning_spans {
+        let (from_ms, to_ms) = (ms(s.from_tick), s.to_tick.map(ms));
+        warnings.push(WarningNote {
+            warning: s.warning,
+            from_ms,
+            to_ms,
+            raised: s.raised,
+            raised_ms: ms(s.raised_ticks),
+        });
+        timeline.push(TimelineEntry {
+            at_ms: from_ms,
+            kind: "warning",
+            what: format!("warning {} raised", s.warning),
+        });
+        if let Some(t) = to_ms {
+            timeline.push(TimelineEntry {
+                at_ms: t,
+                kind: "warning",
+                what: format!(
+                    "warning {} cleared{}",
+                    s.warning,
+                    if s.raised > 1 {
                         format!(
-                            ", latency {} ticks = {:.0} us",
-                            tick - i,
-                            (tick - i) as f64 * dt_us
+                            " (raised {} times since {})",
+                            s.raised,
+                            when(from_ms, ms(res.ticks))
                         )
-                    })
-                    .unwrap_or_default();
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms FAULT {fault} (measured {measured:.3}, limit {limit:.3}){lat}",
-                    *tick as f64 * dt_us / 1e3
-                );
+                    } else {
+                        String::new()
+                    }
+                ),
+            });
+        }
+        let end_ms = to_ms.unwrap_or(ms(res.ticks));
+        if s.warning == "at-ceiling" && end_ms - from_ms >= MIN_ON_CEILING_MS {
+            let (p_sp, i_sp, _) = in_force(sc, &refused_idx, end_ms);
+            let target = match s.last_mode {
+                diodestat_core::Mode::Apc => p_sp.map(|sp| (sp, "mW", s.last_p_mw)),
+                diodestat_core::Mode::Acc => i_sp.map(|sp| (sp, "mA", s.last_drive_ma)),
             }
-            Happening::State { tick, state } => {
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms -> {}",
-                    *tick as f64 * dt_us / 1e3,
-                    state.name()
-                );
-            }
-            Happening::Rejected { tick, why } => {
-                let _ = writeln!(
-                    s,
-                    "  t={:.3} ms request refused: {why}",
-                    *tick as f64 * dt_us / 1e3
-                );
-            }
-            Happening::FacetDamage { tick } => {
-                let _ = writeln!(s, "  t={:.3} ms FACET DAMAGE", *tick as f64 * dt_us / 1e3);
-            }
+            .map(|(setpoint, unit, reached)| Target {
+                setpoint,
+                unit,
+                reached,
+                shortfall: Some(setpoint - reached),
+            });
+            unreached.push(Unreached {
+                from_ms,
+                to_ms,
+                ceiling_ma: s.last_drive_ma,
+                mode: match s.last_mode {
+                    diodestat_core::Mode::Apc => "apc",
+                    diodestat_core::Mode::Acc => "acc",
+                },
+                target,
+            });
         }
     }
-    let _ = writeln!(s, "final state: {}", res.final_state.name());
-    let _ = writeln!(s, "CAUTION: {SAFETY_CAUTION}");
-    s
+    // Stable: at one time, the order of the run (then warnings).
+    timeline.sort_by(|a, b| a.at_ms.total_cmp(&b.at_ms));
+    Summary {
+        scenario: sc.name.clone(),
+        ticks: res.ticks,
+        tick_hz: res.tick_hz,
+        duration_ms: ms(res.ticks),
+        steps: figures(sc, res),
+        refused,
+        unreached,
+        warnings,
+        warning_spans_dropped: res.warning_spans_dropped,
+        faults,
+        faults_lost: res.faults_lost,
+        loop_findings: res.loop_findings.iter().map(|f| f.to_string()).collect(),
+        peak_mw: res.peak_mw,
+        facet_damage: res.damaged,
+        final_state: res.final_state.name(),
+        timeline,
+        expectations,
+        caution: SAFETY_CAUTION,
+    }
+}
+
+/// A time in a summary of a run of `run_ms`: ms, or s for runs of 10 s
+/// and more.
+fn when(t_ms: f64, run_ms: f64) -> String {
+    if run_ms >= 10_000.0 {
+        format!("{:.3} s", t_ms / 1e3)
+    } else {
+        format!("{t_ms:.3} ms")
+    }
+}
+
+/// Shortfall in words: "600.000 mW (13.3 %) short of the 4500 mW setpoint".
+fn shortfall_text(t: &Target) -> String {
+    match t.shortfall {
+        Some(d) => format!(
+            "{d:.3} {u} ({:.1} %) short of the {} {u} setpoint",
+            100.0 * d / t.setpoint,
+            t.setpoint,
+            u = t.unit
+        ),
+        None => format!("setpoint {} {}", t.setpoint, t.unit),
+    }
+}
+
+impl Summary {
+    /// A time as the text gives it (ms; s for runs of 10 s and more).
+    fn when(&self, t_ms: f64) -> String {
+        when(t_ms, self.duration_ms)
+    }
+
+    /// The summary as printed text (and `summary.txt`).
+    pub fn text(&self) -> String {
+        let mut s = String::new();
+        let _ = writeln!(s, "scenario: {}", self.scenario);
+        let _ = writeln!(
+            s,
+            "ticks: {} at {} Hz ({})",
+            self.ticks,
+            self.tick_hz,
+            self.when(self.duration_ms)
+        );
+        if !self.steps.is_empty() {
+            let _ = writeln!(s, "steps:");
+        }
+        for f in &self.steps {
+            let settle = f.settling_ms.map_or(
+                "does not settle to ±1 % before the next event".into(),
+                |t| format!("settles to ±1 % in {t:.3} ms"),
+            );
+            let ceiling = match (&f.target, f.on_ceiling) {
+                (Some(t), true) => format!(
+                    "; DRIVE ON ITS CEILING: {:.3} {}, {}",
+                    t.reached,
+                    t.unit,
+                    shortfall_text(t)
+                ),
+                (None, true) => "; DRIVE ON ITS CEILING: the request is beyond reach".into(),
+                // In ACC the setpoint is a current: say what the drive reached.
+                (Some(t), false) if t.unit == "mA" => {
+                    format!("; setpoint {} mA, drive {:.3} mA", t.setpoint, t.reached)
+                }
+                _ => String::new(),
+            };
+            let _ =
+                writeln!(
+                s,
+                "  t={} {}: {:.3} -> {:.3} mW, overshoot {:.2} % of the step, {settle}{ceiling}",
+                self.when(f.start_ms),
+                f.label, f.initial_mw, f.final_mw, f.overshoot_pct,
+            );
+        }
+        if !self.refused.is_empty() {
+            let _ = writeln!(s, "refused requests (not applied):");
+        }
+        for r in &self.refused {
+            let _ = writeln!(s, "  t={} {}: {}", self.when(r.at_ms), r.request, r.reason);
+        }
+        if !self.unreached.is_empty() {
+            let _ = writeln!(s, "setpoint not reached (drive held on its ceiling):");
+        }
+        for u in &self.unreached {
+            let until = u.to_ms.map_or("the end".into(), |t| self.when(t));
+            let what = u
+                .target
+                .as_ref()
+                .map_or("no setpoint requested".to_string(), |t| {
+                    format!(
+                        "{} {:.3} {}, {}",
+                        if t.unit == "mW" {
+                            "front power"
+                        } else {
+                            "drive"
+                        },
+                        t.reached,
+                        t.unit,
+                        shortfall_text(t)
+                    )
+                });
+            let _ = writeln!(
+                s,
+                "  t={} to {until}, {}: ceiling {:.3} mA; {what}",
+                self.when(u.from_ms),
+                u.mode.to_uppercase(),
+                u.ceiling_ma
+            );
+        }
+        if !self.warnings.is_empty() {
+            let _ = writeln!(s, "warnings:");
+        }
+        for w in &self.warnings {
+            let until = w.to_ms.map_or("the end".into(), |t| self.when(t));
+            let span_ms = w.to_ms.unwrap_or(self.duration_ms) - w.from_ms;
+            let times = if w.raised > 1 {
+                format!(
+                    " (raised {} times, {:.0} % of the span)",
+                    w.raised,
+                    100.0 * w.raised_ms / span_ms.max(f64::MIN_POSITIVE)
+                )
+            } else {
+                String::new()
+            };
+            let _ = writeln!(
+                s,
+                "  {} from t={} to {until}{times}",
+                w.warning,
+                self.when(w.from_ms)
+            );
+        }
+        if self.warning_spans_dropped > 0 {
+            let _ = writeln!(
+                s,
+                "  ... and {} more warning spans not kept",
+                self.warning_spans_dropped
+            );
+        }
+        for f in &self.loop_findings {
+            let _ = writeln!(s, "loop: {f}");
+        }
+        if self.faults_lost > 0 {
+            let _ = writeln!(
+                s,
+                "FAULT RECORDS LOST: {} (the core's log overwrote them before they were read)",
+                self.faults_lost
+            );
+        }
+        let _ = writeln!(s, "peak optical power: {:.3} mW", self.peak_mw);
+        let _ = writeln!(
+            s,
+            "facet damage: {}",
+            if self.facet_damage { "YES" } else { "no" }
+        );
+        let _ = writeln!(s, "timeline:");
+        for t in &self.timeline {
+            let _ = writeln!(s, "  t={} {}", self.when(t.at_ms), t.what);
+        }
+        let _ = writeln!(s, "final state: {}", self.final_state);
+        if !self.expectations.is_empty() {
+            let failed = self.expectations.iter().filter(|o| !o.passed).count();
+            let _ = writeln!(
+                s,
+                "expectations: {} of {} passed",
+                self.expectations.len() - failed,
+                self.expectations.len()
+            );
+            s.push_str(&crate::expect::text(&self.expectations));
+        } else {
+            let _ = writeln!(
+                s,
+                "expectations: none (add [[expect]] entries to make the scenario a test; \
+                 see docs/scenarios.md)"
+            );
+        }
+        let _ = writeln!(s, "CAUTION: {}", self.caution);
+        s
+    }
+
+    /// The summary as JSON (`summary.json`): the same figures as the text.
+    pub fn json(&self) -> String {
+        // Serialising plain data (strings, numbers, options) cannot fail;
+        // NaN and infinite values become null.
+        serde_json::to_string_pretty(self).unwrap_or_default()
+    }
 }
 
 /// Write the trace as CSV.
@@ -465,4 +935,173 @@ pub fn write_liv_svg(path: &Path, name: &str, curves: &LivCurves) -> Result<(), 
     }
     root.present().map_err(|x| e(x.to_string()))?;
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::boardfile::load_board;
+    use crate::scenario::parse;
+
+    /// The demo red board at 50 degC ambient: the derated ceiling holds the
+    /// power far below the 25 mW asked for; a 40 mW request is refused (the
+    /// board's highest setpoint is 30 mW).
+    fn hot_run() -> (Scenario, RunResult) {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../examples/demo-red-30/board.toml");
+        let b = load_board(&path).unwrap();
+        let sc = parse(
+            "name = \"hot\"\nboard = \"board.toml\"\nduration_ms = 60\nambient_c = 50\nseed = 3\n\
+             [[event]]\nat_ms = 0.5\ndo = \"set-power\"\nmw = 25\n\
+             [[event]]\nat_ms = 1\ndo = \"enable\"\n\
+             [[event]]\nat_ms = 30\ndo = \"set-power\"\nmw = 40\n",
+        )
+        .unwrap();
+        let res = crate::sim::run(&sc, &b.module, b.valid, b.latency).unwrap();
+        (sc, res)
+    }
+
+    #[test]
+    fn refused_requests_are_shown_as_refused_not_as_steps() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        assert_eq!(s.refused.len(), 1, "{:?}", s.refused);
+        let r = &s.refused[0];
+        assert_eq!((r.at_ms, r.request.as_str()), (30.0, "set-power 40 mW"));
+        assert!(r.reason.contains("40"), "{}", r.reason);
+        assert!(
+            s.steps.iter().all(|f| !f.label.contains("40")),
+            "a refused request was analysed as a step: {:?}",
+            s.steps
+        );
+        let text = s.text();
+        assert!(text.contains("refused requests (not applied):\n  t=30.000 ms set-power 40 mW: "));
+        assert!(
+            text.contains("t=30.000 ms REFUSED set-power 40 mW"),
+            "{text}"
+        );
+        assert!(
+            text.contains("expectations: none (add [[expect]] entries"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn an_unreachable_setpoint_is_reported_with_its_shortfall() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        assert_eq!(s.unreached.len(), 1, "{:?}", s.unreached);
+        let u = &s.unreached[0];
+        assert!(u.from_ms < 10.0 && u.to_ms.is_none(), "{u:?}");
+        let t = u.target.as_ref().unwrap();
+        assert_eq!((t.setpoint, t.unit), (25.0, "mW"));
+        // The power reached is what the plant gave at the end.
+        let last = res.trace.last().unwrap().p_mw;
+        assert!(
+            (t.reached - last).abs() < 0.05 * last,
+            "{} vs {last}",
+            t.reached
+        );
+        assert_eq!(t.shortfall, Some(25.0 - t.reached));
+        assert!(t.reached < 20.0, "{t:?}");
+        // The ceiling it sits on is the derated one, below the 50 mA ceiling.
+        assert!(u.ceiling_ma < 48.0, "{}", u.ceiling_ma);
+        // The start-up step says so too.
+        let step = &s.steps[0];
+        assert!(step.on_ceiling);
+        assert!(step.target.as_ref().unwrap().shortfall.unwrap() > 5.0);
+        let text = s.text();
+        assert!(
+            text.contains("setpoint not reached (drive held on its ceiling):"),
+            "{text}"
+        );
+        assert!(
+            text.contains(&format!(
+                "{:.3} mW ({:.1} %) short of the 25 mW setpoint",
+                25.0 - t.reached,
+                4.0 * (25.0 - t.reached)
+            )),
+            "{text}"
+        );
+    }
+
+    /// Each enable gives a start-up step, in time order with the others.
+    #[test]
+    fn every_hand_over_is_a_start_up_step() {
+        let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/demo-red-30");
+        let b = load_board(&dir.join("board.toml")).unwrap();
+        let sc =
+            parse(&std::fs::read_to_string(dir.join("modes-and-interlock.toml")).unwrap()).unwrap();
+        let res = crate::sim::run(&sc, &b.module, b.valid, b.latency).unwrap();
+        let steps = figures(&sc, &res);
+        let labels: Vec<&str> = steps.iter().map(|f| f.label.as_str()).collect();
+        assert_eq!(
+            labels,
+            [
+                "start-up (from hand-over)",
+                "mode ACC",
+                "mode APC",
+                "start-up (from hand-over)"
+            ]
+        );
+        assert!(steps[3].start_ms > 60.0);
+        let acc = steps[1].target.as_ref().unwrap();
+        assert_eq!((acc.setpoint, acc.unit), (35.0, "mA"));
+        assert!((acc.reached - 35.0).abs() < 0.5, "{acc:?}");
+    }
+
+    #[test]
+    fn warnings_are_shown_with_when() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        let derating = s.warnings.iter().find(|w| w.warning == "derating").unwrap();
+        assert_eq!((derating.from_ms, derating.to_ms), (0.0, None));
+        assert!(s.warnings.iter().any(|w| w.warning == "at-ceiling"));
+        let text = s.text();
+        assert!(
+            text.contains("warnings:\n  derating from t=0.000 ms to the end"),
+            "{text}"
+        );
+        assert!(
+            text.contains("t=0.000 ms warning derating raised\n"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn the_json_summary_holds_the_same_figures_as_the_text() {
+        let (sc, res) = hot_run();
+        let s = summary(&sc, &res, Vec::new());
+        let j: serde_json::Value = serde_json::from_str(&s.json()).unwrap();
+        assert_eq!(j["scenario"], "hot");
+        assert_eq!(j["ticks"], res.ticks);
+        // Numbers survive JSON to the last digit or so (serde_json parses
+        // without exact round trip).
+        let same = |v: &serde_json::Value, x: f64| {
+            let y = v.as_f64().unwrap();
+            assert!((y - x).abs() <= 1e-12 * x.abs(), "{y} vs {x}");
+        };
+        same(&j["peak_mw"], s.peak_mw);
+        assert_eq!(j["final_state"], s.final_state);
+        assert_eq!(j["steps"].as_array().unwrap().len(), s.steps.len());
+        same(&j["steps"][0]["final_mw"], s.steps[0].final_mw);
+        assert_eq!(j["refused"][0]["request"], "set-power 40 mW");
+        let t = s.unreached[0].target.as_ref().unwrap();
+        same(
+            &j["unreached"][0]["target"]["shortfall"],
+            t.shortfall.unwrap(),
+        );
+        assert_eq!(j["warnings"][0]["warning"], s.warnings[0].warning);
+        assert_eq!(j["caution"], SAFETY_CAUTION);
+        // Every figure the text prints is in the JSON.
+        let text = s.text();
+        assert!(text.contains(&format!(
+            "peak optical power: {:.3} mW",
+            j["peak_mw"].as_f64().unwrap()
+        )));
+        assert!(text.contains(&format!(
+            "ceiling {:.3} mA",
+            j["unreached"][0]["ceiling_ma"].as_f64().unwrap()
+        )));
+    }
 }

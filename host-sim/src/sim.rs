@@ -35,8 +35,13 @@
 //! same equations the straightforward way; the tests hold the two to 1e-9
 //! in optical power and 1e-8 K in junction temperature, with identical ADC
 //! codes, core states and events.
+//!
+//! Besides the (decimated) trace, a run keeps what reports and
+//! expectations need at every tick: the spans of the core's warnings
+//! ([`WarningSpan`]) and the optical power over chosen intervals
+//! ([`PowerWindow`], see [`run_watching`]).
 
-use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig};
+use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
 use crate::oscillation::{Found, TickSample, Watch};
 use crate::plant::{
@@ -96,6 +101,8 @@ pub enum Happening {
     Rejected {
         /// Tick.
         tick: u64,
+        /// The refused request: its index in the scenario's events.
+        event: usize,
         /// Why.
         why: String,
     },
@@ -403,6 +410,106 @@ impl Plant {
     }
 }
 
+/// Front-facet optical power over the ticks `from_tick..to_tick` (the end
+/// excluded, so a window that ends at an event does not see its effect),
+/// seen at every tick (not from the decimated trace).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PowerWindow {
+    /// First tick.
+    pub from_tick: u64,
+    /// End tick (excluded).
+    pub to_tick: u64,
+    /// Ticks seen (0 when the run ended before `from_tick`).
+    pub ticks: u64,
+    /// Lowest power, mW, and its tick.
+    pub min_mw: f64,
+    /// Tick of the lowest power.
+    pub min_tick: u64,
+    /// Highest power, mW.
+    pub max_mw: f64,
+    /// Tick of the highest power.
+    pub max_tick: u64,
+}
+
+impl PowerWindow {
+    /// A window over `from_tick..to_tick`, nothing seen yet.
+    pub fn new(from_tick: u64, to_tick: u64) -> Self {
+        PowerWindow {
+            from_tick,
+            to_tick,
+            ticks: 0,
+            min_mw: f64::INFINITY,
+            min_tick: from_tick,
+            max_mw: f64::NEG_INFINITY,
+            max_tick: from_tick,
+        }
+    }
+
+    /// Take the power of `tick` into account if it falls in the window.
+    pub fn observe(&mut self, tick: u64, p_mw: f64) {
+        if tick < self.from_tick || tick >= self.to_tick {
+            return;
+        }
+        self.ticks += 1;
+        // NaN power counts as out of every band: it becomes both extremes.
+        if p_mw < self.min_mw || p_mw.is_nan() {
+            self.min_mw = p_mw;
+            self.min_tick = tick;
+        }
+        if p_mw > self.max_mw || p_mw.is_nan() {
+            self.max_mw = p_mw;
+            self.max_tick = tick;
+        }
+    }
+}
+
+/// The warnings of the core, by the names reports use.
+pub const WARNINGS: [&str; 4] = ["derating", "at-ceiling", "sensor-suspect", "end-of-life"];
+
+fn warning_flags(w: Warnings) -> [bool; 4] {
+    [w.derating, w.at_ceiling, w.sensor_suspect, w.end_of_life]
+}
+
+/// A stretch of ticks during which the core raised a warning. A raising
+/// closer to the end of the previous span of the same warning than the
+/// merge gap (the larger of [`WARNING_MERGE_MS`] and
+/// [`WARNING_MERGE_FRACTION`] of the run) extends that span, so a warning
+/// that chatters (a temperature at the knee, a drive at its ceiling with
+/// noise) is one span with a count and the time it was actually raised.
+#[derive(Clone, Debug, PartialEq)]
+pub struct WarningSpan {
+    /// One of [`WARNINGS`].
+    pub warning: &'static str,
+    /// First tick with the warning.
+    pub from_tick: u64,
+    /// First tick without it again (`None`: still raised at the end).
+    pub to_tick: Option<u64>,
+    /// Times it was raised within the span (1 unless it came and went).
+    pub raised: u32,
+    /// Ticks of the span with the warning actually raised.
+    pub raised_ticks: u64,
+    /// Tick of the latest raising.
+    pub last_raised_tick: u64,
+    /// Front-facet power at the last tick of the span, mW.
+    pub last_p_mw: f64,
+    /// Commanded drive at the last tick of the span, mA.
+    pub last_drive_ma: f64,
+    /// Mode at the last tick of the span.
+    pub last_mode: Mode,
+}
+
+/// Shortest gap below which a warning raised again continues its previous
+/// span, ms.
+pub const WARNING_MERGE_MS: f64 = 10.0;
+
+/// The merge gap of warning spans as a fraction of the run, when longer
+/// than [`WARNING_MERGE_MS`].
+pub const WARNING_MERGE_FRACTION: f64 = 0.01;
+
+/// Most spans kept per warning; later ones are counted in
+/// [`RunResult::warning_spans_dropped`].
+pub const MAX_WARNING_SPANS: usize = 64;
+
 /// The result of a run.
 #[derive(Clone, Debug, Default)]
 pub struct RunResult {
@@ -427,6 +534,82 @@ pub struct RunResult {
     /// Oscillations, limit cycles and a drive pinned on its ceiling, found
     /// on every tick of each stretch of regulation ([`crate::oscillation`]).
     pub loop_findings: Vec<Found>,
+    /// Spans of the core's warnings, in order of their start.
+    pub warning_spans: Vec<WarningSpan>,
+    /// Warning spans beyond [`MAX_WARNING_SPANS`] per warning, not kept.
+    pub warning_spans_dropped: u64,
+    /// The power windows asked for by [`run_watching`], filled.
+    pub windows: Vec<PowerWindow>,
+}
+
+impl RunResult {
+    /// Record the warnings of `tick` (`now`) against those of the tick
+    /// before (`was`); `prev` holds power, drive and mode of the tick before.
+    fn warnings_changed(
+        &mut self,
+        tick: u64,
+        was: Warnings,
+        now: Warnings,
+        prev: (f64, f64, Mode),
+        merge_ticks: u64,
+    ) {
+        let (was, now) = (warning_flags(was), warning_flags(now));
+        for k in 0..WARNINGS.len() {
+            let name = WARNINGS[k];
+            if was[k] && !now[k] {
+                if let Some(s) = self
+                    .warning_spans
+                    .iter_mut()
+                    .rev()
+                    .find(|s| s.warning == name && s.to_tick.is_none())
+                {
+                    s.to_tick = Some(tick);
+                    s.raised_ticks += tick - s.last_raised_tick;
+                    (s.last_p_mw, s.last_drive_ma, s.last_mode) = prev;
+                }
+            } else if now[k] && !was[k] {
+                let last = self
+                    .warning_spans
+                    .iter_mut()
+                    .rev()
+                    .find(|s| s.warning == name);
+                match last {
+                    Some(s) if s.to_tick.is_some_and(|t| tick - t < merge_ticks) => {
+                        s.to_tick = None;
+                        s.raised += 1;
+                        s.last_raised_tick = tick;
+                    }
+                    _ => {
+                        let kept = self
+                            .warning_spans
+                            .iter()
+                            .filter(|s| s.warning == name)
+                            .count();
+                        if kept < MAX_WARNING_SPANS {
+                            self.warning_spans.push(WarningSpan {
+                                warning: name,
+                                from_tick: tick,
+                                to_tick: None,
+                                raised: 1,
+                                raised_ticks: 0,
+                                last_raised_tick: tick,
+                                last_p_mw: f64::NAN,
+                                last_drive_ma: f64::NAN,
+                                last_mode: prev.2,
+                            });
+                        } else {
+                            self.warning_spans_dropped += 1;
+                        }
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// The tick at which something timed at `ms` happens: events, expectations.
+pub fn tick_at(ms: f64, tick_hz: u32) -> u64 {
+    (ms * 1e-3 * f64::from(tick_hz)).round() as u64
 }
 
 /// Whole ticks from the sampling instant of a tick to the instant the drive
@@ -496,7 +679,25 @@ pub fn run(
     cfg: ValidConfig,
     latency: DacLatency,
 ) -> Result<RunResult, PlantError> {
-    run_plant(sc, cfg, latency, Plant::new(module, sc.ambient_c, sc.seed)?)
+    run_watching(sc, module, cfg, latency, Vec::new())
+}
+
+/// [`run`], also filling `windows` with the optical power of every tick
+/// inside them ([`RunResult::windows`], in the same order).
+pub fn run_watching(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+    latency: DacLatency,
+    windows: Vec<PowerWindow>,
+) -> Result<RunResult, PlantError> {
+    run_plant(
+        sc,
+        cfg,
+        latency,
+        Plant::new(module, sc.ambient_c, sc.seed)?,
+        windows,
+    )
 }
 
 /// [`run`] on the reference plant ([`Plant::new_reference`]): same
@@ -512,6 +713,7 @@ pub fn run_reference(
         cfg,
         latency,
         Plant::new_reference(module, sc.ambient_c, sc.seed)?,
+        Vec::new(),
     )
 }
 
@@ -520,20 +722,17 @@ fn run_plant(
     cfg: ValidConfig,
     latency: DacLatency,
     mut plant: Plant,
+    windows: Vec<PowerWindow>,
 ) -> Result<RunResult, PlantError> {
     let tick_hz = cfg.config().tick_hz;
     let dt = 1.0 / f64::from(tick_hz);
     let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
     let mut ctl = Controller::new(cfg);
-    let mut events: Vec<(u64, &Action)> = sc
+    let mut events: Vec<(u64, usize, &Action)> = sc
         .events
         .iter()
-        .map(|e| {
-            (
-                (e.at_ms * 1e-3 * f64::from(tick_hz)).round() as u64,
-                &e.action,
-            )
-        })
+        .enumerate()
+        .map(|(k, e)| (tick_at(e.at_ms, tick_hz), k, &e.action))
         .collect();
     events.sort_by_key(|e| e.0);
     let mut next_event = 0usize;
@@ -541,8 +740,15 @@ fn run_plant(
     let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
     let mut res = RunResult {
         tick_hz,
+        windows,
         ..RunResult::default()
     };
+    let merge_ticks = tick_at(
+        WARNING_MERGE_MS.max(WARNING_MERGE_FRACTION * sc.duration_ms),
+        tick_hz,
+    );
+    let mut last_warnings = Warnings::default();
+    let mut prev = (0.0, Fx::ZERO, Mode::Apc);
     let mut last_state = State::Off;
     let mut log_cursor = diodestat_core::fault::Cursor::default();
     // The drives on their way to the DAC: a ring of `latency` slots, the
@@ -557,7 +763,7 @@ fn run_plant(
     let trace_every = u64::from(sc.trace_every.max(1));
     for tick in 0..n_ticks {
         // Timed events for this tick.
-        while let Some(&(at, action)) = events.get(next_event) {
+        while let Some(&(at, event, action)) = events.get(next_event) {
             if at > tick {
                 break;
             }
@@ -600,6 +806,7 @@ fn run_plant(
                 if let Err(why) = ctl.request(r) {
                     res.happenings.push(Happening::Rejected {
                         tick,
+                        event,
                         why: why.to_string(),
                     });
                 }
@@ -640,6 +847,20 @@ fn run_plant(
         );
         let p_mw = plant.p_front_w * 1e3;
         res.peak_mw = res.peak_mw.max(p_mw);
+        if !res.windows.is_empty() {
+            for w in &mut res.windows {
+                w.observe(tick, p_mw);
+            }
+        }
+        // Warnings change seldom: the power, drive and mode of the tick
+        // before are kept raw and converted only when one does.
+        let warnings = ctl.status().warnings;
+        if warnings != last_warnings {
+            let (p, d, m) = prev;
+            res.warnings_changed(tick, last_warnings, warnings, (p, to_f(d), m), merge_ticks);
+            last_warnings = warnings;
+        }
+        prev = (p_mw, ctl.drive_ma(), ctl.mode());
         if !res.damaged && plant.diode.damaged() {
             res.damaged = true;
             res.happenings.push(Happening::FacetDamage { tick });
@@ -697,6 +918,10 @@ fn run_plant(
     }
     res.final_state = ctl.state();
     res.loop_findings = watch.finish();
+    for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
+        s.raised_ticks += res.ticks - s.last_raised_tick;
+        (s.last_p_mw, s.last_drive_ma, s.last_mode) = (prev.0, to_f(prev.1), prev.2);
+    }
     Ok(res)
 }
 
@@ -751,6 +976,7 @@ mod tests {
                     },
                 ),
             ],
+            expects: Vec::new(),
         }
     }
 
@@ -916,6 +1142,32 @@ mod tests {
         }
     }
 
+    /// A warning that comes and goes within the merge gap is one span with
+    /// a count and the ticks it was raised; a later one is a new span.
+    #[test]
+    fn chattering_warnings_make_one_span() {
+        let mut res = RunResult::default();
+        let on = Warnings {
+            derating: true,
+            ..Warnings::default()
+        };
+        let off = Warnings::default();
+        let prev = (1.0, 2.0, Mode::Apc);
+        for (tick, was, now) in [(10, off, on), (12, on, off), (15, off, on), (16, on, off)] {
+            res.warnings_changed(tick, was, now, prev, 5);
+        }
+        // 16 -> 30 is longer than the gap of 5 ticks.
+        res.warnings_changed(30, off, on, prev, 5);
+        assert_eq!(res.warning_spans.len(), 2);
+        let s = &res.warning_spans[0];
+        assert_eq!(
+            (s.warning, s.from_tick, s.to_tick, s.raised, s.raised_ticks),
+            ("derating", 10, Some(16), 2, 3)
+        );
+        assert_eq!((s.last_p_mw, s.last_drive_ma), (1.0, 2.0));
+        assert_eq!(res.warning_spans[1].to_tick, None);
+    }
+
     /// The same scenario and seed give the same trace bit for bit; another
     /// seed gives another noise realisation.
     #[test]
@@ -982,6 +1234,7 @@ mod fault_log_tests {
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1000,
             events,
+            expects: Vec::new(),
         };
         let r = run(&sc, &module, cfg, DacLatency::default()).unwrap();
         let trips = r

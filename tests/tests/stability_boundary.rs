@@ -97,6 +97,7 @@ fn run(
                 },
             ),
         ],
+        expects: Vec::new(),
     };
     let corner = PlantCorner::nominal(setpoint_mw);
     sim::run(
@@ -312,7 +313,7 @@ fn red_board_at_1_khz_oscillates_and_the_summary_says_so() {
         assert!(o.drive_ma.1 - o.drive_ma.0 > 20.0, "{f}");
         assert!((2..=10).contains(&o.period_ticks), "{f}");
     }
-    let text = report::summary(&sc, &r);
+    let text = report::summary(&sc, &r, Vec::new()).text();
     println!("{text}");
     assert!(text.contains("LIMIT CYCLE"), "{text}");
 }

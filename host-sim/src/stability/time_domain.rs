@@ -478,6 +478,7 @@ fn scenario(corner: &PlantCorner, plan: &StepPlan, low_mw: f64, seed: u64) -> Sc
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
         events,
+        expects: Vec::new(),
     }
 }
 
@@ -748,6 +749,7 @@ pub fn small_step_agreement(
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
         events,
+        expects: Vec::new(),
     };
     let res = sim::run(
         &sc,
