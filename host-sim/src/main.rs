@@ -131,17 +131,71 @@ fn module_by_name(name: &str) -> Result<DemoModule, String> {
     }
 }
 
+/// What a run streams to while it goes: `trace.csv` (to a temporary file
+/// renamed into place at the end) and the progress bar.
+struct RunSink {
+    csv: diodestat_sim::trace::CsvTrace<std::fs::File>,
+    bar: indicatif::ProgressBar,
+}
+
+impl diodestat_sim::trace::TraceSink for RunSink {
+    fn row(&mut self, row: &diodestat_sim::trace::TraceRow) {
+        self.csv.row(row);
+    }
+    fn progress(&mut self, done: u64, _total: u64) {
+        self.bar.set_position(done);
+    }
+}
+
+/// The temporary name an output is written under before it is renamed
+/// into place, in the same folder.
+fn temp_beside(path: &Path) -> PathBuf {
+    let name = path
+        .file_name()
+        .map_or_else(|| "out".into(), |n| n.to_string_lossy().into_owned());
+    path.with_file_name(format!(".{name}.{}.tmp", std::process::id()))
+}
+
 fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
     let text = std::fs::read_to_string(path).map_err(|e| format!("{}: {e}", path.display()))?;
     let sc = scenario::parse(&text).map_err(|e| format!("{}: {e}", path.display()))?;
     let board = load_board(&sc.board_path(path)).map_err(|e| e.to_string())?;
     println!("{}", board_line(&board));
-    let t0 = Instant::now();
-    let res = sim::run(&sc, &board.module, board.valid).map_err(|e| e.to_string())?;
-    let secs = t0.elapsed().as_secs_f64();
     std::fs::create_dir_all(out).map_err(|e| format!("{}: {e}", out.display()))?;
-    report::write_csv(&out.join("trace.csv"), &res).map_err(|e| e.to_string())?;
-    report::write_svg(&out.join("plot.svg"), &sc.name, &res)?;
+    let csv_path = out.join("trace.csv");
+    let svg_path = out.join("plot.svg");
+    let csv_tmp = temp_beside(&csv_path);
+    let file =
+        std::fs::File::create(&csv_tmp).map_err(|e| format!("{}: {e}", csv_tmp.display()))?;
+    let n_ticks = (sc.duration_ms * 1e-3 * f64::from(board.config.tick_hz)).round() as u64;
+    let mut sink = RunSink {
+        csv: diodestat_sim::trace::CsvTrace::new(file),
+        bar: diodestat_sim::progress::bar(n_ticks, "ticks"),
+    };
+    let t0 = Instant::now();
+    let res = sim::run_streamed(&sc, &board.module, board.valid, &mut sink);
+    let secs = t0.elapsed().as_secs_f64();
+    sink.bar.finish_and_clear();
+    let written = sink.csv.finish();
+    let res = res.map_err(|e| e.to_string()).and_then(|r| {
+        written
+            .map(|_| r)
+            .map_err(|e| format!("{}: {e}", csv_tmp.display()))
+    });
+    if res.is_err() {
+        let _ = std::fs::remove_file(&csv_tmp);
+    }
+    let res = res?;
+    let svg_tmp = temp_beside(&svg_path);
+    let svg = report::write_svg(&svg_tmp, &sc.name, &res);
+    if let Err(e) = svg {
+        let _ = std::fs::remove_file(&csv_tmp);
+        let _ = std::fs::remove_file(&svg_tmp);
+        return Err(e);
+    }
+    for (tmp, dst) in [(&csv_tmp, &csv_path), (&svg_tmp, &svg_path)] {
+        std::fs::rename(tmp, dst).map_err(|e| format!("{}: {e}", dst.display()))?;
+    }
     print!("{}", report::summary(&sc, &res));
     println!(
         "timing: {} ticks in {:.3} s = {:.2} Mticks/s ({:.0}x real time)",
@@ -150,11 +204,7 @@ fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
         res.ticks as f64 / secs / 1e6,
         res.ticks as f64 / f64::from(res.tick_hz) / secs
     );
-    println!(
-        "wrote {} and {}",
-        out.join("trace.csv").display(),
-        out.join("plot.svg").display()
-    );
+    println!("wrote {} and {}", csv_path.display(), svg_path.display());
     Ok(())
 }
 

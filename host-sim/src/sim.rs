@@ -17,32 +17,8 @@ use crate::plant::{
 };
 use crate::scenario::{Action, AdcChannel, DiodeModel, HwFault, ModeName, Scenario};
 
-/// One tick of the trace.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct TraceRow {
-    /// Tick index.
-    pub tick: u64,
-    /// Time, s.
-    pub t_s: f64,
-    /// Controller state after the tick.
-    pub state: State,
-    /// Front-facet optical power, mW.
-    pub p_mw: f64,
-    /// Actual drive current, mA.
-    pub i_ma: f64,
-    /// Commanded drive (core), mA.
-    pub cmd_ma: f64,
-    /// Ceiling in force (core), mA.
-    pub ceiling_ma: f64,
-    /// Monitor reading as the core sees it, mW.
-    pub monitor_mw: f64,
-    /// Junction temperature, degC.
-    pub tj_c: f64,
-    /// Temperature as the core reads it, degC.
-    pub sensed_c: f64,
-    /// Ambient, degC.
-    pub ambient_c: f64,
-}
+pub use crate::trace::TraceRow;
+use crate::trace::{Envelope, NoSink, Retained, TraceSink, RETAINED_ROWS};
 
 /// Something that happened during a run.
 #[derive(Clone, Debug, PartialEq)]
@@ -295,8 +271,14 @@ impl Plant {
 /// The result of a run.
 #[derive(Clone, Debug, Default)]
 pub struct RunResult {
-    /// Trace rows (decimated by `trace_every`).
+    /// Trace rows: every `trace_every`-th tick, evenly thinned further
+    /// (see [`RunResult::trace_stride`]) so that at most
+    /// [`RETAINED_ROWS`] are kept however long the run.
     pub trace: Vec<TraceRow>,
+    /// Ticks between consecutive rows of `trace`.
+    pub trace_stride: u64,
+    /// Min/max envelope of every tick, for plots.
+    pub envelope: Envelope,
     /// Events in order.
     pub happenings: Vec<Happening>,
     /// Ticks run.
@@ -321,8 +303,27 @@ fn to_f(v: Fx) -> f64 {
 
 /// Run a scenario on a validated board configuration.
 pub fn run(sc: &Scenario, module: &DemoModule, cfg: ValidConfig) -> Result<RunResult, PlantError> {
-    run_plant(sc, cfg, Plant::new(module, sc.ambient_c, sc.seed)?)
+    run_plant(
+        sc,
+        cfg,
+        Plant::new(module, sc.ambient_c, sc.seed)?,
+        &mut NoSink,
+    )
 }
+
+/// [`run`], handing every recorded row (every `trace_every`-th tick) to
+/// `sink` as it is made, for example to stream `trace.csv` to disk.
+pub fn run_streamed(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+    sink: &mut dyn TraceSink,
+) -> Result<RunResult, PlantError> {
+    run_plant(sc, cfg, Plant::new(module, sc.ambient_c, sc.seed)?, sink)
+}
+
+/// Ticks between two progress reports to a [`TraceSink`].
+const PROGRESS_TICKS: u64 = 1 << 14;
 
 /// [`run`] on the reference plant ([`Plant::new_reference`]): same
 /// scenario, same noise, every model evaluated the straightforward way.
@@ -335,10 +336,16 @@ pub fn run_reference(
         sc,
         cfg,
         Plant::new_reference(module, sc.ambient_c, sc.seed)?,
+        &mut NoSink,
     )
 }
 
-fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunResult, PlantError> {
+fn run_plant(
+    sc: &Scenario,
+    cfg: ValidConfig,
+    mut plant: Plant,
+    sink: &mut dyn TraceSink,
+) -> Result<RunResult, PlantError> {
     let tick_hz = cfg.config().tick_hz;
     let dt = 1.0 / f64::from(tick_hz);
     let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
@@ -359,8 +366,10 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
     let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
     let mut res = RunResult {
         tick_hz,
+        envelope: Envelope::new(n_ticks),
         ..RunResult::default()
     };
+    let mut kept = Retained::new(RETAINED_ROWS);
     let mut last_state = State::Off;
     let mut logged = 0usize;
     let mut drive = diodestat_core::Drive::default();
@@ -458,25 +467,46 @@ fn run_plant(sc: &Scenario, cfg: ValidConfig, mut plant: Plant) -> Result<RunRes
             }
             logged = log.len();
         }
-        if tick % trace_every == 0 {
-            let m = ctl.measurements();
-            res.trace.push(TraceRow {
-                tick,
-                t_s: tick as f64 * dt,
-                state: st,
-                p_mw,
-                i_ma: plant.driver.current_a() * 1e3,
-                cmd_ma: to_f(ctl.drive_ma()),
-                ceiling_ma: to_f(ctl.ceiling_ma()),
-                monitor_mw: to_f(m.monitor_mw),
-                tj_c: k_to_c(plant.thermal.t_junction_k()),
-                sensed_c: to_f(m.temp_degc),
-                ambient_c,
-            });
+        // Every tick feeds the plot envelope; every `trace_every`-th is
+        // recorded.
+        let m = ctl.measurements();
+        let status = ctl.status();
+        let row = TraceRow {
+            tick,
+            t_s: tick as f64 * dt,
+            state: st,
+            mode: status.mode,
+            enable: drive.enable,
+            dac_code: drive.dac_code,
+            faults: status.faults,
+            warnings: status.warnings,
+            p_mw,
+            i_ma: plant.driver.current_a() * 1e3,
+            cmd_ma: to_f(ctl.drive_ma()),
+            ceiling_ma: to_f(ctl.ceiling_ma()),
+            monitor_mw: to_f(m.monitor_mw),
+            tj_c: k_to_c(plant.thermal.t_junction_k()),
+            sensed_c: to_f(m.temp_degc),
+            ambient_c,
+            supply_v: plant.supply_v,
+            supply_sensed_v: to_f(m.supply_mv) * 1e-3,
+            v_f_v: plant.v_f,
+            wavelength_nm: plant.wavelength_m * 1e9,
+        };
+        res.envelope.add(&row);
+        if tick.is_multiple_of(trace_every) {
+            kept.push(row);
+            sink.row(&row);
+        }
+        if tick.is_multiple_of(PROGRESS_TICKS) {
+            sink.progress(tick, n_ticks);
         }
         res.ticks = tick + 1;
     }
     res.final_state = ctl.state();
+    res.trace_stride = kept.stride() * trace_every;
+    res.trace = kept.into_rows();
+    sink.progress(n_ticks, n_ticks);
     Ok(res)
 }
 
@@ -603,6 +633,36 @@ mod tests {
             assert!((x.p_mw - y.p_mw).abs() <= 1e-9 * y.p_mw.max(module.rated_power_w * 1e3));
             assert!((x.tj_c - y.tj_c).abs() < 1e-8, "tick {}", x.tick);
         }
+    }
+
+    /// A run longer than the retained rows hold streams every row to its
+    /// sink while keeping at most `RETAINED_ROWS` evenly spaced rows and
+    /// `ENVELOPE_BINS` envelope bins in memory.
+    #[test]
+    fn long_runs_stream_every_row_and_keep_bounded_memory() {
+        struct Count(u64, u64);
+        impl TraceSink for Count {
+            fn row(&mut self, r: &TraceRow) {
+                assert_eq!(r.tick, self.0, "rows arrive in order, none skipped");
+                self.0 += 1;
+            }
+            fn progress(&mut self, done: u64, _: u64) {
+                self.1 = done;
+            }
+        }
+        let module = DemoModule::visible();
+        let ticks = RETAINED_ROWS as u64 + 20_000;
+        let mut sc = scenario(1, 20.0, 0.0);
+        sc.duration_ms = ticks as f64 / 20.0;
+        let mut sink = Count(0, 0);
+        let res = run_streamed(&sc, &module, config(&module), &mut sink).unwrap();
+        assert_eq!(res.ticks, ticks);
+        assert_eq!((sink.0, sink.1), (ticks, ticks));
+        assert!(res.trace.len() <= RETAINED_ROWS);
+        assert_eq!(res.trace_stride, 2);
+        assert!(res.trace.windows(2).all(|w| w[1].tick - w[0].tick == 2));
+        assert!(res.envelope.bins().len() <= crate::trace::ENVELOPE_BINS);
+        assert_eq!(res.envelope.bins().last().unwrap().last_tick, ticks - 1);
     }
 
     /// The same scenario and seed give the same trace bit for bit; another

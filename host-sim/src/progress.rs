@@ -1,0 +1,44 @@
+//! Progress bars for the commands that take more than a moment (long runs,
+//! campaigns, loop tuning and reports): drawn on stderr, hidden when stderr
+//! is not a terminal so that logs and pipes stay clean.
+
+use std::io::IsTerminal;
+
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+
+/// A bar of `len` steps of `what` (for example "cases" or "ticks"), on
+/// stderr when it is a terminal, else hidden.
+pub fn bar(len: u64, what: &str) -> ProgressBar {
+    bar_on(len, what, std::io::stderr().is_terminal())
+}
+
+/// [`bar`], drawn only when `visible`.
+pub fn bar_on(len: u64, what: &str, visible: bool) -> ProgressBar {
+    let target = if visible {
+        ProgressDrawTarget::stderr()
+    } else {
+        ProgressDrawTarget::hidden()
+    };
+    let pb = ProgressBar::with_draw_target(Some(len), target);
+    pb.set_style(
+        ProgressStyle::with_template(&format!(
+            "{{bar:40}} {{percent:>3}} % of {{len}} {what}, {{elapsed}} (left about {{eta}})"
+        ))
+        .unwrap_or_else(|_| ProgressStyle::default_bar()),
+    );
+    pb
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn hidden_when_not_on_a_terminal() {
+        assert!(bar_on(10, "cases", false).is_hidden());
+        // Under the test harness stderr is captured, not a terminal.
+        if !std::io::stderr().is_terminal() {
+            assert!(bar(10, "cases").is_hidden());
+        }
+    }
+}
