@@ -61,7 +61,7 @@ enum Cmd {
     LoopReport {
         /// Board configuration files (default: examples/*/board.toml).
         boards: Vec<PathBuf>,
-        /// Output folder; each board gets OUT/BOARD/loop-report.md, bode.svg and bode/*.svg.
+        /// Output folder; each board gets OUT/BOARD/loop-report.md, report.json, bode.svg and bode/*.svg.
         #[arg(long, default_value = "out")]
         out: PathBuf,
         /// Setpoint of the corners, mW (default: two thirds of the board's highest setpoint).
@@ -95,6 +95,14 @@ enum Cmd {
         /// Gain margin every corner keeps, dB.
         #[arg(long, default_value_t = loop_cmd::TUNE_GM_DB)]
         min_gm_db: f64,
+        /// Write the proposed gains into the board file's [apc] section, in place
+        /// (comments and layout kept).
+        #[arg(long)]
+        write: bool,
+        /// Also write the design and the margins and time-domain figures with the
+        /// proposed gains as JSON to this file.
+        #[arg(long)]
+        json: Option<PathBuf>,
     },
     /// Loop gate: exits non-zero, naming board, corner and figure, if any corner misses PM 45 deg, GM 6 dB, the overshoot limit, or shows a limit cycle.
     LoopGate {
@@ -335,12 +343,26 @@ fn main() -> ExitCode {
             setpoint_mw,
             min_pm_deg,
             min_gm_db,
+            write,
+            json,
         } => match (crossover_hz, bandwidth_hz) {
             (Some(f), _) => Ok(loop_cmd::TuneTarget::CrossoverHz(*f)),
             (None, Some(f)) => Ok(loop_cmd::TuneTarget::BandwidthHz(*f)),
             (None, None) => Err("give --crossover-hz or --bandwidth-hz".to_string()),
         }
-        .and_then(|t| loop_cmd::tune(board, t, *setpoint_mw, *min_pm_deg, *min_gm_db)),
+        .and_then(|t| {
+            loop_cmd::tune(
+                board,
+                t,
+                *setpoint_mw,
+                *min_pm_deg,
+                *min_gm_db,
+                loop_cmd::TuneOutputs {
+                    write: *write,
+                    json: json.as_deref(),
+                },
+            )
+        }),
         Cmd::LoopGate {
             boards,
             out,
