@@ -16,6 +16,7 @@ pub mod board;
 pub mod boardfile;
 pub mod campaign;
 pub mod export;
+pub mod liv;
 pub mod plant;
 pub mod progress;
 pub mod report;

@@ -32,13 +32,19 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
-    /// L-I-V sweep of a demo module's diode at chosen temperatures (CSV and SVG).
+    /// L-I-V sweep of a demo module's diode: isothermal at junction temperatures, or CW with
+    /// self-heating at case temperatures; threshold and slope marked (CSV and SVG).
     Liv {
         /// Module: visible or pump.
         module: String,
-        /// Junction temperatures, degC.
-        #[arg(long, value_delimiter = ',', default_value = "25")]
-        temps_c: Vec<f64>,
+        /// Junction temperatures of isothermal sweeps, degC (default 25 unless --case-c
+        /// is given).
+        #[arg(long, value_delimiter = ',')]
+        temps_c: Option<Vec<f64>>,
+        /// Case temperatures of CW sweeps with self-heating through the module's
+        /// junction-to-case resistance, degC.
+        #[arg(long, value_delimiter = ',')]
+        case_c: Vec<f64>,
         /// Highest current, mA (default: the driver's full scale).
         #[arg(long)]
         max_ma: Option<f64>,
@@ -216,39 +222,74 @@ fn run(path: &PathBuf, out: &PathBuf) -> Result<(), String> {
     Ok(())
 }
 
-fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &PathBuf) -> Result<(), String> {
+fn liv(
+    module: &str,
+    temps_c: Option<&[f64]>,
+    case_c: &[f64],
+    max_ma: Option<f64>,
+    out: &Path,
+) -> Result<(), String> {
+    use diodestat_sim::liv::{sweep, Heating};
     let m = module_by_name(module)?;
-    let diode = diodestat_sim::plant::Diode::new(m.diode.clone()).map_err(|e| e.to_string())?;
-    let i_max =
-        max_ma.unwrap_or(m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3) * 1e-3;
-    std::fs::create_dir_all(out).map_err(|e| e.to_string())?;
-    let mut csv = String::from("t_c,i_ma,p_mw,v_f_v,wavelength_nm\n");
-    let mut curves = Vec::new();
-    for &t in temps_c {
-        let mut pts = Vec::new();
-        for k in 0..=400 {
-            let i = i_max * f64::from(k) / 400.0;
-            let o = diode.quasi_static(i, diodestat_sim::plant::c_to_k(t));
+    let max_ma = max_ma.unwrap_or(m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3);
+    // Junction temperatures: as given, else 25 degC unless only case
+    // temperatures were asked for.
+    let junction: &[f64] = match temps_c {
+        Some(t) => t,
+        None if case_c.is_empty() => &[25.0],
+        None => &[],
+    };
+    let heatings = junction
+        .iter()
+        .map(|&t| Heating::Isothermal { junction_c: t })
+        .chain(case_c.iter().map(|&t| Heating::SelfHeated { case_c: t }));
+    let curves = heatings
+        .map(|h| sweep(&m, h, max_ma, 400).map_err(|e| format!("{}: {e}", h.label())))
+        .collect::<Result<Vec<_>, _>>()?;
+    let mut csv = String::from("sweep,set_c,i_ma,p_mw,v_f_v,wavelength_nm,tj_c\n");
+    for c in &curves {
+        let (kind, set_c) = match c.heating {
+            Heating::Isothermal { junction_c } => ("isothermal", junction_c),
+            Heating::SelfHeated { case_c } => ("cw-self-heated", case_c),
+        };
+        for p in &c.points {
             csv.push_str(&format!(
-                "{t},{:.4},{:.5},{:.5},{:.4}\n",
-                i * 1e3,
-                o.p_front_w * 1e3,
-                o.v_f_v,
-                o.wavelength_m * 1e9
+                "{kind},{set_c},{:.4},{:.5},{:.5},{:.4},{:.4}\n",
+                p.i_ma, p.p_mw, p.v_f_v, p.wavelength_nm, p.tj_c
             ));
-            pts.push((i * 1e3, o.p_front_w * 1e3, o.v_f_v));
         }
-        curves.push((t, pts));
     }
-    std::fs::write(out.join("liv.csv"), csv).map_err(|e| e.to_string())?;
-    report::write_liv_svg(&out.join("liv.svg"), module, &curves)?;
-    for (t, pts) in &curves {
-        let ith = diode.threshold_current_a(diodestat_sim::plant::c_to_k(*t)) * 1e3;
-        let pmax = pts.iter().map(|p| p.1).fold(0.0, f64::max);
+    let svg = report::liv_svg(module, &curves)?;
+    std::fs::create_dir_all(out).map_err(|e| format!("{}: {e}", out.display()))?;
+    for (name, bytes) in [("liv.csv", csv.as_bytes()), ("liv.svg", svg.as_bytes())] {
+        let dst = out.join(name);
+        let tmp = temp_beside(&dst);
+        std::fs::write(&tmp, bytes)
+            .and_then(|()| std::fs::rename(&tmp, &dst))
+            .map_err(|e| {
+                let _ = std::fs::remove_file(&tmp);
+                format!("{}: {e}", dst.display())
+            })?;
+    }
+    for c in &curves {
+        let last = c.points.last();
+        let fit = c.fit.map_or("does not lase".to_string(), |f| {
+            format!(
+                "threshold {:.3} mA, slope {:.4} W/A (line through 10-40 % of the peak)",
+                f.threshold_ma, f.slope_w_per_a
+            )
+        });
         println!(
-            "{t:>6.1} degC: threshold {ith:.3} mA, power at {:.1} mA {:.3} mW",
-            i_max * 1e3,
-            pts.last().map_or(0.0, |p| p.1).max(0.0).min(pmax)
+            "{}: {fit}; at {:.1} mA {:.3} mW, junction {:.1} degC{}",
+            c.heating.label(),
+            last.map_or(0.0, |p| p.i_ma),
+            last.map_or(0.0, |p| p.p_mw),
+            last.map_or(f64::NAN, |p| p.tj_c),
+            if last.is_some_and(|p| p.i_ma < max_ma * 0.999) {
+                " (thermal runaway: no steady state at higher current)"
+            } else {
+                ""
+            }
         );
     }
     println!(
@@ -325,9 +366,10 @@ fn main() -> ExitCode {
         Cmd::Liv {
             module,
             temps_c,
+            case_c,
             max_ma,
             out,
-        } => liv(module, temps_c, *max_ma, out),
+        } => liv(module, temps_c.as_deref(), case_c, *max_ma, out),
         Cmd::Export { board, out } => export(board, out),
         Cmd::Campaign { board, margin, out } => campaign(board, *margin, out),
         Cmd::LoopReport {

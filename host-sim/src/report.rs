@@ -7,6 +7,7 @@ use std::path::Path;
 use diodestat_core::State;
 use plotters::prelude::*;
 
+use crate::liv::LivCurve;
 use crate::scenario::{Action, Scenario};
 use crate::sim::{Happening, RunResult, TraceRow};
 use crate::stability::time_domain::{on_ceiling, overshoot_pct, settled_from, SETTLING_BAND};
@@ -545,78 +546,144 @@ pub fn plot_svg(name: &str, res: &RunResult) -> Result<String, String> {
     Ok(buf)
 }
 
-/// L-I-V curves: (temperature degC, points of (mA, mW, V)).
-pub type LivCurves = [(f64, Vec<(f64, f64, f64)>)];
+/// Write the L-I-V plot of `curves` to `path` (see [`liv_svg`]).
+pub fn write_liv_svg(path: &Path, name: &str, curves: &[LivCurve]) -> Result<(), String> {
+    let svg = liv_svg(name, curves)?;
+    std::fs::write(path, svg).map_err(|e| format!("{}: {e}", path.display()))
+}
 
-/// Write the L-I-V plot: power and forward voltage against current.
-pub fn write_liv_svg(path: &Path, name: &str, curves: &LivCurves) -> Result<(), String> {
-    let e = |x: String| x;
-    let root = SVGBackend::new(path, (900, 700)).into_drawing_area();
-    root.fill(&WHITE).map_err(|x| e(x.to_string()))?;
-    let (top, bottom) = root.split_vertically(420);
-    let i_max = curves
-        .iter()
-        .flat_map(|c| c.1.iter().map(|p| p.0))
+/// The L-I-V plot: optical power and forward voltage against current, one
+/// line per sweep, each with its threshold (a dashed vertical line and its
+/// value) and its slope (the fitted line, dashed, and its value) marked.
+/// mW and mA become W and A for big modules.
+pub fn liv_svg(name: &str, curves: &[LivCurve]) -> Result<String, String> {
+    let e = |x: &dyn std::fmt::Display| x.to_string();
+    let pts = || curves.iter().flat_map(|c| c.points.iter());
+    let i_max = pts()
+        .map(|p| p.i_ma)
+        .filter(|v| v.is_finite())
         .fold(1e-9, f64::max);
-    let p_max = curves
-        .iter()
-        .flat_map(|c| c.1.iter().map(|p| p.1))
+    let p_max = pts()
+        .map(|p| p.p_mw)
+        .filter(|v| v.is_finite())
         .fold(1e-9, f64::max);
-    let v_max = curves
-        .iter()
-        .flat_map(|c| c.1.iter().map(|p| p.2))
+    let v_max = pts()
+        .map(|p| p.v_f_v)
+        .filter(|v| v.is_finite())
         .fold(1e-9, f64::max);
+    let cu = milli_unit(i_max, "mA", "A");
+    let pu = milli_unit(p_max, "mW", "W");
     let colors = [
         RGBColor(20, 60, 200),
         RGBColor(200, 30, 30),
         RGBColor(0, 140, 90),
         RGBColor(150, 0, 150),
         RGBColor(240, 140, 0),
+        RGBColor(90, 90, 90),
     ];
-    for (area, idx, ymax, unit) in [
-        (&top, 1usize, p_max, "optical power (mW)"),
-        (&bottom, 2usize, v_max, "forward voltage (V)"),
-    ] {
-        let mut chart = ChartBuilder::on(area)
-            .caption(
-                if idx == 1 {
-                    format!("{name}: L-I-V")
-                } else {
-                    String::new()
-                },
-                ("sans-serif", 18),
-            )
-            .margin(8)
-            .x_label_area_size(30)
-            .y_label_area_size(60)
-            .build_cartesian_2d(0.0..i_max, 0.0..ymax * 1.05)
-            .map_err(|x| e(x.to_string()))?;
+    let mut buf = String::new();
+    {
+        let root = SVGBackend::with_string(&mut buf, (900, 760)).into_drawing_area();
+        root.fill(&WHITE).map_err(|x| e(&x))?;
+        let (top, bottom) = root.split_vertically(480);
+        let x_end = i_max * cu.per_base;
+        // Room above the curves for the legend (one row per curve).
+        let p_top = p_max * pu.per_base * (1.12 + 0.09 * curves.len() as f64);
+        let mut chart = ChartBuilder::on(&top)
+            .caption(format!("{name}: L-I-V"), ("sans-serif", 18))
+            .margin(10)
+            .x_label_area_size(34)
+            .y_label_area_size(64)
+            .build_cartesian_2d(0.0..x_end, 0.0..p_top)
+            .map_err(|x| e(&x))?;
         chart
             .configure_mesh()
-            .x_desc("current (mA)")
-            .y_desc(unit)
+            .x_desc(format!("current ({})", cu.name))
+            .y_desc(format!("optical power, front ({})", pu.name))
             .draw()
-            .map_err(|x| e(x.to_string()))?;
-        for (k, (t, pts)) in curves.iter().enumerate() {
-            let c = colors[k % colors.len()];
+            .map_err(|x| e(&x))?;
+        for (k, c) in curves.iter().enumerate() {
+            let col = colors[k % colors.len()];
+            let fit = c.fit.map_or(String::new(), |f| {
+                format!(
+                    ": threshold {:.*} {} (dot), slope {:.3} W/A (dashed)",
+                    if cu.per_base < 1.0 { 3 } else { 2 },
+                    f.threshold_ma * cu.per_base,
+                    cu.name,
+                    f.slope_w_per_a
+                )
+            });
             chart
                 .draw_series(LineSeries::new(
-                    pts.iter().map(|p| (p.0, if idx == 1 { p.1 } else { p.2 })),
-                    c,
+                    c.points
+                        .iter()
+                        .map(|p| (p.i_ma * cu.per_base, p.p_mw * pu.per_base)),
+                    col.stroke_width(2),
                 ))
-                .map_err(|x| e(x.to_string()))?
-                .label(format!("{t} degC"))
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], c));
+                .map_err(|x| e(&x))?
+                .label(format!("{}{fit}", c.heating.label()))
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2))
+                });
+            if let Some(f) = c.fit {
+                let th = f.threshold_ma * cu.per_base;
+                // The fitted line, from the threshold across the plot, so that
+                // a roll-over shows as the curve falling away from it.
+                let to_ma = i_max;
+                let line = |i_ma: f64| (i_ma - f.threshold_ma) * f.slope_w_per_a;
+                chart
+                    .draw_series(DashedLineSeries::new(
+                        vec![(th, 0.0), (to_ma * cu.per_base, line(to_ma) * pu.per_base)],
+                        5,
+                        4,
+                        col.mix(0.8).stroke_width(1),
+                    ))
+                    .map_err(|x| e(&x))?;
+                chart
+                    .draw_series(DashedLineSeries::new(
+                        vec![(th, 0.0), (th, 0.25 * p_max * pu.per_base)],
+                        3,
+                        3,
+                        col.stroke_width(1),
+                    ))
+                    .map_err(|x| e(&x))?;
+                chart
+                    .draw_series(std::iter::once(Circle::new((th, 0.0), 4, col.filled())))
+                    .map_err(|x| e(&x))?;
+            }
         }
         chart
             .configure_series_labels()
-            .background_style(WHITE.mix(0.8))
+            .position(SeriesLabelPosition::UpperLeft)
+            .background_style(WHITE.mix(0.85))
             .border_style(BLACK)
+            .label_font(("sans-serif", 12))
             .draw()
-            .map_err(|x| e(x.to_string()))?;
+            .map_err(|x| e(&x))?;
+        let mut vchart = ChartBuilder::on(&bottom)
+            .margin(10)
+            .x_label_area_size(34)
+            .y_label_area_size(64)
+            .build_cartesian_2d(0.0..x_end, 0.0..v_max * 1.1)
+            .map_err(|x| e(&x))?;
+        vchart
+            .configure_mesh()
+            .x_desc(format!("current ({})", cu.name))
+            .y_desc("forward voltage (V)")
+            .draw()
+            .map_err(|x| e(&x))?;
+        for (k, c) in curves.iter().enumerate() {
+            let col = colors[k % colors.len()];
+            vchart
+                .draw_series(LineSeries::new(
+                    c.points.iter().map(|p| (p.i_ma * cu.per_base, p.v_f_v)),
+                    col.stroke_width(2),
+                ))
+                .map_err(|x| e(&x))?;
+        }
+        root.present().map_err(|x| e(&x))?;
     }
-    root.present().map_err(|x| e(x.to_string()))?;
-    Ok(())
+    Ok(buf)
 }
 
 #[cfg(test)]
@@ -712,6 +779,27 @@ mod tests {
         // No room left: None, counted as dropped by the plot.
         let many = vec![(500.0, 100.0); 5];
         assert_eq!(place_labels(&many, 1000.0, 4, 4.0)[4], None);
+    }
+
+    /// The L-I-V plot marks each curve's threshold (a dot on the current
+    /// axis) and states threshold and slope in the legend, in A and W for
+    /// a big module.
+    #[test]
+    fn liv_plot_marks_threshold_and_slope() {
+        use crate::liv::{sweep, Heating};
+        let m = crate::plant::DemoModule::pump();
+        let curves = [
+            sweep(&m, Heating::Isothermal { junction_c: 25.0 }, 8000.0, 100).unwrap(),
+            sweep(&m, Heating::SelfHeated { case_c: 25.0 }, 8000.0, 100).unwrap(),
+        ];
+        let svg = liv_svg("pump", &curves).unwrap();
+        for c in &curves {
+            let f = c.fit.unwrap();
+            assert!(svg.contains(&format!("threshold {:.3} A (dot)", f.threshold_ma * 1e-3)));
+            assert!(svg.contains(&format!("slope {:.3} W/A (dashed)", f.slope_w_per_a)));
+        }
+        assert_eq!(svg.matches("<circle").count(), 2);
+        assert!(svg.contains("current (A)") && svg.contains("front (W)"));
     }
 
     proptest! {
