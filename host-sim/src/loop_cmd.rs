@@ -10,6 +10,7 @@ use std::time::Instant;
 use diodestat_core::Fx;
 
 use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::progress;
 use diodestat_sim::report::SAFETY_CAUTION;
 use diodestat_sim::stability::assessment::{
     assess, default_setpoint_mw, slug, Assessment, PassLines, DEFAULT_MAX_OVERSHOOT_PCT,
@@ -255,23 +256,23 @@ pub fn report(
     } else {
         boards.to_vec()
     };
+    let bar = progress::bar(boards.len() as u64, "boards");
     for path in &boards {
         let b = load_board(path).map_err(|e| e.to_string())?;
         let t0 = Instant::now();
+        bar.set_message(b.name.clone());
         let a = assess_board(&b, setpoint_mw, max_overshoot_pct)?;
+        bar.inc(1);
         let dir = write_report(&a, out)?;
-        println!(
-            "board {} ({}), setpoint {:.3} mW, {} corners in {:.2} s",
+        let n = a.findings().len();
+        let text = format!(
+            "board {} ({}), setpoint {:.3} mW, {} corners in {:.2} s\n{}verdict: {}; wrote {}/loop-report.md, report.json, bode.svg, bode/*.svg",
             b.name,
             path.display(),
             a.setpoint_mw,
             a.analyses.len(),
-            t0.elapsed().as_secs_f64()
-        );
-        print!("{}", summary(&a));
-        let n = a.findings().len();
-        println!(
-            "verdict: {}; wrote {}/loop-report.md, report.json, bode.svg, bode/*.svg",
+            t0.elapsed().as_secs_f64(),
+            summary(&a),
             if n == 0 {
                 "pass".to_string()
             } else {
@@ -279,7 +280,10 @@ pub fn report(
             },
             dir.display()
         );
+        // Printed with the bar out of the way.
+        bar.suspend(|| println!("{text}"));
     }
+    bar.finish_and_clear();
     println!("CAUTION: {SAFETY_CAUTION}");
     Ok(())
 }
@@ -298,14 +302,16 @@ pub fn gate(
         boards.to_vec()
     };
     let mut failures = Vec::new();
+    let bar = progress::bar(boards.len() as u64, "boards");
     for path in &boards {
         let b = load_board(path).map_err(|e| e.to_string())?;
         let a = assess_board(&b, setpoint_mw, max_overshoot_pct)?;
+        bar.inc(1);
         if let Some(out) = out {
             write_report(&a, out)?;
         }
         let f = a.findings();
-        println!(
+        let text = format!(
             "{} {} ({}): {}; overshoot limit {} %",
             if f.is_empty() { "pass" } else { "FAIL" },
             b.name,
@@ -313,8 +319,10 @@ pub fn gate(
             summary(&a).lines().next().unwrap_or_default(),
             overshoot_limit(&b, max_overshoot_pct)
         );
+        bar.suspend(|| println!("{text}"));
         failures.extend(f);
     }
+    bar.finish_and_clear();
     println!(
         "pass lines: PM >= {PASS_PM_DEG} deg, GM >= {PASS_GM_DB} dB (common practice), overshoot \
          within each board's limit, no limit cycle, no fault latched"
@@ -464,11 +472,14 @@ pub fn tune(
             TuneTarget::BandwidthHz(f) => format!("closed-loop bandwidth {f} Hz (slowest corner)"),
         }
     );
-    let d: Design = match target {
+    let spin = progress::spinner("searching PI gains over the corners");
+    let d: Result<Design, String> = match target {
         TuneTarget::CrossoverHz(_) => design_pi(&params, &spec),
         TuneTarget::BandwidthHz(f) => design_for_bandwidth(&params, f, &spec),
     }
-    .map_err(|e| design_error(e, &names))?;
+    .map_err(|e| design_error(e, &names));
+    spin.finish_and_clear();
+    let d = d?;
     println!(
         "proposed gains: kp_ma_per_mw = {}, ki_ma_per_mw_ms = {} ({:.7} per tick); PI zero {:.1} Hz; \
          crossover {:.1} Hz, slowest-corner bandwidth {:.1} Hz",
@@ -490,6 +501,7 @@ pub fn tune(
     let valid = cfg
         .validate()
         .map_err(|e| format!("the proposed gains are refused by the configuration check: {e}"))?;
+    let spin = progress::spinner("step responses with the proposed gains at every corner");
     let a = assess(
         &b.name,
         b.module_name,
@@ -502,7 +514,9 @@ pub fn tune(
             max_overshoot_pct: overshoot_limit(&b, None),
         },
     )
-    .map_err(|e| e.to_string())?;
+    .map_err(|e| e.to_string());
+    spin.finish_and_clear();
+    let a = a?;
     print!("{}", margins_table(&a.analyses, min_pm_deg, min_gm_db));
     print!("with the proposed gains: {}", summary(&a));
     let f = a.findings();

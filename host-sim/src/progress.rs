@@ -29,6 +29,24 @@ pub fn bar_on(len: u64, what: &str, visible: bool) -> ProgressBar {
     pb
 }
 
+/// A spinner for work of unknown length (`what` says what is going on), on
+/// stderr when it is a terminal, else hidden.
+pub fn spinner(what: &str) -> ProgressBar {
+    let target = if std::io::stderr().is_terminal() {
+        ProgressDrawTarget::stderr()
+    } else {
+        ProgressDrawTarget::hidden()
+    };
+    let pb = ProgressBar::with_draw_target(None, target);
+    pb.set_style(
+        ProgressStyle::with_template("{spinner} {msg} {elapsed}")
+            .unwrap_or_else(|_| ProgressStyle::default_spinner()),
+    );
+    pb.set_message(what.to_string());
+    pb.enable_steady_tick(std::time::Duration::from_millis(120));
+    pb
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
