@@ -266,7 +266,8 @@ impl Channel {
         Channel::SensedC,
         Channel::AmbientC,
     ];
-    const N: usize = Self::ALL.len();
+    /// How many channels there are.
+    pub const N: usize = Self::ALL.len();
 
     /// This channel's value in a row.
     pub fn of(self, r: &TraceRow) -> f64 {
@@ -312,6 +313,7 @@ impl Bin {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Envelope {
     ticks_per_bin: u64,
+    next_bin_tick: u64,
     bins: Vec<Bin>,
 }
 
@@ -326,38 +328,37 @@ impl Envelope {
     pub fn new(n_ticks: u64) -> Self {
         Envelope {
             ticks_per_bin: n_ticks.div_ceil(ENVELOPE_BINS as u64).max(1),
+            next_bin_tick: 0,
             bins: Vec::new(),
         }
     }
 
     /// Add a tick's row (ticks in increasing order).
     pub fn add(&mut self, r: &TraceRow) {
-        let k = r.tick / self.ticks_per_bin;
-        let fresh = self
-            .bins
-            .last()
-            .is_none_or(|b| b.first_tick / self.ticks_per_bin != k);
-        if fresh && self.bins.len() < ENVELOPE_BINS {
-            let mut b = Bin {
-                first_tick: r.tick,
-                last_tick: r.tick,
-                min: [f64::NAN; Channel::N],
-                max: [f64::NAN; Channel::N],
-            };
-            for c in Channel::ALL {
-                let v = c.of(r);
-                b.min[c as usize] = v;
-                b.max[c as usize] = v;
-            }
-            self.bins.push(b);
+        self.add_values(r.tick, Channel::ALL.map(|c| c.of(r)));
+    }
+
+    /// Add a tick's values, in the order of [`Channel::ALL`] (ticks in
+    /// increasing order). The every-tick path of a run: a division only
+    /// when a new bin starts.
+    #[inline]
+    pub fn add_values(&mut self, tick: u64, v: [f64; Channel::N]) {
+        if tick >= self.next_bin_tick && self.bins.len() < ENVELOPE_BINS {
+            self.next_bin_tick = (tick / self.ticks_per_bin + 1) * self.ticks_per_bin;
+            self.bins.push(Bin {
+                first_tick: tick,
+                last_tick: tick,
+                min: v,
+                max: v,
+            });
             return;
         }
         if let Some(b) = self.bins.last_mut() {
-            b.last_tick = r.tick;
-            for c in Channel::ALL {
-                let v = c.of(r);
-                b.min[c as usize] = b.min[c as usize].min(v);
-                b.max[c as usize] = b.max[c as usize].max(v);
+            b.last_tick = tick;
+            // f64::min and max skip a NaN operand.
+            for ((lo, hi), x) in b.min.iter_mut().zip(b.max.iter_mut()).zip(v) {
+                *lo = lo.min(x);
+                *hi = hi.max(x);
             }
         }
     }
