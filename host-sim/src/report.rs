@@ -128,6 +128,16 @@ pub fn summary(sc: &Scenario, res: &RunResult) -> String {
         res.tick_hz,
         res.ticks as f64 * dt_us / 1e3
     );
+    if res.trace_stride > u64::from(sc.trace_every.max(1)) {
+        let _ = writeln!(
+            s,
+            "step figures use one tick in {}: the run is longer than the {} rows kept in memory \
+             (trace.csv has one tick in {}, the plot every tick's extremes)",
+            res.trace_stride,
+            crate::trace::RETAINED_ROWS,
+            sc.trace_every.max(1)
+        );
+    }
     for f in figures(sc, res) {
         let settle = f.settling_ms.map_or(
             "does not settle to ±1 % before the next event".into(),

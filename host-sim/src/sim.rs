@@ -684,6 +684,8 @@ mod tests {
         assert!(res.trace.windows(2).all(|w| w[1].tick - w[0].tick == 2));
         assert!(res.envelope.bins().len() <= crate::trace::ENVELOPE_BINS);
         assert_eq!(res.envelope.bins().last().unwrap().last_tick, ticks - 1);
+        // The summary says its figures come from a thinned trace.
+        assert!(crate::report::summary(&sc, &res).contains("step figures use one tick in 2:"));
     }
 
     /// The envelope the run builds every tick is the one its full trace
