@@ -754,6 +754,24 @@ mod tests {
         assert!(!plot_svg("t", &steady).unwrap().contains("<polygon"));
     }
 
+    /// Where front power and monitor reading agree, both stay visible:
+    /// the monitor wide and pale underneath, the front power narrow and
+    /// dark on top of it.
+    #[test]
+    fn front_power_is_drawn_over_the_monitor_reading() {
+        let res = result(3_000, |t| row(t, 12.0, 40.0));
+        let svg = plot_svg("t", &res).unwrap();
+        let line = |color: &str| {
+            svg.find(&format!(
+                "<polyline fill=\"none\" opacity=\"0.55\" stroke=\"{color}\" stroke-width=\"5\""
+            ))
+            .or_else(|| svg.find(&format!("stroke=\"{color}\" stroke-width=\"1\" points")))
+            .unwrap_or_else(|| panic!("no line of {color}"))
+        };
+        // Monitor (245, 160, 40) wide, front (190, 20, 20) narrow, drawn after it.
+        assert!(line("#F5A028") < line("#BE1414"));
+    }
+
     /// Big boards in W and A, long runs in s; small ones in mW, mA, ms.
     #[test]
     fn units_scale_with_the_board_and_the_run() {
