@@ -101,7 +101,7 @@ enum Cmd {
         /// Gain margin every corner keeps, dB.
         #[arg(long, default_value_t = loop_cmd::TUNE_GM_DB)]
         min_gm_db: f64,
-        /// Write the proposed gains into the board file's [apc] section, in place
+        /// Write the proposed gains into the apc table of the board file, in place
         /// (comments and layout kept).
         #[arg(long)]
         write: bool,

@@ -1,5 +1,7 @@
 //! Run reports: the printed summary (settling, overshoot, peak power,
-//! faults with their latency), the CSV trace and the SVG plot.
+//! faults with their latency), the SVG plot of a run (drawn from its min/max
+//! envelope, see `crate::trace`) and the L-I-V plot. The CSV trace is
+//! streamed by `crate::trace::CsvTrace` while the run goes.
 
 use std::fmt::Write as _;
 use std::path::Path;
