@@ -9,7 +9,6 @@
 //! heatsink-fan loss that only derates) are safe without a latch as long as
 //! the power stays within the ceiling.
 
-use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
 
@@ -454,11 +453,7 @@ pub fn run(
             }
         }
     }
-    let pb = ProgressBar::new(cases.len() as u64);
-    pb.set_style(
-        ProgressStyle::with_template("{bar:40} {pos}/{len} cases {elapsed}")
-            .unwrap_or_else(|_| ProgressStyle::default_bar()),
-    );
+    let pb = crate::progress::bar(cases.len() as u64, "cases");
     let out: Result<Vec<_>, String> = cases
         .par_iter()
         .map(|(f, m, c)| {

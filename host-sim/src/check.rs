@@ -64,6 +64,12 @@ pub fn load(path: &Path) -> Result<Loaded, String> {
 impl Loaded {
     /// Run the scenario and evaluate its expectations.
     pub fn run(self) -> Result<Ran, String> {
+        self.run_streamed(&mut crate::trace::NoSink)
+    }
+
+    /// [`Loaded::run`], handing every recorded trace row to `sink` as the
+    /// run makes it (`trace.csv` streamed to disk).
+    pub fn run_streamed(self, sink: &mut dyn crate::trace::TraceSink) -> Result<Ran, String> {
         let Loaded {
             scenario: sc,
             board,
@@ -72,12 +78,13 @@ impl Loaded {
         } = self;
         let windows = expect::windows(&sc, board.config.tick_hz);
         let t0 = Instant::now();
-        let result = sim::run_watching(
+        let result = sim::run_streamed(
             &sc,
             &board.module,
             board.valid.clone(),
             board.latency,
             windows,
+            sink,
         )
         .map_err(|e| format!("{}: {e}", path.display()))?;
         let seconds = t0.elapsed().as_secs_f64();

@@ -4,7 +4,8 @@
 
 use std::fmt::Write as _;
 
-use diodestat_core::Config;
+use diodestat_core::config::AdcCal;
+use diodestat_core::{Config, Fx};
 
 /// FNV-1a, 64 bit, over bytes.
 pub fn fnv1a64(bytes: &[u8]) -> u64 {
@@ -16,170 +17,386 @@ pub fn fnv1a64(bytes: &[u8]) -> u64 {
     h
 }
 
-fn fx(v: diodestat_core::Fx) -> String {
-    format!("Fx::from_bits({})", v.to_bits())
-}
+/// The generated source as lines of code, each with the engineering value
+/// and unit of what it sets (empty where the line sets nothing). The hash
+/// is over the code alone, so the comments can be reworded without moving
+/// it, while any exported value moves it.
+#[derive(Default)]
+struct Lines(Vec<(String, String, bool)>);
 
-fn gain(v: diodestat_core::Gain) -> String {
-    format!("Gain::from_bits({})", v.to_bits())
-}
-
-fn adc(name: &str, c: &diodestat_core::config::AdcCal) -> String {
-    format!(
-        "            {name}: AdcCal {{ offset_counts: {}, units_per_count: {}, full_scale_counts: {} }},\n",
-        c.offset_counts,
-        gain(c.units_per_count),
-        c.full_scale_counts
-    )
-}
-
-/// The body of `config()` (hashed) for a configuration.
-pub fn config_body(c: &Config) -> String {
-    let p = &c.protection;
-    let r = &c.ramp;
-    let t = &c.calibration.temperature;
-    let mut s = String::new();
-    let _ = writeln!(s, "    Config {{");
-    let _ = writeln!(s, "        tick_hz: {},", c.tick_hz);
-    let _ = writeln!(
-        s,
-        "        current: CurrentLimits {{ absolute_max_ma: {}, ceiling_ma: {} }},",
-        fx(c.current.absolute_max_ma),
-        fx(c.current.ceiling_ma)
-    );
-    let _ = writeln!(
-        s,
-        "        power: PowerRange {{ min_setpoint_mw: {}, max_setpoint_mw: {} }},",
-        fx(c.power.min_setpoint_mw),
-        fx(c.power.max_setpoint_mw)
-    );
-    let _ = writeln!(
-        s,
-        "        ramp: Ramps {{ emission_delay_ms: {}, soft_start_ma_per_ms: {}, soft_stop_ma_per_ms: {}, handover_fraction: {}, setpoint_mw_per_ms: {} }},",
-        r.emission_delay_ms,
-        fx(r.soft_start_ma_per_ms),
-        fx(r.soft_stop_ma_per_ms),
-        fx(r.handover_fraction),
-        fx(r.setpoint_mw_per_ms)
-    );
-    let _ = writeln!(
-        s,
-        "        apc: ApcGains {{ kp_ma_per_mw: {}, ki_ma_per_mw_ms: {}, slew_ma_per_ms: {} }},",
-        fx(c.apc.kp_ma_per_mw),
-        fx(c.apc.ki_ma_per_mw_ms),
-        fx(c.apc.slew_ma_per_ms)
-    );
-    let _ = writeln!(
-        s,
-        "        derating: Derating {{ knee_degc: {}, cutoff_degc: {}, floor_ma: {} }},",
-        fx(c.derating.knee_degc),
-        fx(c.derating.cutoff_degc),
-        fx(c.derating.floor_ma)
-    );
-    let _ = writeln!(s, "        protection: Protection {{");
-    for (k, v) in [
-        ("overcurrent_ma", fx(p.overcurrent_ma)),
-        ("overcurrent_debounce", p.overcurrent_debounce.to_string()),
-        ("runaway_mw", fx(p.runaway_mw)),
-        ("runaway_debounce", p.runaway_debounce.to_string()),
-        ("monitor_loss_floor_mw", fx(p.monitor_loss_floor_mw)),
-        ("monitor_loss_drive_ma", fx(p.monitor_loss_drive_ma)),
-        ("monitor_loss_debounce", p.monitor_loss_debounce.to_string()),
-        ("sensor_debounce", p.sensor_debounce.to_string()),
-        ("over_temp_debounce", p.over_temp_debounce.to_string()),
-        ("interlock_debounce", p.interlock_debounce.to_string()),
-        ("supply_min_mv", fx(p.supply_min_mv)),
-        ("supply_max_mv", fx(p.supply_max_mv)),
-        ("supply_debounce", p.supply_debounce.to_string()),
-        ("mismatch_tolerance_ma", fx(p.mismatch_tolerance_ma)),
-        ("mismatch_debounce", p.mismatch_debounce.to_string()),
-        ("missed_tick_limit", p.missed_tick_limit.to_string()),
-        ("external_debounce", p.external_debounce.to_string()),
-        ("intermittent_weight", p.intermittent_weight.to_string()),
-    ] {
-        let _ = writeln!(s, "            {k}: {v},");
+impl Lines {
+    fn code(&mut self, code: impl Into<String>) {
+        self.0.push((code.into(), String::new(), false));
     }
-    let _ = writeln!(s, "        }},");
-    let _ = writeln!(s, "        calibration: Calibration {{");
-    s.push_str(&adc("monitor", &c.calibration.monitor));
-    s.push_str(&adc("current_sense", &c.calibration.current_sense));
-    s.push_str(&adc("supply", &c.calibration.supply));
+    /// A line with its note after it.
+    fn note(&mut self, code: impl Into<String>, note: impl Into<String>) {
+        self.0.push((code.into(), note.into(), false));
+    }
+    /// A line with its note on a comment line above it (for lines that
+    /// rustfmt spreads over several).
+    fn note_above(&mut self, code: impl Into<String>, note: impl Into<String>) {
+        self.0.push((code.into(), note.into(), true));
+    }
+    /// The code lines alone, as hashed.
+    fn code_text(&self) -> String {
+        let mut s = String::new();
+        for (c, _, _) in &self.0 {
+            s.push_str(c);
+            s.push('\n');
+        }
+        s
+    }
+    /// The lines with their comments, as written.
+    fn annotated(&self) -> String {
+        let mut s = String::new();
+        for (c, n, above) in &self.0 {
+            if *above {
+                let indent = &c[..c.len() - c.trim_start().len()];
+                let _ = writeln!(s, "{indent}// {n}");
+                s.push_str(c);
+            } else {
+                s.push_str(c);
+                if !n.is_empty() {
+                    let _ = write!(s, " // {n}");
+                }
+            }
+            s.push('\n');
+        }
+        s
+    }
+}
+
+/// A derived value to 6 significant digits, without trailing zeros.
+fn eng(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let digits = (5 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    let s = format!("{v:.digits$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+fn plural(n: impl Into<u64>, one: &str) -> String {
+    let n = n.into();
+    format!("{n} {one}{}", if n == 1 { "" } else { "s" })
+}
+
+/// A `Fx` field: raw bits, annotated with the value in `unit`.
+fn fx_field(l: &mut Lines, indent: &str, name: &str, v: Fx, unit: &str) {
+    l.note(
+        format!("{indent}{name}: Fx::from_bits({}),", v.to_bits()),
+        format!("{v} {unit}"),
+    );
+}
+
+/// A debounce count, annotated with its duration at the tick rate.
+fn ticks_field(l: &mut Lines, indent: &str, name: &str, n: u16, tick_hz: u32) {
+    let ms = f64::from(n) * 1e3 / f64::from(tick_hz.max(1));
+    l.note(
+        format!("{indent}{name}: {n},"),
+        format!("{} = {} ms at {tick_hz} Hz", plural(n, "tick"), eng(ms)),
+    );
+}
+
+fn adc(l: &mut Lines, name: &str, c: &AdcCal, unit: &str) {
+    let i = "                ";
+    l.code(format!("            {name}: AdcCal {{"));
+    l.note(
+        format!("{i}offset_counts: {},", c.offset_counts),
+        format!("{} counts at zero input", c.offset_counts),
+    );
+    l.note(
+        format!(
+            "{i}units_per_count: Gain::from_bits({}),",
+            c.units_per_count.to_bits()
+        ),
+        format!("{} {unit} per count", c.units_per_count),
+    );
+    l.note(
+        format!("{i}full_scale_counts: {},", c.full_scale_counts),
+        format!(
+            "{} counts full scale = {} {unit}",
+            c.full_scale_counts,
+            eng(
+                (f64::from(c.full_scale_counts) - f64::from(c.offset_counts))
+                    * c.units_per_count.to_num::<f64>()
+            )
+        ),
+    );
+    l.code("            },");
+}
+
+/// The `config()` body.
+fn body(c: &Config) -> Lines {
+    let (p, r, hz) = (&c.protection, &c.ramp, c.tick_hz);
+    let t = &c.calibration.temperature;
+    let mut l = Lines::default();
+    let (i2, i3) = ("        ", "            ");
+    l.code("    Config {");
+    l.note(
+        format!("{i2}tick_hz: {hz},"),
+        format!("{hz} Hz = {} us per tick", eng(1e6 / f64::from(hz.max(1)))),
+    );
+    l.code(format!("{i2}current: CurrentLimits {{"));
+    fx_field(
+        &mut l,
+        i3,
+        "absolute_max_ma",
+        c.current.absolute_max_ma,
+        "mA",
+    );
+    fx_field(&mut l, i3, "ceiling_ma", c.current.ceiling_ma, "mA");
+    l.code(format!("{i2}}},"));
+    l.code(format!("{i2}power: PowerRange {{"));
+    fx_field(&mut l, i3, "min_setpoint_mw", c.power.min_setpoint_mw, "mW");
+    fx_field(&mut l, i3, "max_setpoint_mw", c.power.max_setpoint_mw, "mW");
+    l.code(format!("{i2}}},"));
+    l.code(format!("{i2}ramp: Ramps {{"));
+    l.note(
+        format!("{i3}emission_delay_ms: {},", r.emission_delay_ms),
+        format!("{} ms", r.emission_delay_ms),
+    );
+    fx_field(
+        &mut l,
+        i3,
+        "soft_start_ma_per_ms",
+        r.soft_start_ma_per_ms,
+        "mA/ms",
+    );
+    fx_field(
+        &mut l,
+        i3,
+        "soft_stop_ma_per_ms",
+        r.soft_stop_ma_per_ms,
+        "mA/ms",
+    );
+    fx_field(
+        &mut l,
+        i3,
+        "handover_fraction",
+        r.handover_fraction,
+        "of the setpoint",
+    );
+    fx_field(
+        &mut l,
+        i3,
+        "setpoint_mw_per_ms",
+        r.setpoint_mw_per_ms,
+        "mW/ms",
+    );
+    l.code(format!("{i2}}},"));
+    l.code(format!("{i2}apc: ApcGains {{"));
+    fx_field(&mut l, i3, "kp_ma_per_mw", c.apc.kp_ma_per_mw, "mA/mW");
+    fx_field(
+        &mut l,
+        i3,
+        "ki_ma_per_mw_ms",
+        c.apc.ki_ma_per_mw_ms,
+        "mA/(mW*ms)",
+    );
+    fx_field(&mut l, i3, "slew_ma_per_ms", c.apc.slew_ma_per_ms, "mA/ms");
+    l.code(format!("{i2}}},"));
+    l.code(format!("{i2}derating: Derating {{"));
+    fx_field(&mut l, i3, "knee_degc", c.derating.knee_degc, "degC");
+    fx_field(&mut l, i3, "cutoff_degc", c.derating.cutoff_degc, "degC");
+    fx_field(&mut l, i3, "floor_ma", c.derating.floor_ma, "mA");
+    l.code(format!("{i2}}},"));
+    l.code(format!("{i2}protection: Protection {{"));
+    fx_field(&mut l, i3, "overcurrent_ma", p.overcurrent_ma, "mA");
+    ticks_field(
+        &mut l,
+        i3,
+        "overcurrent_debounce",
+        p.overcurrent_debounce,
+        hz,
+    );
+    fx_field(&mut l, i3, "runaway_mw", p.runaway_mw, "mW");
+    ticks_field(&mut l, i3, "runaway_debounce", p.runaway_debounce, hz);
+    fx_field(
+        &mut l,
+        i3,
+        "monitor_loss_floor_mw",
+        p.monitor_loss_floor_mw,
+        "mW",
+    );
+    fx_field(
+        &mut l,
+        i3,
+        "monitor_loss_drive_ma",
+        p.monitor_loss_drive_ma,
+        "mA",
+    );
+    ticks_field(
+        &mut l,
+        i3,
+        "monitor_loss_debounce",
+        p.monitor_loss_debounce,
+        hz,
+    );
+    ticks_field(&mut l, i3, "sensor_debounce", p.sensor_debounce, hz);
+    ticks_field(&mut l, i3, "over_temp_debounce", p.over_temp_debounce, hz);
+    ticks_field(&mut l, i3, "interlock_debounce", p.interlock_debounce, hz);
+    fx_field(&mut l, i3, "supply_min_mv", p.supply_min_mv, "mV");
+    fx_field(&mut l, i3, "supply_max_mv", p.supply_max_mv, "mV");
+    ticks_field(&mut l, i3, "supply_debounce", p.supply_debounce, hz);
+    fx_field(
+        &mut l,
+        i3,
+        "mismatch_tolerance_ma",
+        p.mismatch_tolerance_ma,
+        "mA",
+    );
+    ticks_field(&mut l, i3, "mismatch_debounce", p.mismatch_debounce, hz);
+    l.note(
+        format!("{i3}missed_tick_limit: {},", p.missed_tick_limit),
+        format!("{} missed in a row", plural(p.missed_tick_limit, "tick")),
+    );
+    ticks_field(&mut l, i3, "external_debounce", p.external_debounce, hz);
+    l.note(
+        format!("{i3}intermittent_weight: {},", p.intermittent_weight),
+        format!(
+            "a present tick adds {}, a clean tick removes 1 (leaky debounce)",
+            p.intermittent_weight
+        ),
+    );
+    l.code(format!("{i2}}},"));
+    l.code(format!("{i2}calibration: Calibration {{"));
+    adc(
+        &mut l,
+        "monitor",
+        &c.calibration.monitor,
+        "mW (front facet)",
+    );
+    adc(&mut l, "current_sense", &c.calibration.current_sense, "mA");
+    adc(&mut l, "supply", &c.calibration.supply, "mV");
     let d = &c.calibration.dac;
-    let _ = writeln!(
-        s,
-        "            dac: DacCal {{ codes_per_ma: {}, offset_codes: {}, max_code: {} }},",
-        fx(d.codes_per_ma),
-        d.offset_codes,
-        d.max_code
+    let i4 = "                ";
+    l.code(format!("{i3}dac: DacCal {{"));
+    fx_field(&mut l, i4, "codes_per_ma", d.codes_per_ma, "codes per mA");
+    l.note(
+        format!("{i4}offset_codes: {},", d.offset_codes),
+        format!("{} codes at 0 mA", d.offset_codes),
     );
-    let _ = writeln!(s, "            temperature: TempCal {{");
-    let _ = writeln!(
-        s,
-        "                table: heapless::Vec::from_slice(&TEMP_TABLE).unwrap_or_default(),"
+    let max_ma =
+        (f64::from(d.max_code) - f64::from(d.offset_codes)) / d.codes_per_ma.to_num::<f64>();
+    l.note(
+        format!("{i4}max_code: {},", d.max_code),
+        format!("{} codes = {} mA", d.max_code, eng(max_ma)),
     );
-    let _ = writeln!(
-        s,
-        "                low_fault_counts: {},",
-        t.low_fault_counts
+    l.code(format!("{i3}}},"));
+    l.code(format!("{i3}temperature: TempCal {{"));
+    l.note(
+        format!("{i4}table: heapless::Vec::from_slice(&TEMP_TABLE).unwrap_or_default(),"),
+        "see TEMP_TABLE",
     );
-    let _ = writeln!(
-        s,
-        "                high_fault_counts: {},",
-        t.high_fault_counts
+    l.note(
+        format!("{i4}low_fault_counts: {},", t.low_fault_counts),
+        format!(
+            "{} counts and below: sensor at its low rail",
+            t.low_fault_counts
+        ),
     );
-    let _ = writeln!(s, "                open_rail: Rail::{:?},", t.open_rail);
-    let _ = writeln!(s, "            }},");
-    let _ = writeln!(s, "        }},");
+    l.note(
+        format!("{i4}high_fault_counts: {},", t.high_fault_counts),
+        format!(
+            "{} counts and above: sensor at its high rail",
+            t.high_fault_counts
+        ),
+    );
+    l.note(
+        format!("{i4}open_rail: Rail::{:?},", t.open_rail),
+        format!("an open sensor reads at the {:?} rail", t.open_rail).to_lowercase(),
+    );
+    l.code(format!("{i3}}},"));
+    l.code(format!("{i2}}},"));
     // Board files describe no forward-voltage channel yet (see
     // `boardfile::to_config`).
-    let _ = writeln!(s, "        forward_voltage: None,");
+    l.note(
+        format!("{i2}forward_voltage: None,"),
+        "no forward-voltage channel",
+    );
     match &c.plausibility {
-        None => {
-            let _ = writeln!(s, "        plausibility: None,");
-        }
+        None => l.note(
+            format!("{i2}plausibility: None,"),
+            "no current-for-power plausibility check",
+        ),
         Some(pl) => {
-            let _ = writeln!(
-                s,
-                "        plausibility: Some(diodestat_core::config::Plausibility {{"
-            );
-            let _ = writeln!(s, "            points: heapless::Vec::from_slice(&[");
+            l.code(format!(
+                "{i2}plausibility: Some(diodestat_core::config::Plausibility {{"
+            ));
+            l.code(format!("{i3}points: heapless::Vec::from_slice(&["));
             for p in &pl.points {
-                let _ = writeln!(
-                    s,
-                    "                diodestat_core::config::DiodePoint {{ degc: {}, threshold_ma: {}, slope_mw_per_ma: {} }},",
-                    fx(p.degc),
-                    fx(p.threshold_ma),
-                    fx(p.slope_mw_per_ma)
+                l.note_above(
+                    format!(
+                        "{i4}diodestat_core::config::DiodePoint {{ degc: Fx::from_bits({}), threshold_ma: Fx::from_bits({}), slope_mw_per_ma: Fx::from_bits({}) }},",
+                        p.degc.to_bits(),
+                        p.threshold_ma.to_bits(),
+                        p.slope_mw_per_ma.to_bits()
+                    ),
+                    format!(
+                        "at {} degC case: threshold {} mA, slope {} mW/mA",
+                        p.degc, p.threshold_ma, p.slope_mw_per_ma
+                    ),
                 );
             }
-            let _ = writeln!(s, "            ]).unwrap_or_default(),");
-            let _ = writeln!(s, "            warning_margin: {},", fx(pl.warning_margin));
-            let _ = writeln!(s, "            fault_margin: {},", fx(pl.fault_margin));
-            let _ = writeln!(s, "            allowance_ma: {},", fx(pl.allowance_ma));
-            let _ = writeln!(s, "            debounce: {},", pl.debounce);
-            let _ = writeln!(s, "        }}),");
+            l.code(format!("{i3}])"));
+            l.code(format!("{i3}.unwrap_or_default(),"));
+            fx_field(
+                &mut l,
+                i3,
+                "warning_margin",
+                pl.warning_margin,
+                "of the healthy current (end-of-life warning)",
+            );
+            fx_field(
+                &mut l,
+                i3,
+                "fault_margin",
+                pl.fault_margin,
+                "of the healthy current (fault)",
+            );
+            fx_field(&mut l, i3, "allowance_ma", pl.allowance_ma, "mA");
+            ticks_field(&mut l, i3, "debounce", pl.debounce, hz);
+            l.code(format!("{i2}}}),"));
         }
     }
-    let _ = writeln!(s, "    }}");
-    s
+    l.code("    }");
+    l
 }
 
-/// The rows of `TEMP_TABLE` (hashed).
-pub fn table_rows(c: &Config) -> String {
-    let mut table = String::new();
+/// The rows of `TEMP_TABLE`.
+fn table(c: &Config) -> Lines {
+    let mut l = Lines::default();
     for p in &c.calibration.temperature.table {
-        let _ = writeln!(
-            table,
-            "    TempPoint {{ counts: {}, degc: Fx::from_bits({}) }},",
-            p.counts,
-            p.degc.to_bits()
+        l.note_above(
+            format!(
+                "    TempPoint {{ counts: {}, degc: Fx::from_bits({}) }},",
+                p.counts,
+                p.degc.to_bits()
+            ),
+            format!("{} counts = {} degC", p.counts, p.degc),
         );
     }
-    table
+    l
 }
 
-/// The hash the exported file carries: FNV-1a 64 over the exported table
-/// rows and `config()` body, so it changes with any exported value.
+/// The code of the body of `config()` (hashed; without the comments).
+pub fn config_body(c: &Config) -> String {
+    body(c).code_text()
+}
+
+/// The code of the rows of `TEMP_TABLE` (hashed; without the comments).
+pub fn table_rows(c: &Config) -> String {
+    table(c).code_text()
+}
+
+/// The hash the exported file carries: FNV-1a 64 over the code of the
+/// exported table rows and `config()` body (not their comments), so it
+/// changes with any exported value.
 pub fn config_hash(c: &Config) -> u64 {
     fnv1a64(format!("{}{}", table_rows(c), config_body(c)).as_bytes())
 }
@@ -203,19 +420,21 @@ pub fn comment_text(name: &str) -> String {
         .collect()
 }
 
-/// The whole generated file.
+/// The whole generated file: every constant annotated with its engineering
+/// value and unit.
 pub fn rust_module(name: &str, c: &Config) -> String {
     let name = comment_text(name);
-    let body = config_body(c);
+    let body = body(c).annotated();
     let t = &c.calibration.temperature.table;
-    let table = table_rows(c);
+    let table = table(c).annotated();
     let hash = config_hash(c);
     format!(
         "//! Board configuration `{name}`, generated by `diodestat export`; regenerate instead of editing.\n\
-         //! Values are raw fixed-point bits of the engineering units named in each field.\n\n\
+         //! Values are raw fixed-point bits (`Fx` I16F16, `Gain` I8F24); the comment on each line gives\n\
+         //! the engineering value and unit they stand for.\n\n\
          use diodestat_core::config::{{AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, PowerRange, Protection, Rail, Ramps, TempCal}};\n\
          use diodestat_core::{{Config, Fx, Gain, TempPoint}};\n\n\
-         /// FNV-1a 64 hash of the table and configuration below, as hex.\n\
+         /// FNV-1a 64 hash of the code of the table and configuration below (not the comments), as hex.\n\
          pub const CONFIG_HASH: &str = \"{hash:016x}\";\n\n\
          /// Temperature table (counts, degC).\n\
          pub const TEMP_TABLE: [TempPoint; {n}] = [\n{table}];\n\n\
@@ -278,5 +497,57 @@ mod tests {
             comment_text("Demo red (rev. B) 650-nm"),
             "Demo red (rev. B) 650-nm"
         );
+    }
+
+    /// Every line that sets a value carries its engineering value and
+    /// unit as a comment; the comments are not hashed.
+    #[test]
+    fn every_constant_is_annotated_with_value_and_unit() {
+        let c = crate::board::calibrate(
+            diodestat_core::example::config(),
+            &crate::plant::DemoModule::visible(),
+        );
+        let src = rust_module("t", &c);
+        let setting = |l: &&str| {
+            l.contains("from_bits(")
+                || l.trim_start().split(':').nth(1).is_some_and(|v| {
+                    let v = v
+                        .split("//")
+                        .next()
+                        .unwrap_or("")
+                        .trim()
+                        .trim_end_matches(',');
+                    v.parse::<f64>().is_ok() || v.starts_with("Rail::")
+                })
+        };
+        let lines: Vec<&str> = src.lines().filter(setting).collect();
+        assert!(lines.len() > 60, "{} value lines", lines.len());
+        for l in &lines {
+            let above = src
+                .lines()
+                .zip(src.lines().skip(1))
+                .any(|(a, b)| b == *l && a.trim_start().starts_with("// "));
+            assert!(l.contains(" // ") || above, "not annotated: {l}");
+        }
+        let kp = c.apc.kp_ma_per_mw;
+        assert!(src.contains(&format!(
+            "kp_ma_per_mw: Fx::from_bits({}), // {kp} mA/mW",
+            kp.to_bits()
+        )));
+        let d = c.protection.overcurrent_debounce;
+        let ms = f64::from(d) * 1e3 / f64::from(c.tick_hz);
+        assert!(src.contains(&format!(
+            "{d} tick{} = {} ms at {} Hz",
+            if d == 1 { "" } else { "s" },
+            eng(ms),
+            c.tick_hz
+        )));
+        assert_eq!(
+            (eng(47.825967371463776), eng(26399.9998909235), eng(0.05)),
+            ("47.826".into(), "26400".into(), "0.05".into())
+        );
+        // The comments stay out of the hash.
+        assert!(!config_body(&c).contains("//"));
+        assert!(!table_rows(&c).contains("//"));
     }
 }

@@ -42,13 +42,19 @@ enum Cmd {
         #[arg(long)]
         junit: Option<PathBuf>,
     },
-    /// L-I-V sweep of a demo module's diode at chosen temperatures (CSV and SVG).
+    /// L-I-V sweep of a demo module's diode: isothermal at junction temperatures, or CW with
+    /// self-heating at case temperatures; threshold and slope marked (CSV and SVG).
     Liv {
         /// Module: visible or pump.
         module: String,
-        /// Junction temperatures, degC (-55 to 150, at most 16 of them).
-        #[arg(long, value_delimiter = ',', default_value = "25", value_parser = finite_in(-55.0, 150.0, " degC"))]
-        temps_c: Vec<f64>,
+        /// Junction temperatures of isothermal sweeps, degC (-55 to 150; default 25 unless
+        /// --case-c is given).
+        #[arg(long, value_delimiter = ',', value_parser = finite_in(-55.0, 150.0, " degC"))]
+        temps_c: Option<Vec<f64>>,
+        /// Case temperatures of CW sweeps with self-heating through the module's
+        /// junction-to-case resistance, degC (-55 to 125).
+        #[arg(long, value_delimiter = ',', value_parser = finite_in(-55.0, 125.0, " degC"))]
+        case_c: Vec<f64>,
         /// Highest current, mA, above 0 and at most the driver's full scale (the default).
         #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mA"))]
         max_ma: Option<f64>,
@@ -71,7 +77,7 @@ enum Cmd {
     LoopReport {
         /// Board configuration files (default: examples/*/board.toml).
         boards: Vec<PathBuf>,
-        /// Output folder; each board gets OUT/BOARD/loop-report.md, bode.svg and bode/*.svg.
+        /// Output folder; each board gets OUT/BOARD/loop-report.md, report.json, bode.svg and bode/*.svg.
         #[arg(long, default_value = "out")]
         out: PathBuf,
         /// Setpoint of the corners, mW, within the board's setpoint range (default: two thirds of the board's highest setpoint).
@@ -106,6 +112,14 @@ enum Cmd {
         /// Gain margin every corner keeps, dB (0 to 60).
         #[arg(long, default_value_t = loop_cmd::TUNE_GM_DB, value_parser = finite_in(0.0, 60.0, " dB"))]
         min_gm_db: f64,
+        /// Write the proposed gains into the apc table of the board file, in place
+        /// (comments and layout kept).
+        #[arg(long)]
+        write: bool,
+        /// Also write the design and the margins and time-domain figures with the
+        /// proposed gains as JSON to this file.
+        #[arg(long)]
+        json: Option<PathBuf>,
     },
     /// Loop gate: exits non-zero, naming board, corner and figure, if any corner misses PM 45 deg, GM 6 dB, the overshoot limit, or shows a limit cycle.
     LoopGate {
@@ -177,6 +191,22 @@ fn module_by_name(name: &str) -> Result<DemoModule, String> {
     }
 }
 
+/// What a run streams to while it goes: `trace.csv` (into the staging
+/// folder, moved into place with the other outputs) and the progress bar.
+struct RunSink {
+    csv: diodestat_sim::trace::CsvTrace<std::fs::File>,
+    bar: indicatif::ProgressBar,
+}
+
+impl diodestat_sim::trace::TraceSink for RunSink {
+    fn row(&mut self, row: &diodestat_sim::trace::TraceRow) {
+        self.csv.row(row);
+    }
+    fn progress(&mut self, done: u64, _total: u64) {
+        self.bar.set_position(done);
+    }
+}
+
 fn run(path: &Path, out: &Path) -> Result<(), String> {
     let loaded = check::load(path)?;
     files::check_out_dir(
@@ -187,13 +217,24 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
     )
     .map_err(|e| e.to_string())?;
     println!("{}", board_line(&loaded.board));
-    let ran = loaded.run()?;
+    let stage = Staging::new(out).map_err(|e| e.to_string())?;
+    // trace.csv streams into the staging folder while the run goes.
+    let file = std::fs::File::create(stage.path("trace.csv"))
+        .map_err(|e| format!("{}: {e}", out.join("trace.csv").display()))?;
+    let n_ticks = (loaded.scenario.duration_ms * 1e-3 * f64::from(loaded.board.config.tick_hz))
+        .round() as u64;
+    let mut sink = RunSink {
+        csv: diodestat_sim::trace::CsvTrace::new(file),
+        bar: diodestat_sim::progress::bar(n_ticks, "ticks"),
+    };
+    let ran = loaded.run_streamed(&mut sink);
+    sink.bar.finish_and_clear();
+    let written = sink.csv.finish();
+    let ran = ran?;
+    written.map_err(|e| format!("{}: {e}", out.join("trace.csv").display()))?;
     let (sc, res, secs) = (&ran.scenario, &ran.result, ran.seconds);
     let summary = report::summary(sc, res, ran.outcomes.clone());
     let text = summary.text();
-    let stage = Staging::new(out).map_err(|e| e.to_string())?;
-    report::write_csv(&stage.path("trace.csv"), res)
-        .map_err(|e| format!("{}: {e}", out.join("trace.csv").display()))?;
     report::write_svg(&stage.path("plot.svg"), &sc.name, res)?;
     std::fs::write(stage.path("summary.txt"), &text)
         .map_err(|e| format!("{}: {e}", out.join("summary.txt").display()))?;
@@ -244,53 +285,84 @@ fn check_cmd(paths: &[PathBuf], junit: Option<&Path>) -> Result<(), String> {
     Ok(())
 }
 
-fn liv(module: &str, temps_c: &[f64], max_ma: Option<f64>, out: &Path) -> Result<(), String> {
+fn liv(
+    module: &str,
+    temps_c: Option<&[f64]>,
+    case_c: &[f64],
+    max_ma: Option<f64>,
+    out: &Path,
+) -> Result<(), String> {
+    use diodestat_sim::liv::{sweep, Heating};
     let m = module_by_name(module)?;
-    let diode = diodestat_sim::plant::Diode::new(m.diode.clone()).map_err(|e| e.to_string())?;
     let full_ma = m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3;
     if let Some(v) = max_ma.filter(|v| *v > full_ma) {
         return Err(format!(
             "--max-ma {v}: above the {module} driver's full scale {full_ma} mA"
         ));
     }
-    if temps_c.len() > MAX_LIV_TEMPS {
-        return Err(format!(
-            "--temps-c: {} temperatures; at most {MAX_LIV_TEMPS}",
-            temps_c.len()
-        ));
+    let max_ma = max_ma.unwrap_or(full_ma);
+    for (opt, n) in [
+        ("--temps-c", temps_c.map_or(0, <[f64]>::len)),
+        ("--case-c", case_c.len()),
+    ] {
+        if n > MAX_LIV_TEMPS {
+            return Err(format!("{opt}: {n} temperatures; at most {MAX_LIV_TEMPS}"));
+        }
     }
     files::check_out_dir(out, "--out", &["liv.csv", "liv.svg"], &[]).map_err(|e| e.to_string())?;
-    let i_max = max_ma.unwrap_or(full_ma) * 1e-3;
-    let mut csv = String::from("t_c,i_ma,p_mw,v_f_v,wavelength_nm\n");
-    let mut curves = Vec::new();
-    for &t in temps_c {
-        let mut pts = Vec::new();
-        for k in 0..=400 {
-            let i = i_max * f64::from(k) / 400.0;
-            let o = diode.quasi_static(i, diodestat_sim::plant::c_to_k(t));
+    // Junction temperatures: as given, else 25 degC unless only case
+    // temperatures were asked for.
+    let junction: &[f64] = match temps_c {
+        Some(t) => t,
+        None if case_c.is_empty() => &[25.0],
+        None => &[],
+    };
+    let heatings = junction
+        .iter()
+        .map(|&t| Heating::Isothermal { junction_c: t })
+        .chain(case_c.iter().map(|&t| Heating::SelfHeated { case_c: t }));
+    let curves = heatings
+        .map(|h| sweep(&m, h, max_ma, 400).map_err(|e| format!("{}: {e}", h.label())))
+        .collect::<Result<Vec<_>, _>>()?;
+    let mut csv = String::from("sweep,set_c,i_ma,p_mw,v_f_v,wavelength_nm,tj_c\n");
+    for c in &curves {
+        let (kind, set_c) = match c.heating {
+            Heating::Isothermal { junction_c } => ("isothermal", junction_c),
+            Heating::SelfHeated { case_c } => ("cw-self-heated", case_c),
+        };
+        for p in &c.points {
             csv.push_str(&format!(
-                "{t},{:.4},{:.5},{:.5},{:.4}\n",
-                i * 1e3,
-                o.p_front_w * 1e3,
-                o.v_f_v,
-                o.wavelength_m * 1e9
+                "{kind},{set_c},{:.4},{:.5},{:.5},{:.4},{:.4}\n",
+                p.i_ma, p.p_mw, p.v_f_v, p.wavelength_nm, p.tj_c
             ));
-            pts.push((i * 1e3, o.p_front_w * 1e3, o.v_f_v));
         }
-        curves.push((t, pts));
     }
+    let svg = report::liv_svg(module, &curves)?;
     let stage = Staging::new(out).map_err(|e| e.to_string())?;
     std::fs::write(stage.path("liv.csv"), csv)
         .map_err(|e| format!("{}: {e}", out.join("liv.csv").display()))?;
-    report::write_liv_svg(&stage.path("liv.svg"), module, &curves)?;
+    std::fs::write(stage.path("liv.svg"), svg)
+        .map_err(|e| format!("{}: {e}", out.join("liv.svg").display()))?;
     stage.commit().map_err(|e| e.to_string())?;
-    for (t, pts) in &curves {
-        let ith = diode.threshold_current_a(diodestat_sim::plant::c_to_k(*t)) * 1e3;
-        let pmax = pts.iter().map(|p| p.1).fold(0.0, f64::max);
+    for c in &curves {
+        let last = c.points.last();
+        let fit = c.fit.map_or("does not lase".to_string(), |f| {
+            format!(
+                "threshold {:.3} mA, slope {:.4} W/A (line through 10-40 % of the peak)",
+                f.threshold_ma, f.slope_w_per_a
+            )
+        });
         println!(
-            "{t:>6.1} degC: threshold {ith:.3} mA, power at {:.1} mA {:.3} mW",
-            i_max * 1e3,
-            pts.last().map_or(0.0, |p| p.1).max(0.0).min(pmax)
+            "{}: {fit}; at {:.1} mA {:.3} mW, junction {:.1} degC{}",
+            c.heating.label(),
+            last.map_or(0.0, |p| p.i_ma),
+            last.map_or(0.0, |p| p.p_mw),
+            last.map_or(f64::NAN, |p| p.tj_c),
+            if last.is_some_and(|p| p.i_ma < max_ma * 0.999) {
+                " (thermal runaway: no steady state at higher current)"
+            } else {
+                ""
+            }
         );
     }
     println!(
@@ -378,9 +450,10 @@ fn main() -> ExitCode {
         Cmd::Liv {
             module,
             temps_c,
+            case_c,
             max_ma,
             out,
-        } => liv(module, temps_c, *max_ma, out),
+        } => liv(module, temps_c.as_deref(), case_c, *max_ma, out),
         Cmd::Export { board, out } => export(board, out),
         Cmd::Campaign { board, margin, out } => campaign(board, *margin, out),
         Cmd::LoopReport {
@@ -396,12 +469,26 @@ fn main() -> ExitCode {
             setpoint_mw,
             min_pm_deg,
             min_gm_db,
+            write,
+            json,
         } => match (crossover_hz, bandwidth_hz) {
             (Some(f), _) => Ok(loop_cmd::TuneTarget::CrossoverHz(*f)),
             (None, Some(f)) => Ok(loop_cmd::TuneTarget::BandwidthHz(*f)),
             (None, None) => Err("give --crossover-hz or --bandwidth-hz".to_string()),
         }
-        .and_then(|t| loop_cmd::tune(board, t, *setpoint_mw, *min_pm_deg, *min_gm_db)),
+        .and_then(|t| {
+            loop_cmd::tune(
+                board,
+                t,
+                *setpoint_mw,
+                *min_pm_deg,
+                *min_gm_db,
+                loop_cmd::TuneOutputs {
+                    write: *write,
+                    json: json.as_deref(),
+                },
+            )
+        }),
         Cmd::LoopGate {
             boards,
             out,

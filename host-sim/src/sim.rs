@@ -49,32 +49,8 @@ use crate::plant::{
 };
 use crate::scenario::{Action, AdcChannel, DiodeModel, HwFault, ModeName, Scenario};
 
-/// One tick of the trace.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct TraceRow {
-    /// Tick index.
-    pub tick: u64,
-    /// Time, s.
-    pub t_s: f64,
-    /// Controller state after the tick.
-    pub state: State,
-    /// Front-facet optical power, mW.
-    pub p_mw: f64,
-    /// Actual drive current, mA.
-    pub i_ma: f64,
-    /// Commanded drive (core), mA.
-    pub cmd_ma: f64,
-    /// Ceiling in force (core), mA.
-    pub ceiling_ma: f64,
-    /// Monitor reading as the core sees it, mW.
-    pub monitor_mw: f64,
-    /// Junction temperature, degC.
-    pub tj_c: f64,
-    /// Temperature as the core reads it, degC.
-    pub sensed_c: f64,
-    /// Ambient, degC.
-    pub ambient_c: f64,
-}
+pub use crate::trace::TraceRow;
+use crate::trace::{Envelope, NoSink, Retained, TraceSink, RETAINED_ROWS};
 
 /// Something that happened during a run.
 #[derive(Clone, Debug, PartialEq)]
@@ -513,8 +489,14 @@ pub const MAX_WARNING_SPANS: usize = 64;
 /// The result of a run.
 #[derive(Clone, Debug, Default)]
 pub struct RunResult {
-    /// Trace rows (decimated by `trace_every`).
+    /// Trace rows: every `trace_every`-th tick, evenly thinned further
+    /// (see [`RunResult::trace_stride`]) so that at most
+    /// [`RETAINED_ROWS`] are kept however long the run.
     pub trace: Vec<TraceRow>,
+    /// Ticks between consecutive rows of `trace`.
+    pub trace_stride: u64,
+    /// Min/max envelope of every tick, for plots.
+    pub envelope: Envelope,
     /// Events in order.
     pub happenings: Vec<Happening>,
     /// Ticks run.
@@ -659,16 +641,11 @@ fn fx(v: f64) -> Fx {
     Fx::saturating_from_num(v)
 }
 
-fn to_f(v: Fx) -> f64 {
-    v.to_num::<f64>()
-}
-
-/// [`to_f`] on the tick's hot path: a 16.16 value is its bits over 2^16,
-/// exactly (every i32 is an f64, and the division by a power of two is
-/// exact).
+/// `v` as f64, exactly (an I16F16 is an i32 over 2^16: both steps are
+/// exact in f64), without the generic conversion's rounding logic.
 #[inline]
-fn fx_exact(v: Fx) -> f64 {
-    f64::from(v.to_bits()) * (1.0 / 65_536.0)
+fn to_f(v: Fx) -> f64 {
+    f64::from(v.to_bits()) * (1.0 / f64::from(1u32 << Fx::FRAC_NBITS))
 }
 
 /// Run a scenario on a validated board configuration whose drive takes
@@ -679,7 +656,7 @@ pub fn run(
     cfg: ValidConfig,
     latency: DacLatency,
 ) -> Result<RunResult, PlantError> {
-    run_watching(sc, module, cfg, latency, Vec::new())
+    run_streamed(sc, module, cfg, latency, Vec::new(), &mut NoSink)
 }
 
 /// [`run`], also filling `windows` with the optical power of every tick
@@ -691,14 +668,32 @@ pub fn run_watching(
     latency: DacLatency,
     windows: Vec<PowerWindow>,
 ) -> Result<RunResult, PlantError> {
+    run_streamed(sc, module, cfg, latency, windows, &mut NoSink)
+}
+
+/// [`run_watching`], also handing every recorded row (every
+/// `trace_every`-th tick) to `sink` as it is made, for example to stream
+/// `trace.csv` to disk.
+pub fn run_streamed(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+    latency: DacLatency,
+    windows: Vec<PowerWindow>,
+    sink: &mut dyn TraceSink,
+) -> Result<RunResult, PlantError> {
     run_plant(
         sc,
         cfg,
         latency,
         Plant::new(module, sc.ambient_c, sc.seed)?,
         windows,
+        sink,
     )
 }
+
+/// Ticks between two progress reports to a [`TraceSink`].
+const PROGRESS_TICKS: u64 = 1 << 14;
 
 /// [`run`] on the reference plant ([`Plant::new_reference`]): same
 /// scenario, same noise, every model evaluated the straightforward way.
@@ -714,6 +709,7 @@ pub fn run_reference(
         latency,
         Plant::new_reference(module, sc.ambient_c, sc.seed)?,
         Vec::new(),
+        &mut NoSink,
     )
 }
 
@@ -723,6 +719,7 @@ fn run_plant(
     latency: DacLatency,
     mut plant: Plant,
     windows: Vec<PowerWindow>,
+    sink: &mut dyn TraceSink,
 ) -> Result<RunResult, PlantError> {
     let tick_hz = cfg.config().tick_hz;
     let dt = 1.0 / f64::from(tick_hz);
@@ -741,6 +738,7 @@ fn run_plant(
     let mut res = RunResult {
         tick_hz,
         windows,
+        envelope: Envelope::new(n_ticks),
         ..RunResult::default()
     };
     let merge_ticks = tick_at(
@@ -749,6 +747,7 @@ fn run_plant(
     );
     let mut last_warnings = Warnings::default();
     let mut prev = (0.0, Fx::ZERO, Mode::Apc);
+    let mut kept = Retained::new(RETAINED_ROWS);
     let mut last_state = State::Off;
     let mut log_cursor = diodestat_core::fault::Cursor::default();
     // The drives on their way to the DAC: a ring of `latency` slots, the
@@ -872,11 +871,11 @@ fn run_plant(
                 TickSample {
                     regulating: true,
                     dac_code: last_computed.dac_code,
-                    cmd_ma: fx_exact(ctl.drive_ma()),
-                    ceiling_ma: fx_exact(ctl.ceiling_ma()),
+                    cmd_ma: to_f(ctl.drive_ma()),
+                    ceiling_ma: to_f(ctl.ceiling_ma()),
                     p_mw,
-                    monitor_mw: fx_exact(ctl.measurements().monitor_mw),
-                    setpoint_mw: (ctl.mode() == Mode::Apc).then(|| fx_exact(ctl.power_target_mw())),
+                    monitor_mw: to_f(ctl.measurements().monitor_mw),
+                    setpoint_mw: (ctl.mode() == Mode::Apc).then(|| to_f(ctl.power_target_mw())),
                 },
             );
         } else {
@@ -898,21 +897,49 @@ fn run_plant(
                 limit: to_f(r.limit),
             });
         }
-        if tick % trace_every == 0 {
-            let m = ctl.measurements();
-            res.trace.push(TraceRow {
+        // Every tick feeds the plot envelope (only what the plots draw);
+        // every `trace_every`-th is recorded whole.
+        let m = ctl.measurements();
+        let i_ma = plant.driver.current_a() * 1e3;
+        let monitor_mw = to_f(m.monitor_mw);
+        let ceiling_ma = to_f(ctl.ceiling_ma());
+        let tj_c = k_to_c(plant.thermal.t_junction_k());
+        let sensed_c = to_f(m.temp_degc);
+        res.envelope.add_values(
+            tick,
+            [
+                p_mw, monitor_mw, i_ma, ceiling_ma, tj_c, sensed_c, ambient_c,
+            ],
+        );
+        if tick.is_multiple_of(trace_every) {
+            let status = ctl.status();
+            let row = TraceRow {
                 tick,
                 t_s: tick as f64 * dt,
                 state: st,
+                mode: status.mode,
+                enable: applied.enable,
+                dac_code: applied.dac_code,
+                faults: status.faults,
+                warnings: status.warnings,
                 p_mw,
-                i_ma: plant.driver.current_a() * 1e3,
+                i_ma,
                 cmd_ma: to_f(ctl.drive_ma()),
-                ceiling_ma: to_f(ctl.ceiling_ma()),
-                monitor_mw: to_f(m.monitor_mw),
-                tj_c: k_to_c(plant.thermal.t_junction_k()),
-                sensed_c: to_f(m.temp_degc),
+                ceiling_ma,
+                monitor_mw,
+                tj_c,
+                sensed_c,
                 ambient_c,
-            });
+                supply_v: plant.supply_v,
+                supply_sensed_v: to_f(m.supply_mv) * 1e-3,
+                v_f_v: plant.v_f,
+                wavelength_nm: plant.wavelength_m * 1e9,
+            };
+            kept.push(row);
+            sink.row(&row);
+        }
+        if tick.is_multiple_of(PROGRESS_TICKS) {
+            sink.progress(tick, n_ticks);
         }
         res.ticks = tick + 1;
     }
@@ -922,12 +949,23 @@ fn run_plant(
         s.raised_ticks += res.ticks - s.last_raised_tick;
         (s.last_p_mw, s.last_drive_ma, s.last_mode) = (prev.0, to_f(prev.1), prev.2);
     }
+    res.trace_stride = kept.stride() * trace_every;
+    res.trace = kept.into_rows();
+    sink.progress(n_ticks, n_ticks);
     Ok(res)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn to_f_is_the_exact_value() {
+        for b in [i32::MIN, -65536, -1, 0, 1, 19661, 65536, i32::MAX] {
+            let v = Fx::from_bits(b);
+            assert_eq!(to_f(v), v.to_num::<f64>());
+        }
+    }
     use crate::board;
     use crate::scenario::Event;
 
@@ -1138,7 +1176,7 @@ mod tests {
             i32::MAX,
         ] {
             let v = Fx::from_bits(bits);
-            assert_eq!(fx_exact(v).to_bits(), to_f(v).to_bits(), "{bits}");
+            assert_eq!(to_f(v).to_bits(), to_f(v).to_bits(), "{bits}");
         }
     }
 
@@ -1166,6 +1204,69 @@ mod tests {
         );
         assert_eq!((s.last_p_mw, s.last_drive_ma), (1.0, 2.0));
         assert_eq!(res.warning_spans[1].to_tick, None);
+    }
+
+    /// A run longer than the retained rows hold streams every row to its
+    /// sink while keeping at most `RETAINED_ROWS` evenly spaced rows and
+    /// `ENVELOPE_BINS` envelope bins in memory.
+    #[test]
+    fn long_runs_stream_every_row_and_keep_bounded_memory() {
+        struct Count(u64, u64);
+        impl TraceSink for Count {
+            fn row(&mut self, r: &TraceRow) {
+                assert_eq!(r.tick, self.0, "rows arrive in order, none skipped");
+                self.0 += 1;
+            }
+            fn progress(&mut self, done: u64, _: u64) {
+                self.1 = done;
+            }
+        }
+        let module = DemoModule::visible();
+        let ticks = RETAINED_ROWS as u64 + 20_000;
+        let mut sc = scenario(1, 20.0, 0.0);
+        sc.duration_ms = ticks as f64 / 20.0;
+        let mut sink = Count(0, 0);
+        let res = run_streamed(
+            &sc,
+            &module,
+            config(&module),
+            DacLatency::ONE_TICK,
+            Vec::new(),
+            &mut sink,
+        )
+        .unwrap();
+        assert_eq!(res.ticks, ticks);
+        assert_eq!((sink.0, sink.1), (ticks, ticks));
+        assert!(res.trace.len() <= RETAINED_ROWS);
+        assert_eq!(res.trace_stride, 2);
+        assert!(res.trace.windows(2).all(|w| w[1].tick - w[0].tick == 2));
+        assert!(res.envelope.bins().len() <= crate::trace::ENVELOPE_BINS);
+        assert_eq!(res.envelope.bins().last().unwrap().last_tick, ticks - 1);
+        // The summary says its figures come from a thinned trace.
+        assert!(crate::report::summary(&sc, &res, Vec::new())
+            .text()
+            .contains("step figures use one tick in 2:"));
+    }
+
+    /// The envelope the run builds every tick is the one its full trace
+    /// gives: the channels go in where the plots look for them.
+    #[test]
+    fn envelope_of_a_run_is_the_envelope_of_its_trace() {
+        let module = DemoModule::visible();
+        let res = run(
+            &scenario(2, 20.0, 500.0),
+            &module,
+            config(&module),
+            DacLatency::ONE_TICK,
+        )
+        .unwrap();
+        let mut e = Envelope::new(res.ticks);
+        for r in &res.trace {
+            e.add(r);
+        }
+        assert_eq!(res.trace_stride, 1);
+        assert_eq!(e, res.envelope);
+        assert!(e.ticks_per_bin() > 1);
     }
 
     /// The same scenario and seed give the same trace bit for bit; another

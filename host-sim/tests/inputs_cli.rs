@@ -411,7 +411,11 @@ fn a_failed_run_leaves_the_previous_report_whole() {
         .unwrap()
         .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
         .collect();
-    assert_eq!(names.len(), 4, "trace, plot and the two summaries only: {names:?}");
+    assert_eq!(
+        names.len(),
+        4,
+        "trace, plot and the two summaries only: {names:?}"
+    );
     let _ = std::fs::remove_dir_all(&d);
 }
 

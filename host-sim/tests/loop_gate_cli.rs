@@ -62,7 +62,69 @@ fn gate_passes_the_shipped_boards() {
         let svg = std::fs::read_to_string(out.join(b).join("bode.svg")).unwrap();
         assert!(svg.starts_with("<svg"), "{b}");
         assert!(out.join(b).join("bode").join("cold.svg").is_file());
+        // report.json beside the Markdown, with the same verdict and every corner.
+        let json: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(out.join(b).join("report.json")).unwrap(),
+        )
+        .unwrap();
+        assert_eq!(json["board"], b);
+        assert_eq!(json["verdict"], "pass");
+        let corners = json["corners"].as_array().unwrap();
+        assert!(corners.len() >= 10, "{b}: {} corners", corners.len());
+        for c in corners {
+            assert!(c["margins"]["pm_deg"].as_f64().unwrap() >= 45.0, "{c}");
+            assert!(c["margins"]["gm_db"].as_f64().unwrap() >= 6.0, "{c}");
+        }
+        assert!(md.contains(json["worst_corner"].as_str().unwrap()));
     }
+}
+
+/// `loop-tune --write` puts the proposed gains into a copy of a shipped
+/// board file, keeping its comments; `--json` writes the design.
+#[test]
+fn tune_writes_the_gains_in_place_and_the_design_as_json() {
+    let dir = std::env::temp_dir().join(format!("diodestat-tune-cli-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let board = dir.join("board.toml");
+    let before = std::fs::read_to_string(root().join("examples/demo-red-30/board.toml")).unwrap();
+    std::fs::write(&board, &before).unwrap();
+    let json = dir.join("tune.json");
+    let (ok, text) = diodestat(&[
+        "loop-tune",
+        board.to_str().unwrap(),
+        "--crossover-hz",
+        "400",
+        "--write",
+        "--json",
+        json.to_str().unwrap(),
+    ]);
+    assert!(ok, "{text}");
+    let after = std::fs::read_to_string(&board).unwrap();
+    let j: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let kp = j["proposed"]["kp_ma_per_mw"].as_f64().unwrap();
+    let ki = j["proposed"]["ki_ma_per_mw_ms"].as_f64().unwrap();
+    assert!(after.contains(&format!("kp_ma_per_mw = {kp}")), "{after}");
+    assert!(
+        after.contains(&format!("ki_ma_per_mw_ms = {ki}")),
+        "{after}"
+    );
+    // Only the two gain lines changed.
+    let changed: Vec<_> = before
+        .lines()
+        .zip(after.lines())
+        .filter(|(a, b)| a != b)
+        .map(|(a, _)| a)
+        .collect();
+    assert_eq!(before.lines().count(), after.lines().count());
+    assert!(
+        changed
+            .iter()
+            .all(|l| l.starts_with("kp_ma_per_mw") || l.starts_with("ki_ma_per_mw_ms")),
+        "{changed:?}"
+    );
+    assert_eq!(j["with_proposed_gains"]["verdict"], "pass");
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]

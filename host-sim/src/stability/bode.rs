@@ -124,11 +124,58 @@ fn fmt_hz(f: f64) -> String {
     }
 }
 
+/// Axis label of a log-axis key point: 1, 2 and 5 of every decade are
+/// labelled (`10`, `20`, `50`, `1k`, ...), the other ticks stay bare.
 fn fmt_axis_hz(f: f64) -> String {
+    if !(f.is_finite() && f > 0.0) {
+        return String::new();
+    }
+    let decade = 10f64.powf(f.log10().floor());
+    let mantissa = f / decade;
+    if ![1.0, 2.0, 5.0]
+        .iter()
+        .any(|m| (mantissa - m).abs() < 1e-6 * m)
+    {
+        return String::new();
+    }
     if f >= 1e3 {
         format!("{}k", f / 1e3)
     } else {
         format!("{f}")
+    }
+}
+
+/// Text height of the margin labels, px.
+const MARK_FONT_PX: f64 = 13.0;
+/// Average advance of one character of the margin labels, px (generous).
+const MARK_CHAR_PX: f64 = 7.0;
+
+/// Moves label boxes (left, top, width; px) down by whole rows, in the
+/// order given, until none overlaps one placed before it; a box pushed past
+/// `bottom_px` goes above its anchor instead.
+pub fn stack_labels(boxes: &mut [(f64, f64, f64)], row_px: f64, top_px: f64, bottom_px: f64) {
+    for i in 0..boxes.len() {
+        let (x, y0, w) = boxes[i];
+        let free = |y: f64, placed: &[(f64, f64, f64)]| {
+            placed
+                .iter()
+                .all(|&(a, b, c)| x + w <= a || a + c <= x || y + row_px <= b || b + row_px <= y)
+        };
+        let mut y = y0;
+        let mut tries = 0;
+        while !free(y, &boxes[..i]) && tries < 64 {
+            y += row_px;
+            tries += 1;
+        }
+        if y + row_px > bottom_px || tries == 64 {
+            y = y0;
+            tries = 0;
+            while !free(y, &boxes[..i]) && y - row_px >= top_px && tries < 64 {
+                y -= row_px;
+                tries += 1;
+            }
+        }
+        boxes[i].1 = y;
     }
 }
 
@@ -174,8 +221,13 @@ fn plot_range(loops: &[BodeLoop<'_>], ms: &[Margins]) -> (f64, f64) {
         lo = 0.01;
         hi = 100.0;
     }
-    let lo = lo / 10.0;
-    let hi = if nyq > 0.0 { nyq } else { hi * 10.0 };
+    // Start on a whole decade, so every decade of the axis is labelled.
+    let lo = 10f64.powf((lo / 10.0).log10().floor());
+    let hi = if nyq > 0.0 {
+        nyq
+    } else {
+        10f64.powf((hi * 10.0).log10().ceil())
+    };
     if hi > lo * 1.01 {
         (lo, hi)
     } else {
@@ -256,6 +308,8 @@ fn draw(
         .build_cartesian_2d((f_lo..f_hi).log_scale(), mag_lo..mag_hi)
         .map_err(err)?;
     mag.configure_mesh()
+        .x_labels(30)
+        .x_max_light_lines(0)
         .x_desc("frequency (Hz)")
         .x_label_formatter(&|v| fmt_axis_hz(*v))
         .y_desc("|L| (dB)")
@@ -269,6 +323,8 @@ fn draw(
         .build_cartesian_2d((f_lo..f_hi).log_scale(), ph_lo..ph_hi)
         .map_err(err)?;
     ph.configure_mesh()
+        .x_labels(30)
+        .x_max_light_lines(0)
         .x_desc("frequency (Hz)")
         .x_label_formatter(&|v| fmt_axis_hz(*v))
         .y_desc("phase (deg)")
@@ -297,10 +353,10 @@ fn draw(
         k -= 1.0;
     }
 
+    // Margin labels: anchor (px), text, colour; placed after the curves.
+    let mut marks: Vec<(i32, i32, String, RGBColor)> = Vec::new();
     for (i, ((l, d), m)) in loops.iter().zip(&data).zip(&ms).enumerate() {
         let c = COLORS[i % COLORS.len()];
-        // Labels of several loops at the same frequency must not overlap.
-        let stagger = 0.045 * i as f64;
         let pts = |ys: &[f64]| -> Vec<(f64, f64)> {
             d.f_hz
                 .iter()
@@ -336,12 +392,8 @@ fn draw(
                     c.stroke_width(3),
                 )))
                 .map_err(err)?;
-                ph.draw_series(std::iter::once(Text::new(
-                    format!("PM {:.1} deg", m.pm_deg),
-                    (f * 1.08, p - 0.5 * m.pm_deg - stagger * (ph_hi - ph_lo)),
-                    ("sans-serif", 13).into_font().color(&c),
-                )))
-                .map_err(err)?;
+                let (x, y) = ph.backend_coord(&(f, p - 0.5 * m.pm_deg));
+                marks.push((x, y, format!("PM {:.1} deg", m.pm_deg), c));
             }
         }
         // Gain margin: at the phase crossover, from |L| up to 0 dB.
@@ -365,13 +417,45 @@ fn draw(
                 c.stroke_width(3),
             )))
             .map_err(err)?;
-            mag.draw_series(std::iter::once(Text::new(
-                format!("GM {:.1} dB", m.gm_db),
-                (f * 1.08, 0.5 * y.max(mag_lo) - stagger * (mag_hi - mag_lo)),
-                ("sans-serif", 13).into_font().color(&c),
-            )))
-            .map_err(err)?;
+            let (x, y) = mag.backend_coord(&(f, 0.5 * y.max(mag_lo)));
+            marks.push((x, y, format!("GM {:.1} dB", m.gm_db), c));
         }
+    }
+    // Each margin label right of its mark on a white box, stacked so that
+    // labels of several corners at nearly the same frequency do not overlap.
+    let (w_px, h_px) = root.dim_in_pixel();
+    let row = MARK_FONT_PX + 3.0;
+    let mut boxes: Vec<(f64, f64, f64)> = marks
+        .iter()
+        .map(|(x, y, t, _)| {
+            let w = t.chars().count() as f64 * MARK_CHAR_PX;
+            // Right of its own mark and of any other mark the text would
+            // otherwise run across.
+            let mut left = f64::from(*x) + 6.0;
+            for (x2, ..) in &marks {
+                let x2 = f64::from(*x2);
+                if x2 >= f64::from(*x) && x2 < left + w {
+                    left = left.max(x2 + 6.0);
+                }
+            }
+            let left = left.min(f64::from(w_px) - w - 4.0);
+            (left, f64::from(*y) - row / 2.0, w)
+        })
+        .collect();
+    stack_labels(&mut boxes, row, 0.0, f64::from(h_px));
+    for ((_, _, text, c), (x, y, w)) in marks.iter().zip(&boxes) {
+        let (x, y) = (*x as i32, *y as i32);
+        root.draw(&Rectangle::new(
+            [(x - 2, y), (x + *w as i32, y + row as i32 - 1)],
+            WHITE.mix(0.85).filled(),
+        ))
+        .map_err(err)?;
+        root.draw(&Text::new(
+            text.clone(),
+            (x, y + 1),
+            ("sans-serif", MARK_FONT_PX).into_font().color(c),
+        ))
+        .map_err(err)?;
     }
     mag.configure_series_labels()
         .position(SeriesLabelPosition::LowerLeft)
@@ -437,5 +521,41 @@ mod tests {
         let ma = margins(&a);
         assert!(svg.contains(&format!("PM {:.1} deg", ma.pm_deg)));
         assert!(bode_svg("empty", &[]).is_err());
+        // Every decade in range is labelled.
+        for want in ["\n100\n", "\n1k\n"] {
+            assert!(svg.contains(want), "missing decade label {want:?}");
+        }
+    }
+
+    #[test]
+    fn axis_labels_mark_1_2_5_of_each_decade() {
+        let l: Vec<String> = [10.0, 20.0, 30.0, 50.0, 100.0, 700.0, 1000.0, 2000.0]
+            .iter()
+            .map(|f| fmt_axis_hz(*f))
+            .collect();
+        assert_eq!(l, ["10", "20", "", "50", "100", "", "1k", "2k"]);
+    }
+
+    /// Margin labels of several corners at the same spot end up on rows of
+    /// their own.
+    #[test]
+    fn stacked_labels_do_not_overlap() {
+        let mut b = vec![(100.0, 50.0, 80.0); 4];
+        b.push((400.0, 50.0, 80.0));
+        stack_labels(&mut b, 16.0, 0.0, 400.0);
+        for i in 0..b.len() {
+            for j in i + 1..b.len() {
+                let (p, q) = (b[i], b[j]);
+                let apart =
+                    p.0 + p.2 <= q.0 || q.0 + q.2 <= p.0 || p.1 + 16.0 <= q.1 || q.1 + 16.0 <= p.1;
+                assert!(apart, "{p:?} {q:?}");
+            }
+        }
+        assert_eq!(b[4].1, 50.0, "a label with room keeps its place");
+        // Near the bottom, labels go up instead.
+        let mut c = vec![(0.0, 390.0, 50.0); 3];
+        stack_labels(&mut c, 16.0, 0.0, 400.0);
+        assert!(c.iter().all(|x| x.1 + 16.0 <= 400.0 + 16.0 && x.1 >= 0.0));
+        assert!(c[1].1 < 390.0 && c[2].1 < c[1].1);
     }
 }
