@@ -19,6 +19,7 @@ pub mod check;
 pub mod expect;
 pub mod export;
 pub mod files;
+pub mod laser_class;
 pub mod liv;
 pub mod locate;
 pub mod oscillation;
