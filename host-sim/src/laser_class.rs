@@ -233,7 +233,7 @@ impl Ael {
     /// seconds, J; `None` for Class 4 (no limit). Durations beyond the time
     /// base take the continuous limit times the duration.
     pub fn energy_j(&self, t_s: f64) -> Result<Option<f64>, AelError> {
-        if !(t_s >= MIN_DURATION_S) {
+        if t_s.is_nan() || t_s < MIN_DURATION_S {
             return Err(AelError::Duration { s: t_s });
         }
         let nm = self.nm;
@@ -334,7 +334,7 @@ pub fn worst_exposure(
     if accessible_w.is_empty() || ael.class == LaserClass::C4 {
         return Ok(None);
     }
-    if !(dt_s >= MIN_DURATION_S) {
+    if dt_s.is_nan() || dt_s < MIN_DURATION_S {
         return Err(AelError::Duration { s: dt_s });
     }
     let mut prefix = Vec::with_capacity(accessible_w.len() + 1);
