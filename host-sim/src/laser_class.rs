@@ -19,14 +19,14 @@
 
 use std::fmt;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Shortest exposure duration judged, s (the scope of this module; shorter
 /// pulses fall under other rows of the tables).
 pub const MIN_DURATION_S: f64 = 1e-6;
 
 /// A laser class of IEC 60825-1:2014, clause 5 ("Classification").
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub enum LaserClass {
     /// Class 1.
     #[serde(rename = "1")]
@@ -176,7 +176,7 @@ pub fn c7(nm: f64) -> f64 {
 
 /// The accessible emission limits of one class at one wavelength for a
 /// small source (C6 = 1).
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Ael {
     /// The class.
     pub class: LaserClass,
@@ -308,7 +308,7 @@ fn class1_j(nm: f64, t_s: f64) -> f64 {
 }
 
 /// The worst exposure of a sampled power record against a class.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Exposure {
     /// Accessible energy over the worst window divided by the limit for
     /// the window's duration (above 1: out of class).

@@ -18,8 +18,11 @@ use super::thermal::ThermalParams;
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct DemoModule {
-    /// Rated front-facet output power, W.
+    /// Rated front-facet output power, W (the module's maximum rating).
     pub rated_power_w: f64,
+    /// Rated maximum forward current, A (the module's maximum rating; the
+    /// board's `current.absolute_max_ma` is the controller's own limit).
+    pub rated_current_a: f64,
     /// Nominal driver supply, V.
     pub supply_v: f64,
     /// Laser diode.
@@ -58,6 +61,7 @@ impl DemoModule {
     pub fn visible() -> Self {
         Self {
             rated_power_w: 0.030,
+            rated_current_a: 0.060,
             supply_v: 5.0,
             diode: DiodeParams::demo_visible(),
             monitor: MonitorParams::demo_visible(),
@@ -72,6 +76,7 @@ impl DemoModule {
     pub fn pump() -> Self {
         Self {
             rated_power_w: 5.0,
+            rated_current_a: 6.5,
             supply_v: 3.3,
             diode: DiodeParams::demo_pump(),
             monitor: MonitorParams::demo_pump(),
