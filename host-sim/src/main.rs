@@ -85,6 +85,12 @@ enum Cmd {
         /// Longest watch window of a slow fault (heatsink loss, aging, degrading monitor), s.
         #[arg(long, default_value_t = 20.0, value_parser = finite_in(0.001, 600.0, " s"))]
         slow_bound_s: f64,
+        /// Monte Carlo: replace the corners with N parts drawn from the module's tolerances (at 25 degC).
+        #[arg(long, conflicts_with = "corners", value_parser = clap::value_parser!(u32).range(1..=100_000))]
+        parts: Option<u32>,
+        /// Seed of the Monte Carlo parts.
+        #[arg(long, default_value_t = 1, requires = "parts")]
+        parts_seed: u64,
         /// Run only slice K of N (cases numbered K-1 modulo N); merge the slices with campaign-merge.
         #[arg(long, value_parser = shard)]
         shard: Option<(u32, u32)>,
@@ -458,6 +464,12 @@ fn campaign_verdict(
 ) -> Result<(), String> {
     let bad: Vec<_> = rec.results.iter().filter(|r| !r.safe).collect();
     let findings = rec.results.iter().filter(|r| r.finding.is_some()).count();
+    if let Some(mc) = diodestat_sim::campaign::report::monte_carlo(rec) {
+        println!(
+            "Monte Carlo: {} of {} parts with an unsafe case (95 % upper bound {:.4}); {} of {} cases unsafe (95 % upper bound {:.5})",
+            mc.unsafe_parts, mc.parts, mc.part_upper_95, mc.unsafe_cases, mc.cases, mc.case_upper_95
+        );
+    }
     println!(
         "{} cases, {} unsafe, {} findings; wrote {}",
         rec.results.len(),
@@ -580,6 +592,8 @@ fn main() -> ExitCode {
             ambient_c,
             setpoints_mw,
             slow_bound_s,
+            parts,
+            parts_seed,
             shard,
             out,
         } => match ambient_c.as_slice() {
@@ -593,6 +607,7 @@ fn main() -> ExitCode {
                     hot_c: *hot_c,
                     setpoints_mw: setpoints_mw.clone(),
                     slow_bound_s: *slow_bound_s,
+                    parts: parts.map(|n| (n, *parts_seed)),
                     shard: *shard,
                 },
                 out,

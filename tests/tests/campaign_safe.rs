@@ -482,3 +482,52 @@ fn laser_safety_sections_are_refused_with_their_key() {
     assert_eq!(l.rated_current_ma, m.rated_current_a * 1e3);
     assert_eq!(l.damage_mw, m.diode.damage_power_w * 1e3);
 }
+
+/// A Monte Carlo smoke run: 20 parts drawn from the pump module's
+/// tolerances, sharded in two and merged, gives the single run's report
+/// with its unsafe count and Clopper-Pearson bound (0 of 20 parts: the
+/// bound is 1 - 0.05^(1/20) = 0.139).
+#[test]
+fn a_monte_carlo_smoke_run_shards_and_bounds() {
+    let b = shipped("demo-pump-5w");
+    let (bench, _) = bench(&b);
+    let sel = Selection {
+        faults: Some(vec!["interlock-open".into(), "monitor-degrade".into()]),
+        moments: Some(vec![Moment::Steady]),
+        parts: Some((20, 7)),
+        ..quick()
+    };
+    let file = "examples/demo-pump-5w/board.toml";
+    let single = report::run_record(&bench, b.module_name, file, &sel).unwrap();
+    assert_eq!(single.results.len(), 40);
+    let shards: Vec<_> = (1..=2)
+        .map(|k| {
+            report::run_record(
+                &bench,
+                b.module_name,
+                file,
+                &Selection {
+                    shard: Some((k, 2)),
+                    ..sel.clone()
+                },
+            )
+            .unwrap()
+        })
+        .collect();
+    let merged = report::merge(shards).unwrap();
+    assert_eq!(report::markdown(&merged), report::markdown(&single));
+    let mc = report::monte_carlo(&single).unwrap();
+    assert_eq!((mc.parts, mc.unsafe_parts, mc.unsafe_cases), (20, 0, 0));
+    assert!((mc.part_upper_95 - (1.0 - 0.05f64.powf(1.0 / 20.0))).abs() < 1e-12);
+    assert!(report::markdown(&single).contains("## Monte Carlo"));
+    // The parts differ, within the module's tolerances, and the seed
+    // reproduces them.
+    let p = campaign::parts(&b.module, 20, 7);
+    assert_eq!(p, campaign::parts(&b.module, 20, 7));
+    assert_ne!(p, campaign::parts(&b.module, 20, 8));
+    for c in &p {
+        assert!((c.threshold - 1.0).abs() <= b.module.tolerances.threshold);
+        assert!((c.slope - 1.0).abs() <= b.module.tolerances.slope);
+        assert!((c.tracking - 1.0).abs() <= b.module.tolerances.tracking);
+    }
+}

@@ -22,6 +22,7 @@
 //! back into exactly the single run's report.
 
 pub mod report;
+pub mod stats;
 pub mod verdict;
 
 use rayon::prelude::*;
@@ -91,11 +92,11 @@ impl Moment {
     }
 }
 
-/// A plant corner.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+/// A plant corner, or one drawn part of a Monte Carlo campaign.
+#[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Corner {
     /// Name.
-    pub name: &'static str,
+    pub name: String,
     /// Ambient, degC.
     pub ambient_c: f64,
     /// Threshold-current factor (part spread, 1 nominal).
@@ -109,14 +110,16 @@ pub struct Corner {
     pub aged_hours: f64,
 }
 
-const NOMINAL: Corner = Corner {
-    name: "nominal",
-    ambient_c: 25.0,
-    threshold: 1.0,
-    slope: 1.0,
-    tracking: 1.0,
-    aged_hours: 0.0,
-};
+fn nominal() -> Corner {
+    Corner {
+        name: "nominal".into(),
+        ambient_c: 25.0,
+        threshold: 1.0,
+        slope: 1.0,
+        tracking: 1.0,
+        aged_hours: 0.0,
+    }
+}
 
 /// Default ambient of the cold corner, degC.
 pub const COLD_C: f64 = 0.0;
@@ -125,40 +128,44 @@ pub const HOT_C: f64 = 40.0;
 
 /// The corners of the shipped campaign (the part spreads are the loop
 /// analysis's standard ones) for an ambient range `cold_c..=hot_c`.
-pub fn corners(cold_c: f64, hot_c: f64) -> [Corner; 7] {
-    [
-        NOMINAL,
-        Corner {
-            name: "cold",
-            ambient_c: cold_c,
-            ..NOMINAL
-        },
-        Corner {
-            name: "hot",
-            ambient_c: hot_c,
-            ..NOMINAL
-        },
-        Corner {
-            name: "tracking-low",
-            tracking: 0.9,
-            ..NOMINAL
-        },
-        Corner {
-            name: "aged",
-            aged_hours: 20_000.0,
-            ..NOMINAL
-        },
-        Corner {
-            name: "threshold-high",
-            threshold: 1.0 + THRESHOLD_SPREAD,
-            ..NOMINAL
-        },
-        Corner {
-            name: "slope-low",
-            slope: 1.0 - SLOPE_SPREAD,
-            ..NOMINAL
-        },
+pub fn corners(cold_c: f64, hot_c: f64) -> Vec<Corner> {
+    let c = |name: &str, f: &dyn Fn(&mut Corner)| {
+        let mut k = Corner {
+            name: name.into(),
+            ..nominal()
+        };
+        f(&mut k);
+        k
+    };
+    vec![
+        nominal(),
+        c("cold", &|k| k.ambient_c = cold_c),
+        c("hot", &|k| k.ambient_c = hot_c),
+        c("tracking-low", &|k| k.tracking = 0.9),
+        c("aged", &|k| k.aged_hours = 20_000.0),
+        c("threshold-high", &|k| k.threshold = 1.0 + THRESHOLD_SPREAD),
+        c("slope-low", &|k| k.slope = 1.0 - SLOPE_SPREAD),
     ]
+}
+
+/// `n` parts drawn from the module's tolerances with `seed` (each factor
+/// uniform in `1 - t ..= 1 + t`), at the nominal corner's 25 degC, named
+/// `part-1` to `part-n`.
+pub fn parts(module: &DemoModule, n: u32, seed: u64) -> Vec<Corner> {
+    let mut rng = crate::plant::Rng::new(seed);
+    let t = module.tolerances;
+    (1..=n)
+        .map(|i| {
+            let mut draw = |tol: f64| 1.0 + tol * (2.0 * rng.uniform() - 1.0);
+            Corner {
+                name: format!("part-{i}"),
+                threshold: draw(t.threshold),
+                slope: draw(t.slope),
+                tracking: draw(t.tracking),
+                ..nominal()
+            }
+        })
+        .collect()
 }
 
 /// How long a fault's case is watched after the injection.
@@ -424,6 +431,9 @@ pub struct Selection {
     pub setpoints_mw: Option<Vec<f64>>,
     /// Longest watch window of a slow fault, s.
     pub slow_bound_s: f64,
+    /// Monte Carlo: `(n, seed)` replaces the corners with `n` parts drawn
+    /// from the module's tolerances.
+    pub parts: Option<(u32, u64)>,
     /// This run's slice: `(k, n)` runs the cases numbered k-1 modulo n.
     pub shard: Option<(u32, u32)>,
 }
@@ -438,6 +448,7 @@ impl Default for Selection {
             hot_c: HOT_C,
             setpoints_mw: None,
             slow_bound_s: 20.0,
+            parts: None,
             shard: None,
         }
     }
@@ -530,8 +541,8 @@ pub struct Bench<'a> {
 pub struct CasePlan {
     /// The selected faults.
     pub faults: Vec<FaultSpec>,
-    /// The corners.
-    pub corners: [Corner; 7],
+    /// The corners (or parts).
+    pub corners: Vec<Corner>,
     /// This shard's cases, in their fixed order.
     pub cases: Vec<Case>,
     /// Cases of the whole (unsharded) selection.
@@ -572,10 +583,19 @@ pub fn cases(bench: &Bench<'_>, sel: &Selection) -> Result<CasePlan, SelectionEr
                 .collect()
         }
     };
-    let corners = corners(sel.cold_c, sel.hot_c);
+    let corners = match sel.parts {
+        Some((0, _)) => return Err(SelectionError::Range("--parts: at least one part")),
+        Some(_) if sel.corners.is_some() => {
+            return Err(SelectionError::Range(
+                "--corners and --parts exclude each other: a Monte Carlo run draws its parts at the nominal corner",
+            ))
+        }
+        Some((n, seed)) => parts(bench.module, n, seed),
+        None => corners(sel.cold_c, sel.hot_c),
+    };
     if let Some(names) = &sel.corners {
         for n in names {
-            if !corners.iter().any(|c| c.name == n) {
+            if !corners.iter().any(|c| c.name == *n) {
                 return Err(SelectionError::Corner(n.clone()));
             }
         }
@@ -609,7 +629,7 @@ pub fn cases(bench: &Bench<'_>, sel: &Selection) -> Result<CasePlan, SelectionEr
                 if sel
                     .corners
                     .as_ref()
-                    .is_some_and(|n| !n.iter().any(|n| n == corner.name))
+                    .is_some_and(|n| !n.iter().any(|n| *n == corner.name))
                 {
                     continue;
                 }
@@ -1047,7 +1067,7 @@ pub fn run_case(
         fault: spec.label.clone(),
         kind: spec.fault.name().into(),
         moment: case.moment,
-        corner: corner.name.into(),
+        corner: corner.name.clone(),
         setpoint_mw: case.setpoint_mw,
         must_latch,
         expected: spec.expected.iter().map(|s| s.to_string()).collect(),

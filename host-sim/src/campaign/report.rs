@@ -41,6 +41,8 @@ pub struct Header {
     pub selection: Selection,
     /// The pass lines.
     pub pass_lines: PassLines,
+    /// The module's part tolerances (what a Monte Carlo run draws from).
+    pub tolerances: crate::plant::PartTolerances,
 }
 
 /// A campaign's JSON record.
@@ -338,6 +340,23 @@ pub fn markdown(rec: &Record) -> String {
             rec.header.pass_lines.rated_current_ma
         );
     }
+    if let Some(mc) = monte_carlo(rec) {
+        let _ = writeln!(
+            s,
+            "\n## Monte Carlo\n\n{} parts drawn from the module's tolerances (threshold +-{:.0} %, slope +-{:.0} %, monitor tracking +-{:.0} %, uniform; seed {}) at 25 degC, every selected fault and moment on each. {} of {} parts had an unsafe case: one-sided 95 % Clopper-Pearson upper bound on the probability that a part has one {:.4}. {} of {} cases unsafe: bound on the probability of an unsafe case {:.5} (cases on one part are not independent; the per-part figure is the one to quote).",
+            mc.parts,
+            mc.tolerances.threshold * 100.0,
+            mc.tolerances.slope * 100.0,
+            mc.tolerances.tracking * 100.0,
+            mc.seed,
+            mc.unsafe_parts,
+            mc.parts,
+            mc.part_upper_95,
+            mc.unsafe_cases,
+            mc.cases,
+            mc.case_upper_95
+        );
+    }
     s.push_str("\n## Fault reactions\n\n| fault | expected | detected by | worst reaction (us) | limit (us) | states reached | worst class ratio | worst above rated power (uJ) | worst above rated current (uC) | cases | unsafe | findings |\n|---|---|---|---|---|---|---|---|---|---|---|---|\n");
     for r in reaction_table(results) {
         let _ = writeln!(
@@ -500,6 +519,9 @@ pub fn command_line(board_file: &str, sel: &Selection) -> String {
     if let Some(c) = &sel.corners {
         let _ = write!(s, " --corners {}", c.join(","));
     }
+    if let Some((n, seed)) = sel.parts {
+        let _ = write!(s, " --parts {n} --parts-seed {seed}");
+    }
     if let Some(p) = &sel.setpoints_mw {
         let p: Vec<String> = p.iter().map(|v| v.to_string()).collect();
         let _ = write!(s, " --setpoints-mw {}", p.join(","));
@@ -534,10 +556,59 @@ pub fn run_record(
                 ..sel.clone()
             },
             pass_lines: *bench.lines,
+            tolerances: bench.module.tolerances,
         },
         shard: sel.shard,
         total_cases: total,
         results,
         caution: crate::report::SAFETY_CAUTION.to_string(),
+    })
+}
+
+/// The figures of a Monte Carlo campaign.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct MonteCarlo {
+    /// Parts drawn.
+    pub parts: u32,
+    /// Their seed.
+    pub seed: u64,
+    /// The tolerances drawn from.
+    pub tolerances: crate::plant::PartTolerances,
+    /// Parts with at least one unsafe case.
+    pub unsafe_parts: u64,
+    /// One-sided 95 % Clopper-Pearson upper bound per part.
+    pub part_upper_95: f64,
+    /// Cases.
+    pub cases: u64,
+    /// Unsafe cases.
+    pub unsafe_cases: u64,
+    /// One-sided 95 % Clopper-Pearson upper bound per case.
+    pub case_upper_95: f64,
+}
+
+/// The Monte Carlo figures of a whole record (`None`: not a Monte Carlo
+/// run, or a shard).
+pub fn monte_carlo(rec: &Record) -> Option<MonteCarlo> {
+    let (parts, seed) = rec.header.selection.parts?;
+    if rec.shard.is_some() {
+        return None;
+    }
+    let unsafe_parts = (1..=parts)
+        .filter(|i| {
+            let name = format!("part-{i}");
+            rec.results.iter().any(|r| r.corner == name && !r.safe)
+        })
+        .count() as u64;
+    let cases = rec.results.len() as u64;
+    let unsafe_cases = rec.results.iter().filter(|r| !r.safe).count() as u64;
+    Some(MonteCarlo {
+        parts,
+        seed,
+        tolerances: rec.header.tolerances,
+        unsafe_parts,
+        part_upper_95: super::stats::clopper_pearson_upper(unsafe_parts, u64::from(parts), 0.95)?,
+        cases,
+        unsafe_cases,
+        case_upper_95: super::stats::clopper_pearson_upper(unsafe_cases, cases, 0.95)?,
     })
 }

@@ -37,6 +37,31 @@ pub struct DemoModule {
     pub sensor: SensorChainParams,
     /// ADC used for the monitor, current-sense and supply channels.
     pub adc: AdcParams,
+    /// Part-to-part tolerances a Monte Carlo campaign draws from.
+    pub tolerances: PartTolerances,
+}
+
+/// Part-to-part tolerances of a module, each a relative half-width: a
+/// part's factor is drawn uniformly from `1 - t ..= 1 + t`. Demo values.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PartTolerances {
+    /// Threshold current.
+    pub threshold: f64,
+    /// Slope efficiency.
+    pub slope: f64,
+    /// Monitor responsivity (tracking ratio).
+    pub tracking: f64,
+}
+
+impl PartTolerances {
+    /// The demo modules' tolerances: threshold +-15 %, slope +-8 % (the
+    /// loop analysis's corner spreads), monitor tracking +-10 %.
+    pub const DEMO: PartTolerances = PartTolerances {
+        threshold: 0.15,
+        slope: 0.08,
+        tracking: 0.10,
+    };
 }
 
 impl DemoModule {
@@ -69,6 +94,7 @@ impl DemoModule {
             thermal: ThermalParams::demo_visible(),
             sensor: SensorChainParams::demo_visible(),
             adc: AdcParams::demo(),
+            tolerances: PartTolerances::DEMO,
         }
     }
 
@@ -84,6 +110,7 @@ impl DemoModule {
             thermal: ThermalParams::demo_pump(),
             sensor: SensorChainParams::demo_pump(),
             adc: AdcParams::demo(),
+            tolerances: PartTolerances::DEMO,
         }
     }
 }
