@@ -629,7 +629,7 @@ pub fn cases(bench: &Bench<'_>, sel: &Selection) -> Result<CasePlan, SelectionEr
                 if sel
                     .corners
                     .as_ref()
-                    .is_some_and(|n| !n.iter().any(|n| *n == corner.name))
+                    .is_some_and(|n| !n.contains(&corner.name))
                 {
                     continue;
                 }
