@@ -383,7 +383,7 @@ impl FaultLog {
     /// Continue with [`Unread::resume`].
     ///
     /// ```
-    /// use diodestat_core::fault::{Cursor, FaultLog};
+    /// use diodestat_core::{Cursor, FaultLog};
     /// let log = FaultLog::new();
     /// let mut cursor = Cursor::default();
     /// // each time the reader looks:

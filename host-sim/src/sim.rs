@@ -749,7 +749,7 @@ fn run_plant(
     let mut prev = (0.0, Fx::ZERO, Mode::Apc);
     let mut kept = Retained::new(RETAINED_ROWS);
     let mut last_state = State::Off;
-    let mut log_cursor = diodestat_core::fault::Cursor::default();
+    let mut log_cursor = diodestat_core::Cursor::default();
     // The drives on their way to the DAC: a ring of `latency` slots, the
     // one at `slot` written `latency` ticks ago; `None`: a missed tick
     // wrote nothing. The board starts with the DAC at zero, enable low.
