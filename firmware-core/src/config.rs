@@ -181,7 +181,7 @@ pub struct Derating {
 /// Protection limits. A limit is the first value that trips; a debounce `N`
 /// is the number of consecutive ticks a steady condition must hold
 /// (1 = at once). Conditions that come and go are integrated: see
-/// [`Protection::intermittent_weight`] and [`crate::protect`].
+/// [`Protection::intermittent_weight`] and `protect.rs`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
@@ -225,7 +225,7 @@ pub struct Protection {
     /// Weight `w` of a tick with the condition present in the leaky
     /// debounce (a clean tick counts −1, a protection trips at `w × N`): a
     /// condition present in more than `1 / (w + 1)` of the ticks trips
-    /// within the bound documented in [`crate::protect`]. 1 to
+    /// within the bound documented in `protect.rs`. 1 to
     /// [`MAX_INTERMITTENT_WEIGHT`].
     pub intermittent_weight: u16,
 }

@@ -36,7 +36,16 @@ const FNV_OFFSET: u64 = 0xcbf2_9ce4_8422_2325;
 /// FNV-1a 64 prime, 2^40 + 0x1b3.
 const FNV_PRIME: u64 = 0x0000_0100_0000_01b3;
 
-/// The fingerprint of a configuration: 64 bits, shown as 16 hex digits.
+/// The fingerprint of a configuration ([`ValidConfig::fingerprint`]): 64
+/// bits, shown as 16 hex digits.
+///
+/// FNV-1a 64 over this encoding (version 1, its first byte): the fields of
+/// [`Config`] in declaration order, each integer little-endian at its own
+/// width (`u16`, `u32`, `i32`), every [`Fx`] and [`Gain`] as the `i32` of its
+/// raw bits, a [`Rail`] as one byte (`0` high, `1` low), an `Option` as `0`
+/// or `1` followed by its content, a table as its length (`u16`) followed by
+/// its points. It names a configuration; it does not protect against
+/// deliberate tampering.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 pub struct Fingerprint(u64);
 
@@ -330,8 +339,8 @@ impl Fnv1a64 {
 }
 
 impl ValidConfig {
-    /// The fingerprint of the configuration the controller runs with (see
-    /// the [module](self) for the encoding). The same on every target; the
+    /// The fingerprint of the configuration the controller runs with (the
+    /// encoding is described on [`Fingerprint`]). The same on every target; the
     /// simulator prints it and `diodestat export` writes it beside the
     /// constants, so a board can report and compare it at start.
     pub fn fingerprint(&self) -> Fingerprint {

@@ -8,7 +8,7 @@
 //!
 //! The core is sans-IO: the board hands it one [`Sample`] of raw ADC counts
 //! per tick and applies the [`Drive`] it returns (DAC code and enable line).
-//! It never reads a clock or a register. Hardware meets it only in [`edge`],
+//! It never reads a clock or a register. Hardware meets it only in [`DriverBoard`],
 //! behind embedded-hal 1.0 traits.
 //!
 //! **Safety.** Firmware protection complements, never replaces, a hardware
