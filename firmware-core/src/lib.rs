@@ -8,8 +8,8 @@
 //!
 //! The core is sans-IO: the board hands it one [`Sample`] of raw ADC counts
 //! per tick and applies the [`Drive`] it returns (DAC code and enable line).
-//! It never reads a clock or a register. Hardware meets it only in [`DriverBoard`],
-//! behind embedded-hal 1.0 traits.
+//! It never reads a clock or a register. Hardware meets it only in
+//! [`DriverBoard`], behind embedded-hal 1.0 traits.
 //!
 //! **Safety.** Firmware protection complements, never replaces, a hardware
 //! current limit, interlock gating of the enable line, an independent
