@@ -13,11 +13,11 @@
 use std::fmt;
 use std::path::{Path, PathBuf};
 
-use diodestat_core::config::{
+use diodestat_core::TEMP_TABLE_LEN;
+use diodestat_core::{
     AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, DiodePoint, Plausibility,
     PowerRange, Protection, Rail, Ramps, TempCal, DIODE_POINTS,
 };
-use diodestat_core::temp_table::TEMP_TABLE_LEN;
 use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, ValidConfig};
 use serde::{Deserialize, Deserializer};
 
@@ -1165,7 +1165,7 @@ fn num(v: Fx) -> String {
 /// The board-file key a [`ConfigError`] is about and what that key must
 /// satisfy, in the file's units and words.
 pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
-    use diodestat_core::config::{Channel, RampKind};
+    use diodestat_core::{Channel, RampKind};
     use ConfigError as E;
     let k = |s: &str| s.to_string();
     let tick_ms = f64::from(c.tick_hz) / 1e3;
@@ -1305,14 +1305,14 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
             format!(
                 "must be 1 ..= {max} ticks at tick_hz = {} (a fast protection trips within {} us)",
                 c.tick_hz,
-                diodestat_core::config::FAST_DEBOUNCE_MAX_US
+                diodestat_core::FAST_DEBOUNCE_MAX_US
             ),
         ),
         E::IntermittentWeightOutOfRange { .. } => (
             k("protection.intermittent_weight"),
             format!(
                 "must be 1 ..= {}",
-                diodestat_core::config::MAX_INTERMITTENT_WEIGHT
+                diodestat_core::MAX_INTERMITTENT_WEIGHT
             ),
         ),
         E::TempTableShortOfCutoff { hottest_degc, needed_degc } => (
@@ -1320,7 +1320,7 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
             format!(
                 "reaches {} degC; it must reach derating.cutoff_degc + {} = {} degC so that over-temperature is read from the table",
                 num(hottest_degc),
-                num(diodestat_core::config::TEMP_COVER_MARGIN_DEGC),
+                num(diodestat_core::TEMP_COVER_MARGIN_DEGC),
                 num(needed_degc)
             ),
         ),
@@ -1666,7 +1666,7 @@ table_points = 25
                 gain: Fx::ZERO,
             },
             ConfigError::CalibrationGainNotPositive {
-                channel: diodestat_core::config::Channel::Dac,
+                channel: diodestat_core::Channel::Dac,
             },
         ];
         for e in all {

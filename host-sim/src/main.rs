@@ -170,7 +170,7 @@ enum Cmd {
         #[arg(long, value_parser = finite_in(0.0, 100.0, " %"))]
         max_overshoot_pct: Option<f64>,
     },
-    /// Export a board configuration file as Rust source, with its hash.
+    /// Export a board configuration file as Rust source, with its fingerprint.
     Export {
         /// Board configuration file (TOML), e.g. examples/demo-red-30/board.toml.
         board: PathBuf,
@@ -407,15 +407,16 @@ fn liv(
     Ok(())
 }
 
-/// The board a command runs: name, file, module and the export hash.
+/// The board a command runs: name, file, module, tick rate and the core's
+/// fingerprint of its configuration (the one the firmware reports at start).
 fn board_line(b: &LoadedBoard) -> String {
     format!(
-        "board {} ({}, module {}, {} Hz tick, configuration hash {:016x})",
+        "board {} ({}, module {}, {} Hz tick, configuration fingerprint {})",
         b.name,
         b.path.display(),
         b.module_name,
         b.config.tick_hz,
-        diodestat_sim::export::config_hash(&b.config)
+        b.valid.fingerprint()
     )
 }
 
@@ -560,13 +561,13 @@ fn export(board: &Path, out: &Path) -> Result<(), String> {
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
     files::check_out_file(out, "--out", &inputs).map_err(|e| e.to_string())?;
-    let src = diodestat_sim::export::rust_module(&b.name, &b.config);
+    let src = diodestat_sim::export::rust_module(&b.name, &b.valid);
     files::write_atomic(out, src.as_bytes()).map_err(|e| e.to_string())?;
     println!(
-        "wrote {} from {} (CONFIG_HASH {:016x})",
+        "wrote {} from {} (CONFIG_FINGERPRINT {})",
         out.display(),
         b.path.display(),
-        diodestat_sim::export::config_hash(&b.config)
+        b.valid.fingerprint()
     );
     Ok(())
 }

@@ -433,7 +433,7 @@ fn shards_merge_into_the_single_run() {
     // and the caution.
     let md = report::markdown(&single);
     for needle in [
-        single.header.config_hash.as_str(),
+        single.header.config_fingerprint.as_str(),
         single.header.module_hash.as_str(),
         single.header.tool.as_str(),
         single.header.command.as_str(),
@@ -442,7 +442,7 @@ fn shards_merge_into_the_single_run() {
         assert!(md.contains(needle), "{needle}");
     }
     let xml = report::junit(&single);
-    assert!(xml.contains(&single.header.config_hash) && xml.contains("caution"));
+    assert!(xml.contains(&single.header.config_fingerprint) && xml.contains("caution"));
 }
 
 /// The board file's `[laser_safety]` section is refused with the key, its

@@ -26,7 +26,7 @@ pub struct Header {
     pub board_file: String,
     /// Hash of the exported core configuration (`diodestat export`'s
     /// CONFIG_HASH), hex.
-    pub config_hash: String,
+    pub config_fingerprint: String,
     /// Simulated module.
     pub module: String,
     /// FNV-1a 64 of the module's parameters as JSON, hex.
@@ -107,8 +107,8 @@ pub fn merge(records: Vec<Record>) -> Result<Record, MergeError> {
     let mut results = Vec::new();
     for (i, r) in records.into_iter().enumerate() {
         if r.header != first.header {
-            let what = if r.header.config_hash != first.header.config_hash {
-                "configuration hash"
+            let what = if r.header.config_fingerprint != first.header.config_fingerprint {
+                "configuration fingerprint"
             } else if r.header.module_hash != first.header.module_hash {
                 "module hash"
             } else if r.header.tool != first.header.tool {
@@ -250,8 +250,8 @@ fn header_lines(s: &mut String, rec: &Record) {
     let l = &h.pass_lines;
     let _ = writeln!(
         s,
-        "- Board `{}` (file `{}`), module `{}`; configuration hash `{}`, module hash `{}`.",
-        h.board, h.board_file, h.module, h.config_hash, h.module_hash
+        "- Board `{}` (file `{}`), module `{}`; configuration fingerprint `{}`, module hash `{}`.",
+        h.board, h.board_file, h.module, h.config_fingerprint, h.module_hash
     );
     let _ = writeln!(s, "- Tool {}; command `{}`.", h.tool, h.command);
     let _ = writeln!(
@@ -458,7 +458,7 @@ pub fn junit(rec: &Record) -> String {
         ("tool", h.tool.clone()),
         ("command", h.command.clone()),
         ("board_file", h.board_file.clone()),
-        ("config_hash", h.config_hash.clone()),
+        ("config_fingerprint", h.config_fingerprint.clone()),
         ("module", h.module.clone()),
         ("module_hash", h.module_hash.clone()),
         ("seed", h.seed.to_string()),
@@ -545,9 +545,9 @@ pub fn run_record(
             command: command_line(board_file, sel),
             board: bench.name.to_string(),
             board_file: board_file.to_string(),
-            config_hash: format!("{:016x}", crate::export::config_hash(bench.cfg.config())),
+            config_fingerprint: bench.cfg.fingerprint().to_string(),
             module: module_name.to_string(),
-            module_hash: format!("{:016x}", crate::export::fnv1a64(module_json.as_bytes())),
+            module_hash: format!("{:016x}", fnv1a64(module_json.as_bytes())),
             seed: super::SEED,
             diode_model: "quasi-static".into(),
             dac_latency_ticks: bench.latency.get(),
@@ -610,5 +610,13 @@ pub fn monte_carlo(rec: &Record) -> Option<MonteCarlo> {
         cases,
         unsafe_cases,
         case_upper_95: super::stats::clopper_pearson_upper(unsafe_cases, cases, 0.95)?,
+    })
+}
+
+/// FNV-1a 64 over bytes (the same function as the core's configuration
+/// fingerprint), naming the module description a campaign ran on.
+fn fnv1a64(bytes: &[u8]) -> u64 {
+    bytes.iter().fold(0xcbf2_9ce4_8422_2325, |h, b| {
+        (h ^ u64::from(*b)).wrapping_mul(0x0000_0100_0000_01b3)
     })
 }
