@@ -76,7 +76,7 @@ fn a_deliberately_wrong_expectation_fails() {
             "below the band",
         ),
         ("check = \"state\"\nat_ms = 15\nstate = \"off\"", "regulating at 15 ms"),
-        ("check = \"never-above\"\nmw = 20.5", "peak 23.92"),
+        ("check = \"never-above\"\nmw = 20.1", "peak 20.32"),
         (
             "check = \"fault\"\nfault = \"overcurrent\"\nafter_ms = 0\nwithin_ms = 120",
             "never latched",

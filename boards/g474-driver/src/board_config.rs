@@ -9,7 +9,7 @@ use diodestat_core::{
 
 /// `config().validate()?.fingerprint()` as the simulator computed it: the board computes it
 /// again at start and reports both (a hand-edited constant below makes them differ).
-pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0x4dc86c950807bfb1);
+pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0x7645e1773de632f8);
 
 /// Temperature table (counts, degC).
 pub const TEMP_TABLE: [TempPoint; 25] = [
@@ -146,11 +146,11 @@ pub fn config() -> Config {
         tick_hz: 20000, // 20000 Hz = 50 us per tick
         current: CurrentLimits {
             absolute_max_ma: Fx::from_bits(3932160), // 60 mA
-            ceiling_ma: Fx::from_bits(3276800),      // 50 mA
+            ceiling_ma: Fx::from_bits(3014656),      // 46 mA
         },
         power: PowerRange {
             min_setpoint_mw: Fx::from_bits(65536),   // 1 mW
-            max_setpoint_mw: Fx::from_bits(1966080), // 30 mW
+            max_setpoint_mw: Fx::from_bits(1638400), // 25 mW
         },
         ramp: Ramps {
             emission_delay_ms: 2,                        // 2 ms
