@@ -21,6 +21,7 @@ pub mod export;
 pub mod files;
 pub mod liv;
 pub mod locate;
+pub mod modulefile;
 pub mod oscillation;
 pub mod plant;
 pub mod progress;

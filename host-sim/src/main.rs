@@ -7,7 +7,6 @@ use std::time::Instant;
 use clap::{Parser, Subcommand};
 use diodestat_sim::boardfile::{load_board, LoadedBoard};
 use diodestat_sim::files::{self, Staging};
-use diodestat_sim::plant::DemoModule;
 use diodestat_sim::{check, report};
 
 mod loop_cmd;
@@ -42,10 +41,11 @@ enum Cmd {
         #[arg(long)]
         junit: Option<PathBuf>,
     },
-    /// L-I-V sweep of a demo module's diode: isothermal at junction temperatures, or CW with
+    /// L-I-V sweep of a module's diode: isothermal at junction temperatures, or CW with
     /// self-heating at case temperatures; threshold and slope marked (CSV and SVG).
     Liv {
-        /// Module: visible or pump.
+        /// Module file (TOML, e.g. examples/modules/demo-red-650.toml), or a built-in demo
+        /// module: visible or pump.
         module: String,
         /// Junction temperatures of isothermal sweeps, degC (-55 to 150; default 25 unless
         /// --case-c is given).
@@ -181,16 +181,6 @@ fn range_text(lo: f64, hi: f64, unit: &str) -> String {
 /// Most temperatures one `liv` sweep takes.
 const MAX_LIV_TEMPS: usize = 16;
 
-fn module_by_name(name: &str) -> Result<DemoModule, String> {
-    match name {
-        "visible" => Ok(DemoModule::visible()),
-        "pump" => Ok(DemoModule::pump()),
-        other => Err(format!(
-            "unknown module '{other}' (expected 'visible' or 'pump')"
-        )),
-    }
-}
-
 /// What a run streams to while it goes: `trace.csv` (into the staging
 /// folder, moved into place with the other outputs) and the progress bar.
 struct RunSink {
@@ -293,7 +283,10 @@ fn liv(
     out: &Path,
 ) -> Result<(), String> {
     use diodestat_sim::liv::{sweep, Heating};
-    let m = module_by_name(module)?;
+    let loaded = diodestat_sim::modulefile::resolve(module, Path::new(""), "MODULE")?;
+    let inputs: Vec<PathBuf> = loaded.path.iter().cloned().collect();
+    let m = loaded.module;
+    let module = loaded.name.as_str();
     let full_ma = m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3;
     if let Some(v) = max_ma.filter(|v| *v > full_ma) {
         return Err(format!(
@@ -309,7 +302,8 @@ fn liv(
             return Err(format!("{opt}: {n} temperatures; at most {MAX_LIV_TEMPS}"));
         }
     }
-    files::check_out_dir(out, "--out", &["liv.csv", "liv.svg"], &[]).map_err(|e| e.to_string())?;
+    files::check_out_dir(out, "--out", &["liv.csv", "liv.svg"], &inputs)
+        .map_err(|e| e.to_string())?;
     // Junction temperatures: as given, else 25 degC unless only case
     // temperatures were asked for.
     let junction: &[f64] = match temps_c {
@@ -389,6 +383,7 @@ fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
+    inputs.extend(b.module_file.clone());
     files::check_out_dir(out, "--out", &["campaign.md", "campaign.json"], &inputs)
         .map_err(|e| e.to_string())?;
     println!("{}", board_line(&b));
@@ -430,6 +425,7 @@ fn export(board: &Path, out: &Path) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
+    inputs.extend(b.module_file.clone());
     files::check_out_file(out, "--out", &inputs).map_err(|e| e.to_string())?;
     let src = diodestat_sim::export::rust_module(&b.name, &b.config);
     files::write_atomic(out, src.as_bytes()).map_err(|e| e.to_string())?;

@@ -18,7 +18,15 @@ fn scratch(tag: &str, files: &[(&str, String)]) -> PathBuf {
     let dir = std::env::temp_dir().join(format!("diodestat-expect-{tag}-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
-    std::fs::copy(example("demo-red-30/board.toml"), dir.join("board.toml")).unwrap();
+    // The board file with its module file beside it.
+    let board = std::fs::read_to_string(example("demo-red-30/board.toml")).unwrap();
+    let board = board.replace("\"../modules/demo-red-650.toml\"", "\"module.toml\"");
+    std::fs::write(dir.join("board.toml"), board).unwrap();
+    std::fs::copy(
+        example("modules/demo-red-650.toml"),
+        dir.join("module.toml"),
+    )
+    .unwrap();
     for (name, text) in files {
         std::fs::write(dir.join(name), text).unwrap();
     }
