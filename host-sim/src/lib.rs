@@ -19,6 +19,8 @@ pub mod check;
 pub mod expect;
 pub mod export;
 pub mod files;
+pub mod fit;
+pub mod fit_cmd;
 pub mod liv;
 pub mod locate;
 pub mod modulefile;

@@ -62,6 +62,26 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
+    /// Fit a module's diode to measured L-I-V sweeps (CSV) and write a module file, the fit
+    /// report and a plot of measured against fitted curves.
+    Fit {
+        /// Sweep file (CSV): a header with current_a|current_ma, power_w|power_mw,
+        /// voltage_v|voltage_mv and case_c|case_k; one row per point.
+        sweeps: PathBuf,
+        /// Module file giving every value the sweeps cannot (wavelength, reflectivities,
+        /// monitor, source, thermal path, sensor, converters).
+        #[arg(long)]
+        template: PathBuf,
+        /// Name of the fitted module (default: the sweep file's name with -fitted).
+        #[arg(long)]
+        name: Option<String>,
+        /// Slope step above threshold reported as a kink, fraction of the slope (0 to 1).
+        #[arg(long, default_value_t = diodestat_sim::fit::KINK_TOL, value_parser = finite_in(f64::MIN_POSITIVE, 1.0, ""))]
+        kink_tol: f64,
+        /// Output folder for module.toml, fit.md, fit.json and fit.svg.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
     /// Fault campaign: every injectable fault x moments x plant corners; exits non-zero on any unsafe case.
     Campaign {
         /// Board configuration file (TOML), e.g. examples/demo-pump-5w/board.toml.
@@ -421,6 +441,25 @@ fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
     }
 }
 
+fn fit_cmd(
+    sweeps: &Path,
+    template: &Path,
+    name: Option<&str>,
+    kink_tol: f64,
+    out: &Path,
+) -> Result<(), String> {
+    let done = diodestat_sim::fit_cmd::fit_command(sweeps, template, name, kink_tol, out)?;
+    print!("{}", done.markdown);
+    println!(
+        "wrote {}, {}, {} and {}",
+        out.join("module.toml").display(),
+        out.join("fit.md").display(),
+        out.join("fit.json").display(),
+        out.join("fit.svg").display()
+    );
+    Ok(())
+}
+
 fn export(board: &Path, out: &Path) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
     let mut inputs = vec![board.to_path_buf()];
@@ -451,6 +490,13 @@ fn main() -> ExitCode {
             out,
         } => liv(module, temps_c.as_deref(), case_c, *max_ma, out),
         Cmd::Export { board, out } => export(board, out),
+        Cmd::Fit {
+            sweeps,
+            template,
+            name,
+            kink_tol,
+            out,
+        } => fit_cmd(sweeps, template, name.as_deref(), *kink_tol, out),
         Cmd::Campaign { board, margin, out } => campaign(board, *margin, out),
         Cmd::LoopReport {
             boards,
