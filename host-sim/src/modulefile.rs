@@ -129,6 +129,10 @@ pub struct DiodeSection {
     /// Aging: relative slope loss per 1000 operating hours.
     #[serde(default)]
     pub slope_loss_per_khour: f64,
+    /// Highest junction temperature at which the diode lases, degC (above
+    /// it the threshold rises steeply); none when absent.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub max_operating_c: Option<f64>,
     /// Rate-equation structure; the reference in-plane structure when absent.
     #[serde(default)]
     pub structure: Option<StructureSection>,
@@ -302,6 +306,7 @@ impl DiodeSection {
             damage_filter_ns: self.damage_filter_ns,
             threshold_rise_per_khour: self.threshold_rise_per_khour,
             slope_loss_per_khour: self.slope_loss_per_khour,
+            max_operating_c: self.max_operating_c,
         };
         p.validate()
             .map_err(|e| diode_key(&e, self.structure.is_some()))?;
@@ -624,6 +629,7 @@ mod tests {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.0,
             slope_loss_per_khour: 0.0,
+            max_operating_c: None,
             structure: None,
         }
     }

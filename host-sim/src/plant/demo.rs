@@ -124,6 +124,7 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.01,
             slope_loss_per_khour: 0.005,
+            max_operating_c: None,
         }
     }
 
@@ -163,6 +164,7 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.02,
             slope_loss_per_khour: 0.01,
+            max_operating_c: None,
         }
     }
 
@@ -202,6 +204,7 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.005,
             slope_loss_per_khour: 0.003,
+            max_operating_c: None,
         }
     }
 }

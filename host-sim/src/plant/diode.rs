@@ -154,7 +154,19 @@ pub struct DiodeParams {
     pub threshold_rise_per_khour: f64,
     /// Aging: relative slope-efficiency loss per 1000 operating hours.
     pub slope_loss_per_khour: f64,
+    /// Highest junction temperature at which the diode lases, degC: above
+    /// it the threshold rises e-fold every [`CUTOFF_EFOLD_K`] on top of T0,
+    /// so lasing stops within a few kelvin. `None`: T0 holds at any
+    /// temperature.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub max_operating_c: Option<f64>,
 }
+
+/// Kelvin per e-fold of the threshold above the maximum operating
+/// temperature (a lumped description of the carrier-leakage cut-off; the
+/// 2 K is a modelling choice, not a measured figure: threshold x 150 at
+/// 10 K above).
+pub const CUTOFF_EFOLD_K: f64 = 2.0;
 
 /// Gain model converted to SI.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
@@ -383,6 +395,7 @@ struct Model {
     inv_t_ref: f64,
     inv_t0: f64,
     inv_t1: f64,
+    t_max_k: f64,
     lambda_ref: f64,
     drift: f64,
     n_vt_per_k: f64,
@@ -533,6 +546,9 @@ impl Model {
             inv_t_ref: 1.0 / t_ref_k,
             inv_t0: 1.0 / p.t0_k,
             inv_t1: 1.0 / p.t1_k,
+            t_max_k: p
+                .max_operating_c
+                .map_or(f64::INFINITY, |c| c + ZERO_CELSIUS_K),
             lambda_ref: p.wavelength_nm * 1e-9,
             drift: p.wavelength_drift_nm_per_k * 1e-9,
             n_vt_per_k: p.ideality * K_B / Q,
@@ -554,6 +570,16 @@ impl Model {
             sigma1: gamma * p.beta_sp * b,
             s3_1: -6.0 * gamma * tau_p * c,
         }
+    }
+}
+
+/// Extra threshold factor above the maximum operating temperature.
+#[inline]
+fn cutoff(t_k: f64, t_max_k: f64) -> f64 {
+    if t_k > t_max_k {
+        ((t_k - t_max_k) / CUTOFF_EFOLD_K).exp()
+    } else {
+        1.0
     }
 }
 
@@ -653,6 +679,12 @@ impl DiodeParams {
         )?;
         ensure(pos(self.t0_k), "t0_k", "must be > 0")?;
         ensure(pos(self.t1_k), "t1_k", "must be > 0")?;
+        ensure(
+            self.max_operating_c
+                .is_none_or(|c| c.is_finite() && c > self.t_ref_c),
+            "max_operating_c",
+            "must be above the reference temperature",
+        )?;
         ensure(pos(self.ideality), "ideality", "must be > 0")?;
         ensure(pos(self.i_s_a), "i_s_a", "must be > 0")?;
         ensure(
@@ -1377,7 +1409,7 @@ impl Diode {
     fn op(&self, t_k: f64) -> Op {
         let m = &self.m;
         let dt = t_k - m.t_ref_k;
-        let e0 = (dt * m.inv_t0).exp();
+        let e0 = (dt * m.inv_t0).exp() * cutoff(t_k, m.t_max_k);
         let e1 = (-dt * m.inv_t1).exp();
         let wavelength = m.lambda_ref + m.drift * dt;
         Op {
@@ -1395,7 +1427,7 @@ impl Diode {
     fn op_near(&mut self, t_k: f64) -> Op {
         let m = &self.m;
         let dt = t_k - m.t_ref_k;
-        let e0 = self.near.t0.exp(dt * m.inv_t0);
+        let e0 = self.near.t0.exp(dt * m.inv_t0) * cutoff(t_k, m.t_max_k);
         let e1 = self.near.t1.exp(-dt * m.inv_t1);
         let wavelength = m.lambda_ref + m.drift * dt;
         Op {
@@ -2093,5 +2125,33 @@ mod tests {
             assert!((a.p_front_w - b.p_front_w).abs() <= 1e-9 * b.p_front_w.max(1e-9));
         }
         assert!(fast.damaged());
+    }
+
+    /// Above the maximum operating temperature the threshold leaves the T0
+    /// law and rises steeply: at three times the 25 degC threshold the
+    /// diode lases normally up to it and goes dark 10 K above it.
+    #[test]
+    fn lasing_stops_above_the_maximum_operating_temperature() {
+        let mut p = DiodeParams::demo_visible();
+        let t0_law = Diode::new(p.clone()).unwrap();
+        p.max_operating_c = Some(60.0);
+        let d = Diode::new(p).unwrap();
+        let k = |c: f64| c + ZERO_CELSIUS_K;
+        for c in [25.0, 45.0, 60.0] {
+            assert_eq!(
+                d.threshold_current_a(k(c)),
+                t0_law.threshold_current_a(k(c))
+            );
+        }
+        let ratio = d.threshold_current_a(k(70.0)) / t0_law.threshold_current_a(k(70.0));
+        assert!((ratio / (10.0 / CUTOFF_EFOLD_K).exp() - 1.0).abs() < 1e-12);
+        let i = 3.0 * d.threshold_current_a(k(25.0));
+        let lasing = d.quasi_static(i, k(60.0)).p_front_w;
+        let dark = d.quasi_static(i, k(70.0)).p_front_w;
+        assert!(lasing > 0.01, "{lasing}");
+        assert!(dark < 1e-3 * lasing, "{dark} {lasing}");
+        let mut near = Diode::new(d.params().clone()).unwrap();
+        let fast = near.step_quasi_static(i, k(70.0)).p_front_w;
+        assert!((fast - dark).abs() <= 1e-9 * lasing, "{fast} {dark}");
     }
 }
