@@ -133,6 +133,10 @@ pub struct DiodeSection {
     /// it the threshold rises steeply); none when absent.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub max_operating_c: Option<f64>,
+    /// Relative fall of the facet-damage power per kelvin of junction
+    /// temperature above `reference_c`, 1/K (default 0).
+    #[serde(default)]
+    pub facet_damage_tc_per_k: f64,
     /// Rate-equation structure; the reference in-plane structure when absent.
     #[serde(default)]
     pub structure: Option<StructureSection>,
@@ -307,6 +311,7 @@ impl DiodeSection {
             threshold_rise_per_khour: self.threshold_rise_per_khour,
             slope_loss_per_khour: self.slope_loss_per_khour,
             max_operating_c: self.max_operating_c,
+            damage_tc_per_k: self.facet_damage_tc_per_k,
         };
         p.validate()
             .map_err(|e| diode_key(&e, self.structure.is_some()))?;
@@ -379,6 +384,8 @@ fn diode_key(e: &PlantError, has_structure: bool) -> KeyError {
         "r_front" => "diode.front_reflectivity".to_string(),
         "r_back" => "diode.back_reflectivity".to_string(),
         "i_s_activation_ev" => "diode.turn_on_activation_ev".to_string(),
+        "damage_tc_per_k" => "diode.facet_damage_tc_per_k".to_string(),
+        "damage_power_w" => "diode.facet_damage_mw".to_string(),
         "damage_filter_ns"
         | "threshold_rise_per_khour"
         | "slope_loss_per_khour"
@@ -630,6 +637,7 @@ mod tests {
             threshold_rise_per_khour: 0.0,
             slope_loss_per_khour: 0.0,
             max_operating_c: None,
+            facet_damage_tc_per_k: 0.0,
             structure: None,
         }
     }

@@ -125,6 +125,7 @@ impl DiodeParams {
             threshold_rise_per_khour: 0.01,
             slope_loss_per_khour: 0.005,
             max_operating_c: None,
+            damage_tc_per_k: 0.0,
         }
     }
 
@@ -165,6 +166,7 @@ impl DiodeParams {
             threshold_rise_per_khour: 0.02,
             slope_loss_per_khour: 0.01,
             max_operating_c: None,
+            damage_tc_per_k: 0.0,
         }
     }
 
@@ -205,6 +207,7 @@ impl DiodeParams {
             threshold_rise_per_khour: 0.005,
             slope_loss_per_khour: 0.003,
             max_operating_c: None,
+            damage_tc_per_k: 0.0,
         }
     }
 }

@@ -160,6 +160,12 @@ pub struct DiodeParams {
     /// temperature.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub max_operating_c: Option<f64>,
+    /// Relative fall of the facet-damage power per kelvin of junction
+    /// temperature above `t_ref_c` (it rises as much below), 1/K:
+    /// `P_damage(T) = damage_power_w (1 - tc (T - T_ref))`, kept within
+    /// 0.05 ..= 2 times `damage_power_w`. 0 (the default): no dependence.
+    #[serde(default)]
+    pub damage_tc_per_k: f64,
 }
 
 /// Kelvin per e-fold of the threshold above the maximum operating
@@ -404,6 +410,7 @@ struct Model {
     act_k: f64,
     r_s: f64,
     damage_w: f64,
+    damage_tc: f64,
     damage_tau: f64,
     rise: f64,
     loss: f64,
@@ -557,6 +564,7 @@ impl Model {
             act_k: p.i_s_activation_ev * Q / (p.ideality * K_B),
             r_s: p.r_s_ohm,
             damage_w: p.damage_power_w,
+            damage_tc: p.damage_tc_per_k,
             damage_tau: p.damage_filter_ns * 1e-9,
             rise: p.threshold_rise_per_khour,
             loss: p.slope_loss_per_khour,
@@ -694,6 +702,11 @@ impl DiodeParams {
         )?;
         ensure(nonneg(self.r_s_ohm), "r_s_ohm", "must be >= 0")?;
         ensure(pos(self.damage_power_w), "damage_power_w", "must be > 0")?;
+        ensure(
+            nonneg(self.damage_tc_per_k) && self.damage_tc_per_k < 0.1,
+            "damage_tc_per_k",
+            "must be in 0 ..< 0.1 per K",
+        )?;
         ensure(
             nonneg(self.damage_filter_ns),
             "damage_filter_ns",
@@ -1566,7 +1579,7 @@ impl Diode {
         self.n = n;
         self.s = s;
         self.p_filt = out.p_front_w;
-        self.check_damage(out.p_front_w);
+        self.check_damage_at(out.p_front_w, t_k);
         out
     }
 
@@ -1607,15 +1620,30 @@ impl Diode {
         self.n = out.n_m3;
         self.s = out.s_m3;
         self.p_filt = out.p_front_w;
-        self.check_damage(out.p_front_w);
+        self.check_damage_at(out.p_front_w, t_k);
         out
     }
 
-    /// Latches facet damage if `p_front_w` exceeds the damage limit; returns
-    /// whether the facet is (now) destroyed.
+    /// Latches facet damage if `p_front_w` exceeds the damage limit at the
+    /// reference temperature; returns whether the facet is (now) destroyed.
     #[inline]
     pub fn check_damage(&mut self, p_front_w: f64) -> bool {
-        if !self.damaged && p_front_w > self.m.damage_w {
+        self.check_damage_at(p_front_w, self.m.t_ref_k)
+    }
+
+    /// Facet-damage power at junction temperature `t_k`, W.
+    #[inline]
+    pub fn damage_power_w(&self, t_k: f64) -> f64 {
+        let m = &self.m;
+        m.damage_w * (1.0 - m.damage_tc * (t_k - m.t_ref_k)).clamp(0.05, 2.0)
+    }
+
+    /// Latches facet damage if `p_front_w` exceeds the damage limit at
+    /// junction temperature `t_k`; returns whether the facet is (now)
+    /// destroyed.
+    #[inline]
+    pub fn check_damage_at(&mut self, p_front_w: f64, t_k: f64) -> bool {
+        if !self.damaged && p_front_w > self.damage_power_w(t_k) {
             self.damaged = true;
             self.s = 0.0;
         }
@@ -1641,7 +1669,8 @@ impl Diode {
         if remaining > 0.0 && !self.damaged {
             let m = &self.m;
             let p_per_s = op.hnu * m.power_coef * m.alpha_m1 * m.s_scale;
-            let (damage_w, tau) = (m.damage_w, m.damage_tau);
+            let tau = m.damage_tau;
+            let damage_w = m.damage_w * (1.0 - m.damage_tc * (t_k - m.t_ref_k)).clamp(0.05, 2.0);
             let mut p_filt = self.p_filt;
             let mut rhs = |y: [f64; 2], want: bool| rate_rhs(m, op.f, j, true, y, want);
             let (st, t_done) = integrate_rodas4_observed(
@@ -2153,5 +2182,48 @@ mod tests {
         let mut near = Diode::new(d.params().clone()).unwrap();
         let fast = near.step_quasi_static(i, k(70.0)).p_front_w;
         assert!((fast - dark).abs() <= 1e-9 * lasing, "{fast} {dark}");
+    }
+
+    /// With a damage temperature coefficient the facet fails at a lower
+    /// power when hot: 55 mW is safe at 25 degC (limit 60 mW) and destroys
+    /// the facet at 65 degC (limit 60 mW x 0.8 = 48 mW), in both solvers.
+    #[test]
+    fn facet_damage_level_falls_with_temperature() {
+        let mut p = DiodeParams::demo_visible();
+        p.damage_tc_per_k = 0.005;
+        let probe = Diode::new(p.clone()).unwrap();
+        let (cold, hot) = (25.0 + ZERO_CELSIUS_K, 65.0 + ZERO_CELSIUS_K);
+        assert!((probe.damage_power_w(hot) - 0.048).abs() < 1e-12);
+        // The current giving 55 mW at each temperature.
+        let current_for = |t_k: f64| {
+            let (mut lo, mut hi) = (0.0, 0.2);
+            for _ in 0..60 {
+                let mid = 0.5 * (lo + hi);
+                if probe.quasi_static(mid, t_k).p_front_w < 0.055 {
+                    lo = mid;
+                } else {
+                    hi = mid;
+                }
+            }
+            hi
+        };
+        for fast in [true, false] {
+            let mut d = Diode::new(p.clone()).unwrap();
+            let step = |d: &mut Diode, i: f64, t: f64| {
+                if fast {
+                    d.step_quasi_static(i, t)
+                } else {
+                    d.step_quasi_static_reference(i, t)
+                }
+            };
+            step(&mut d, current_for(cold), cold);
+            assert!(!d.damaged());
+            step(&mut d, current_for(hot), hot);
+            assert!(d.damaged());
+        }
+        // Without the coefficient 55 mW is safe when hot too.
+        let mut d = Diode::new(DiodeParams::demo_visible()).unwrap();
+        d.step_quasi_static(current_for(hot), hot);
+        assert!(!d.damaged());
     }
 }
