@@ -13,6 +13,8 @@ use crate::units::{ms_to_ticks, per_tick, scale_counts, Fx, Gain};
 /// The complete board configuration, in engineering units.
 #[derive(Clone, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Config {
     /// Control tick rate in hertz (one `step` per tick).
     pub tick_hz: u32,
@@ -42,6 +44,8 @@ pub struct Config {
 /// compliance, a shorted diode below a floor, while the source drives.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct ForwardVoltage {
     /// The channel's calibration, mV.
     pub cal: AdcCal,
@@ -63,6 +67,8 @@ pub const DIODE_POINTS: usize = 8;
 /// The healthy diode at one temperature, for [`Plausibility`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct DiodePoint {
     /// Case temperature as the core measures it, degC.
     pub degc: Fx,
@@ -82,6 +88,8 @@ pub struct DiodePoint {
 /// [`crate::protect::SLOW_EVERY`] ticks and held in between.
 #[derive(Clone, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Plausibility {
     /// The healthy diode over temperature, temperatures strictly increasing.
     pub points: heapless::Vec<DiodePoint, DIODE_POINTS>,
@@ -99,6 +107,8 @@ pub struct Plausibility {
 /// Drive-current limits.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct CurrentLimits {
     /// Absolute maximum current of the diode (datasheet rating), mA.
     pub absolute_max_ma: Fx,
@@ -109,6 +119,8 @@ pub struct CurrentLimits {
 /// Accepted optical power setpoints, front-facet mW as calibrated on the monitor.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct PowerRange {
     /// Lowest setpoint, mW.
     pub min_setpoint_mw: Fx,
@@ -120,6 +132,8 @@ pub struct PowerRange {
 /// per-tick steps once.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Ramps {
     /// Delay between the enable request and the start of current, ms (may be 0).
     pub emission_delay_ms: u32,
@@ -138,6 +152,8 @@ pub struct Ramps {
 /// Gains and slew limit of the discrete PI power loop and the ACC slew.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct ApcGains {
     /// Proportional gain, mA per mW of error.
     pub kp_ma_per_mw: Fx,
@@ -151,6 +167,8 @@ pub struct ApcGains {
 /// the cut-off, over-temperature fault at and beyond the cut-off.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Derating {
     /// Temperature where derating starts, degC.
     pub knee_degc: Fx,
@@ -163,9 +181,11 @@ pub struct Derating {
 /// Protection limits. A limit is the first value that trips; a debounce `N`
 /// is the number of consecutive ticks a steady condition must hold
 /// (1 = at once). Conditions that come and go are integrated: see
-/// [`Protection::intermittent_weight`] and [`crate::protect`].
+/// [`Protection::intermittent_weight`] and `protect.rs`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Protection {
     /// Overcurrent trip, mA (sensed).
     pub overcurrent_ma: Fx,
@@ -205,7 +225,7 @@ pub struct Protection {
     /// Weight `w` of a tick with the condition present in the leaky
     /// debounce (a clean tick counts −1, a protection trips at `w × N`): a
     /// condition present in more than `1 / (w + 1)` of the ticks trips
-    /// within the bound documented in [`crate::protect`]. 1 to
+    /// within the bound documented in `protect.rs`. 1 to
     /// [`MAX_INTERMITTENT_WEIGHT`].
     pub intermittent_weight: u16,
 }
@@ -246,6 +266,8 @@ pub const fn debounce_key(fault: Fault) -> &'static str {
 /// A linear ADC channel: `value = (counts - offset_counts) × units_per_count`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct AdcCal {
     /// Reading at zero input, counts.
     pub offset_counts: i32,
@@ -258,6 +280,8 @@ pub struct AdcCal {
 /// The DAC that sets the current source: `code = drive_ma × codes_per_ma + offset_codes`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct DacCal {
     /// Codes per mA.
     pub codes_per_ma: Fx,
@@ -270,6 +294,7 @@ pub struct DacCal {
 /// Which ADC rail an open temperature sensor reads.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum Rail {
     /// Open sensor reads at or above `high_fault_counts`.
     High,
@@ -281,6 +306,8 @@ pub enum Rail {
 /// the sensor's published equation, and the rails that mean open or short.
 #[derive(Clone, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct TempCal {
     /// Points sorted by strictly increasing counts; temperatures strictly
     /// monotonic (rising or falling).
@@ -296,6 +323,8 @@ pub struct TempCal {
 /// All calibration.
 #[derive(Clone, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Calibration {
     /// Monitor photodiode channel, in front-facet mW.
     pub monitor: AdcCal,
@@ -1178,7 +1207,7 @@ fn ki_per_tick(ki_ma_per_mw_ms: Fx, tick_hz: u32) -> Option<Gain> {
 /// saturating add of the offset lands on the same side of the clamp limits
 /// as the exact 64-bit sum, so the code is the same.
 #[inline]
-fn dac_code_clamped(dac: &DacCal, ma: Fx) -> u16 {
+pub(crate) fn dac_code_clamped(dac: &DacCal, ma: Fx) -> u16 {
     let wide = i64::from(ma.to_bits()) * i64::from(dac.codes_per_ma.to_bits());
     let scaled = (wide.wrapping_add(1 << 31) >> 32) as i32;
     let code = scaled.saturating_add(dac.offset_codes);

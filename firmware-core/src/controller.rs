@@ -92,7 +92,7 @@ impl Controller {
     }
 
     /// A controller for `cfg` that takes back the latch stored before a
-    /// reset ([`crate::persist`]): latched again if it was latched, with
+    /// reset ([`crate::LatchRecord`]): latched again if it was latched, with
     /// the first-fault record in its log. A refused record starts it
     /// latched with [`Fault::RecordCorrupt`] (logged at tick 0, measured:
     /// [`RestoreError::code`]); only `ClearFaults` leaves either latch.

@@ -7,7 +7,7 @@
 use crate::units::Fx;
 
 /// One protection of the core. Each has its own limit and debounce in
-/// [`crate::config::Protection`]; see [`crate::protect`] for the checks.
+/// [`crate::config::Protection`]; see `protect.rs` for the checks.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[repr(u8)]
@@ -53,7 +53,7 @@ pub enum Fault {
     /// The board's external fault input is asserted (a hardware comparator
     /// trip, a watchdog pre-warning) (fast).
     ExternalFault = 15,
-    /// A write to the current DAC failed (the edge, [`crate::edge`]).
+    /// A write to the current DAC failed (the edge, [`crate::DriverBoard`]).
     /// Measured: the code written; limit: the configuration's largest code.
     DacBus = 16,
     /// The enable line could not be driven (the edge). Measured: the level
@@ -63,7 +63,7 @@ pub enum Fault {
     /// as open. Measured: 0 (read as open); limit: 1 (closed).
     InterlockPin = 18,
     /// The latch record stored before a reset was refused at boot
-    /// ([`crate::persist`]): the controller starts latched. Measured: the
+    /// ([`crate::LatchRecord`]): the controller starts latched. Measured: the
     /// cause ([`crate::persist::RestoreError::code`]); limit: 0.
     RecordCorrupt = 19,
 }
@@ -117,8 +117,8 @@ impl Fault {
     }
 
     /// Whether this fault is latched outside [`crate::Controller::step`]
-    /// (by the hardware edge on a failed call, [`crate::edge`], or at boot,
-    /// [`crate::persist`]) rather than by a protection on a sample.
+    /// (by the hardware edge on a failed call, [`crate::DriverBoard`], or at boot,
+    /// [`crate::LatchRecord`]) rather than by a protection on a sample.
     pub const fn is_latched_outside_step(self) -> bool {
         matches!(
             self,
@@ -383,7 +383,7 @@ impl FaultLog {
     /// Continue with [`Unread::resume`].
     ///
     /// ```
-    /// use diodestat_core::fault::{Cursor, FaultLog};
+    /// use diodestat_core::{Cursor, FaultLog};
     /// let log = FaultLog::new();
     /// let mut cursor = Cursor::default();
     /// // each time the reader looks:

@@ -30,7 +30,7 @@ pub struct Sample {
     pub external_fault: bool,
 }
 
-/// Controller state. See [`crate::controller`] for the transitions.
+/// Controller state. See [`crate::Controller`] for the transitions.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum State {

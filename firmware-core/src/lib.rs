@@ -8,22 +8,44 @@
 //!
 //! The core is sans-IO: the board hands it one [`Sample`] of raw ADC counts
 //! per tick and applies the [`Drive`] it returns (DAC code and enable line).
-//! It never reads a clock or a register. Hardware meets it only in [`edge`],
-//! behind embedded-hal 1.0 traits.
+//! It never reads a clock or a register. Hardware meets it only in
+//! [`DriverBoard`], behind embedded-hal 1.0 traits.
 //!
 //! **Safety.** Firmware protection complements, never replaces, a hardware
 //! current limit, interlock gating of the enable line, an independent
 //! watchdog and eye protection. Follow IEC 60825-1, local regulations and
 //! your site's laser safety officer.
 //!
-//! Where to look:
-//! - the state machine and the tick sequence: [`controller`];
-//! - the power loop: [`apc`];
-//! - every protection, its limit, debounce and arming: [`protect`];
-//! - the configuration and each reason it is refused: [`config`];
-//! - the fault log and its reader: [`fault`]; the latch across a reset:
-//!   [`persist`], kept in flash by [`store`]; requests from thread mode to
-//!   the tick: [`mailbox`].
+//! Everything a board uses is re-exported here, flat; the modules are
+//! private. By use:
+//! - start-up: a [`Config`] (its sections [`CurrentLimits`], [`PowerRange`],
+//!   [`Ramps`], [`ApcGains`], [`Derating`], [`Protection`], [`Calibration`]
+//!   and the optional [`ForwardVoltage`] and [`Plausibility`]) checked once
+//!   by [`Config::validate`] into a [`ValidConfig`], or refused with a
+//!   [`ConfigError`] that names the field and its value;
+//!   [`ValidConfig::fingerprint`] identifies it ([`Fingerprint`]);
+//! - every tick: [`Controller::step`] takes a [`Sample`] of raw counts and
+//!   returns a [`Drive`]; requests ([`Request`], refused with a
+//!   [`Rejection`]) arrive through [`Controller::request`], from thread mode
+//!   through a [`Mailbox`];
+//! - the hardware edge (embedded-hal 1.0): [`DriverBoard`] around a
+//!   [`CurrentDac`] ([`SpiDac`], [`PwmDac`]) and the enable and interlock
+//!   pins; every hardware error latches its own fault ([`EdgeError`]);
+//! - faults: [`Fault`], [`FaultSet`], the log [`FaultLog`] read through a
+//!   [`Cursor`]; the latch across a reset: [`LatchRecord`], kept in flash
+//!   by [`LatchStore`];
+//! - counts and engineering units: [`Fx`] and [`Gain`], the conversions of
+//!   an ADC channel ([`AdcCal::to_units`], [`AdcCal::counts_for`]) and of
+//!   the DAC ([`DacCal::code`]), and those of a validated configuration
+//!   ([`ValidConfig::monitor_mw`], [`ValidConfig::current_ma`],
+//!   [`ValidConfig::supply_mv`], [`ValidConfig::counts_to_degc`],
+//!   [`ValidConfig::dac_code`]).
+//!
+//! Features (all off by default): `defmt` derives `defmt::Format` on every
+//! public type; `serde` derives `Serialize` and `Deserialize` on the
+//! configuration types (no_std: serde without its default features);
+//! `demo` adds `example::config()`, an invented demo configuration for
+//! examples, tests and the QEMU images, never for a product.
 //!
 //! ```
 //! use diodestat_core::{Controller, Request, Sample, Fx};
@@ -57,25 +79,41 @@
     )
 )]
 
-pub mod apc;
-pub mod config;
-pub mod controller;
-pub mod edge;
+mod apc;
+mod config;
+mod controller;
+mod edge;
+#[cfg(any(test, feature = "demo"))]
 pub mod example;
-pub mod fault;
-pub mod io;
-pub mod mailbox;
-pub mod persist;
-pub mod protect;
-pub mod request;
-pub mod store;
-pub mod temp_table;
-pub mod units;
+mod fault;
+mod fingerprint;
+mod io;
+mod mailbox;
+mod persist;
+mod protect;
+mod request;
+mod store;
+mod temp_table;
+mod units;
 
-pub use config::{Config, ConfigError, ValidConfig};
+pub use config::{
+    debounce_key, debounce_ticks, fast_debounce_max, AdcCal, ApcGains, Calibration, Channel,
+    Config, ConfigError, CurrentLimits, DacCal, Derating, DiodePoint, ForwardVoltage, Plausibility,
+    PowerRange, Protection, Rail, RampKind, Ramps, TempCal, ValidConfig, DIODE_POINTS,
+    FAST_DEBOUNCE_MAX_US, MAX_INTERMITTENT_WEIGHT, TEMP_COVER_MARGIN_DEGC,
+};
 pub use controller::Controller;
-pub use fault::{Fault, FaultLog, FaultRecord, FaultSet};
+pub use edge::{
+    AdcCounts, CurrentDac, DacRangeError, DacWidth, DriverBoard, EdgeError, EdgeErrorOf,
+    InterlockLevel, PwmDac, SpiDac, StartError, StartResult,
+};
+pub use fault::{Cursor, Entry, Fault, FaultLog, FaultRecord, FaultSet, Unread, FAULT_RING_LEN};
+pub use fingerprint::Fingerprint;
 pub use io::{Drive, Mode, Sample, State, Status, Warnings};
+pub use mailbox::{Full, Mailbox, Packed, MESSAGE_WORDS};
+pub use persist::{crc32, LatchRecord, RestoreError, LATCH_RECORD_LEN};
+pub use protect::{Measurements, SLOW_EVERY};
 pub use request::{Rejection, Request};
-pub use temp_table::TempPoint;
+pub use store::{LatchStore, StoreError, MAX_SLOT_LEN};
+pub use temp_table::{TempPoint, TEMP_TABLE_LEN};
 pub use units::{Fx, Gain};

@@ -13,6 +13,8 @@ pub const TEMP_TABLE_LEN: usize = 33;
 /// One calibration point of the temperature sensor channel.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct TempPoint {
     /// Raw ADC counts.
     pub counts: u16,

@@ -1,9 +1,14 @@
-//! Fixed-point number types and the few unit conversions the core needs.
+//! Fixed-point number types and the conversions between counts and
+//! engineering units: of an ADC channel ([`AdcCal::to_units`],
+//! [`AdcCal::counts_for`]) and of the current DAC ([`DacCal::code`]), plus
+//! the core's private rate and time helpers.
 //!
 //! Engineering values are [`Fx`] (`I16F16`: ±32 767 with a resolution of
 //! 1/65 536) and carry their unit in the field name: `_ma` milliampere,
 //! `_mw` milliwatt, `_mv` millivolt, `_degc` degree Celsius. Calibration gains
 //! per ADC count need finer resolution and are [`Gain`] (`I8F24`).
+
+use crate::config::{dac_code_clamped, AdcCal, DacCal};
 
 /// The core's engineering value: a signed 16.16 fixed-point number.
 pub type Fx = fixed::types::I16F16;
@@ -11,6 +16,46 @@ pub type Fx = fixed::types::I16F16;
 /// A fine-resolution gain (signed 8.24 fixed point): units per ADC count,
 /// or the integral gain per tick.
 pub type Gain = fixed::types::I8F24;
+
+impl AdcCal {
+    /// The engineering value of a raw reading, in the channel's unit:
+    /// `(counts - offset_counts) × units_per_count`, rounded toward minus
+    /// infinity to the [`Fx`] resolution and saturated at its range. The
+    /// conversion the core itself applies every tick.
+    #[inline]
+    pub fn to_units(&self, counts: u16) -> Fx {
+        scale_counts(i32::from(counts) - self.offset_counts, self.units_per_count)
+    }
+
+    /// The reading at which the channel shows `value` (a comparator or
+    /// window threshold in counts, say): `offset_counts + value /
+    /// units_per_count`, rounded to the nearest count (halves up) and held
+    /// within `[0, full_scale_counts]`. `None` when `units_per_count` is not
+    /// positive (a configuration [`crate::Config::validate`] refuses).
+    pub fn counts_for(&self, value: Fx) -> Option<u16> {
+        let den = i64::from(self.units_per_count.to_bits());
+        if den <= 0 {
+            return None;
+        }
+        // value has 16 fractional bits, the gain 24: shift value up by 8.
+        let num = i64::from(value.to_bits()) << 8;
+        let steps = (2 * num + den).div_euclid(2 * den);
+        let counts = steps.saturating_add(i64::from(self.offset_counts));
+        let top = i64::from(self.full_scale_counts);
+        Some(counts.clamp(0, top) as u16)
+    }
+}
+
+impl DacCal {
+    /// The DAC code for a drive current in mA: `ma × codes_per_ma +
+    /// offset_codes`, rounded to the nearest code and held within
+    /// `[0, max_code]`. The conversion the core applies to every drive it
+    /// returns.
+    #[inline]
+    pub fn code(&self, ma: Fx) -> u16 {
+        dac_code_clamped(self, ma)
+    }
+}
 
 /// Saturate an `i64` into the `i32` range.
 #[inline]
@@ -118,6 +163,60 @@ mod tests {
                     "{counts} × {gain_bits}"
                 );
             }
+        }
+    }
+
+    fn cal(offset_counts: i32, gain_bits: i32, full_scale_counts: u16) -> AdcCal {
+        AdcCal {
+            offset_counts,
+            units_per_count: Gain::from_bits(gain_bits),
+            full_scale_counts,
+        }
+    }
+
+    #[test]
+    fn counts_for_rounds_to_the_nearest_count_within_the_range() {
+        // 0.5 mA per count from an offset of 10 counts, 12 bits.
+        let c = cal(10, 1 << 23, 4095);
+        assert_eq!(c.to_units(12), Fx::from_num(1));
+        assert_eq!(c.counts_for(Fx::from_num(1)), Some(12));
+        // 1.24 mA is 2.48 counts: 2 counts; 1.25 mA, 2.5 counts: halves up.
+        assert_eq!(c.counts_for(Fx::from_num(1.24)), Some(12));
+        assert_eq!(c.counts_for(Fx::from_num(1.25)), Some(13));
+        // Below zero counts and above full scale: held at the ends.
+        assert_eq!(c.counts_for(Fx::from_num(-100)), Some(0));
+        assert_eq!(c.counts_for(Fx::from_num(-5)), Some(0));
+        assert_eq!(c.counts_for(Fx::from_num(-4.75)), Some(1));
+        assert_eq!(c.counts_for(Fx::MAX), Some(4095));
+        assert_eq!(cal(0, 0, 4095).counts_for(Fx::ONE), None);
+        assert_eq!(cal(0, -5, 4095).counts_for(Fx::ONE), None);
+    }
+
+    proptest::proptest! {
+        /// A reading converted to units and back is the same reading, for
+        /// every gain of at least 2^-14 units per count (coarser than the
+        /// `Fx` resolution) that keeps the full scale inside the `Fx` range.
+        #[test]
+        fn counts_for_inverts_to_units(
+            offset in 0i32..2048,
+            gain_bits in 1024i32..(1 << 24),
+            counts in 0u16..=4095,
+        ) {
+            let c = cal(offset, gain_bits, 4095);
+            proptest::prop_assert_eq!(c.counts_for(c.to_units(counts)), Some(counts));
+        }
+
+        /// `DacCal::code` is the clamped, rounded code the core sends.
+        #[test]
+        fn dac_code_is_the_clamped_rounded_code(
+            ma_bits in 0i32..(100 << 16),
+            codes_bits in 1i32..(200 << 16),
+            offset in -100i32..100,
+        ) {
+            let d = DacCal { codes_per_ma: Fx::from_bits(codes_bits), offset_codes: offset, max_code: 4095 };
+            let exact = i64::from(ma_bits) * i64::from(codes_bits);
+            let want = (((exact + (1 << 31)) >> 32) + i64::from(offset)).clamp(0, 4095) as u16;
+            proptest::prop_assert_eq!(d.code(Fx::from_bits(ma_bits)), want);
         }
     }
 

@@ -3,8 +3,10 @@
 //! variant with the values it carries. Where a limit has a boundary, the
 //! value just inside it is accepted.
 
-use diodestat_core::config::{AdcCal, Channel, DiodePoint, ForwardVoltage, Plausibility, RampKind};
-use diodestat_core::{example, Config, ConfigError, Fault, Fx, Gain};
+use diodestat_core::{
+    example, AdcCal, Channel, Config, ConfigError, DiodePoint, Fault, ForwardVoltage, Fx, Gain,
+    Plausibility, RampKind,
+};
 use fixed::types::I40F24;
 use std::collections::BTreeSet;
 

@@ -8,10 +8,10 @@
 mod common;
 
 use common::*;
-use diodestat_core::edge::{
-    AdcCounts, CurrentDac, DacRangeError, DacWidth, DriverBoard, InterlockLevel, PwmDac, SpiDac,
+use diodestat_core::{
+    AdcCounts, Controller, CurrentDac, DacRangeError, DacWidth, DriverBoard, Fault, Fx,
+    InterlockLevel, Mode, PwmDac, Rejection, Request, SpiDac, State, ValidConfig,
 };
-use diodestat_core::{Controller, Fault, Fx, Mode, Rejection, Request, State, ValidConfig};
 use embedded_hal::digital::{ErrorType, OutputPin};
 use embedded_hal_mock::eh1::digital::{Mock as Pin, State as Level, Transaction as PinT};
 use embedded_hal_mock::eh1::pwm::{Mock as Pwm, Transaction as PwmT};

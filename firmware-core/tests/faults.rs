@@ -7,9 +7,9 @@
 mod common;
 
 use common::*;
-use diodestat_core::config::Rail;
-use diodestat_core::fault::FAULT_RING_LEN;
-use diodestat_core::{Fault, FaultRecord, Fx, Mode, Request, Sample, State, ValidConfig};
+use diodestat_core::{
+    Fault, FaultRecord, Fx, Mode, Rail, Request, Sample, State, ValidConfig, FAULT_RING_LEN,
+};
 
 fn fx(v: f64) -> Fx {
     Fx::from_num(v)
@@ -17,7 +17,7 @@ fn fx(v: f64) -> Fx {
 
 /// The configured debounce of a fault (the tick-index faults have none: 1).
 fn debounce(cfg: &ValidConfig, f: Fault) -> u16 {
-    diodestat_core::config::debounce_ticks(cfg.config(), f)
+    diodestat_core::debounce_ticks(cfg.config(), f)
 }
 
 /// The demo with the fast faults debounced over several ticks, so that
@@ -439,9 +439,9 @@ fn matrix_cfg() -> ValidConfig {
 
 /// A forward-voltage channel for the tests: 1 mV per count, open at
 /// 3 000 mV, short at 500 mV, from 1 mA.
-fn forward_demo() -> diodestat_core::config::ForwardVoltage {
-    diodestat_core::config::ForwardVoltage {
-        cal: diodestat_core::config::AdcCal {
+fn forward_demo() -> diodestat_core::ForwardVoltage {
+    diodestat_core::ForwardVoltage {
+        cal: diodestat_core::AdcCal {
             offset_counts: 0,
             units_per_count: diodestat_core::Gain::ONE,
             full_scale_counts: FS,
@@ -458,13 +458,13 @@ fn forward_demo() -> diodestat_core::config::ForwardVoltage {
 /// the 5 mW the matrix's monitor reads is plausible: the bound is 10.75 mA),
 /// debounced over longer than monitor loss (a dark monitor with current is
 /// implausible too).
-fn plausibility_demo() -> diodestat_core::config::Plausibility {
-    let pt = |t: f64| diodestat_core::config::DiodePoint {
+fn plausibility_demo() -> diodestat_core::Plausibility {
+    let pt = |t: f64| diodestat_core::DiodePoint {
         degc: fx(t),
         threshold_ma: fx(0.5),
         slope_mw_per_ma: fx(0.55),
     };
-    diodestat_core::config::Plausibility {
+    diodestat_core::Plausibility {
         points: heapless::Vec::from_slice(&[pt(-20.0), pt(100.0)]).unwrap(),
         warning_margin: fx(0.05),
         fault_margin: fx(0.1),
@@ -579,7 +579,7 @@ fn each_protection_is_armed_exactly_where_documented() {
             // The slow check is evaluated every `SLOW_EVERY` ticks.
             let n = u32::from(debounce(r.cfg(), f))
                 + if f == Fault::PowerImplausible {
-                    diodestat_core::protect::SLOW_EVERY
+                    diodestat_core::SLOW_EVERY
                 } else {
                     0
                 };

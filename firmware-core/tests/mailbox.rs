@@ -2,8 +2,7 @@
 //! shared `static`, as thread mode and the tick interrupt use it. Every
 //! message arrives once, in order, none lost, none made up.
 
-use diodestat_core::mailbox::{Full, Mailbox};
-use diodestat_core::{Fx, Request};
+use diodestat_core::{Full, Fx, Mailbox, Request};
 use std::thread;
 
 static BOX: Mailbox<Request, 8> = Mailbox::new();

@@ -6,9 +6,10 @@
 mod common;
 
 use common::*;
-use diodestat_core::fault::{Cursor, Entry, FaultRecord};
-use diodestat_core::persist::{LatchRecord, RestoreError, LATCH_RECORD_LEN};
-use diodestat_core::{Controller, Fault, FaultSet, Fx, Mode, Rejection, Request, Sample, State};
+use diodestat_core::{
+    Controller, Cursor, Entry, Fault, FaultRecord, FaultSet, Fx, LatchRecord, Mode, Rejection,
+    Request, RestoreError, Sample, State, LATCH_RECORD_LEN,
+};
 use proptest::prelude::*;
 
 /// A rig regulating in ACC, then tripped by the interlock opening.

@@ -275,7 +275,7 @@ mod properties {
 /// worth of current.
 #[test]
 fn a_degrading_monitor_warns_then_trips_the_plausibility_check() {
-    use diodestat_core::config::{DiodePoint, Plausibility};
+    use diodestat_core::{DiodePoint, Plausibility};
     let pt = |t: f64| DiodePoint {
         degc: fx(t),
         threshold_ma: fx(25.0),
@@ -326,8 +326,7 @@ fn a_degrading_monitor_warns_then_trips_the_plausibility_check() {
 /// driving; recorded with the reading and the limit in mV.
 #[test]
 fn forward_voltage_open_and_short_at_their_limits() {
-    use diodestat_core::config::{AdcCal, ForwardVoltage};
-    use diodestat_core::{FaultRecord, Gain};
+    use diodestat_core::{AdcCal, FaultRecord, ForwardVoltage, Gain};
     let cfg = demo_with(|c| {
         c.forward_voltage = Some(ForwardVoltage {
             cal: AdcCal {

@@ -98,7 +98,7 @@ fn emission_delay_is_whole_ticks_rounded_up() {
             c.tick_hz = hz;
             c.ramp.emission_delay_ms = ms;
             // A fast debounce is bounded in time (500 us).
-            let fast_max = diodestat_core::config::fast_debounce_max(hz);
+            let fast_max = diodestat_core::fast_debounce_max(hz);
             c.protection.mismatch_debounce = c.protection.mismatch_debounce.min(fast_max);
         });
         let n = ticks_for_ms(ms, hz);

@@ -7,9 +7,10 @@
 mod common;
 
 use common::*;
-use diodestat_core::persist::{LatchRecord, LATCH_RECORD_LEN};
-use diodestat_core::store::{LatchStore, StoreError};
-use diodestat_core::{Controller, Fault, FaultSet, Fx, Request, State};
+use diodestat_core::{
+    Controller, Fault, FaultSet, Fx, LatchRecord, LatchStore, Request, State, StoreError,
+    LATCH_RECORD_LEN,
+};
 use embedded_storage::nor_flash::{ErrorType, NorFlash, NorFlashErrorKind, ReadNorFlash};
 
 const ERASE: usize = 256;

@@ -1,5 +1,5 @@
 //! Fuzz target: board files. Any text either loads (and then exports to
-//! source whose hash line and name comment are intact) or is refused with a
+//! source whose fingerprint line and name comment are intact) or is refused with a
 //! message; never a panic, a hang or unbounded memory.
 #![no_main]
 
@@ -15,9 +15,9 @@ fuzz_target!(|data: &[u8]| {
     match diodestat_sim::boardfile::parse_board(text, Path::new("fuzz-no-such-folder")) {
         Ok(b) => {
             assert!(diodestat_sim::boardfile::name_is_plain(&b.name));
-            let src = diodestat_sim::export::rust_module(&b.name, &b.config);
+            let src = diodestat_sim::export::rust_module(&b.name, &b.valid);
             assert_eq!(src.lines().next().map(|l| l.starts_with("//! ")), Some(true));
-            assert!(src.contains("pub const CONFIG_HASH"));
+            assert!(src.contains(&format!("Fingerprint::from_u64(0x{})", b.valid.fingerprint())));
         }
         Err(e) => {
             let msg = e.to_string();

@@ -4,8 +4,7 @@
 //! temperature table built from the sensor's own equation, so firmware and
 //! simulator share one conversion.
 
-use diodestat_core::config::{AdcCal, DacCal, Rail, TempCal};
-use diodestat_core::{Config, Fx, Gain, TempPoint};
+use diodestat_core::{AdcCal, Config, DacCal, Fx, Gain, Rail, TempCal, TempPoint};
 
 use crate::plant::{DemoModule, Monitor, SensorChain, Topology, ZERO_CELSIUS_K};
 

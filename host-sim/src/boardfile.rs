@@ -13,16 +13,18 @@
 use std::fmt;
 use std::path::{Path, PathBuf};
 
-use diodestat_core::config::{
+use diodestat_core::TEMP_TABLE_LEN;
+use diodestat_core::{
     AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, DiodePoint, Plausibility,
     PowerRange, Protection, Rail, Ramps, TempCal, DIODE_POINTS,
 };
-use diodestat_core::temp_table::TEMP_TABLE_LEN;
 use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, ValidConfig};
 use serde::{Deserialize, Deserializer};
 
 use crate::board;
+use crate::campaign::verdict::{PassLines, SourceType};
 use crate::files::{self, FileError};
+use crate::laser_class::LaserClass;
 use crate::locate::{locate, plain_message, Place, Seg};
 use crate::modulefile;
 use crate::plant::DemoModule;
@@ -147,6 +149,87 @@ pub struct BoardFile {
     /// Current-for-power plausibility (optional).
     #[serde(default)]
     pub plausibility: Option<PlausibilitySection>,
+    /// The campaign's pass lines: intended laser class, accessible
+    /// fraction, source type and rating allowances (host only; not part
+    /// of the exported configuration or its hash).
+    #[serde(default)]
+    pub laser_safety: Option<LaserSafetySection>,
+}
+
+/// `[laser_safety]`: what the fault campaign judges a board against,
+/// independent of the controller's settings (docs/campaign.md).
+#[derive(Clone, Debug, PartialEq, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LaserSafetySection {
+    /// Intended laser class of the product: "1", "1M", "2", "2M", "3R",
+    /// "3B" or "4".
+    pub intended_class: String,
+    /// Fraction of the front-facet power accessible outside the product,
+    /// in (0, 1].
+    pub accessible_fraction: f64,
+    /// Source type; only "small" (C6 = 1) is covered.
+    #[serde(default = "small_source")]
+    pub source: String,
+    /// Energy above the module's rated power a case may deliver, uJ.
+    pub over_power_allowance_uj: f64,
+    /// Charge above the module's rated current a case may drive, uC.
+    pub over_current_allowance_uc: f64,
+}
+
+fn small_source() -> String {
+    "small".into()
+}
+
+/// The pass lines a `[laser_safety]` section declares for `module`.
+fn laser_safety(s: &LaserSafetySection, module: &DemoModule) -> Result<PassLines, KeyError> {
+    let class = LaserClass::parse(&s.intended_class).ok_or_else(|| {
+        invalid(
+            "laser_safety.intended_class",
+            "must be one of \"1\", \"1M\", \"2\", \"2M\", \"3R\", \"3B\", \"4\" (IEC 60825-1 classes)",
+        )
+    })?;
+    if !(s.accessible_fraction.is_finite()
+        && s.accessible_fraction > 0.0
+        && s.accessible_fraction <= 1.0)
+    {
+        return Err(invalid(
+            "laser_safety.accessible_fraction",
+            "must be a fraction of the front-facet power in (0, 1]",
+        ));
+    }
+    let source = match s.source.as_str() {
+        "small" => SourceType::Small,
+        _ => {
+            return Err(invalid(
+                "laser_safety.source",
+                "only \"small\" is covered (an apparent source of at most 1.5 mrad, C6 = 1); \
+                 an extended source needs the standard's C6 and is not computed",
+            ))
+        }
+    };
+    for (key, v) in [
+        (
+            "laser_safety.over_power_allowance_uj",
+            s.over_power_allowance_uj,
+        ),
+        (
+            "laser_safety.over_current_allowance_uc",
+            s.over_current_allowance_uc,
+        ),
+    ] {
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(invalid(key, "must be a finite allowance >= 0"));
+        }
+    }
+    PassLines::new(
+        class,
+        s.accessible_fraction,
+        source,
+        module,
+        s.over_power_allowance_uj,
+        s.over_current_allowance_uc,
+    )
+    .map_err(|e| invalid("laser_safety.intended_class", e.to_string()))
 }
 
 /// `[plausibility]`: the healthy diode's threshold and slope over case
@@ -557,6 +640,9 @@ pub struct LoadedBoard {
     /// The module file the board file names (`module`), an input of every
     /// command; `None` for a built-in demo module.
     pub module_file: Option<PathBuf>,
+    /// The campaign's pass lines (`[laser_safety]` with the module's
+    /// ratings), when the file declares them.
+    pub pass_lines: Option<PassLines>,
 }
 
 /// Read and validate a board file named on the command line.
@@ -616,6 +702,12 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
         }
         l => l.as_ref().map(|l| l.max_overshoot_pct),
     };
+    let pass_lines = file
+        .laser_safety
+        .as_ref()
+        .map(|l| laser_safety(l, &module))
+        .transpose()
+        .map_err(|(key, why)| invalid_at(key, why))?;
     let config = to_config(&file, &module, base_dir).map_err(|(key, why)| invalid_at(key, why))?;
     let valid = config.clone().validate().map_err(|source| {
         let (key, why) = refusal(&source, &config, &file);
@@ -647,6 +739,7 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
             .as_ref()
             .map(|c| base_dir.join(c)),
         latency,
+        pass_lines,
     })
 }
 
@@ -1052,7 +1145,7 @@ fn num(v: Fx) -> String {
 /// The board-file key a [`ConfigError`] is about and what that key must
 /// satisfy, in the file's units and words.
 pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
-    use diodestat_core::config::{Channel, RampKind};
+    use diodestat_core::{Channel, RampKind};
     use ConfigError as E;
     let k = |s: &str| s.to_string();
     let tick_ms = f64::from(c.tick_hz) / 1e3;
@@ -1192,14 +1285,14 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
             format!(
                 "must be 1 ..= {max} ticks at tick_hz = {} (a fast protection trips within {} us)",
                 c.tick_hz,
-                diodestat_core::config::FAST_DEBOUNCE_MAX_US
+                diodestat_core::FAST_DEBOUNCE_MAX_US
             ),
         ),
         E::IntermittentWeightOutOfRange { .. } => (
             k("protection.intermittent_weight"),
             format!(
                 "must be 1 ..= {}",
-                diodestat_core::config::MAX_INTERMITTENT_WEIGHT
+                diodestat_core::MAX_INTERMITTENT_WEIGHT
             ),
         ),
         E::TempTableShortOfCutoff { hottest_degc, needed_degc } => (
@@ -1207,7 +1300,7 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
             format!(
                 "reaches {} degC; it must reach derating.cutoff_degc + {} = {} degC so that over-temperature is read from the table",
                 num(hottest_degc),
-                num(diodestat_core::config::TEMP_COVER_MARGIN_DEGC),
+                num(diodestat_core::TEMP_COVER_MARGIN_DEGC),
                 num(needed_degc)
             ),
         ),
@@ -1553,7 +1646,7 @@ table_points = 25
                 gain: Fx::ZERO,
             },
             ConfigError::CalibrationGainNotPositive {
-                channel: diodestat_core::config::Channel::Dac,
+                channel: diodestat_core::Channel::Dac,
             },
         ];
         for e in all {

@@ -21,6 +21,7 @@ pub mod export;
 pub mod files;
 pub mod fit;
 pub mod fit_cmd;
+pub mod laser_class;
 pub mod liv;
 pub mod locate;
 pub mod modulefile;

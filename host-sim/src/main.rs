@@ -82,14 +82,48 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
-    /// Fault campaign: every injectable fault x moments x plant corners; exits non-zero on any unsafe case.
+    /// Fault campaign: every injectable fault x moments x plant corners x setpoints, judged against the
+    /// board's intended laser class and the module's ratings; exits non-zero on any unsafe case.
     Campaign {
-        /// Board configuration file (TOML), e.g. examples/demo-pump-5w/board.toml.
+        /// Board configuration file (TOML) with a [laser_safety] section, e.g. examples/demo-pump-5w/board.toml.
         board: PathBuf,
-        /// Allowed excess over the optical ceiling, fraction (0 to 1).
-        #[arg(long, default_value_t = 0.10, value_parser = finite_in(0.0, 1.0, ""))]
-        margin: f64,
-        /// Output folder for campaign.md and campaign.json.
+        /// Faults to run, by kind (e.g. dac-stuck) or label (e.g. "dac-stuck code=0"), comma-separated (default: all).
+        #[arg(long, value_delimiter = ',')]
+        faults: Option<Vec<String>>,
+        /// Moments: soft-start, steady, setpoint-change, derating, latent, soft-stop, clear-retry (default: all).
+        #[arg(long, value_delimiter = ',', value_parser = moment)]
+        moments: Option<Vec<diodestat_sim::campaign::Moment>>,
+        /// Corners: nominal, cold, hot, tracking-low, aged, threshold-high, slope-low (default: all).
+        #[arg(long, value_delimiter = ',')]
+        corners: Option<Vec<String>>,
+        /// Ambient of the cold and hot corners, degC, as COLD,HOT.
+        #[arg(long, value_delimiter = ',', num_args = 1, default_values_t = [diodestat_sim::campaign::COLD_C, diodestat_sim::campaign::HOT_C], value_parser = finite_in(-55.0, 125.0, " degC"))]
+        ambient_c: Vec<f64>,
+        /// Setpoints, mW, within the board's range (default: two thirds of the highest).
+        #[arg(long, value_delimiter = ',', value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
+        setpoints_mw: Option<Vec<f64>>,
+        /// Longest watch window of a slow fault (heatsink loss, aging, degrading monitor), s.
+        #[arg(long, default_value_t = 20.0, value_parser = finite_in(0.001, 600.0, " s"))]
+        slow_bound_s: f64,
+        /// Monte Carlo: replace the corners with N parts drawn from the module's tolerances (at 25 degC).
+        #[arg(long, conflicts_with = "corners", value_parser = clap::value_parser!(u32).range(1..=100_000))]
+        parts: Option<u32>,
+        /// Seed of the Monte Carlo parts.
+        #[arg(long, default_value_t = 1, requires = "parts")]
+        parts_seed: u64,
+        /// Run only slice K of N (cases numbered K-1 modulo N); merge the slices with campaign-merge.
+        #[arg(long, value_parser = shard)]
+        shard: Option<(u32, u32)>,
+        /// Output folder for campaign.md, campaign.json and campaign.xml (JUnit).
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
+    /// Merge the campaign.json of every shard of a campaign into the single run's campaign.md, campaign.json and campaign.xml.
+    CampaignMerge {
+        /// The shards' campaign.json files.
+        #[arg(required = true)]
+        shards: Vec<PathBuf>,
+        /// Output folder.
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
@@ -156,7 +190,7 @@ enum Cmd {
         #[arg(long, value_parser = finite_in(0.0, 100.0, " %"))]
         max_overshoot_pct: Option<f64>,
     },
-    /// Export a board configuration file as Rust source, with its hash.
+    /// Export a board configuration file as Rust source, with its fingerprint.
     Export {
         /// Board configuration file (TOML), e.g. examples/demo-red-30/board.toml.
         board: PathBuf,
@@ -387,53 +421,91 @@ fn liv(
     Ok(())
 }
 
-/// The board a command runs: name, file, module and the export hash.
+/// The board a command runs: name, file, module, tick rate and the core's
+/// fingerprint of its configuration (the one the firmware reports at start).
 fn board_line(b: &LoadedBoard) -> String {
     format!(
-        "board {} ({}, module {}, {} Hz tick, configuration hash {:016x})",
+        "board {} ({}, module {}, {} Hz tick, configuration fingerprint {})",
         b.name,
         b.path.display(),
         b.module_name,
         b.config.tick_hz,
-        diodestat_sim::export::config_hash(&b.config)
+        b.valid.fingerprint()
     )
 }
 
-fn campaign(board: &Path, margin: f64, out: &Path) -> Result<(), String> {
-    let b = load_board(board).map_err(|e| e.to_string())?;
-    let mut inputs = vec![board.to_path_buf()];
-    inputs.extend(b.table_csv.clone());
-    inputs.extend(b.module_file.clone());
-    files::check_out_dir(out, "--out", &["campaign.md", "campaign.json"], &inputs)
-        .map_err(|e| e.to_string())?;
-    println!("{}", board_line(&b));
-    let (m, cfg) = (&b.module, &b.valid);
-    let t0 = Instant::now();
-    let results = diodestat_sim::campaign::run(&b.name, m, cfg, margin, b.latency)?;
-    let ceiling = cfg.config().protection.runaway_mw.to_num::<f64>();
-    let md = diodestat_sim::campaign::markdown(&b.name, &results, margin, ceiling);
-    let json = serde_json::to_string_pretty(&results).map_err(|e| e.to_string())?;
+fn moment(s: &str) -> Result<diodestat_sim::campaign::Moment, String> {
+    diodestat_sim::campaign::Moment::parse(s).ok_or_else(|| {
+        let names: Vec<&str> = diodestat_sim::campaign::Moment::ALL
+            .iter()
+            .map(|m| m.name())
+            .collect();
+        format!("{s:?} is no moment ({})", names.join(", "))
+    })
+}
+
+fn shard(s: &str) -> Result<(u32, u32), String> {
+    let bad = || format!("{s:?}: give K/N with 1 <= K <= N, e.g. 2/4");
+    let (k, n) = s.split_once('/').ok_or_else(bad)?;
+    let (k, n): (u32, u32) = (
+        k.trim().parse().map_err(|_| bad())?,
+        n.trim().parse().map_err(|_| bad())?,
+    );
+    if k == 0 || n == 0 || k > n {
+        return Err(bad());
+    }
+    Ok((k, n))
+}
+
+const CAMPAIGN_FILES: [&str; 3] = ["campaign.md", "campaign.json", "campaign.xml"];
+
+fn write_campaign(out: &Path, rec: &diodestat_sim::campaign::report::Record) -> Result<(), String> {
+    use diodestat_sim::campaign::report;
+    let json = serde_json::to_string_pretty(rec).map_err(|e| e.to_string())?;
     let stage = Staging::new(out).map_err(|e| e.to_string())?;
-    for (name, body) in [("campaign.md", md), ("campaign.json", json)] {
+    for (name, body) in CAMPAIGN_FILES
+        .iter()
+        .zip([report::markdown(rec), json, report::junit(rec)])
+    {
         std::fs::write(stage.path(name), body)
             .map_err(|e| format!("{}: {e}", out.join(name).display()))?;
     }
-    stage.commit().map_err(|e| e.to_string())?;
-    let bad: Vec<_> = results.iter().filter(|r| !r.safe).collect();
+    stage.commit().map_err(|e| e.to_string())
+}
+
+fn campaign_verdict(
+    rec: &diodestat_sim::campaign::report::Record,
+    out: &Path,
+) -> Result<(), String> {
+    let bad: Vec<_> = rec.results.iter().filter(|r| !r.safe).collect();
+    let findings = rec.results.iter().filter(|r| r.finding.is_some()).count();
+    if let Some(mc) = diodestat_sim::campaign::report::monte_carlo(rec) {
+        println!(
+            "Monte Carlo: {} of {} parts with an unsafe case (95 % upper bound {:.4}); {} of {} cases unsafe (95 % upper bound {:.5})",
+            mc.unsafe_parts, mc.parts, mc.part_upper_95, mc.unsafe_cases, mc.cases, mc.case_upper_95
+        );
+    }
     println!(
-        "{} cases in {:.1} s, {} unsafe; wrote {}",
-        results.len(),
-        t0.elapsed().as_secs_f64(),
+        "{} cases, {} unsafe, {} findings; wrote {}",
+        rec.results.len(),
         bad.len(),
+        findings,
         out.join("campaign.md").display()
     );
     for r in &bad {
         println!(
-            "UNSAFE: {} {:?} {}: detected {}, peak {:.3} mW, ticks over {}, damage {}",
-            r.fault, r.moment, r.corner, r.detected, r.peak_mw, r.ticks_over, r.damaged
+            "UNSAFE: {} {} {} {} mW: {}",
+            r.fault,
+            r.moment.name(),
+            r.corner,
+            r.setpoint_mw,
+            r.unsafe_reasons.join("; ")
         );
     }
-    println!("CAUTION: {}", report::SAFETY_CAUTION);
+    println!(
+        "CAUTION: {} A campaign is evidence for a design review, not a classification.",
+        report::SAFETY_CAUTION
+    );
     if bad.is_empty() {
         Ok(())
     } else {
@@ -460,19 +532,77 @@ fn fit_cmd(
     Ok(())
 }
 
+fn campaign(
+    board: &Path,
+    sel: &diodestat_sim::campaign::Selection,
+    out: &Path,
+) -> Result<(), String> {
+    let b = load_board(board).map_err(|e| e.to_string())?;
+    let lines = b.pass_lines.ok_or_else(|| {
+        format!(
+            "{}: no [laser_safety] section: a campaign judges the board against its intended laser class \
+             and the module's ratings (docs/board-config.md, [laser_safety])",
+            board.display()
+        )
+    })?;
+    let bench = diodestat_sim::campaign::Bench {
+        name: &b.name,
+        module: &b.module,
+        cfg: &b.valid,
+        latency: b.latency,
+        lines: &lines,
+    };
+    // Refuse a bad selection before touching the output.
+    diodestat_sim::campaign::cases(&bench, sel).map_err(|e| e.to_string())?;
+    let mut inputs = vec![board.to_path_buf()];
+    inputs.extend(b.table_csv.clone());
+    inputs.extend(b.module_file.clone());
+    files::check_out_dir(out, "--out", &CAMPAIGN_FILES, &inputs).map_err(|e| e.to_string())?;
+    println!("{}", board_line(&b));
+    let t0 = Instant::now();
+    let rec = diodestat_sim::campaign::report::run_record(
+        &bench,
+        &b.module_name,
+        &board.display().to_string(),
+        sel,
+    )?;
+    let secs = t0.elapsed().as_secs_f64();
+    write_campaign(out, &rec)?;
+    println!(
+        "{} cases in {secs:.1} s ({:.0} cases/s)",
+        rec.results.len(),
+        rec.results.len() as f64 / secs.max(1e-9)
+    );
+    campaign_verdict(&rec, out)
+}
+
+fn campaign_merge(shards: &[PathBuf], out: &Path) -> Result<(), String> {
+    let mut recs = Vec::new();
+    for p in shards {
+        let text = files::read_text(p, "SHARDS").map_err(|e| e.to_string())?;
+        let rec: diodestat_sim::campaign::report::Record = serde_json::from_str(&text)
+            .map_err(|e| format!("{}: not a campaign record: {e}", p.display()))?;
+        recs.push(rec);
+    }
+    let rec = diodestat_sim::campaign::report::merge(recs).map_err(|e| e.to_string())?;
+    files::check_out_dir(out, "--out", &CAMPAIGN_FILES, shards).map_err(|e| e.to_string())?;
+    write_campaign(out, &rec)?;
+    campaign_verdict(&rec, out)
+}
+
 fn export(board: &Path, out: &Path) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
     inputs.extend(b.module_file.clone());
     files::check_out_file(out, "--out", &inputs).map_err(|e| e.to_string())?;
-    let src = diodestat_sim::export::rust_module(&b.name, &b.config);
+    let src = diodestat_sim::export::rust_module(&b.name, &b.valid);
     files::write_atomic(out, src.as_bytes()).map_err(|e| e.to_string())?;
     println!(
-        "wrote {} from {} (CONFIG_HASH {:016x})",
+        "wrote {} from {} (CONFIG_FINGERPRINT {})",
         out.display(),
         b.path.display(),
-        diodestat_sim::export::config_hash(&b.config)
+        b.valid.fingerprint()
     );
     Ok(())
 }
@@ -497,7 +627,37 @@ fn main() -> ExitCode {
             kink_tol,
             out,
         } => fit_cmd(sweeps, template, name.as_deref(), *kink_tol, out),
-        Cmd::Campaign { board, margin, out } => campaign(board, *margin, out),
+        Cmd::Campaign {
+            board,
+            faults,
+            moments,
+            corners,
+            ambient_c,
+            setpoints_mw,
+            slow_bound_s,
+            parts,
+            parts_seed,
+            shard,
+            out,
+        } => match ambient_c.as_slice() {
+            [cold_c, hot_c] => campaign(
+                board,
+                &diodestat_sim::campaign::Selection {
+                    faults: faults.clone(),
+                    moments: moments.clone(),
+                    corners: corners.clone(),
+                    cold_c: *cold_c,
+                    hot_c: *hot_c,
+                    setpoints_mw: setpoints_mw.clone(),
+                    slow_bound_s: *slow_bound_s,
+                    parts: parts.map(|n| (n, *parts_seed)),
+                    shard: *shard,
+                },
+                out,
+            ),
+            _ => Err("--ambient-c: give COLD,HOT (two temperatures, degC)".to_string()),
+        },
+        Cmd::CampaignMerge { shards, out } => campaign_merge(shards, out),
         Cmd::LoopReport {
             boards,
             out,

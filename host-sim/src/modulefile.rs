@@ -42,8 +42,8 @@ use crate::files::{self, FileError};
 use crate::locate::{locate, plain_message, Place, Seg};
 use crate::plant::{
     c_to_k, photon_energy_j, thermal_voltage_v, Adc, AdcParams, DemoModule, DiodeParams,
-    DriverParams, GainModel, MonitorParams, PlantError, SensorChain, SensorChainParams, TempSensor,
-    ThermalParams, Q,
+    DriverParams, GainModel, MonitorParams, PartTolerances, PlantError, SensorChain,
+    SensorChainParams, TempSensor, ThermalParams, Q,
 };
 
 /// Relative tolerance of a pinned structure's threshold and slope against
@@ -61,6 +61,8 @@ pub struct ModuleFile {
     pub name: String,
     /// Rated front-facet output power, mW.
     pub rated_power_mw: f64,
+    /// Rated maximum forward current, mA.
+    pub rated_current_ma: f64,
     /// Supply of the current source.
     pub supply: SupplySection,
     /// The laser diode.
@@ -75,6 +77,8 @@ pub struct ModuleFile {
     pub sensor: SensorChainParams,
     /// ADC of the monitor, current-sense and supply channels.
     pub adc: AdcParams,
+    /// Part-to-part tolerances a Monte Carlo campaign draws from.
+    pub tolerances: PartTolerances,
 }
 
 /// `[supply]`.
@@ -431,6 +435,21 @@ impl ModuleFile {
         if !pos(self.rated_power_mw) {
             return Err(refuse("rated_power_mw", "must be a finite number above 0"));
         }
+        if !pos(self.rated_current_ma) {
+            return Err(refuse(
+                "rated_current_ma",
+                "must be a finite number above 0",
+            ));
+        }
+        for (key, v) in [
+            ("tolerances.threshold", self.tolerances.threshold),
+            ("tolerances.slope", self.tolerances.slope),
+            ("tolerances.tracking", self.tolerances.tracking),
+        ] {
+            if !(v.is_finite() && (0.0..1.0).contains(&v)) {
+                return Err(refuse(key, "must be a relative half-width in 0 ..< 1"));
+            }
+        }
         if !pos(self.supply.voltage_v) {
             return Err(refuse(
                 "supply.voltage_v",
@@ -449,6 +468,8 @@ impl ModuleFile {
         }
         let module = DemoModule {
             rated_power_w: self.rated_power_mw * 1e-3,
+            rated_current_a: self.rated_current_ma * 1e-3,
+            tolerances: self.tolerances,
             supply_v: self.supply.voltage_v,
             diode,
             monitor: self.monitor.clone(),

@@ -295,6 +295,9 @@ pub struct TimelineEntry {
 pub struct Summary {
     /// Scenario name.
     pub scenario: String,
+    /// The core's fingerprint of the board configuration the run used (16
+    /// hex digits; what the firmware reports at start).
+    pub config_fingerprint: Option<String>,
     /// Ticks run.
     pub ticks: u64,
     /// Tick rate, Hz.
@@ -490,6 +493,7 @@ pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Su
     timeline.sort_by(|a, b| a.at_ms.total_cmp(&b.at_ms));
     Summary {
         scenario: sc.name.clone(),
+        config_fingerprint: res.config_fingerprint.map(|f| f.to_string()),
         ticks: res.ticks,
         tick_hz: res.tick_hz,
         duration_ms: ms(res.ticks),
@@ -545,6 +549,9 @@ impl Summary {
     pub fn text(&self) -> String {
         let mut s = String::new();
         let _ = writeln!(s, "scenario: {}", self.scenario);
+        if let Some(f) = &self.config_fingerprint {
+            let _ = writeln!(s, "configuration fingerprint: {f}");
+        }
         let _ = writeln!(
             s,
             "ticks: {} at {} Hz ({})",
@@ -1364,6 +1371,14 @@ mod summary_tests {
     fn refused_requests_are_shown_as_refused_not_as_steps() {
         let (sc, res) = hot_run();
         let s = summary(&sc, &res, Vec::new());
+        // The summary names the configuration the run used by its fingerprint.
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../examples/demo-red-30/board.toml");
+        let f = load_board(&path).unwrap().valid.fingerprint().to_string();
+        assert_eq!(s.config_fingerprint.as_deref(), Some(f.as_str()));
+        assert!(s
+            .text()
+            .contains(&format!("configuration fingerprint: {f}\n")));
         assert_eq!(s.refused.len(), 1, "{:?}", s.refused);
         let r = &s.refused[0];
         assert_eq!((r.at_ms, r.request.as_str()), (30.0, "set-power 40 mW"));

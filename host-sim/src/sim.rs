@@ -41,7 +41,9 @@
 //! ([`WarningSpan`]) and the optical power over chosen intervals
 //! ([`PowerWindow`], see [`run_watching`]).
 
-use diodestat_core::{Controller, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
+use diodestat_core::{
+    Controller, Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings,
+};
 
 use crate::oscillation::{Found, TickSample, Watch};
 use crate::plant::{
@@ -509,6 +511,10 @@ pub struct RunResult {
     pub final_state: State,
     /// Tick rate, Hz.
     pub tick_hz: u32,
+    /// The core's fingerprint of the configuration the run used
+    /// (`ValidConfig::fingerprint`); `None` only for results made up by
+    /// tests.
+    pub config_fingerprint: Option<Fingerprint>,
     /// Fault records the core's log overwrote before the run read them
     /// (read every tick through a cursor, so zero unless one tick logs
     /// more than the ring holds).
@@ -724,6 +730,7 @@ fn run_plant(
     let tick_hz = cfg.config().tick_hz;
     let dt = 1.0 / f64::from(tick_hz);
     let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
+    let config_fingerprint = Some(cfg.fingerprint());
     let mut ctl = Controller::new(cfg);
     let mut events: Vec<(u64, usize, &Action)> = sc
         .events
@@ -737,6 +744,7 @@ fn run_plant(
     let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
     let mut res = RunResult {
         tick_hz,
+        config_fingerprint,
         windows,
         envelope: Envelope::new(n_ticks),
         ..RunResult::default()
@@ -749,7 +757,7 @@ fn run_plant(
     let mut prev = (0.0, Fx::ZERO, Mode::Apc);
     let mut kept = Retained::new(RETAINED_ROWS);
     let mut last_state = State::Off;
-    let mut log_cursor = diodestat_core::fault::Cursor::default();
+    let mut log_cursor = diodestat_core::Cursor::default();
     // The drives on their way to the DAC: a ring of `latency` slots, the
     // one at `slot` written `latency` ticks ago; `None`: a missed tick
     // wrote nothing. The board starts with the DAC at zero, enable low.

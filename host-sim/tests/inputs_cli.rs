@@ -194,9 +194,15 @@ fn liv_max_ma_inf_and_other_options_out_of_range() {
     assert!(!ok);
     assert!(text.contains("'nan' for '--max-overshoot-pct"), "{text}");
     assert!(text.contains("0 ..= 100 %"), "{text}");
-    let (ok, text) = diodestat(&["campaign", &red_board(), "--margin", "2"]);
+    let (ok, text) = diodestat(&["campaign", &red_board(), "--slow-bound-s", "0"]);
     assert!(!ok);
-    assert!(text.contains("'2' for '--margin"), "{text}");
+    assert!(text.contains("'0' for '--slow-bound-s"), "{text}");
+    let (ok, text) = diodestat(&["campaign", &red_board(), "--shard", "3/2"]);
+    assert!(!ok);
+    assert!(text.contains("1 <= K <= N"), "{text}");
+    let (ok, text) = diodestat(&["campaign", &red_board(), "--faults", "no-such-fault"]);
+    assert!(!ok);
+    assert!(text.contains("names no fault of the campaign"), "{text}");
     let (ok, text) = diodestat(&["loop-tune", &red_board(), "--crossover-hz", "1e9"]);
     assert!(!ok);
     assert!(

@@ -18,7 +18,7 @@ use diodestat_sim::stability::corners::markdown;
 use diodestat_sim::stability::{
     analyse_corners, gate, standard_corners, CornerOptions, PASS_GM_DB, PASS_PM_DEG,
 };
-use diodestat_sim::{board, export, sim};
+use diodestat_sim::{board, sim};
 
 fn examples() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../examples")
@@ -36,7 +36,10 @@ fn red_board_file_is_the_configuration_the_simulator_used_before() {
     assert_eq!(b.module, DemoModule::visible());
     assert_eq!(b.module_name, "demo-visible-650");
     assert_eq!(b.name, "demo-red-30");
-    assert_eq!(export::config_hash(&b.config), export::config_hash(&before));
+    assert_eq!(
+        b.valid.fingerprint(),
+        before.validate().unwrap().fingerprint()
+    );
 }
 
 #[test]

@@ -43,7 +43,7 @@ impl Plant<'_> {
             0.0
         };
     }
-    fn counts(cal: &diodestat_core::config::AdcCal, v: f64) -> u16 {
+    fn counts(cal: &diodestat_core::AdcCal, v: f64) -> u16 {
         let c = (v / cal.units_per_count.to_num::<f64>()).round() + f64::from(cal.offset_counts);
         c.clamp(0.0, f64::from(cal.full_scale_counts)) as u16
     }

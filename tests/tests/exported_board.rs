@@ -1,6 +1,6 @@
 //! The STM32G474 board's generated constants (`boards/g474-driver/src/board_config.rs`,
 //! the `diodestat export` of `examples/demo-red-30/board.toml`) compile on the
-//! host and hold exactly the board file's configuration and hash.
+//! host and hold exactly the board file's configuration and its fingerprint.
 
 #[path = "../../boards/g474-driver/src/board_config.rs"]
 #[allow(dead_code)]
@@ -9,16 +9,18 @@ mod board_config;
 
 use std::path::Path;
 
-use diodestat_sim::{boardfile::load_board, export};
+use diodestat_sim::boardfile::load_board;
 
 #[test]
 fn generated_constants_are_the_board_file() {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/demo-red-30/board.toml");
     let b = load_board(&path).unwrap();
     assert_eq!(board_config::config(), b.config);
+    assert_eq!(board_config::CONFIG_FINGERPRINT, b.valid.fingerprint());
+    // What the board computes at start from its constants.
     assert_eq!(
-        board_config::CONFIG_HASH,
-        format!("{:016x}", export::config_hash(&b.config))
+        board_config::config().validate().unwrap().fingerprint(),
+        board_config::CONFIG_FINGERPRINT
     );
     // Annotated: the proportional gain's line says its value and unit.
     let src = std::fs::read_to_string(

@@ -2,14 +2,14 @@
 //! Values are raw fixed-point bits (`Fx` I16F16, `Gain` I8F24); the comment on each line gives
 //! the engineering value and unit they stand for.
 
-use diodestat_core::config::{
-    AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, PowerRange, Protection, Rail,
-    Ramps, TempCal,
+use diodestat_core::{
+    AdcCal, ApcGains, Calibration, Config, CurrentLimits, DacCal, Derating, Fingerprint, Fx, Gain,
+    PowerRange, Protection, Rail, Ramps, TempCal, TempPoint,
 };
-use diodestat_core::{Config, Fx, Gain, TempPoint};
 
-/// FNV-1a 64 hash of the code of the table and configuration below (not the comments), as hex.
-pub const CONFIG_HASH: &str = "c707389a186150cd";
+/// `config().validate()?.fingerprint()` as the simulator computed it: the board computes it
+/// again at start and reports both (a hand-edited constant below makes them differ).
+pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0x4dc86c950807bfb1);
 
 /// Temperature table (counts, degC).
 pub const TEMP_TABLE: [TempPoint; 25] = [

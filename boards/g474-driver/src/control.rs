@@ -20,9 +20,7 @@
 use core::cell::RefCell;
 
 use critical_section::Mutex;
-use diodestat_core::edge::DriverBoard;
-use diodestat_core::mailbox::Mailbox;
-use diodestat_core::{Drive, Rejection, Request};
+use diodestat_core::{Drive, DriverBoard, Mailbox, Rejection, Request};
 use embassy_stm32::gpio::{Input, Output};
 use embassy_stm32::interrupt;
 use embassy_stm32::peripherals::{IWDG, TIM6};

@@ -3,7 +3,7 @@
 
 use core::convert::Infallible;
 
-use diodestat_core::edge::CurrentDac;
+use diodestat_core::CurrentDac;
 use embassy_stm32::dac::{DacChannel, Value};
 use embassy_stm32::mode::Blocking;
 

@@ -7,7 +7,7 @@
 //! - The independent watchdog (IWDG) is petted by every completed tick.
 //! - Thread mode (an embassy executor) turns the user button into requests,
 //!   passed to the tick through the core's lock-free mailbox, and logs the
-//!   configuration hash, state changes, faults and answers over defmt RTT.
+//!   configuration fingerprint, state changes, faults and answers over defmt RTT.
 //! - The latch survives a reset: thread mode stores the core's latch record
 //!   in the last flash page whenever it changes (the core's `LatchStore`,
 //!   through embedded-storage), and boot restores it (`Controller::restored`);
@@ -46,11 +46,10 @@ use defmt::{error, info, warn};
 use defmt_rtt as _;
 use panic_probe as _;
 
-use diodestat_core::edge::{DriverBoard, InterlockLevel};
-use diodestat_core::fault::Cursor;
-use diodestat_core::persist::LatchRecord;
-use diodestat_core::store::LatchStore;
-use diodestat_core::{Controller, Fx, Request, State, Status};
+use diodestat_core::{
+    Controller, Cursor, DriverBoard, Fx, InterlockLevel, LatchRecord, LatchStore, Request, State,
+    Status,
+};
 use embassy_executor::Spawner;
 use embassy_stm32::adc::{Adc, AdcChannel, AdcConfig};
 use embassy_stm32::dac::DacChannel;
@@ -160,10 +159,7 @@ fn log_status(prev: &Status, now: &Status, drive_ma: Fx, cursor: &mut Cursor) {
 #[embassy_executor::main]
 async fn main(_spawner: Spawner) {
     let p = embassy_stm32::init(clocks());
-    info!(
-        "diodestat g474-driver, board configuration hash {=str}",
-        board_config::CONFIG_HASH
-    );
+    info!("diodestat g474-driver");
 
     // The enable line first, low: nothing may emit during start-up.
     let enable = Output::new(p.PB5, Level::Low, Speed::Low);
@@ -180,6 +176,22 @@ async fn main(_spawner: Spawner) {
             }
         }
     };
+    // The fingerprint of the configuration this board runs with, computed
+    // here by the core, against the one the simulator computed for the board
+    // file: they differ when a generated constant was edited by hand. Then
+    // stay with the enable line low, as for a refused configuration.
+    let fingerprint = valid.fingerprint();
+    if fingerprint != board_config::CONFIG_FINGERPRINT {
+        error!(
+            "board configuration fingerprint {} differs from the exported {}: regenerate src/board_config.rs",
+            fingerprint,
+            board_config::CONFIG_FINGERPRINT
+        );
+        loop {
+            cortex_m::asm::wfi();
+        }
+    }
+    info!("board configuration fingerprint {}", fingerprint);
     let tick_hz = valid.config().tick_hz;
     info!("tick {} Hz", tick_hz);
 

@@ -7,7 +7,7 @@
 //! scan from the tick timer and collect it by DMA, or sample the current
 //! sense with an injected conversion.
 
-use diodestat_core::edge::AdcCounts;
+use diodestat_core::AdcCounts;
 use embassy_stm32::adc::{Adc, AnyAdcChannel, SampleTime};
 use embassy_stm32::peripherals::ADC1;
 

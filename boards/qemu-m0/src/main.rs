@@ -59,8 +59,9 @@ fn main() -> ! {
         }
     };
     hprintln!(
-        "  Controller is {} bytes",
-        core::mem::size_of::<Controller>()
+        "  Controller is {} bytes; demo configuration fingerprint {}",
+        core::mem::size_of::<Controller>(),
+        valid.fingerprint()
     );
     // No snapshots of the slowest steps: they would not fit in 16 KiB.
     let mut rig: Rig<NoSnapshots> = Rig::new(Controller::new(valid), Plant::new(PlantParams::DEMO));

@@ -270,9 +270,7 @@ fn side_cost_x10(sw: &Stopwatch, mut f: impl FnMut(u32)) -> u64 {
 /// (push in thread mode, pop in the tick) and the latch record (packed on
 /// a latch, checked and unpacked at boot). Printed, not budgeted.
 pub fn print_side_costs(sw: &Stopwatch) {
-    use diodestat_core::mailbox::Mailbox;
-    use diodestat_core::persist::LatchRecord;
-    use diodestat_core::{Fx, Request};
+    use diodestat_core::{Fx, LatchRecord, Mailbox, Request};
     let mailbox: Mailbox<Request, 4> = Mailbox::new();
     let pair = side_cost_x10(sw, |i| {
         let _ = mailbox.push(Request::SetPowerMw(Fx::from_bits(i as i32)));

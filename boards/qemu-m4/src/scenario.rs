@@ -4,9 +4,9 @@
 //! a reset. Each phase records its expected outcomes in
 //! [`Checks`].
 
-use diodestat_core::mailbox::{Full, Mailbox};
-use diodestat_core::persist::crc32;
-use diodestat_core::{Controller, Drive, Fault, Fx, Rejection, Request, State};
+use diodestat_core::{
+    crc32, Controller, Drive, Fault, Full, Fx, Mailbox, Rejection, Request, State,
+};
 
 use crate::checks::{section, Checks};
 use crate::cost::Snapshots;

@@ -6,9 +6,8 @@
 //! Each test binary uses a different subset of these helpers.
 #![allow(dead_code)]
 
-use diodestat_core::config::AdcCal;
 use diodestat_core::{
-    example, Config, Controller, Drive, Fx, Mode, Request, Sample, State, ValidConfig,
+    example, AdcCal, Config, Controller, Drive, Fx, Mode, Request, Sample, State, ValidConfig,
 };
 
 /// The demo configuration, validated.

@@ -18,8 +18,11 @@ use super::thermal::ThermalParams;
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct DemoModule {
-    /// Rated front-facet output power, W.
+    /// Rated front-facet output power, W (the module's maximum rating).
     pub rated_power_w: f64,
+    /// Rated maximum forward current, A (the module's maximum rating; the
+    /// board's `current.absolute_max_ma` is the controller's own limit).
+    pub rated_current_a: f64,
     /// Nominal driver supply, V.
     pub supply_v: f64,
     /// Laser diode.
@@ -34,6 +37,31 @@ pub struct DemoModule {
     pub sensor: SensorChainParams,
     /// ADC used for the monitor, current-sense and supply channels.
     pub adc: AdcParams,
+    /// Part-to-part tolerances a Monte Carlo campaign draws from.
+    pub tolerances: PartTolerances,
+}
+
+/// Part-to-part tolerances of a module, each a relative half-width: a
+/// part's factor is drawn uniformly from `1 - t ..= 1 + t`. Demo values.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PartTolerances {
+    /// Threshold current.
+    pub threshold: f64,
+    /// Slope efficiency.
+    pub slope: f64,
+    /// Monitor responsivity (tracking ratio).
+    pub tracking: f64,
+}
+
+impl PartTolerances {
+    /// The demo modules' tolerances: threshold +-15 %, slope +-8 % (the
+    /// loop analysis's corner spreads), monitor tracking +-10 %.
+    pub const DEMO: PartTolerances = PartTolerances {
+        threshold: 0.15,
+        slope: 0.08,
+        tracking: 0.10,
+    };
 }
 
 impl DemoModule {
@@ -58,6 +86,7 @@ impl DemoModule {
     pub fn visible() -> Self {
         Self {
             rated_power_w: 0.030,
+            rated_current_a: 0.060,
             supply_v: 5.0,
             diode: DiodeParams::demo_visible(),
             monitor: MonitorParams::demo_visible(),
@@ -65,6 +94,7 @@ impl DemoModule {
             thermal: ThermalParams::demo_visible(),
             sensor: SensorChainParams::demo_visible(),
             adc: AdcParams::demo(),
+            tolerances: PartTolerances::DEMO,
         }
     }
 
@@ -72,6 +102,7 @@ impl DemoModule {
     pub fn pump() -> Self {
         Self {
             rated_power_w: 5.0,
+            rated_current_a: 6.5,
             supply_v: 3.3,
             diode: DiodeParams::demo_pump(),
             monitor: MonitorParams::demo_pump(),
@@ -79,6 +110,7 @@ impl DemoModule {
             thermal: ThermalParams::demo_pump(),
             sensor: SensorChainParams::demo_pump(),
             adc: AdcParams::demo(),
+            tolerances: PartTolerances::DEMO,
         }
     }
 }

@@ -9,7 +9,7 @@
 //!
 //! * `C(z) = kp + ki·z/(z-1) = ((kp+ki)·z - kp)/(z-1)`, the core's PI
 //!   (`u[n] = kp·e[n] + I[n]`, `I[n] = I[n-1] + ki·e[n]`, see
-//!   `diodestat_core::apc`), with `kp` and `ki` per tick exactly as
+//!   `firmware-core/src/apc.rs`), with `kp` and `ki` per tick exactly as
 //!   `ValidConfig::kp()` and `ValidConfig::ki_per_tick()` give them.
 //! * `z^-d`: whole ticks between the sampling instant and the DAC update,
 //!   on top of the hold. `d = 1`: the output computed from the sample of

@@ -1,0 +1,36 @@
+//! The `serde` feature: a configuration read back from its serialised form
+//! is the same configuration, with the same fingerprint; a misspelt key is
+//! refused by name. (Run with `--features serde`; without it this file is
+//! empty.)
+#![cfg(feature = "serde")]
+
+use diodestat_core::{example, Config, Fx};
+
+#[test]
+fn a_configuration_reads_back_equal_with_its_fingerprint() {
+    let c = example::config();
+    let text = serde_json::to_string(&c).unwrap();
+    let back: Config = serde_json::from_str(&text).unwrap();
+    assert_eq!(back, c);
+    assert_eq!(
+        back.validate().unwrap().fingerprint(),
+        c.validate().unwrap().fingerprint()
+    );
+}
+
+#[test]
+fn values_are_their_raw_bits_and_unknown_keys_are_refused() {
+    let c = example::config();
+    let mut v: serde_json::Value = serde_json::to_value(&c).unwrap();
+    let kp = c.apc.kp_ma_per_mw.to_bits();
+    assert_eq!(v["apc"]["kp_ma_per_mw"]["bits"], kp);
+    v["apc"]["kp_ma_per_mw"]["bits"] = (kp + 1).into();
+    let edited: Config = serde_json::from_value(v.clone()).unwrap();
+    assert_eq!(
+        edited.apc.kp_ma_per_mw,
+        c.apc.kp_ma_per_mw + Fx::from_bits(1)
+    );
+    v["apc"]["kp_ma_per_mv"] = 1.into();
+    let e = serde_json::from_value::<Config>(v).unwrap_err().to_string();
+    assert!(e.contains("kp_ma_per_mv"), "{e}");
+}
