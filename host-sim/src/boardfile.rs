@@ -26,6 +26,7 @@ use crate::campaign::verdict::{PassLines, SourceType};
 use crate::files::{self, FileError};
 use crate::laser_class::LaserClass;
 use crate::locate::{locate, plain_message, Place, Seg};
+use crate::modulefile;
 use crate::plant::DemoModule;
 use crate::sim::DacLatency;
 
@@ -108,42 +109,15 @@ impl<'de> Deserialize<'de> for LatencyValue {
     }
 }
 
-/// Built-in simulated modules a board file can name.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Deserialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum ModuleName {
-    /// [`DemoModule::visible`]: invented 650 nm, 30 mW class.
-    Visible,
-    /// [`DemoModule::pump`]: invented 976 nm, 5 W class pump.
-    Pump,
-}
-
-impl ModuleName {
-    /// The name as written in files.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            ModuleName::Visible => "visible",
-            ModuleName::Pump => "pump",
-        }
-    }
-
-    /// The module's parameters.
-    pub fn module(self) -> DemoModule {
-        match self {
-            ModuleName::Visible => DemoModule::visible(),
-            ModuleName::Pump => DemoModule::pump(),
-        }
-    }
-}
-
 /// A whole board file.
 #[derive(Clone, Debug, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct BoardFile {
     /// Board name (reports, export).
     pub name: String,
-    /// Simulated module the board drives.
-    pub module: ModuleName,
+    /// Simulated module the board drives: a module file, relative to the
+    /// board file (or a built-in demo module's name, `visible` or `pump`).
+    pub module: String,
     /// Control tick rate, Hz.
     pub tick_hz: u32,
     /// Whole ticks from a tick's sampling instant until the drive computed
@@ -646,8 +620,8 @@ pub struct LoadedBoard {
     pub name: String,
     /// The file (for `parse_board`: the base folder joined with `board.toml`).
     pub path: PathBuf,
-    /// Name of the simulated module.
-    pub module_name: &'static str,
+    /// Name of the simulated module (the module file's `name`).
+    pub module_name: String,
     /// The simulated module.
     pub module: DemoModule,
     /// The core configuration the file describes.
@@ -663,6 +637,9 @@ pub struct LoadedBoard {
     /// Ticks from a sample to its drive taking effect
     /// (`dac_latency_ticks`, default 1).
     pub latency: DacLatency,
+    /// The module file the board file names (`module`), an input of every
+    /// command; `None` for a built-in demo module.
+    pub module_file: Option<PathBuf>,
     /// The campaign's pass lines (`[laser_safety]` with the module's
     /// ratings), when the file declares them.
     pub pass_lines: Option<PassLines>,
@@ -707,7 +684,9 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
             ),
         ));
     }
-    let module = file.module.module();
+    let loaded_module = modulefile::resolve(&file.module, base_dir, "module")
+        .map_err(|why| invalid_at("module".into(), why))?;
+    let module = loaded_module.module;
     let latency = file
         .dac_latency_ticks
         .map_or(DacLatency::default(), |l| l.0);
@@ -748,7 +727,8 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
     Ok(LoadedBoard {
         name: file.name,
         path,
-        module_name: file.module.as_str(),
+        module_name: loaded_module.name,
+        module_file: loaded_module.path,
         module,
         config,
         valid,
@@ -1579,7 +1559,7 @@ table_points = 25
     }
 
     #[test]
-    fn unknown_module_lists_the_built_in_ones() {
+    fn missing_module_file_names_the_key_and_the_built_in_ones() {
         let e = err(&MINIMAL.replace("module = \"visible\"", "module = \"uv\""));
         assert!(e.contains("line 3"), "{e}");
         assert!(e.contains("visible") && e.contains("pump"), "{e}");

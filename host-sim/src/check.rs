@@ -53,6 +53,7 @@ pub fn load(path: &Path) -> Result<Loaded, String> {
         .map_err(|e| format!("{}: {e}", path.display()))?;
     let mut inputs = vec![path.to_path_buf(), board_path];
     inputs.extend(board.table_csv.clone());
+    inputs.extend(board.module_file.clone());
     Ok(Loaded {
         scenario: sc,
         board,

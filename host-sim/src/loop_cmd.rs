@@ -86,7 +86,11 @@ fn load_all(boards: &[PathBuf], out: Option<&Path>) -> Result<Vec<LoadedBoard>, 
     if let Some(out) = out {
         let inputs: Vec<PathBuf> = loaded
             .iter()
-            .flat_map(|b| std::iter::once(b.path.clone()).chain(b.table_csv.clone()))
+            .flat_map(|b| {
+                std::iter::once(b.path.clone())
+                    .chain(b.table_csv.clone())
+                    .chain(b.module_file.clone())
+            })
             .collect();
         files::check_out_dir(out, "--out", &[], &inputs).map_err(|e| e.to_string())?;
         for (i, b) in loaded.iter().enumerate() {
@@ -126,7 +130,7 @@ fn assess_board(
     let sp = corner_setpoint(b, setpoint_mw)?;
     assess(
         &b.name,
-        b.module_name,
+        &b.module_name,
         &b.module,
         &b.valid,
         sp,
@@ -578,7 +582,7 @@ pub fn tune(
     let spin = progress::spinner("step responses with the proposed gains at every corner");
     let a = assess(
         &b.name,
-        b.module_name,
+        &b.module_name,
         &b.module,
         &valid,
         sp,
@@ -709,7 +713,18 @@ mod tests {
         let dir = std::env::temp_dir().join(format!("diodestat-tune-{}", std::process::id()));
         std::fs::create_dir_all(&dir).unwrap();
         let dst = dir.join("board.toml");
-        std::fs::copy(&src, &dst).unwrap();
+        // The board file with its module file beside it.
+        let text = std::fs::read_to_string(&src).unwrap();
+        std::fs::write(
+            &dst,
+            text.replace("\"../modules/demo-red-650.toml\"", "\"module.toml\""),
+        )
+        .unwrap();
+        std::fs::copy(
+            root.join("examples/modules/demo-red-650.toml"),
+            dir.join("module.toml"),
+        )
+        .unwrap();
         let kp = Fx::from_num(0.2);
         let ki = Fx::from_num(2.5);
         write_gains(&dst, kp, ki).unwrap();

@@ -7,7 +7,6 @@ use std::time::Instant;
 use clap::{Parser, Subcommand};
 use diodestat_sim::boardfile::{load_board, LoadedBoard};
 use diodestat_sim::files::{self, Staging};
-use diodestat_sim::plant::DemoModule;
 use diodestat_sim::{check, report};
 
 mod loop_cmd;
@@ -42,10 +41,11 @@ enum Cmd {
         #[arg(long)]
         junit: Option<PathBuf>,
     },
-    /// L-I-V sweep of a demo module's diode: isothermal at junction temperatures, or CW with
+    /// L-I-V sweep of a module's diode: isothermal at junction temperatures, or CW with
     /// self-heating at case temperatures; threshold and slope marked (CSV and SVG).
     Liv {
-        /// Module: visible or pump.
+        /// Module file (TOML, e.g. examples/modules/demo-red-650.toml), or a built-in demo
+        /// module: visible or pump.
         module: String,
         /// Junction temperatures of isothermal sweeps, degC (-55 to 150; default 25 unless
         /// --case-c is given).
@@ -59,6 +59,26 @@ enum Cmd {
         #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mA"))]
         max_ma: Option<f64>,
         /// Output folder.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
+    /// Fit a module's diode to measured L-I-V sweeps (CSV) and write a module file, the fit
+    /// report and a plot of measured against fitted curves.
+    Fit {
+        /// Sweep file (CSV): a header with current_a|current_ma, power_w|power_mw,
+        /// voltage_v|voltage_mv and case_c|case_k; one row per point.
+        sweeps: PathBuf,
+        /// Module file giving every value the sweeps cannot (wavelength, reflectivities,
+        /// monitor, source, thermal path, sensor, converters).
+        #[arg(long)]
+        template: PathBuf,
+        /// Name of the fitted module (default: the sweep file's name with -fitted).
+        #[arg(long)]
+        name: Option<String>,
+        /// Slope step above threshold reported as a kink, fraction of the slope (0 to 1).
+        #[arg(long, default_value_t = diodestat_sim::fit::KINK_TOL, value_parser = finite_in(f64::MIN_POSITIVE, 1.0, ""))]
+        kink_tol: f64,
+        /// Output folder for module.toml, fit.md, fit.json and fit.svg.
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
@@ -215,16 +235,6 @@ fn range_text(lo: f64, hi: f64, unit: &str) -> String {
 /// Most temperatures one `liv` sweep takes.
 const MAX_LIV_TEMPS: usize = 16;
 
-fn module_by_name(name: &str) -> Result<DemoModule, String> {
-    match name {
-        "visible" => Ok(DemoModule::visible()),
-        "pump" => Ok(DemoModule::pump()),
-        other => Err(format!(
-            "unknown module '{other}' (expected 'visible' or 'pump')"
-        )),
-    }
-}
-
 /// What a run streams to while it goes: `trace.csv` (into the staging
 /// folder, moved into place with the other outputs) and the progress bar.
 struct RunSink {
@@ -327,7 +337,10 @@ fn liv(
     out: &Path,
 ) -> Result<(), String> {
     use diodestat_sim::liv::{sweep, Heating};
-    let m = module_by_name(module)?;
+    let loaded = diodestat_sim::modulefile::resolve(module, Path::new(""), "MODULE")?;
+    let inputs: Vec<PathBuf> = loaded.path.iter().cloned().collect();
+    let m = loaded.module;
+    let module = loaded.name.as_str();
     let full_ma = m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3;
     if let Some(v) = max_ma.filter(|v| *v > full_ma) {
         return Err(format!(
@@ -343,7 +356,8 @@ fn liv(
             return Err(format!("{opt}: {n} temperatures; at most {MAX_LIV_TEMPS}"));
         }
     }
-    files::check_out_dir(out, "--out", &["liv.csv", "liv.svg"], &[]).map_err(|e| e.to_string())?;
+    files::check_out_dir(out, "--out", &["liv.csv", "liv.svg"], &inputs)
+        .map_err(|e| e.to_string())?;
     // Junction temperatures: as given, else 25 degC unless only case
     // temperatures were asked for.
     let junction: &[f64] = match temps_c {
@@ -499,6 +513,25 @@ fn campaign_verdict(
     }
 }
 
+fn fit_cmd(
+    sweeps: &Path,
+    template: &Path,
+    name: Option<&str>,
+    kink_tol: f64,
+    out: &Path,
+) -> Result<(), String> {
+    let done = diodestat_sim::fit_cmd::fit_command(sweeps, template, name, kink_tol, out)?;
+    print!("{}", done.markdown);
+    println!(
+        "wrote {}, {}, {} and {}",
+        out.join("module.toml").display(),
+        out.join("fit.md").display(),
+        out.join("fit.json").display(),
+        out.join("fit.svg").display()
+    );
+    Ok(())
+}
+
 fn campaign(
     board: &Path,
     sel: &diodestat_sim::campaign::Selection,
@@ -523,12 +556,13 @@ fn campaign(
     diodestat_sim::campaign::cases(&bench, sel).map_err(|e| e.to_string())?;
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
+    inputs.extend(b.module_file.clone());
     files::check_out_dir(out, "--out", &CAMPAIGN_FILES, &inputs).map_err(|e| e.to_string())?;
     println!("{}", board_line(&b));
     let t0 = Instant::now();
     let rec = diodestat_sim::campaign::report::run_record(
         &bench,
-        b.module_name,
+        &b.module_name,
         &board.display().to_string(),
         sel,
     )?;
@@ -560,6 +594,7 @@ fn export(board: &Path, out: &Path) -> Result<(), String> {
     let b = load_board(board).map_err(|e| e.to_string())?;
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
+    inputs.extend(b.module_file.clone());
     files::check_out_file(out, "--out", &inputs).map_err(|e| e.to_string())?;
     let src = diodestat_sim::export::rust_module(&b.name, &b.valid);
     files::write_atomic(out, src.as_bytes()).map_err(|e| e.to_string())?;
@@ -585,6 +620,13 @@ fn main() -> ExitCode {
             out,
         } => liv(module, temps_c.as_deref(), case_c, *max_ma, out),
         Cmd::Export { board, out } => export(board, out),
+        Cmd::Fit {
+            sweeps,
+            template,
+            name,
+            kink_tol,
+            out,
+        } => fit_cmd(sweeps, template, name.as_deref(), *kink_tol, out),
         Cmd::Campaign {
             board,
             faults,

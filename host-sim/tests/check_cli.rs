@@ -23,6 +23,15 @@ fn diodestat(args: &[&str]) -> (bool, String) {
     (out.status.success(), text)
 }
 
+/// A shipped board file's text for a copy outside `examples/`: its module
+/// file named by absolute path (the copy has no `../modules` beside it).
+fn board_text_for_copy(board: &Path) -> String {
+    let modules = root().join("examples/modules");
+    std::fs::read_to_string(board)
+        .unwrap()
+        .replace("\"../modules/", &format!("\"{}/", modules.display()))
+}
+
 /// A scratch folder (under the target folder) with the demo red board and
 /// its start-up scenario, plus `extra` appended to the scenario.
 fn scratch(tag: &str, extra: &str) -> PathBuf {
@@ -30,7 +39,11 @@ fn scratch(tag: &str, extra: &str) -> PathBuf {
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
     let ex = root().join("examples/demo-red-30");
-    std::fs::copy(ex.join("board.toml"), dir.join("board.toml")).unwrap();
+    std::fs::write(
+        dir.join("board.toml"),
+        board_text_for_copy(&ex.join("board.toml")),
+    )
+    .unwrap();
     let sc = std::fs::read_to_string(ex.join("startup.toml")).unwrap();
     std::fs::write(dir.join("startup.toml"), format!("{sc}{extra}")).unwrap();
     dir

@@ -79,6 +79,15 @@ fn gate_passes_the_shipped_boards() {
     }
 }
 
+/// A shipped board file's text for a copy outside `examples/`: its module
+/// file named by absolute path (the copy has no `../modules` beside it).
+fn board_text_for_copy(board: &Path) -> String {
+    let modules = root().join("examples/modules");
+    std::fs::read_to_string(board)
+        .unwrap()
+        .replace("\"../modules/", &format!("\"{}/", modules.display()))
+}
+
 /// `loop-tune --write` puts the proposed gains into a copy of a shipped
 /// board file, keeping its comments; `--json` writes the design.
 #[test]
@@ -86,7 +95,7 @@ fn tune_writes_the_gains_in_place_and_the_design_as_json() {
     let dir = std::env::temp_dir().join(format!("diodestat-tune-cli-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     let board = dir.join("board.toml");
-    let before = std::fs::read_to_string(root().join("examples/demo-red-30/board.toml")).unwrap();
+    let before = board_text_for_copy(&root().join("examples/demo-red-30/board.toml"));
     std::fs::write(&board, &before).unwrap();
     let json = dir.join("tune.json");
     let (ok, text) = diodestat(&[

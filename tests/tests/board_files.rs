@@ -39,7 +39,7 @@ fn red_board_file_is_the_configuration_the_simulator_used_before() {
     before.power.max_setpoint_mw = Fx::from_num(25);
     assert_eq!(b.config, before);
     assert_eq!(b.module, DemoModule::visible());
-    assert_eq!(b.module_name, "visible");
+    assert_eq!(b.module_name, "demo-visible-650");
     assert_eq!(b.name, "demo-red-30");
     assert_eq!(
         b.valid.fingerprint(),
@@ -50,8 +50,8 @@ fn red_board_file_is_the_configuration_the_simulator_used_before() {
 #[test]
 fn both_board_files_pass_the_core_validation() {
     for (dir, module, name) in [
-        ("demo-red-30", DemoModule::visible(), "visible"),
-        ("demo-pump-5w", DemoModule::pump(), "pump"),
+        ("demo-red-30", DemoModule::visible(), "demo-visible-650"),
+        ("demo-pump-5w", DemoModule::pump(), "demo-pump-976"),
     ] {
         let b = shipped(dir);
         assert_eq!(b.module, module);
@@ -153,7 +153,7 @@ fn every_shipped_scenario_names_a_board_file_that_loads() {
     }
     let pump: Vec<_> = all
         .iter()
-        .filter(|p| load(p).1.module_name == "pump")
+        .filter(|p| load(p).1.module_name == "demo-pump-976")
         .collect();
     assert!(pump.len() >= 2, "{pump:?}");
     // One pump scenario injects a latching fault, one a heatsink loss.

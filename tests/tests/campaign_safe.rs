@@ -402,12 +402,12 @@ fn shards_merge_into_the_single_run() {
         ..quick()
     };
     let file = "examples/demo-red-30/board.toml";
-    let single = report::run_record(&bench, b.module_name, file, &sel).unwrap();
+    let single = report::run_record(&bench, &b.module_name, file, &sel).unwrap();
     assert_eq!(single.results.len(), single.total_cases);
     let shard = |k| {
         report::run_record(
             &bench,
-            b.module_name,
+            &b.module_name,
             file,
             &Selection {
                 shard: Some((k, 2)),
@@ -520,13 +520,13 @@ fn a_monte_carlo_smoke_run_shards_and_bounds() {
         ..quick()
     };
     let file = "examples/demo-pump-5w/board.toml";
-    let single = report::run_record(&bench, b.module_name, file, &sel).unwrap();
+    let single = report::run_record(&bench, &b.module_name, file, &sel).unwrap();
     assert_eq!(single.results.len(), 40);
     let shards: Vec<_> = (1..=2)
         .map(|k| {
             report::run_record(
                 &bench,
-                b.module_name,
+                &b.module_name,
                 file,
                 &Selection {
                     shard: Some((k, 2)),

@@ -18,7 +18,15 @@ fn scratch(tag: &str, files: &[(&str, String)]) -> PathBuf {
     let dir = std::env::temp_dir().join(format!("diodestat-expect-{tag}-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
-    std::fs::copy(example("demo-red-30/board.toml"), dir.join("board.toml")).unwrap();
+    // The board file with its module file beside it.
+    let board = std::fs::read_to_string(example("demo-red-30/board.toml")).unwrap();
+    let board = board.replace("\"../modules/demo-red-650.toml\"", "\"module.toml\"");
+    std::fs::write(dir.join("board.toml"), board).unwrap();
+    std::fs::copy(
+        example("modules/demo-red-650.toml"),
+        dir.join("module.toml"),
+    )
+    .unwrap();
     for (name, text) in files {
         std::fs::write(dir.join(name), text).unwrap();
     }
@@ -37,6 +45,7 @@ fn every_shipped_scenario_shows_what_it_expects() {
         "demo-red-30/startup.toml",
         "demo-red-30/modes-and-interlock.toml",
         "demo-pump-5w/startup.toml",
+        "bench-808/startup.toml",
     ] {
         let ran = check::run_file(&example(rel)).unwrap();
         assert!(ran.outcomes.len() >= 5, "{rel}: {:?}", ran.outcomes);
@@ -55,7 +64,7 @@ fn every_shipped_scenario_shows_what_it_expects() {
     }
     // Every scenario in examples/ is found by the suite and has expectations.
     let files = check::collect(&[example("")]).unwrap();
-    assert_eq!(files.len(), 5, "{files:?}");
+    assert_eq!(files.len(), 6, "{files:?}");
     for f in files {
         let sc = diodestat_sim::scenario::parse(&std::fs::read_to_string(&f).unwrap()).unwrap();
         assert!(sc.expects.len() >= 4, "{}", f.display());

@@ -263,7 +263,7 @@ fn excessive_integral_gain_fails_on_margins_and_limit_cycles() {
     let b = load_board(&root().join("tests/fixtures/excessive-ki/board.toml")).unwrap();
     let a = assess(
         &b.name,
-        b.module_name,
+        &b.module_name,
         &b.module,
         &b.valid,
         default_setpoint_mw(&b.valid),

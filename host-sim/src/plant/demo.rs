@@ -156,6 +156,8 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.01,
             slope_loss_per_khour: 0.005,
+            max_operating_c: None,
+            damage_tc_per_k: 0.0,
         }
     }
 
@@ -195,6 +197,8 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.02,
             slope_loss_per_khour: 0.01,
+            max_operating_c: None,
+            damage_tc_per_k: 0.0,
         }
     }
 
@@ -234,6 +238,8 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.005,
             slope_loss_per_khour: 0.003,
+            max_operating_c: None,
+            damage_tc_per_k: 0.0,
         }
     }
 }

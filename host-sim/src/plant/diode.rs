@@ -154,7 +154,25 @@ pub struct DiodeParams {
     pub threshold_rise_per_khour: f64,
     /// Aging: relative slope-efficiency loss per 1000 operating hours.
     pub slope_loss_per_khour: f64,
+    /// Highest junction temperature at which the diode lases, degC: above
+    /// it the threshold rises e-fold every [`CUTOFF_EFOLD_K`] on top of T0,
+    /// so lasing stops within a few kelvin. `None`: T0 holds at any
+    /// temperature.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub max_operating_c: Option<f64>,
+    /// Relative fall of the facet-damage power per kelvin of junction
+    /// temperature above `t_ref_c` (it rises as much below), 1/K:
+    /// `P_damage(T) = damage_power_w (1 - tc (T - T_ref))`, kept within
+    /// 0.05 ..= 2 times `damage_power_w`. 0 (the default): no dependence.
+    #[serde(default)]
+    pub damage_tc_per_k: f64,
 }
+
+/// Kelvin per e-fold of the threshold above the maximum operating
+/// temperature (a lumped description of the carrier-leakage cut-off; the
+/// 2 K is a modelling choice, not a measured figure: threshold x 150 at
+/// 10 K above).
+pub const CUTOFF_EFOLD_K: f64 = 2.0;
 
 /// Gain model converted to SI.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
@@ -383,6 +401,7 @@ struct Model {
     inv_t_ref: f64,
     inv_t0: f64,
     inv_t1: f64,
+    t_max_k: f64,
     lambda_ref: f64,
     drift: f64,
     n_vt_per_k: f64,
@@ -391,6 +410,7 @@ struct Model {
     act_k: f64,
     r_s: f64,
     damage_w: f64,
+    damage_tc: f64,
     damage_tau: f64,
     rise: f64,
     loss: f64,
@@ -533,6 +553,9 @@ impl Model {
             inv_t_ref: 1.0 / t_ref_k,
             inv_t0: 1.0 / p.t0_k,
             inv_t1: 1.0 / p.t1_k,
+            t_max_k: p
+                .max_operating_c
+                .map_or(f64::INFINITY, |c| c + ZERO_CELSIUS_K),
             lambda_ref: p.wavelength_nm * 1e-9,
             drift: p.wavelength_drift_nm_per_k * 1e-9,
             n_vt_per_k: p.ideality * K_B / Q,
@@ -541,6 +564,7 @@ impl Model {
             act_k: p.i_s_activation_ev * Q / (p.ideality * K_B),
             r_s: p.r_s_ohm,
             damage_w: p.damage_power_w,
+            damage_tc: p.damage_tc_per_k,
             damage_tau: p.damage_filter_ns * 1e-9,
             rise: p.threshold_rise_per_khour,
             loss: p.slope_loss_per_khour,
@@ -554,6 +578,16 @@ impl Model {
             sigma1: gamma * p.beta_sp * b,
             s3_1: -6.0 * gamma * tau_p * c,
         }
+    }
+}
+
+/// Extra threshold factor above the maximum operating temperature.
+#[inline]
+fn cutoff(t_k: f64, t_max_k: f64) -> f64 {
+    if t_k > t_max_k {
+        ((t_k - t_max_k) / CUTOFF_EFOLD_K).exp()
+    } else {
+        1.0
     }
 }
 
@@ -653,6 +687,12 @@ impl DiodeParams {
         )?;
         ensure(pos(self.t0_k), "t0_k", "must be > 0")?;
         ensure(pos(self.t1_k), "t1_k", "must be > 0")?;
+        ensure(
+            self.max_operating_c
+                .is_none_or(|c| c.is_finite() && c > self.t_ref_c),
+            "max_operating_c",
+            "must be above the reference temperature",
+        )?;
         ensure(pos(self.ideality), "ideality", "must be > 0")?;
         ensure(pos(self.i_s_a), "i_s_a", "must be > 0")?;
         ensure(
@@ -662,6 +702,11 @@ impl DiodeParams {
         )?;
         ensure(nonneg(self.r_s_ohm), "r_s_ohm", "must be >= 0")?;
         ensure(pos(self.damage_power_w), "damage_power_w", "must be > 0")?;
+        ensure(
+            nonneg(self.damage_tc_per_k) && self.damage_tc_per_k < 0.1,
+            "damage_tc_per_k",
+            "must be in 0 ..< 0.1 per K",
+        )?;
         ensure(
             nonneg(self.damage_filter_ns),
             "damage_filter_ns",
@@ -1377,7 +1422,7 @@ impl Diode {
     fn op(&self, t_k: f64) -> Op {
         let m = &self.m;
         let dt = t_k - m.t_ref_k;
-        let e0 = (dt * m.inv_t0).exp();
+        let e0 = (dt * m.inv_t0).exp() * cutoff(t_k, m.t_max_k);
         let e1 = (-dt * m.inv_t1).exp();
         let wavelength = m.lambda_ref + m.drift * dt;
         Op {
@@ -1395,7 +1440,7 @@ impl Diode {
     fn op_near(&mut self, t_k: f64) -> Op {
         let m = &self.m;
         let dt = t_k - m.t_ref_k;
-        let e0 = self.near.t0.exp(dt * m.inv_t0);
+        let e0 = self.near.t0.exp(dt * m.inv_t0) * cutoff(t_k, m.t_max_k);
         let e1 = self.near.t1.exp(-dt * m.inv_t1);
         let wavelength = m.lambda_ref + m.drift * dt;
         Op {
@@ -1534,7 +1579,7 @@ impl Diode {
         self.n = n;
         self.s = s;
         self.p_filt = out.p_front_w;
-        self.check_damage(out.p_front_w);
+        self.check_damage_at(out.p_front_w, t_k);
         out
     }
 
@@ -1575,15 +1620,30 @@ impl Diode {
         self.n = out.n_m3;
         self.s = out.s_m3;
         self.p_filt = out.p_front_w;
-        self.check_damage(out.p_front_w);
+        self.check_damage_at(out.p_front_w, t_k);
         out
     }
 
-    /// Latches facet damage if `p_front_w` exceeds the damage limit; returns
-    /// whether the facet is (now) destroyed.
+    /// Latches facet damage if `p_front_w` exceeds the damage limit at the
+    /// reference temperature; returns whether the facet is (now) destroyed.
     #[inline]
     pub fn check_damage(&mut self, p_front_w: f64) -> bool {
-        if !self.damaged && p_front_w > self.m.damage_w {
+        self.check_damage_at(p_front_w, self.m.t_ref_k)
+    }
+
+    /// Facet-damage power at junction temperature `t_k`, W.
+    #[inline]
+    pub fn damage_power_w(&self, t_k: f64) -> f64 {
+        let m = &self.m;
+        m.damage_w * (1.0 - m.damage_tc * (t_k - m.t_ref_k)).clamp(0.05, 2.0)
+    }
+
+    /// Latches facet damage if `p_front_w` exceeds the damage limit at
+    /// junction temperature `t_k`; returns whether the facet is (now)
+    /// destroyed.
+    #[inline]
+    pub fn check_damage_at(&mut self, p_front_w: f64, t_k: f64) -> bool {
+        if !self.damaged && p_front_w > self.damage_power_w(t_k) {
             self.damaged = true;
             self.s = 0.0;
         }
@@ -1609,7 +1669,8 @@ impl Diode {
         if remaining > 0.0 && !self.damaged {
             let m = &self.m;
             let p_per_s = op.hnu * m.power_coef * m.alpha_m1 * m.s_scale;
-            let (damage_w, tau) = (m.damage_w, m.damage_tau);
+            let tau = m.damage_tau;
+            let damage_w = m.damage_w * (1.0 - m.damage_tc * (t_k - m.t_ref_k)).clamp(0.05, 2.0);
             let mut p_filt = self.p_filt;
             let mut rhs = |y: [f64; 2], want: bool| rate_rhs(m, op.f, j, true, y, want);
             let (st, t_done) = integrate_rodas4_observed(
@@ -2093,5 +2154,76 @@ mod tests {
             assert!((a.p_front_w - b.p_front_w).abs() <= 1e-9 * b.p_front_w.max(1e-9));
         }
         assert!(fast.damaged());
+    }
+
+    /// Above the maximum operating temperature the threshold leaves the T0
+    /// law and rises steeply: at three times the 25 degC threshold the
+    /// diode lases normally up to it and goes dark 10 K above it.
+    #[test]
+    fn lasing_stops_above_the_maximum_operating_temperature() {
+        let mut p = DiodeParams::demo_visible();
+        let t0_law = Diode::new(p.clone()).unwrap();
+        p.max_operating_c = Some(60.0);
+        let d = Diode::new(p).unwrap();
+        let k = |c: f64| c + ZERO_CELSIUS_K;
+        for c in [25.0, 45.0, 60.0] {
+            assert_eq!(
+                d.threshold_current_a(k(c)),
+                t0_law.threshold_current_a(k(c))
+            );
+        }
+        let ratio = d.threshold_current_a(k(70.0)) / t0_law.threshold_current_a(k(70.0));
+        assert!((ratio / (10.0 / CUTOFF_EFOLD_K).exp() - 1.0).abs() < 1e-12);
+        let i = 3.0 * d.threshold_current_a(k(25.0));
+        let lasing = d.quasi_static(i, k(60.0)).p_front_w;
+        let dark = d.quasi_static(i, k(70.0)).p_front_w;
+        assert!(lasing > 0.01, "{lasing}");
+        assert!(dark < 1e-3 * lasing, "{dark} {lasing}");
+        let mut near = Diode::new(d.params().clone()).unwrap();
+        let fast = near.step_quasi_static(i, k(70.0)).p_front_w;
+        assert!((fast - dark).abs() <= 1e-9 * lasing, "{fast} {dark}");
+    }
+
+    /// With a damage temperature coefficient the facet fails at a lower
+    /// power when hot: 55 mW is safe at 25 degC (limit 60 mW) and destroys
+    /// the facet at 65 degC (limit 60 mW x 0.8 = 48 mW), in both solvers.
+    #[test]
+    fn facet_damage_level_falls_with_temperature() {
+        let mut p = DiodeParams::demo_visible();
+        p.damage_tc_per_k = 0.005;
+        let probe = Diode::new(p.clone()).unwrap();
+        let (cold, hot) = (25.0 + ZERO_CELSIUS_K, 65.0 + ZERO_CELSIUS_K);
+        assert!((probe.damage_power_w(hot) - 0.048).abs() < 1e-12);
+        // The current giving 55 mW at each temperature.
+        let current_for = |t_k: f64| {
+            let (mut lo, mut hi) = (0.0, 0.2);
+            for _ in 0..60 {
+                let mid = 0.5 * (lo + hi);
+                if probe.quasi_static(mid, t_k).p_front_w < 0.055 {
+                    lo = mid;
+                } else {
+                    hi = mid;
+                }
+            }
+            hi
+        };
+        for fast in [true, false] {
+            let mut d = Diode::new(p.clone()).unwrap();
+            let step = |d: &mut Diode, i: f64, t: f64| {
+                if fast {
+                    d.step_quasi_static(i, t)
+                } else {
+                    d.step_quasi_static_reference(i, t)
+                }
+            };
+            step(&mut d, current_for(cold), cold);
+            assert!(!d.damaged());
+            step(&mut d, current_for(hot), hot);
+            assert!(d.damaged());
+        }
+        // Without the coefficient 55 mW is safe when hot too.
+        let mut d = Diode::new(DiodeParams::demo_visible()).unwrap();
+        d.step_quasi_static(current_for(hot), hot);
+        assert!(!d.damaged());
     }
 }

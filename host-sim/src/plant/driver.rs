@@ -222,7 +222,10 @@ impl Driver {
             let t = if self.fail_high {
                 self.params.fail_high_current_a
             } else {
+                // The source's hardware clamp (its short-circuit limit)
+                // bounds whatever the DAC asks for, a stuck DAC included.
                 self.setpoint_a(self.dac_stuck.unwrap_or(dac_code))
+                    .min(self.params.fail_high_current_a)
             };
             (t, self.on_decay)
         };
@@ -443,6 +446,22 @@ mod tests {
         assert!((d.current_a() - 0.15).abs() < 1e-9);
         let i = d.step(0, false, 2.0, 5.0, 1e-5);
         assert!(i < 1e-12);
+    }
+
+    /// A DAC stuck at full scale (60 mA) drives only the 50 mA hardware
+    /// clamp, as a source failing high does.
+    #[test]
+    fn dac_stuck_at_full_scale_obeys_the_hardware_clamp() {
+        let mut d = Driver::new(DriverParams {
+            fail_high_current_a: 0.05,
+            ..params()
+        })
+        .unwrap();
+        d.dac_stuck = Some(4095);
+        for _ in 0..100 {
+            d.step(100, true, 2.0, 5.0, 1e-5);
+        }
+        assert!((d.current_a() - 0.05).abs() < 1e-9, "{}", d.current_a());
     }
 
     #[test]
