@@ -156,6 +156,13 @@ pub fn faults() -> Vec<(HwFault, bool)> {
         // within the optical ceiling for the case's 30 ms either way.
         (HwFault::MonitorDrift { per_s: 20.0 }, false),
         (HwFault::ExternalFault, true),
+        // The board's buses behind the core's edge: a DAC write, the enable
+        // line, the interlock read. Each must latch its own fault; the DAC
+        // bus is made safe by the enable line, the enable line by the DAC
+        // written to zero.
+        (HwFault::DacBus, true),
+        (HwFault::EnablePin, true),
+        (HwFault::InterlockPin, true),
     ]
 }
 
