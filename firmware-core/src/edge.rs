@@ -252,8 +252,9 @@ pub struct StartError<B, E> {
     pub error: E,
 }
 
-/// The controller with its DAC, enable line and interlock input.
-#[derive(Debug)]
+/// The controller with its DAC, enable line and interlock input. It is
+/// `Clone` when its parts are (a simulator forks a board at a moment).
+#[derive(Clone, Debug)]
 pub struct DriverBoard<D, EN, IL> {
     ctl: Controller,
     dac: D,
@@ -306,6 +307,20 @@ where
     /// The controller (status, fault log).
     pub fn controller(&self) -> &Controller {
         &self.ctl
+    }
+
+    /// The DAC, enable line and interlock input, for a test rig or a
+    /// simulator that models the hardware behind them (reading back the
+    /// code written, failing a bus). Firmware has no use for them: writing
+    /// to the enable line or the DAC directly would bypass the ordering
+    /// and the error handling of [`DriverBoard::tick`].
+    pub fn parts_mut(&mut self) -> (&mut D, &mut EN, &mut IL) {
+        (&mut self.dac, &mut self.enable, &mut self.interlock)
+    }
+
+    /// The parts, read only (see [`DriverBoard::parts_mut`]).
+    pub fn parts(&self) -> (&D, &EN, &IL) {
+        (&self.dac, &self.enable, &self.interlock)
     }
 
     /// Pass a request to the controller. While a DAC failure holds the

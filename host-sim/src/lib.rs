@@ -13,6 +13,7 @@
 #![warn(missing_docs)]
 
 pub mod board;
+pub mod board_io;
 pub mod boardfile;
 pub mod campaign;
 pub mod check;

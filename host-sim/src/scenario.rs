@@ -236,6 +236,14 @@ pub enum HwFault {
     /// The board's external fault input (a hardware comparator, a watchdog
     /// pre-warning) is asserted.
     ExternalFault,
+    /// The current DAC's bus fails: writes do not reach the DAC, which
+    /// keeps the code it had.
+    DacBus,
+    /// The enable line's output fails: writes do not reach the line, which
+    /// stays at the level it had.
+    EnablePin,
+    /// The interlock input cannot be read.
+    InterlockPin,
 }
 
 /// ADC channels of the simulated board.
@@ -272,6 +280,9 @@ impl HwFault {
             HwFault::MonitorIntermittent { .. } => "monitor-intermittent",
             HwFault::MonitorDrift { .. } => "monitor-drift",
             HwFault::ExternalFault => "external-fault",
+            HwFault::DacBus => "dac-bus",
+            HwFault::EnablePin => "enable-pin",
+            HwFault::InterlockPin => "interlock-pin",
         }
     }
 }
@@ -859,7 +870,10 @@ fn fault_keys(f: &HwFault) -> &'static [&'static str] {
         | HwFault::MonitorOpen
         | HwFault::SourceFailHigh
         | HwFault::InterlockOpen
-        | HwFault::ExternalFault => &["kind"],
+        | HwFault::ExternalFault
+        | HwFault::DacBus
+        | HwFault::EnablePin
+        | HwFault::InterlockPin => &["kind"],
     }
 }
 

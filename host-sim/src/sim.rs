@@ -41,10 +41,9 @@
 //! ([`WarningSpan`]) and the optical power over chosen intervals
 //! ([`PowerWindow`], see [`run_watching`]).
 
-use diodestat_core::{
-    Controller, Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings,
-};
+use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
+use crate::board_io::{Bus, Outputs, SimBoard};
 use crate::oscillation::{Found, TickSample, Watch};
 use crate::plant::{
     c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, Rng, SensorChain, Thermal,
@@ -384,6 +383,8 @@ impl Plant {
                 }
             }
             HwFault::ExternalFault => self.external_fault = on,
+            // The board's buses, not the plant: see `SimBoard::set_failed`.
+            HwFault::DacBus | HwFault::EnablePin | HwFault::InterlockPin => {}
         }
     }
 }
@@ -719,6 +720,16 @@ pub fn run_reference(
     )
 }
 
+/// The board bus a fault kind fails, if it is one.
+fn bus_of(f: &HwFault) -> Option<Bus> {
+    match f {
+        HwFault::DacBus => Some(Bus::Dac),
+        HwFault::EnablePin => Some(Bus::Enable),
+        HwFault::InterlockPin => Some(Bus::Interlock),
+        _ => None,
+    }
+}
+
 fn run_plant(
     sc: &Scenario,
     cfg: ValidConfig,
@@ -731,7 +742,9 @@ fn run_plant(
     let dt = 1.0 / f64::from(tick_hz);
     let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
     let config_fingerprint = Some(cfg.fingerprint());
-    let mut ctl = Controller::new(cfg);
+    // The core behind its embedded-hal edge, on the board's simulated
+    // DAC, enable line and interlock input.
+    let mut board = SimBoard::new(cfg);
     let mut events: Vec<(u64, usize, &Action)> = sc
         .events
         .iter()
@@ -762,11 +775,11 @@ fn run_plant(
     // one at `slot` written `latency` ticks ago; `None`: a missed tick
     // wrote nothing. The board starts with the DAC at zero, enable low.
     let lat = latency.get() as usize;
-    let mut pipeline = [None::<diodestat_core::Drive>; DacLatency::MAX_TICKS as usize];
+    let mut pipeline = [None::<Outputs>; DacLatency::MAX_TICKS as usize];
     let mut slot = 0usize;
-    let mut applied = diodestat_core::Drive::default();
-    let mut last_computed = applied;
-    let mut watch = Watch::new(tick_hz, to_f(ctl.config().slew_ma_per_tick()));
+    let mut applied = Outputs::default();
+    let mut last_computed = diodestat_core::Drive::default();
+    let mut watch = Watch::new(tick_hz, to_f(board.ctl().config().slew_ma_per_tick()));
     let trace_every = u64::from(sc.trace_every.max(1));
     for tick in 0..n_ticks {
         // Timed events for this tick.
@@ -798,6 +811,9 @@ fn run_plant(
                 }
                 Action::Inject { fault } => {
                     plant.inject(fault, true);
+                    if let Some(bus) = bus_of(fault) {
+                        board.set_failed(bus, true);
+                    }
                     res.happenings.push(Happening::Injected {
                         tick,
                         fault: fault.name(),
@@ -806,11 +822,14 @@ fn run_plant(
                 }
                 Action::Repair { fault } => {
                     plant.inject(fault, false);
+                    if let Some(bus) = bus_of(fault) {
+                        board.set_failed(bus, false);
+                    }
                     None
                 }
             };
             if let Some(r) = req {
-                if let Err(why) = ctl.request(r) {
+                if let Err(why) = board.request(r) {
                     res.happenings.push(Happening::Rejected {
                         tick,
                         event,
@@ -832,12 +851,13 @@ fn run_plant(
             plant.missed_left -= 1;
             None
         } else {
-            Some(ctl.step(&sample))
+            // An edge error is latched in the core (and in its log) by the
+            // edge itself; what the hardware does is in the outputs.
+            let (drive, outputs, _edge_error) = board.tick(&sample);
+            last_computed = drive;
+            Some(outputs)
         };
-        // The drive written `latency` ticks ago takes effect now.
-        if let Some(d) = computed {
-            last_computed = d;
-        }
+        // What the hardware was set to `latency` ticks ago takes effect now.
         if let Some(d) = std::mem::replace(&mut pipeline[slot], computed) {
             applied = d;
         }
@@ -861,29 +881,30 @@ fn run_plant(
         }
         // Warnings change seldom: the power, drive and mode of the tick
         // before are kept raw and converted only when one does.
-        let warnings = ctl.status().warnings;
+        let warnings = board.ctl().status().warnings;
         if warnings != last_warnings {
             let (p, d, m) = prev;
             res.warnings_changed(tick, last_warnings, warnings, (p, to_f(d), m), merge_ticks);
             last_warnings = warnings;
         }
-        prev = (p_mw, ctl.drive_ma(), ctl.mode());
+        prev = (p_mw, board.ctl().drive_ma(), board.ctl().mode());
         if !res.damaged && plant.diode.damaged() {
             res.damaged = true;
             res.happenings.push(Happening::FacetDamage { tick });
         }
-        let st = ctl.state();
+        let st = board.ctl().state();
         if st == State::Regulating {
             watch.push(
                 tick,
                 TickSample {
                     regulating: true,
                     dac_code: last_computed.dac_code,
-                    cmd_ma: to_f(ctl.drive_ma()),
-                    ceiling_ma: to_f(ctl.ceiling_ma()),
+                    cmd_ma: to_f(board.ctl().drive_ma()),
+                    ceiling_ma: to_f(board.ctl().ceiling_ma()),
                     p_mw,
-                    monitor_mw: to_f(ctl.measurements().monitor_mw),
-                    setpoint_mw: (ctl.mode() == Mode::Apc).then(|| to_f(ctl.power_target_mw())),
+                    monitor_mw: to_f(board.ctl().measurements().monitor_mw),
+                    setpoint_mw: (board.ctl().mode() == Mode::Apc)
+                        .then(|| to_f(board.ctl().power_target_mw())),
                 },
             );
         } else {
@@ -893,7 +914,7 @@ fn run_plant(
             res.happenings.push(Happening::State { tick, state: st });
             last_state = st;
         }
-        let unread = ctl.fault_log().since(log_cursor);
+        let unread = board.ctl().fault_log().since(log_cursor);
         res.faults_lost += unread.lost();
         log_cursor = unread.resume();
         for e in unread {
@@ -907,10 +928,10 @@ fn run_plant(
         }
         // Every tick feeds the plot envelope (only what the plots draw);
         // every `trace_every`-th is recorded whole.
-        let m = ctl.measurements();
+        let m = board.ctl().measurements();
         let i_ma = plant.driver.current_a() * 1e3;
         let monitor_mw = to_f(m.monitor_mw);
-        let ceiling_ma = to_f(ctl.ceiling_ma());
+        let ceiling_ma = to_f(board.ctl().ceiling_ma());
         let tj_c = k_to_c(plant.thermal.t_junction_k());
         let sensed_c = to_f(m.temp_degc);
         res.envelope.add_values(
@@ -920,7 +941,7 @@ fn run_plant(
             ],
         );
         if tick.is_multiple_of(trace_every) {
-            let status = ctl.status();
+            let status = board.ctl().status();
             let row = TraceRow {
                 tick,
                 t_s: tick as f64 * dt,
@@ -932,7 +953,7 @@ fn run_plant(
                 warnings: status.warnings,
                 p_mw,
                 i_ma,
-                cmd_ma: to_f(ctl.drive_ma()),
+                cmd_ma: to_f(board.ctl().drive_ma()),
                 ceiling_ma,
                 monitor_mw,
                 tj_c,
@@ -951,7 +972,7 @@ fn run_plant(
         }
         res.ticks = tick + 1;
     }
-    res.final_state = ctl.state();
+    res.final_state = board.ctl().state();
     res.loop_findings = watch.finish();
     for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
         s.raised_ticks += res.ticks - s.last_raised_tick;
@@ -1042,7 +1063,7 @@ mod tests {
             let board = crate::boardfile::load_board(&path).unwrap();
             let (module, cfg) = (board.module, board.valid);
             let dt = 1.0 / f64::from(cfg.config().tick_hz);
-            let mut ctl = Controller::new(cfg);
+            let mut ctl = diodestat_core::Controller::new(cfg);
             ctl.request(Request::SetPowerMw(fx(mw))).unwrap();
             let mut fast = Plant::new(&module, 25.0, 3).unwrap();
             let mut refp = Plant::new_reference(&module, 25.0, 3).unwrap();

@@ -388,6 +388,34 @@ pub fn faults(module: &DemoModule) -> Vec<FaultSpec> {
             Some(1.0),
             Fast,
         ),
+        // The board's buses behind the core's edge (the run drives the
+        // core through `DriverBoard` on simulated parts): a failed DAC
+        // write is made safe by the enable line, a failed enable line by
+        // the DAC written to zero, a failed interlock read counts as open.
+        spec(
+            HwFault::DacBus,
+            "dac-bus".into(),
+            true,
+            &["dac-bus"],
+            Some(1.0),
+            Fast,
+        ),
+        spec(
+            HwFault::EnablePin,
+            "enable-pin".into(),
+            true,
+            &["enable-pin"],
+            Some(1.0),
+            Fast,
+        ),
+        spec(
+            HwFault::InterlockPin,
+            "interlock-pin".into(),
+            true,
+            &["interlock-pin", "interlock-open"],
+            Some(1.0),
+            Fast,
+        ),
     ]
 }
 
