@@ -14,7 +14,7 @@
 set -euo pipefail
 cd "$(dirname "$0")"
 
-CORE_FLASH_MAX=$((12 * 1024))
+CORE_FLASH_MAX=$((14 * 1024))
 CORE_RAM_MAX=1024
 
 sysroot=$(rustc --print sysroot)

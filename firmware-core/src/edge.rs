@@ -180,6 +180,13 @@ pub struct AdcCounts {
     pub temperature: u16,
     /// Supply, counts.
     pub supply: u16,
+    /// Forward voltage, counts, on boards that measure it (`None`
+    /// otherwise; see [`Sample::forward_counts`]).
+    pub forward: Option<u16>,
+    /// The board's external fault input (a hardware comparator trip, a
+    /// watchdog pre-warning), as the board read it this tick: `true` is
+    /// asserted (see [`Sample::external_fault`]).
+    pub external_fault: bool,
 }
 
 /// Every hardware call that failed in one call of the edge. Each one has
@@ -345,8 +352,8 @@ where
             temp_counts: adc.temperature,
             supply_counts: adc.supply,
             interlock_closed: closed,
-            forward_counts: None,
-            external_fault: false,
+            forward_counts: adc.forward,
+            external_fault: adc.external_fault,
         };
         let mut drive = self.ctl.step(&sample);
         // Latched after the step, as a trip in it would be: the drive of

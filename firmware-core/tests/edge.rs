@@ -144,6 +144,8 @@ fn adc(cfg: &ValidConfig, tick: u32) -> AdcCounts {
         current: s.current_counts,
         temperature: s.temp_counts,
         supply: s.supply_counts,
+        forward: s.forward_counts,
+        external_fault: s.external_fault,
     }
 }
 
@@ -399,6 +401,46 @@ fn emission_writes_the_dac_before_enable_and_a_trip_drops_enable_before_the_dac(
             Ev::Dac(0)
         ]
     );
+    en.done();
+    il.done();
+    spi.done();
+}
+
+/// The board's external fault input reaches the core through the edge:
+/// asserted while emitting, it latches external-fault on that tick and the
+/// edge drops enable before zeroing the DAC. (The edge used to build its
+/// sample with the input never asserted.)
+#[test]
+fn the_external_fault_input_passes_through_the_edge_and_latches() {
+    let cfg = zero_delay();
+    let c1 = cfg.dac_code(cfg.soft_start_ma_per_tick());
+    let mut en = en_after_start(&[
+        PinT::set(Level::Low),
+        PinT::set(Level::High),
+        PinT::set(Level::Low),
+    ]);
+    let mut il = Pin::new(&[
+        PinT::get(Level::High),
+        PinT::get(Level::High),
+        PinT::get(Level::High),
+    ]);
+    let mut spi = spi_after_start(&[0, c1, 0]);
+    let mut board = board(
+        acc_controller(&cfg),
+        spi12(&spi),
+        &en,
+        &il,
+        InterlockLevel::ClosedHigh,
+    );
+    assert!(!board.tick(adc(&cfg, 0)).unwrap().enable);
+    board.request(Request::Enable).unwrap();
+    assert!(board.tick(adc(&cfg, 1)).unwrap().enable);
+    let mut counts = adc(&cfg, 2);
+    counts.external_fault = true;
+    let d = board.tick(counts).unwrap();
+    assert!(!d.enable);
+    assert_eq!(d.dac_code, 0);
+    assert!(d.status.faults.contains(Fault::ExternalFault), "{d:?}");
     en.done();
     il.done();
     spi.done();

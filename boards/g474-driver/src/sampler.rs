@@ -49,6 +49,10 @@ impl Sampler {
             current: self.adc.blocking_read(&mut self.current, SAMPLE_TIME),
             temperature: self.adc.blocking_read(&mut self.temperature, SAMPLE_TIME),
             supply: self.adc.blocking_read(&mut self.supply, SAMPLE_TIME),
+            // This board measures no forward voltage and wires no external
+            // fault input.
+            forward: None,
+            external_fault: false,
         }
     }
 }

@@ -58,7 +58,7 @@ fn panic(_: &PanicInfo) -> ! {
 }
 
 /// Inputs, written by a debugger or a test harness (never by this code).
-static mut INPUT: [u32; 8] = [0; 8];
+static mut INPUT: [u32; 9] = [0; 9];
 /// Outputs, so nothing the controller computes is dead code.
 static mut OUTPUT: [u32; 5] = [0; 5];
 /// The latch record as stored before a reset (any bytes).
@@ -227,6 +227,8 @@ fn main() -> ! {
             current: hi(input::<1>()),
             temperature: lo(input::<2>()),
             supply: hi(input::<2>()),
+            forward: (input::<8>() & 1 << 16 != 0).then(|| lo(input::<8>())),
+            external_fault: input::<8>() & 1 << 17 != 0,
         };
         let out = match board.tick(adc) {
             Ok(d) => {
