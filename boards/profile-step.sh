@@ -36,7 +36,7 @@ cargo build --release --quiet --bin "$bin"
 elf=target/thumbv7em-none-eabihf/release/$bin
 nm=$(ls "$(rustc --print sysroot)"/lib/rustlib/*/bin/llvm-nm | head -n1)
 ranges=$("$nm" -S -C "$elf" |
-  awk '/Controller::step|Controller::ramp|protect::trip_record|FaultLog::record|temp_table::|diodestat_profile_(begin|end)|__aeabi_ldivmod|__aeabi_uldivmod|__divmoddi4|__udivmoddi4|specialized_div_rem::u64_div_rem/ {
+  awk '/Controller::step|Controller::ramp|protect::trip_values|protect::record_trips|Protections::walk|FaultLog::record|temp_table::|diodestat_profile_(begin|end)|__aeabi_ldivmod|__aeabi_uldivmod|__divmoddi4|__udivmoddi4|specialized_div_rem::u64_div_rem/ {
          printf "%s0x%s+0x%s", sep, $1, $2; sep = "," }')
 markers=$("$nm" -C "$elf" | awk '/diodestat_profile_begin/ { b = "0x" $1 } /diodestat_profile_end/ { e = "0x" $1 }
   END { if (b != "" && e != "") print b, e }')
@@ -52,13 +52,13 @@ mkfifo "$dir/trace"
 python3 - "$elf" "$dir/trace" "$mode" $markers <<'PY' &
 import collections, re, subprocess, sys
 elf, trace, mode = sys.argv[1], sys.argv[2], sys.argv[3]
-# Steps per replayed block in `profile-paths` (BLOCK x REPLAYS).
+# Steps per replayed path in `profile-paths` (BLOCK x REPLAYS).
 STEPS = 200 * 10
-names = {0: "regulating", 1: "latched (condition present)"}
+names = {0: "regulating", 1: "latched (condition present)", 2: "fault trip (the step that latches)"}
 if mode == "paths":
     begin, end = int(sys.argv[4], 16) & ~1, int(sys.argv[5], 16) & ~1
     # The marker's argument is the path; the markers alternate begin/end
-    # and the paths come in order 0, 1.
+    # and the paths come in order 0, 1, 2.
     per_path = [collections.Counter() for _ in names]
 else:
     per_path = [collections.Counter()]

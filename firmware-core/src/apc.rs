@@ -260,6 +260,46 @@ mod tests {
         }
     }
 
+    /// An integrator sum beyond the `Fx` range of mA saturates the output
+    /// high (it does not wrap): at a high word of exactly 2^23 (the first
+    /// sum past the range) and at 1.5 × 2^23.
+    #[test]
+    fn an_integrator_sum_beyond_the_fx_range_saturates_high() {
+        // e = Fx::MAX (2^31 - 1 bits) from zero: the integrator sum is
+        // e × ki bits, 2^55 and a little with ki = 1 + 2^-24, 1.5 × 2^55
+        // with ki = 1.5.
+        for ki_bits in [(1 << 24) + 1, 3 << 23] {
+            let mut pi = PowerLoop::default();
+            let out = pi.step(
+                Fx::ZERO,
+                Gain::from_bits(ki_bits),
+                Fx::MAX,
+                Fx::ZERO,
+                lim(10, 1, 50),
+            );
+            // Pushed up by the slew limit, which holds the integrator.
+            assert_eq!(out, Fx::from_num(11), "ki bits {ki_bits}");
+            assert_eq!(pi.integrator_ma(), Fx::ZERO, "ki bits {ki_bits}");
+        }
+    }
+
+    /// A proportional term beyond the `Fx` range saturates high at the
+    /// first product past the range: kp = 2, e = 16 384 mW, kp·e = 2^47
+    /// in bits (a high word of exactly 2^15).
+    #[test]
+    fn a_proportional_term_beyond_the_fx_range_saturates_high() {
+        let mut pi = PowerLoop::default();
+        let out = pi.step(
+            Fx::from_num(2),
+            Gain::ZERO,
+            Fx::from_num(16_384),
+            Fx::ZERO,
+            lim(10, 1, 50),
+        );
+        assert_eq!(out, Fx::from_num(11));
+        assert_eq!(pi.integrator_ma(), Fx::ZERO);
+    }
+
     #[test]
     fn proportional_and_integral_terms() {
         let mut pi = PowerLoop::default();

@@ -6,7 +6,7 @@
 //! per-tick quantities derived once from the rates and delays, so the
 //! control tick never divides by the tick rate.
 
-use crate::fault::Fault;
+use crate::fault::{Fault, SLOTS};
 use crate::temp_table::{self, TempPoint, Window, TEMP_TABLE_LEN};
 use crate::units::{ms_to_ticks, per_tick, scale_counts, Fx, Gain};
 
@@ -242,25 +242,10 @@ pub const TEMP_COVER_MARGIN_DEGC: Fx = Fx::lit("10");
 /// Largest [`Protection::intermittent_weight`].
 pub const MAX_INTERMITTENT_WEIGHT: u16 = 255;
 
-/// The configuration key of a fault's debounce, as in [`Config`].
+/// The configuration key of a fault's debounce, as in [`Config`] (from the
+/// protection table, [`Fault::debounce_key`]).
 pub const fn debounce_key(fault: Fault) -> &'static str {
-    match fault {
-        Fault::Overcurrent => "protection.overcurrent_debounce",
-        Fault::MonitorRunaway => "protection.runaway_debounce",
-        Fault::MonitorLoss => "protection.monitor_loss_debounce",
-        Fault::SensorOpen | Fault::SensorShort => "protection.sensor_debounce",
-        Fault::OverTemperature => "protection.over_temp_debounce",
-        Fault::InterlockOpen => "protection.interlock_debounce",
-        Fault::SupplyUnder | Fault::SupplyOver => "protection.supply_debounce",
-        Fault::DriveMismatch => "protection.mismatch_debounce",
-        Fault::MissedTicks | Fault::TickOrder => "(none: 1 tick)",
-        Fault::PowerImplausible => "plausibility.debounce",
-        Fault::DiodeOpen | Fault::DiodeShort => "forward_voltage.debounce",
-        Fault::ExternalFault => "protection.external_debounce",
-        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => {
-            "(none: latched by the edge)"
-        }
-    }
+    fault.debounce_key()
 }
 
 /// A linear ADC channel: `value = (counts - offset_counts) × units_per_count`.
@@ -810,8 +795,9 @@ pub(crate) struct PerTick {
     /// The fault a reading at or above the high rail means, as a mask bit.
     pub high_rail_bit: u32,
     /// The level of the leaky debounce at which each fault trips
-    /// (`intermittent_weight × debounce`), indexed by its bit.
-    pub trip_at: [u32; Fault::COUNT],
+    /// (`intermittent_weight × debounce`), indexed by its bit (the slots
+    /// of no fault are 0).
+    pub trip_at: [u32; SLOTS],
     /// `intermittent_weight`: what a tick with the condition present adds.
     pub weight: u32,
     /// `-mismatch_tolerance_ma` (wrapping), the lower end of the window of
@@ -1118,9 +1104,14 @@ impl Config {
                 ki,
                 low_rail_bit: low_rail.bit(),
                 high_rail_bit: high_rail.bit(),
-                trip_at: Fault::ALL.map(|f| {
-                    u32::from(debounce_ticks(&self, f))
-                        .saturating_mul(u32::from(p.intermittent_weight))
+                trip_at: core::array::from_fn(|i| {
+                    u8::try_from(i)
+                        .ok()
+                        .and_then(Fault::from_index)
+                        .map_or(0, |f| {
+                            u32::from(debounce_ticks(&self, f))
+                                .saturating_mul(u32::from(p.intermittent_weight))
+                        })
                 }),
                 weight: u32::from(p.intermittent_weight),
                 neg_mismatch_tolerance_ma: p.mismatch_tolerance_ma.wrapping_neg(),
@@ -1130,27 +1121,11 @@ impl Config {
     }
 }
 
-/// The debounce of `fault`, ticks (1 for the tick-index faults, and for
-/// the optional protections of a board without them).
+/// The debounce of `fault`, ticks (from the protection table,
+/// [`Fault::debounce_ticks`]; 1 for the tick-index faults, and for the
+/// optional protections of a board without them).
 pub fn debounce_ticks(c: &Config, fault: Fault) -> u16 {
-    let p = &c.protection;
-    match fault {
-        Fault::Overcurrent => p.overcurrent_debounce,
-        Fault::MonitorRunaway => p.runaway_debounce,
-        Fault::MonitorLoss => p.monitor_loss_debounce,
-        Fault::SensorOpen | Fault::SensorShort => p.sensor_debounce,
-        Fault::OverTemperature => p.over_temp_debounce,
-        Fault::InterlockOpen => p.interlock_debounce,
-        Fault::SupplyUnder | Fault::SupplyOver => p.supply_debounce,
-        Fault::DriveMismatch => p.mismatch_debounce,
-        Fault::MissedTicks | Fault::TickOrder => 1,
-        Fault::PowerImplausible => c.plausibility.as_ref().map_or(1, |pl| pl.debounce),
-        Fault::DiodeOpen | Fault::DiodeShort => c.forward_voltage.map_or(1, |f| f.debounce),
-        Fault::ExternalFault => p.external_debounce,
-        // Latched by the edge on the failed call itself, or at boot: never
-        // debounced.
-        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => 1,
-    }
+    fault.debounce_ticks(c)
 }
 
 /// Longest debounce of a fast protection at `tick_hz`, ticks.

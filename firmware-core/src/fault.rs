@@ -1,98 +1,15 @@
 //! Faults, the set of active faults, and the fault log.
 //!
-//! Every protection is one variant of [`Fault`]. A tripped fault latches the
+//! Every protection is one variant of [`Fault`] (defined by the protection
+//! table in [`crate::protect`]). A tripped fault latches the
 //! controller; the first one is kept apart in the [`FaultLog`] and later ones
 //! go into a fixed-size ring that drops the oldest entry when full.
 
 use crate::units::Fx;
 
-/// One protection of the core. Each has its own limit and debounce in
-/// [`crate::config::Protection`]; see `protect.rs` for the checks.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-#[repr(u8)]
-pub enum Fault {
-    /// Sensed drive current at or above the overcurrent limit (fast).
-    Overcurrent = 0,
-    /// Monitor (back-facet) power at or above the runaway limit (fast).
-    MonitorRunaway = 1,
-    /// Drive at or above the "light expected" level (or, in APC regulation,
-    /// on a lower ceiling in force) while the monitor reads at or below its
-    /// floor: open photodiode, no light, dead diode.
-    MonitorLoss = 2,
-    /// Temperature sensor reads at the open-circuit rail.
-    SensorOpen = 3,
-    /// Temperature sensor reads at the short-circuit rail.
-    SensorShort = 4,
-    /// Temperature at or above the derating cut-off.
-    OverTemperature = 5,
-    /// Safety interlock open while emitting (fast).
-    InterlockOpen = 6,
-    /// Supply at or below its minimum.
-    SupplyUnder = 7,
-    /// Supply at or above its maximum.
-    SupplyOver = 8,
-    /// Sensed current differs from the command beyond tolerance (fast once
-    /// debounced): DAC or current-source failure.
-    DriveMismatch = 9,
-    /// A gap in the tick index: the board missed control ticks.
-    MissedTicks = 10,
-    /// The tick index repeated or went backward: the tick source stalled,
-    /// or a sample was delivered twice.
-    TickOrder = 11,
-    /// The sensed current is more than the healthy diode needs for the
-    /// measured power at the measured temperature, beyond the aging margin:
-    /// a degrading monitor (the real power is above what it reads) or a
-    /// diode at its end of life.
-    PowerImplausible = 12,
-    /// Forward voltage at the current source's compliance while driving:
-    /// the diode (or its wiring) is open.
-    DiodeOpen = 13,
-    /// Forward voltage below its floor while driving: the diode is shorted.
-    DiodeShort = 14,
-    /// The board's external fault input is asserted (a hardware comparator
-    /// trip, a watchdog pre-warning) (fast).
-    ExternalFault = 15,
-    /// A write to the current DAC failed (the edge, [`crate::DriverBoard`]).
-    /// Measured: the code written; limit: the configuration's largest code.
-    DacBus = 16,
-    /// The enable line could not be driven (the edge). Measured: the level
-    /// the edge tried to drive; limit: the safe level, low (0).
-    EnablePin = 17,
-    /// The interlock input could not be read (the edge); the read counts
-    /// as open. Measured: 0 (read as open); limit: 1 (closed).
-    InterlockPin = 18,
-    /// The latch record stored before a reset was refused at boot
-    /// ([`crate::LatchRecord`]): the controller starts latched. Measured: the
-    /// cause ([`crate::persist::RestoreError::code`]); limit: 0.
-    RecordCorrupt = 19,
-}
+pub use crate::protect::Fault;
 
 impl Fault {
-    /// Every fault, in bit order.
-    pub const ALL: [Fault; 20] = [
-        Fault::Overcurrent,
-        Fault::MonitorRunaway,
-        Fault::MonitorLoss,
-        Fault::SensorOpen,
-        Fault::SensorShort,
-        Fault::OverTemperature,
-        Fault::InterlockOpen,
-        Fault::SupplyUnder,
-        Fault::SupplyOver,
-        Fault::DriveMismatch,
-        Fault::MissedTicks,
-        Fault::TickOrder,
-        Fault::PowerImplausible,
-        Fault::DiodeOpen,
-        Fault::DiodeShort,
-        Fault::ExternalFault,
-        Fault::DacBus,
-        Fault::EnablePin,
-        Fault::InterlockPin,
-        Fault::RecordCorrupt,
-    ];
-
     /// Number of distinct faults.
     pub const COUNT: usize = Self::ALL.len();
 
@@ -101,75 +18,6 @@ impl Fault {
         assert!(Self::COUNT <= 32, "widen FaultSet beyond 32 faults");
         u32::MAX >> (32 - Self::COUNT)
     };
-
-    /// A fast fault shuts the drive in the same `step` that sees the sample
-    /// that trips it, after its debounce, which validation bounds to
-    /// [`crate::config::FAST_DEBOUNCE_MAX_US`] (usually 1 tick).
-    pub const fn is_fast(self) -> bool {
-        matches!(
-            self,
-            Fault::Overcurrent
-                | Fault::MonitorRunaway
-                | Fault::InterlockOpen
-                | Fault::DriveMismatch
-                | Fault::ExternalFault
-        )
-    }
-
-    /// Whether this fault is latched outside [`crate::Controller::step`]
-    /// (by the hardware edge on a failed call, [`crate::DriverBoard`], or at boot,
-    /// [`crate::LatchRecord`]) rather than by a protection on a sample.
-    pub const fn is_latched_outside_step(self) -> bool {
-        matches!(
-            self,
-            Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt
-        )
-    }
-
-    /// A short, stable name (used in logs and reports).
-    pub const fn name(self) -> &'static str {
-        match self {
-            Fault::Overcurrent => "overcurrent",
-            Fault::MonitorRunaway => "monitor-runaway",
-            Fault::MonitorLoss => "monitor-loss",
-            Fault::SensorOpen => "sensor-open",
-            Fault::SensorShort => "sensor-short",
-            Fault::OverTemperature => "over-temperature",
-            Fault::InterlockOpen => "interlock-open",
-            Fault::SupplyUnder => "supply-under",
-            Fault::SupplyOver => "supply-over",
-            Fault::DriveMismatch => "drive-mismatch",
-            Fault::MissedTicks => "missed-ticks",
-            Fault::TickOrder => "tick-order",
-            Fault::PowerImplausible => "power-implausible",
-            Fault::DiodeOpen => "diode-open",
-            Fault::DiodeShort => "diode-short",
-            Fault::ExternalFault => "external-fault",
-            Fault::DacBus => "dac-bus",
-            Fault::EnablePin => "enable-pin",
-            Fault::InterlockPin => "interlock-pin",
-            Fault::RecordCorrupt => "record-corrupt",
-        }
-    }
-
-    /// Unit of [`FaultRecord::measured`] and [`FaultRecord::limit`].
-    pub const fn unit(self) -> &'static str {
-        match self {
-            Fault::Overcurrent | Fault::DriveMismatch | Fault::PowerImplausible => "mA",
-            Fault::MonitorRunaway | Fault::MonitorLoss => "mW",
-            Fault::SensorOpen | Fault::SensorShort => "counts",
-            Fault::OverTemperature => "degC",
-            Fault::InterlockOpen | Fault::InterlockPin => "closed(1)/open(0)",
-            Fault::SupplyUnder | Fault::SupplyOver => "mV",
-            Fault::MissedTicks => "ticks",
-            Fault::TickOrder => "ticks (index step)",
-            Fault::DiodeOpen | Fault::DiodeShort => "mV",
-            Fault::ExternalFault => "asserted(1)",
-            Fault::DacBus => "code",
-            Fault::EnablePin => "high(1)/low(0)",
-            Fault::RecordCorrupt => "cause(1 erased, 2 check, 3 format)",
-        }
-    }
 
     /// The fault with discriminant `n`, if any.
     pub fn from_index(n: u8) -> Option<Fault> {
@@ -187,6 +35,10 @@ impl core::fmt::Display for Fault {
         f.write_str(self.name())
     }
 }
+
+/// Slots of a per-fault array indexed by a fault's bit: one per bit of a
+/// [`FaultSet`] (an index below 32 needs no bounds check).
+pub(crate) const SLOTS: usize = 32;
 
 /// A set of faults as a bit mask (bit `n` is the fault with discriminant `n`).
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]

@@ -16,7 +16,7 @@
 //!
 //! Each protection has a level `L` (starting at 0). A tick with its
 //! condition present adds the weight `w`
-//! ([`crate::config::Protection::intermittent_weight`]), a tick without
+//! ([`crate::Protection::intermittent_weight`]), a tick without
 //! takes 1 away (never below 0); it trips when `L >= w·N`, `N` its debounce
 //! (the level is held at `w·N`). A steady condition therefore trips on its
 //! `N`-th tick, exactly as a consecutive-tick debounce would, but a clean
@@ -39,18 +39,513 @@
 //! condition present in at most `1/(w + 1)` of the ticks may never trip.
 //!
 //! The fast protections ([`Fault::is_fast`]) have their `N` bounded by
-//! validation ([`crate::config::FAST_DEBOUNCE_MAX_US`]), so their bound is
+//! validation ([`crate::FAST_DEBOUNCE_MAX_US`]), so their bound is
 //! at most `w·N_max / ((w + 1)·d − 1)` ticks of a tick rate's 500 µs.
 //!
-//! Current-for-power plausibility ([`crate::config::Plausibility`]) is a
+//! Current-for-power plausibility ([`crate::Plausibility`]) is a
 //! slow protection: it is evaluated every [`SLOW_EVERY`] ticks and its
 //! condition is held in between (it counts on every tick like the others).
 
-use crate::config::{Plausibility, Rail, ValidConfig};
-use crate::fault::{Fault, FaultLog, FaultRecord, FaultSet};
+use crate::config::{Config, ForwardVoltage, Plausibility, Protection, Rail, ValidConfig};
+use crate::fault::{FaultLog, FaultRecord, FaultSet, SLOTS};
 use crate::io::State;
 use crate::temp_table::Window;
 use crate::units::{scale_counts, Fx};
+
+/// The protection table: one entry per [`Fault`], in bit order. An entry
+/// gives everything about its protection:
+///
+/// - the doc, discriminant (its bit in a [`FaultSet`], fixed: records are
+///   stored by it), `name` and `unit` (of its record);
+/// - `speed`: `fast` ([`Fault::is_fast`]: debounce bounded by validation),
+///   `slow` (evaluated every [`SLOW_EVERY`] ticks, held in between), `tick`
+///   (any other sample protection) or `edge` (latched outside `step`,
+///   [`Fault::is_latched_outside_step`]);
+/// - `armed`: `always` (every state), `active` (Arming, Ramping,
+///   Regulating, Stopping), `driving` (Ramping, Regulating) or `never` (an
+///   edge fault, never a sample condition);
+/// - `debounce`: its configuration key and its count in ticks
+///   ([`Fault::debounce_ticks`]; validation refuses zero, and a fast
+///   protection's count above [`crate::FAST_DEBOUNCE_MAX_US`]);
+/// - `condition`: `tick |x| ..` (a comparison of the calibrated
+///   [`Measurements`], in [`Ctx`] `x`, evaluated on every tick in
+///   [`quiet`] and [`present_mask`]), `direct |r| ..` (read straight off
+///   the sample, in [`Raw`] `r`, by [`Measurements::from_sample`]),
+///   `forward |f| ..` (the same, on the forward-voltage channel while
+///   driving, in [`Forward`] `f`), `slow |x| ..` (in [`Slow`], by
+///   [`Protections::evaluate_slow`]) or `edge` (none);
+/// - `record`: the measured value and the limit its trip records
+///   ([`trip_values`]), in `unit`.
+///
+/// The leaky debounce and its bound, the arming masks and the log apply by
+/// themselves.
+macro_rules! protections {
+    ($(
+        $(#[doc = $doc:literal])*
+        $variant:ident = $n:literal {
+            name: $name:literal,
+            unit: $unit:literal,
+            speed: $speed:ident,
+            armed: $armed:ident,
+            debounce: $key:literal, |$dc:pat_param| $debounce:expr,
+            condition: $kind:ident $(|$cx:ident| $cond:expr)?,
+            record: |$rx:pat_param| $record:expr,
+        }
+    )*) => {
+        /// One protection of the core (an entry of the protection table in
+        /// `protect.rs`); its discriminant is its bit in a
+        /// [`FaultSet`].
+        #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+        #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+        #[repr(u8)]
+        pub enum Fault {
+            $( $(#[doc = $doc])* $variant = $n, )*
+        }
+
+        impl Fault {
+            /// Every fault, in bit order.
+            pub const ALL: [Fault; [$($n),*].len()] = [$(Fault::$variant),*];
+
+            /// A short, stable name (used in logs and reports).
+            pub const fn name(self) -> &'static str {
+                match self { $(Fault::$variant => $name,)* }
+            }
+
+            /// Unit of [`FaultRecord::measured`] and [`FaultRecord::limit`].
+            pub const fn unit(self) -> &'static str {
+                match self { $(Fault::$variant => $unit,)* }
+            }
+
+            /// A fast fault shuts the drive in the same `step` that sees the
+            /// sample that trips it, after its debounce, which validation
+            /// bounds to [`crate::FAST_DEBOUNCE_MAX_US`] (usually 1
+            /// tick).
+            pub const fn is_fast(self) -> bool {
+                match self { $(Fault::$variant => protections!(@is $speed fast),)* }
+            }
+
+            /// Whether this fault is latched outside [`crate::Controller::step`]
+            /// (by the hardware edge on a failed call, [`crate::DriverBoard`], or at
+            /// boot, [`crate::LatchRecord`]) rather than by a protection on a
+            /// sample.
+            pub const fn is_latched_outside_step(self) -> bool {
+                match self { $(Fault::$variant => protections!(@is $speed edge),)* }
+            }
+
+            /// The configuration key of this fault's debounce, as in
+            /// [`crate::Config`].
+            pub const fn debounce_key(self) -> &'static str {
+                match self { $(Fault::$variant => $key,)* }
+            }
+
+            /// The debounce of this fault in `c`, ticks.
+            pub fn debounce_ticks(self, c: &Config) -> u16 {
+                match self { $(Fault::$variant => { let $dc = c; $debounce })* }
+            }
+        }
+
+        /// Faults armed in every state.
+        const ALWAYS_ARMED: u32 = 0 $(| protections!(@bit_if $armed always $variant))*;
+        /// Faults armed from Arming to Stopping.
+        const ACTIVE_ARMED: u32 =
+            ALWAYS_ARMED $(| protections!(@bit_if $armed active $variant))*;
+        /// Faults armed while ramping or regulating.
+        const DRIVING_ARMED: u32 =
+            ACTIVE_ARMED $(| protections!(@bit_if $armed driving $variant))*;
+
+        /// Whether no `tick` condition is present and `direct` is empty: the
+        /// negation of every comparison in [`present_mask`], tested one
+        /// after the other so that the usual tick stops at none and builds
+        /// no mask.
+        #[inline]
+        fn quiet<F: Fn() -> Fx>(ctx: &Ctx<'_, F>) -> bool {
+            ctx.direct == 0 $(&& protections!(@quiet $kind ctx $(|$cx| $cond)?))*
+        }
+
+        /// The conditions present in one sample, as a mask: `direct` and
+        /// every `tick` condition.
+        #[inline]
+        fn present_mask<F: Fn() -> Fx>(ctx: &Ctx<'_, F>) -> u32 {
+            ctx.direct $(| protections!(@mask $kind tick ctx $variant $(|$cx| $cond)?))*
+        }
+
+        /// The conditions read straight off the sample, as a mask.
+        #[inline]
+        fn direct_mask(raw: &Raw) -> u32 {
+            0 $(| protections!(@mask $kind direct raw $variant $(|$cx| $cond)?))*
+        }
+
+        /// The forward-voltage conditions present, as a mask.
+        #[inline]
+        fn forward_mask(f: &Forward<'_>) -> u32 {
+            0 $(| protections!(@mask $kind forward f $variant $(|$cx| $cond)?))*
+        }
+
+        /// The slow conditions present, as a mask.
+        #[inline]
+        fn slow_mask(ctx: &Slow) -> u32 {
+            0 $(| protections!(@mask $kind slow ctx $variant $(|$cx| $cond)?))*
+        }
+
+        /// What the record of a tripped fault holds: the measured value
+        /// and the limit it reached, in [`Fault::unit`]. Computed only when
+        /// a fault trips; out of line, so that no record is computed before
+        /// it is needed.
+        #[inline(never)]
+        fn trip_values(cfg: &ValidConfig, m: &Measurements, last_cmd_ma: Fx, fault: Fault) -> (Fx, Fx) {
+            let ctx = Ctx::plain(cfg, m, last_cmd_ma);
+            match fault {
+                $(Fault::$variant => { let $rx = &ctx; $record })*
+            }
+        }
+    };
+    (@is $speed:ident $want:ident) => { protections!(@eq $speed $want) };
+    (@eq fast fast) => { true };
+    (@eq edge edge) => { true };
+    (@eq $a:ident $b:ident) => { false };
+    (@bit_if always always $v:ident) => { Fault::$v.bit() };
+    (@bit_if active active $v:ident) => { Fault::$v.bit() };
+    (@bit_if driving driving $v:ident) => { Fault::$v.bit() };
+    (@bit_if $a:ident $b:ident $v:ident) => { 0 };
+    (@quiet tick $ctx:ident |$cx:ident| $cond:expr) => { !{ let $cx = $ctx; $cond } };
+    (@quiet $kind:ident $ctx:ident $($rest:tt)*) => { true };
+    (@mask tick tick $ctx:ident $v:ident |$cx:ident| $cond:expr) => {
+        if { let $cx = $ctx; $cond } { Fault::$v.bit() } else { 0 }
+    };
+    (@mask direct direct $ctx:ident $v:ident |$cx:ident| $cond:expr) => {
+        if { let $cx = $ctx; $cond } { Fault::$v.bit() } else { 0 }
+    };
+    (@mask forward forward $ctx:ident $v:ident |$cx:ident| $cond:expr) => {
+        if { let $cx = $ctx; $cond } { Fault::$v.bit() } else { 0 }
+    };
+    (@mask slow slow $ctx:ident $v:ident |$cx:ident| $cond:expr) => {
+        if { let $cx = $ctx; $cond } { Fault::$v.bit() } else { 0 }
+    };
+    (@mask $kind:ident $want:ident $ctx:ident $($rest:tt)*) => { 0 };
+}
+
+protections! {
+    /// Sensed drive current at or above the overcurrent limit (fast).
+    Overcurrent = 0 {
+        name: "overcurrent",
+        unit: "mA",
+        speed: fast,
+        armed: always,
+        debounce: "protection.overcurrent_debounce", |c| c.protection.overcurrent_debounce,
+        condition: tick |x| x.m.current_ma >= x.p.overcurrent_ma,
+        record: |x| (x.m.current_ma, x.p.overcurrent_ma),
+    }
+    /// Monitor (back-facet) power at or above the runaway limit (fast).
+    MonitorRunaway = 1 {
+        name: "monitor-runaway",
+        unit: "mW",
+        speed: fast,
+        armed: always,
+        debounce: "protection.runaway_debounce", |c| c.protection.runaway_debounce,
+        condition: tick |x| x.m.monitor_mw >= x.p.runaway_mw,
+        record: |x| (x.m.monitor_mw, x.p.runaway_mw),
+    }
+    /// Drive at or above the "light expected" level (or, in APC regulation,
+    /// on a lower ceiling in force) while the monitor reads at or below its
+    /// floor: open photodiode, no light, dead diode.
+    MonitorLoss = 2 {
+        name: "monitor-loss",
+        unit: "mW",
+        speed: tick,
+        armed: driving,
+        debounce: "protection.monitor_loss_debounce", |c| c.protection.monitor_loss_debounce,
+        condition: tick |x| x.m.monitor_mw <= x.p.monitor_loss_floor_mw
+            && x.last_cmd_ma > Fx::ZERO
+            && x.last_cmd_ma >= (x.light_expected_ma)(),
+        record: |x| (x.m.monitor_mw, x.p.monitor_loss_floor_mw),
+    }
+    /// Temperature sensor reads at the open-circuit rail.
+    SensorOpen = 3 {
+        name: "sensor-open",
+        unit: "counts",
+        speed: tick,
+        armed: active,
+        debounce: "protection.sensor_debounce", |c| c.protection.sensor_debounce,
+        condition: direct |r| r.rails & Fault::SensorOpen.bit() != 0,
+        record: |x| (counts(x.m.temp_counts), counts(x.open_rail_counts())),
+    }
+    /// Temperature sensor reads at the short-circuit rail.
+    SensorShort = 4 {
+        name: "sensor-short",
+        unit: "counts",
+        speed: tick,
+        armed: active,
+        debounce: "protection.sensor_debounce", |c| c.protection.sensor_debounce,
+        condition: direct |r| r.rails & Fault::SensorShort.bit() != 0,
+        record: |x| (counts(x.m.temp_counts), counts(x.short_rail_counts())),
+    }
+    /// Temperature at or above the derating cut-off (not while the sensor
+    /// reads at a rail).
+    OverTemperature = 5 {
+        name: "over-temperature",
+        unit: "degC",
+        speed: tick,
+        armed: active,
+        debounce: "protection.over_temp_debounce", |c| c.protection.over_temp_debounce,
+        condition: tick |x| x.direct & SENSOR_RAILS == 0 && x.m.temp_degc >= x.c.derating.cutoff_degc,
+        record: |x| (x.m.temp_degc, x.c.derating.cutoff_degc),
+    }
+    /// Safety interlock open while emitting (fast).
+    InterlockOpen = 6 {
+        name: "interlock-open",
+        unit: "closed(1)/open(0)",
+        speed: fast,
+        armed: active,
+        debounce: "protection.interlock_debounce", |c| c.protection.interlock_debounce,
+        condition: tick |x| !x.m.interlock_closed,
+        record: |x| (Fx::from_num(u8::from(x.m.interlock_closed)), Fx::ONE),
+    }
+    /// Supply at or below its minimum.
+    SupplyUnder = 7 {
+        name: "supply-under",
+        unit: "mV",
+        speed: tick,
+        armed: active,
+        debounce: "protection.supply_debounce", |c| c.protection.supply_debounce,
+        condition: tick |x| x.m.supply_mv <= x.p.supply_min_mv,
+        record: |x| (x.m.supply_mv, x.p.supply_min_mv),
+    }
+    /// Supply at or above its maximum.
+    SupplyOver = 8 {
+        name: "supply-over",
+        unit: "mV",
+        speed: tick,
+        armed: active,
+        debounce: "protection.supply_debounce", |c| c.protection.supply_debounce,
+        condition: tick |x| x.m.supply_mv >= x.p.supply_max_mv,
+        record: |x| (x.m.supply_mv, x.p.supply_max_mv),
+    }
+    /// Sensed current differs from the command beyond tolerance (fast once
+    /// debounced): DAC or current-source failure.
+    DriveMismatch = 9 {
+        name: "drive-mismatch",
+        unit: "mA",
+        speed: fast,
+        armed: always,
+        debounce: "protection.mismatch_debounce", |c| c.protection.mismatch_debounce,
+        condition: tick |x| !mismatch_within(x.cfg, x.m, x.last_cmd_ma),
+        record: |x| (mismatch_ma(x.m, x.last_cmd_ma), x.p.mismatch_tolerance_ma),
+    }
+    /// A gap in the tick index: the board missed control ticks.
+    MissedTicks = 10 {
+        name: "missed-ticks",
+        unit: "ticks",
+        speed: tick,
+        armed: active,
+        debounce: "(none: 1 tick)", |_| 1,
+        condition: tick |x| x.m.missed_ticks >= u32::from(x.p.missed_tick_limit)
+            && x.m.missed_ticks < TICK_ORDER_MISSED,
+        record: |x| (
+            saturating_fx(x.m.missed_ticks),
+            saturating_fx(u32::from(x.p.missed_tick_limit)),
+        ),
+    }
+    /// The tick index repeated or went backward: the tick source stalled,
+    /// or a sample was delivered twice.
+    TickOrder = 11 {
+        name: "tick-order",
+        unit: "ticks (index step)",
+        speed: tick,
+        armed: active,
+        debounce: "(none: 1 tick)", |_| 1,
+        // (At or above the missed-tick limit too, which is below
+        // TICK_ORDER_MISSED: one comparison clears both on a usual tick.)
+        condition: tick |x| x.m.missed_ticks >= u32::from(x.p.missed_tick_limit)
+            && x.m.missed_ticks >= TICK_ORDER_MISSED,
+        // The index step (0 repeated, negative backward) and the smallest
+        // accepted step.
+        record: |x| (Fx::saturating_from_num(x.m.missed_ticks.wrapping_add(1) as i32), Fx::ONE),
+    }
+    /// The sensed current is more than the healthy diode needs for the
+    /// measured power at the measured temperature, beyond the aging margin:
+    /// a degrading monitor (the real power is above what it reads) or a
+    /// diode at its end of life.
+    PowerImplausible = 12 {
+        name: "power-implausible",
+        unit: "mA",
+        speed: slow,
+        armed: driving,
+        debounce: "plausibility.debounce",
+            |c| c.plausibility.as_ref().map_or(1, |pl| pl.debounce),
+        condition: slow |x| x.plausibility.is_some_and(|(_, fault, _)| fault),
+        // The bound at the tripping sample.
+        record: |x| (
+            x.m.current_ma,
+            x.c.plausibility.as_ref().map_or(Fx::MAX, |pl| plausibility(pl, x.m).2),
+        ),
+    }
+    /// Forward voltage at the current source's compliance while driving:
+    /// the diode (or its wiring) is open.
+    DiodeOpen = 13 {
+        name: "diode-open",
+        unit: "mV",
+        speed: tick,
+        armed: driving,
+        debounce: "forward_voltage.debounce", |c| c.forward_voltage.map_or(1, |f| f.debounce),
+        condition: forward |f| f.mv >= f.fv.open_mv,
+        record: |x| (x.m.forward_mv, x.c.forward_voltage.map_or(Fx::ZERO, |f| f.open_mv)),
+    }
+    /// Forward voltage below its floor while driving: the diode is shorted.
+    DiodeShort = 14 {
+        name: "diode-short",
+        unit: "mV",
+        speed: tick,
+        armed: driving,
+        debounce: "forward_voltage.debounce", |c| c.forward_voltage.map_or(1, |f| f.debounce),
+        condition: forward |f| f.mv <= f.fv.short_mv,
+        record: |x| (x.m.forward_mv, x.c.forward_voltage.map_or(Fx::ZERO, |f| f.short_mv)),
+    }
+    /// The board's external fault input is asserted (a hardware comparator
+    /// trip, a watchdog pre-warning) (fast).
+    ExternalFault = 15 {
+        name: "external-fault",
+        unit: "asserted(1)",
+        speed: fast,
+        armed: always,
+        debounce: "protection.external_debounce", |c| c.protection.external_debounce,
+        condition: direct |r| r.external,
+        record: |x| (Fx::from_num(u8::from(x.m.external_fault)), Fx::ONE),
+    }
+    /// A write to the current DAC failed (the edge, [`crate::DriverBoard`]).
+    /// Measured: the code written; limit: the configuration's largest code.
+    DacBus = 16 {
+        name: "dac-bus",
+        unit: "code",
+        speed: edge,
+        armed: never,
+        debounce: "(none: latched by the edge)", |_| 1,
+        condition: edge,
+        record: |_| (Fx::ZERO, Fx::ZERO),
+    }
+    /// The enable line could not be driven (the edge). Measured: the level
+    /// the edge tried to drive; limit: the safe level, low (0).
+    EnablePin = 17 {
+        name: "enable-pin",
+        unit: "high(1)/low(0)",
+        speed: edge,
+        armed: never,
+        debounce: "(none: latched by the edge)", |_| 1,
+        condition: edge,
+        record: |_| (Fx::ZERO, Fx::ZERO),
+    }
+    /// The interlock input could not be read (the edge); the read counts
+    /// as open. Measured: 0 (read as open); limit: 1 (closed).
+    InterlockPin = 18 {
+        name: "interlock-pin",
+        unit: "closed(1)/open(0)",
+        speed: edge,
+        armed: never,
+        debounce: "(none: latched by the edge)", |_| 1,
+        condition: edge,
+        record: |_| (Fx::ZERO, Fx::ZERO),
+    }
+    /// The latch record stored before a reset was refused at boot
+    /// ([`crate::LatchRecord`]): the controller starts latched. Measured: the
+    /// cause ([`crate::RestoreError::code`]); limit: 0.
+    RecordCorrupt = 19 {
+        name: "record-corrupt",
+        unit: "cause(1 erased, 2 check, 3 format)",
+        speed: edge,
+        armed: never,
+        debounce: "(none: latched by the edge)", |_| 1,
+        condition: edge,
+        record: |_| (Fx::ZERO, Fx::ZERO),
+    }
+}
+
+/// What a `tick`, `slow` condition or a record of the table reads: the
+/// sample's measurements and the configuration.
+struct Ctx<'a, F> {
+    cfg: &'a ValidConfig,
+    c: &'a Config,
+    p: &'a Protection,
+    m: &'a Measurements,
+    /// The conditions read straight off the sample ([`direct_mask`]).
+    direct: u32,
+    /// The command that produced the sample, mA.
+    last_cmd_ma: Fx,
+    /// The command at or above which the monitor must see light, mA
+    /// (evaluated only when needed).
+    light_expected_ma: F,
+}
+
+impl<'a> Ctx<'a, fn() -> Fx> {
+    /// A context without `direct` and the monitor-loss drive (for a
+    /// record).
+    fn plain(cfg: &'a ValidConfig, m: &'a Measurements, last_cmd_ma: Fx) -> Self {
+        let c = cfg.config();
+        Ctx {
+            cfg,
+            c,
+            p: &c.protection,
+            m,
+            direct: 0,
+            last_cmd_ma,
+            light_expected_ma: || Fx::ZERO,
+        }
+    }
+}
+
+impl<F> Ctx<'_, F> {
+    /// The temperature counts of the open-circuit rail.
+    fn open_rail_counts(&self) -> u16 {
+        let tc = &self.c.calibration.temperature;
+        match tc.open_rail {
+            Rail::High => tc.high_fault_counts,
+            Rail::Low => tc.low_fault_counts,
+        }
+    }
+
+    /// The temperature counts of the short-circuit rail.
+    fn short_rail_counts(&self) -> u16 {
+        let tc = &self.c.calibration.temperature;
+        match tc.open_rail {
+            Rail::High => tc.low_fault_counts,
+            Rail::Low => tc.high_fault_counts,
+        }
+    }
+}
+
+/// What a `slow` condition of the table reads: the verdicts of the slow
+/// evaluations, each made once per evaluation.
+struct Slow {
+    /// [`plausibility`] of the sample, when configured.
+    plausibility: Option<(bool, bool, Fx)>,
+}
+
+/// What a `direct` condition of the table reads: the raw sample, before
+/// calibration.
+struct Raw {
+    /// The sensor-rail conditions, as mask bits (the rail each reading is
+    /// at, mapped to open or short at validation).
+    rails: u32,
+    /// The external fault input is asserted.
+    external: bool,
+}
+
+/// The sensor-rail conditions (open, short) as a mask: a reading at a rail
+/// is no temperature.
+const SENSOR_RAILS: u32 = Fault::SensorOpen.bit() | Fault::SensorShort.bit();
+
+/// What a `forward` condition of the table reads: the forward-voltage
+/// channel, on a board that measures it, while the command that produced
+/// the sample is at or above its `min_drive_ma` (driving).
+struct Forward<'a> {
+    /// The forward voltage, mV.
+    mv: Fx,
+    /// Its configuration.
+    fv: &'a ForwardVoltage,
+}
+
+/// Counts above the Fx range (32 767) saturate in the records.
+fn counts(n: u16) -> Fx {
+    Fx::saturating_from_num(n)
+}
 
 /// Calibrated measurements of one sample, plus the tick gap.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -118,10 +613,13 @@ impl Measurements {
         } else {
             0
         };
-        let mut direct = rails;
-        if s.external_fault {
-            direct |= bit(Fault::ExternalFault);
-        }
+        // (`rails` already holds the sensor conditions of the table: the
+        // union only spares their re-derivation.)
+        let mut direct = rails
+            | direct_mask(&Raw {
+                rails,
+                external: s.external_fault,
+            });
         let mut forward_mv = Fx::ZERO;
         if let (Some(fv), Some(counts)) = (&cfg.config().forward_voltage, s.forward_counts) {
             forward_mv = scale_counts(
@@ -129,12 +627,7 @@ impl Measurements {
                 fv.cal.units_per_count,
             );
             if last_cmd_ma >= fv.min_drive_ma {
-                if forward_mv >= fv.open_mv {
-                    direct |= bit(Fault::DiodeOpen);
-                }
-                if forward_mv <= fv.short_mv {
-                    direct |= bit(Fault::DiodeShort);
-                }
+                direct |= forward_mask(&Forward { mv: forward_mv, fv });
             }
         }
         let m = Measurements {
@@ -157,11 +650,15 @@ impl Measurements {
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub(crate) struct Protections {
-    levels: [u32; Fault::COUNT],
+    /// Indexed by a fault's bit; the slots of no fault stay zero (a bit
+    /// index masked to 0..32 needs no bounds check).
+    levels: [u32; SLOTS],
     /// Bit mask (as [`FaultSet`]) of the levels that are not zero.
     counting: u32,
     /// Slow conditions present at their latest evaluation, held.
     slow: u32,
+    /// `counting | slow`: whether a tick without conditions has work.
+    busy: u32,
 }
 
 /// Result of one evaluation.
@@ -172,33 +669,12 @@ pub(crate) struct Verdict {
     pub tripped: FaultSet,
 }
 
-/// Bit of `fault` in a [`FaultSet`] mask.
-const fn bit(fault: Fault) -> u32 {
-    fault.bit()
-}
-
-/// Faults armed in every state (light or current while off is a hardware
-/// failure).
-const ALWAYS_ARMED: u32 = bit(Fault::Overcurrent)
-    | bit(Fault::MonitorRunaway)
-    | bit(Fault::DriveMismatch)
-    | bit(Fault::ExternalFault);
-
-/// Every fault.
-const ALL_FAULTS: u32 = Fault::ALL_BITS;
-
-/// Faults that need drive: armed only while ramping or regulating.
-const NEED_DRIVE: u32 = bit(Fault::MonitorLoss)
-    | bit(Fault::PowerImplausible)
-    | bit(Fault::DiodeOpen)
-    | bit(Fault::DiodeShort);
-
 /// The faults armed in `state`, as a mask.
 const fn armed(state: State) -> u32 {
     match state {
         State::Off | State::Latched => ALWAYS_ARMED,
-        State::Arming | State::Stopping => ALL_FAULTS & !NEED_DRIVE,
-        State::Ramping | State::Regulating => ALL_FAULTS,
+        State::Arming | State::Stopping => ACTIVE_ARMED,
+        State::Ramping | State::Regulating => DRIVING_ARMED,
     }
 }
 
@@ -233,166 +709,31 @@ fn difference_within(a: Fx, b: Fx, tol: Fx, neg_tol: Fx) -> bool {
     diff > neg_tol && diff < tol
 }
 
-/// Whether no condition at all is present in one sample: the negation of
-/// every comparison in [`present_mask`], tested one after the other so
-/// that the usual tick stops at none and builds no mask.
-#[inline]
-fn quiet(
-    cfg: &ValidConfig,
-    m: &Measurements,
-    rails: u32,
-    last_cmd_ma: Fx,
-    light_expected_ma: impl Fn() -> Fx,
-) -> bool {
-    let c = cfg.config();
-    let p = &c.protection;
-    rails == 0
-        && m.current_ma < p.overcurrent_ma
-        && m.monitor_mw < p.runaway_mw
-        && m.interlock_closed
-        && m.supply_mv > p.supply_min_mv
-        && m.supply_mv < p.supply_max_mv
-        && m.temp_degc < c.derating.cutoff_degc
-        && mismatch_within(cfg, m, last_cmd_ma)
-        && m.missed_ticks < u32::from(p.missed_tick_limit)
-        && !(m.monitor_mw <= p.monitor_loss_floor_mw
-            && last_cmd_ma > Fx::ZERO
-            && last_cmd_ma >= light_expected_ma())
-}
-
-/// The conditions present in one sample, as a mask. Each is a plain
-/// comparison of a calibrated value with its limit; `rails` are the
-/// sensor-rail conditions from [`Measurements::from_sample`].
-#[inline]
-fn present_mask(
-    cfg: &ValidConfig,
-    m: &Measurements,
-    rails: u32,
-    last_cmd_ma: Fx,
-    light_expected_ma: impl Fn() -> Fx,
-) -> u32 {
-    let c = cfg.config();
-    let p = &c.protection;
-    let flag = |on: bool, fault: Fault| if on { bit(fault) } else { 0 };
-    rails
-        | flag(m.current_ma >= p.overcurrent_ma, Fault::Overcurrent)
-        | flag(m.monitor_mw >= p.runaway_mw, Fault::MonitorRunaway)
-        | flag(
-            m.monitor_mw <= p.monitor_loss_floor_mw
-                && last_cmd_ma > Fx::ZERO
-                && last_cmd_ma >= light_expected_ma(),
-            Fault::MonitorLoss,
-        )
-        | flag(
-            rails == 0 && m.temp_degc >= c.derating.cutoff_degc,
-            Fault::OverTemperature,
-        )
-        | flag(!m.interlock_closed, Fault::InterlockOpen)
-        | flag(m.supply_mv <= p.supply_min_mv, Fault::SupplyUnder)
-        | flag(m.supply_mv >= p.supply_max_mv, Fault::SupplyOver)
-        | flag(!mismatch_within(cfg, m, last_cmd_ma), Fault::DriveMismatch)
-        | flag(
-            m.missed_ticks >= u32::from(p.missed_tick_limit) && m.missed_ticks < TICK_ORDER_MISSED,
-            Fault::MissedTicks,
-        )
-        | flag(m.missed_ticks >= TICK_ORDER_MISSED, Fault::TickOrder)
-}
-
-/// Record the tripped fault of bit `index` in the log. Out of line: it
-/// runs once per trip.
+/// Record the `tripped` faults (a mask) in the log, in bit order. Out of
+/// line: it runs on a step that trips.
 #[cold]
 #[inline(never)]
-fn record_trip(
+fn record_trips(
     log: &mut FaultLog,
     cfg: &ValidConfig,
     m: &Measurements,
     last_cmd_ma: Fx,
-    index: usize,
+    tripped: u32,
     tick: u32,
 ) {
-    if let Some(&fault) = Fault::ALL.get(index) {
-        log.record(trip_record(cfg, m, last_cmd_ma, fault, tick));
-    }
-}
-
-/// The record of a tripped fault: the measured value and the limit it
-/// reached, in [`Fault::unit`]. Built only when a fault trips.
-#[inline]
-fn trip_record(
-    cfg: &ValidConfig,
-    m: &Measurements,
-    last_cmd_ma: Fx,
-    fault: Fault,
-    tick: u32,
-) -> FaultRecord {
-    let c = cfg.config();
-    let p = &c.protection;
-    let tc = &c.calibration.temperature;
-    // Counts above the Fx range (32 767) saturate in the records.
-    let counts = |n: u16| Fx::saturating_from_num(n);
-    let open_at_high = tc.open_rail == Rail::High;
-    let (measured, limit) = match fault {
-        Fault::Overcurrent => (m.current_ma, p.overcurrent_ma),
-        Fault::MonitorRunaway => (m.monitor_mw, p.runaway_mw),
-        Fault::MonitorLoss => (m.monitor_mw, p.monitor_loss_floor_mw),
-        Fault::SensorOpen => (
-            counts(m.temp_counts),
-            counts(if open_at_high {
-                tc.high_fault_counts
-            } else {
-                tc.low_fault_counts
-            }),
-        ),
-        Fault::SensorShort => (
-            counts(m.temp_counts),
-            counts(if open_at_high {
-                tc.low_fault_counts
-            } else {
-                tc.high_fault_counts
-            }),
-        ),
-        Fault::OverTemperature => (m.temp_degc, c.derating.cutoff_degc),
-        Fault::InterlockOpen => (Fx::from_num(u8::from(m.interlock_closed)), Fx::ONE),
-        Fault::SupplyUnder => (m.supply_mv, p.supply_min_mv),
-        Fault::SupplyOver => (m.supply_mv, p.supply_max_mv),
-        Fault::DriveMismatch => (mismatch_ma(m, last_cmd_ma), p.mismatch_tolerance_ma),
-        Fault::MissedTicks => (
-            saturating_fx(m.missed_ticks),
-            saturating_fx(u32::from(p.missed_tick_limit)),
-        ),
-        // The index step (0 repeated, negative backward) and the smallest
-        // accepted step.
-        Fault::TickOrder => (
-            Fx::saturating_from_num(m.missed_ticks.wrapping_add(1) as i32),
-            Fx::ONE,
-        ),
-        // The bound at the tripping sample.
-        Fault::PowerImplausible => (
-            m.current_ma,
-            c.plausibility
-                .as_ref()
-                .map_or(Fx::MAX, |pl| plausibility(pl, m).2),
-        ),
-        Fault::DiodeOpen => (
-            m.forward_mv,
-            c.forward_voltage.map_or(Fx::ZERO, |f| f.open_mv),
-        ),
-        Fault::DiodeShort => (
-            m.forward_mv,
-            c.forward_voltage.map_or(Fx::ZERO, |f| f.short_mv),
-        ),
-        Fault::ExternalFault => (Fx::from_num(u8::from(m.external_fault)), Fx::ONE),
-        // Never a sample condition: the edge or the boot-time restore
-        // latches these with their own record.
-        Fault::DacBus | Fault::EnablePin | Fault::InterlockPin | Fault::RecordCorrupt => {
-            (Fx::ZERO, Fx::ZERO)
+    let mut todo = tripped;
+    while todo != 0 {
+        let i = todo.trailing_zeros();
+        todo &= todo - 1;
+        if let Some(fault) = Fault::from_index(i as u8) {
+            let (measured, limit) = trip_values(cfg, m, last_cmd_ma, fault);
+            log.record(FaultRecord {
+                fault,
+                tick,
+                measured,
+                limit,
+            });
         }
-    };
-    FaultRecord {
-        fault,
-        tick,
-        measured,
-        limit,
     }
 }
 
@@ -461,8 +802,9 @@ fn diode_at(pl: &Plausibility, degc: Fx) -> (Fx, Fx) {
 impl Protections {
     /// Forget all debounce history (after an accepted clear).
     pub(crate) fn reset(&mut self) {
-        self.levels = [0; Fault::COUNT];
+        self.levels = [0; SLOTS];
         self.counting = 0;
+        self.busy = self.slow;
     }
 
     /// Evaluate the slow protections on one sample (the controller calls
@@ -471,16 +813,16 @@ impl Protections {
     #[cold]
     #[inline(never)]
     pub(crate) fn evaluate_slow(&mut self, cfg: &ValidConfig, m: &Measurements) -> bool {
-        let Some(pl) = &cfg.config().plausibility else {
-            return false;
+        let slow = Slow {
+            plausibility: cfg
+                .config()
+                .plausibility
+                .as_ref()
+                .map(|pl| plausibility(pl, m)),
         };
-        let (warn, fault, _) = plausibility(pl, m);
-        self.slow = if fault {
-            bit(Fault::PowerImplausible)
-        } else {
-            0
-        };
-        warn
+        self.slow = slow_mask(&slow);
+        self.busy = self.counting | self.slow;
+        slow.plausibility.is_some_and(|(warn, _, _)| warn)
     }
 
     /// Evaluate every protection on one sample. `last_cmd_ma` is the current
@@ -510,55 +852,60 @@ impl Protections {
         active: FaultSet,
         log: &mut FaultLog,
     ) -> Verdict {
-        let calm = quiet(cfg, m, direct, last_cmd_ma, &light_expected_ma);
-        if calm && self.counting | self.slow == 0 {
+        let c = cfg.config();
+        let ctx = Ctx {
+            cfg,
+            c,
+            p: &c.protection,
+            m,
+            direct,
+            last_cmd_ma,
+            light_expected_ma,
+        };
+        let calm = quiet(&ctx);
+        if calm && self.busy == 0 {
             return Verdict {
                 present: FaultSet::EMPTY,
                 tripped: FaultSet::EMPTY,
             };
         }
         // A level decaying after its condition went needs no mask.
-        let present = if calm {
-            0
-        } else {
-            present_mask(cfg, m, direct, last_cmd_ma, light_expected_ma)
-        } | self.slow;
+        let present = if calm { 0 } else { present_mask(&ctx) } | self.slow;
         let may_trip = armed(state) & !active.bits();
-        self.walk(cfg, m, present, tick, last_cmd_ma, may_trip, log)
+        let tripped = self.walk(cfg.t.weight, &cfg.t.trip_at, present, may_trip);
+        if tripped != 0 {
+            record_trips(log, cfg, m, last_cmd_ma, tripped, tick);
+        }
+        Verdict {
+            present: FaultSet::from_bits(present),
+            tripped: FaultSet::from_bits(tripped),
+        }
     }
 
     /// Move the levels of the faults present or counting (`present`: the
-    /// conditions of this sample) and trip those that reach their level.
-    /// Out of line: the usual tick does not come here.
+    /// conditions of this sample; `weight` and `trip_levels` (`trip_at`) as in
+    /// [`crate::config`]'s per-tick quantities) and return those that reach
+    /// their level and `may_trip`. Out of line: the usual tick does not come
+    /// here.
     #[inline(never)]
-    #[allow(clippy::too_many_arguments)]
     fn walk(
         &mut self,
-        cfg: &ValidConfig,
-        m: &Measurements,
+        weight: u32,
+        trip_levels: &[u32; SLOTS],
         present: u32,
-        tick: u32,
-        last_cmd_ma: Fx,
         may_trip: u32,
-        log: &mut FaultLog,
-    ) -> Verdict {
-        if present | self.counting == 0 {
-            return Verdict {
-                present: FaultSet::EMPTY,
-                tripped: FaultSet::EMPTY,
-            };
-        }
-        let weight = cfg.t.weight;
+    ) -> u32 {
         let mut tripped = 0;
         let mut counting = 0;
         // Walk the faults present or counting, lowest bit first (the order
         // of the records); every other level is zero already.
         let mut todo = present | self.counting;
         while todo != 0 {
-            let i = todo.trailing_zeros() as usize;
+            // (`todo` is not zero: below 32.)
+            let i = todo.trailing_zeros() as usize % SLOTS;
             todo &= todo - 1;
-            let (Some(level), Some(&trip_at)) = (self.levels.get_mut(i), cfg.t.trip_at.get(i))
-            else {
+            // (Both arrays have `SLOTS` entries: no check is left.)
+            let (Some(level), Some(&trip_at)) = (self.levels.get_mut(i), trip_levels.get(i)) else {
                 continue;
             };
             // The bit of fault `i` (a fault's bit is its discriminant).
@@ -566,10 +913,11 @@ impl Protections {
             if present & b == 0 {
                 *level = level.saturating_sub(1);
             } else {
-                *level = level.saturating_add(weight).min(trip_at);
+                // (A level never exceeds its `trip_at`, at most 255 ×
+                // 65 535 < 2^24, and `weight` is at most 255: no overflow.)
+                *level = level.wrapping_add(weight).min(trip_at);
                 if *level >= trip_at && may_trip & b != 0 {
                     tripped |= b;
-                    record_trip(log, cfg, m, last_cmd_ma, i, tick);
                 }
             }
             if *level != 0 {
@@ -577,10 +925,8 @@ impl Protections {
             }
         }
         self.counting = counting;
-        Verdict {
-            present: FaultSet::from_bits(present),
-            tripped: FaultSet::from_bits(tripped),
-        }
+        self.busy = counting | self.slow;
+        tripped
     }
 }
 
@@ -711,7 +1057,7 @@ mod tests {
             Rail::High => (at_high, at_low),
             Rail::Low => (at_low, at_high),
         };
-        let flag = |on: bool, fault: Fault| if on { bit(fault) } else { 0 };
+        let flag = |on: bool, fault: Fault| if on { fault.bit() } else { 0 };
         flag(m.current_ma >= p.overcurrent_ma, Fault::Overcurrent)
             | flag(m.monitor_mw >= p.runaway_mw, Fault::MonitorRunaway)
             | flag(
@@ -738,6 +1084,48 @@ mod tests {
                 Fault::MissedTicks,
             )
             | flag(m.missed_ticks > i32::MAX as u32 - 1, Fault::TickOrder)
+    }
+
+    /// Over-temperature is suppressed only by a sensor at a rail, not by
+    /// another direct condition (an asserted external input once hid it).
+    #[test]
+    fn over_temperature_is_seen_beside_an_external_fault() {
+        let cfg = crate::example::config().validate().unwrap();
+        let c = cfg.config();
+        let m = Measurements {
+            temp_degc: c.derating.cutoff_degc,
+            current_ma: Fx::from_num(10),
+            monitor_mw: Fx::from_num(1),
+            supply_mv: (c.protection.supply_min_mv + c.protection.supply_max_mv) / 2,
+            interlock_closed: true,
+            external_fault: true,
+            ..Measurements::default()
+        };
+        let mask = |direct: u32| {
+            present_mask(&Ctx {
+                cfg: &cfg,
+                c,
+                p: &c.protection,
+                m: &m,
+                direct,
+                last_cmd_ma: m.current_ma,
+                light_expected_ma: || Fx::MAX,
+            })
+        };
+        let ext = Fault::ExternalFault.bit();
+        let hot = Fault::OverTemperature.bit();
+        assert_eq!(mask(ext), ext | hot);
+        assert_eq!(mask(Fault::SensorOpen.bit()), Fault::SensorOpen.bit());
+        let cooler = Measurements {
+            temp_degc: c.derating.cutoff_degc - Fx::DELTA,
+            ..m
+        };
+        let ctx = Ctx {
+            m: &cooler,
+            direct: ext,
+            ..Ctx::plain(&cfg, &m, m.current_ma)
+        };
+        assert_eq!(present_mask(&ctx), ext);
     }
 
     #[test]
@@ -805,9 +1193,18 @@ mod tests {
                 };
                 let light = rng.fx_near(last_cmd);
                 let want = reference_mask(&cfg, &m, last_cmd, light);
-                let got = present_mask(&cfg, &m, rails, last_cmd, || light);
+                let ctx = Ctx {
+                    cfg: &cfg,
+                    c: cfg.config(),
+                    p: &cfg.config().protection,
+                    m: &m,
+                    direct: rails,
+                    last_cmd_ma: last_cmd,
+                    light_expected_ma: || light,
+                };
+                let got = present_mask(&ctx);
                 assert_eq!(got, want, "{m:?} {last_cmd} {light}");
-                assert_eq!(quiet(&cfg, &m, rails, last_cmd, || light), want == 0);
+                assert_eq!(quiet(&ctx), want == 0);
             }
         }
     }

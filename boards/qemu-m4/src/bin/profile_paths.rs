@@ -1,8 +1,9 @@
 //! The profiling image for `boards/profile-step.sh`: brings the demo
 //! controller to regulation against the plant, records a block of
 //! regulating samples and a block of latched samples (current source stuck
-//! high), then replays each block on a clone of its controller several
-//! times, each replay between two calls of a marker function. The script
+//! high) and the one step that trips on it, then replays each block on a
+//! clone of its controller several times (the trip step `BLOCK × REPLAYS`
+//! times, so that every path is counted over the same number of steps), each replay between two calls of a marker function. The script
 //! traces the markers with `step`, so it can count the instructions of each
 //! path alone. Prints nothing but the closing line; exits with failure if
 //! the scenario did not reach the paths.
@@ -36,7 +37,8 @@ fn panic(info: &PanicInfo) -> ! {
     }
 }
 
-/// Start of the replays of a path (`path` 0: regulating, 1: latched).
+/// Start of the replays of a path (`path` 0: regulating, 1: latched, 2:
+/// the fault trip).
 #[inline(never)]
 fn diodestat_profile_begin(path: u32) {
     // The two markers must differ, or they are folded into one.
@@ -54,7 +56,7 @@ fn replay<const N: usize>(path: u32, rec: &Recording<N>) -> bool {
         return false;
     };
     diodestat_profile_begin(path);
-    for _ in 0..REPLAYS {
+    for _ in 0..REPLAYS * (BLOCK / N) as u32 {
         let mut ctl: Controller = start.clone();
         let ctl = black_box(&mut ctl);
         for s in &rec.samples {
@@ -74,6 +76,7 @@ fn main() -> ! {
                 Rig::new(Controller::new(valid), Plant::new(PlantParams::DEMO));
             let mut reg: Recording<BLOCK> = Recording::new();
             let mut latched: Recording<BLOCK> = Recording::new();
+            let mut trip: Recording<1> = Recording::new();
             // Power-up samples first: enable needs one.
             rig.run(10);
             let started = scenario::start(&mut rig, &mut c, Fx::from_num(5));
@@ -81,10 +84,16 @@ fn main() -> ! {
             rig.record(&mut reg);
             let regulating = started && rig.ctl.state() == State::Regulating;
             rig.plant.faults.source_stuck_ua = Some(56_000);
-            rig.tick();
+            rig.record(&mut trip);
+            let tripped = rig.ctl.state() == State::Latched;
             rig.record(&mut latched);
             let held = rig.ctl.state() == State::Latched;
-            regulating && held && replay(0, &reg) && replay(1, &latched)
+            regulating
+                && tripped
+                && held
+                && replay(0, &reg)
+                && replay(1, &latched)
+                && replay(2, &trip)
         }
         Err(_) => false,
     };
