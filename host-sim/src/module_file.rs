@@ -445,9 +445,23 @@ impl ModuleFile {
             ("tolerances.threshold", self.tolerances.threshold),
             ("tolerances.slope", self.tolerances.slope),
             ("tolerances.tracking", self.tolerances.tracking),
+            ("tolerances.t0", self.tolerances.t0),
+            ("tolerances.sense_gain", self.tolerances.sense_gain),
+            ("tolerances.dac_gain", self.tolerances.dac_gain),
         ] {
             if !(v.is_finite() && (0.0..1.0).contains(&v)) {
                 return Err(refuse(key, "must be a relative half-width in 0 ..< 1"));
+            }
+        }
+        for (key, v) in [
+            (
+                "tolerances.sense_offset_mv",
+                self.tolerances.sense_offset_mv,
+            ),
+            ("tolerances.dac_offset_mv", self.tolerances.dac_offset_mv),
+        ] {
+            if !(v.is_finite() && v >= 0.0) {
+                return Err(refuse(key, "must be a half-width in mV, finite and >= 0"));
             }
         }
         if !pos(self.supply.voltage_v) {

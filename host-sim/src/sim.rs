@@ -47,7 +47,7 @@ use crate::oscillation::{Found, TickSample, Watch};
 use crate::plant::{
     c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, Rng, SensorChain, Thermal,
 };
-use crate::scenario::{Action, AdcChannel, DiodeModel, HwFault, ModeName, Scenario};
+use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, ModeName, Scenario};
 use crate::sim_board::{Bus, Outputs, SimBoard};
 
 pub use crate::trace::TraceRow;
@@ -97,7 +97,8 @@ pub enum Happening {
     },
 }
 
-/// The plant around the controller.
+/// The plant around the controller (cloned to fork a run at a moment).
+#[derive(Clone)]
 pub struct Plant {
     /// Diode.
     pub diode: Diode,
@@ -734,61 +735,196 @@ fn run_plant(
     sc: &Scenario,
     cfg: ValidConfig,
     latency: DacLatency,
-    mut plant: Plant,
+    plant: Plant,
     windows: Vec<PowerWindow>,
     sink: &mut dyn TraceSink,
 ) -> Result<RunResult, PlantError> {
+    let mut r = Runner::new(sc, cfg, latency, plant, windows);
+    r.run_until(u64::MAX, sink);
+    Ok(r.finish(sink))
+}
+
+/// A scenario run to a moment, kept so that several continuations can
+/// fork from it: [`Fork::resume`] clones the whole run (plant, board with
+/// its core, the drives in flight, everything recorded so far), adds one
+/// event and runs to the scenario's end. A continuation is the very
+/// computation a run from t = 0 of the scenario with that event last does,
+/// so its result is bit-identical (the tests check it).
+#[derive(Clone)]
+pub struct Fork {
+    runner: Runner,
+}
+
+/// Why a fork cannot continue with an event.
+#[derive(Clone, Copy, Debug, PartialEq, thiserror::Error)]
+#[error("an event at {at_ms} ms comes before the fork's moment (tick {fork_tick}): a fork only adds events at or after it")]
+pub struct ForkError {
+    /// The event's time, ms.
+    pub at_ms: f64,
+    /// The fork's tick.
+    pub fork_tick: u64,
+}
+
+/// Run `sc` up to the start of the tick of `at_ms` (every event before it
+/// applied, none at or after it) and keep the run for [`Fork::resume`].
+pub fn fork_at(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+    latency: DacLatency,
+    at_ms: f64,
+) -> Result<Fork, PlantError> {
+    let plant = Plant::new(module, sc.ambient_c, sc.seed)?;
     let tick_hz = cfg.config().tick_hz;
-    let dt = 1.0 / f64::from(tick_hz);
-    let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
-    let config_fingerprint = Some(cfg.fingerprint());
-    // The core behind its embedded-hal edge, on the board's simulated
-    // DAC, enable line and interlock input.
-    let mut board = SimBoard::new(cfg);
-    let mut events: Vec<(u64, usize, &Action)> = sc
-        .events
-        .iter()
-        .enumerate()
-        .map(|(k, e)| (tick_at(e.at_ms, tick_hz), k, &e.action))
-        .collect();
-    events.sort_by_key(|e| e.0);
-    let mut next_event = 0usize;
-    let mut ambient_c = sc.ambient_c;
-    let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
-    let mut res = RunResult {
-        tick_hz,
-        config_fingerprint,
-        windows,
-        envelope: Envelope::new(n_ticks),
-        ..RunResult::default()
-    };
-    let merge_ticks = tick_at(
-        WARNING_MERGE_MS.max(WARNING_MERGE_FRACTION * sc.duration_ms),
-        tick_hz,
-    );
-    let mut last_warnings = Warnings::default();
-    let mut prev = (0.0, Fx::ZERO, Mode::Apc);
-    let mut kept = Retained::new(RETAINED_ROWS);
-    let mut last_state = State::Off;
-    let mut log_cursor = diodestat_core::Cursor::default();
-    // The drives on their way to the DAC: a ring of `latency` slots, the
-    // one at `slot` written `latency` ticks ago; `None`: a missed tick
-    // wrote nothing. The board starts with the DAC at zero, enable low.
-    let lat = latency.get() as usize;
-    let mut pipeline = [None::<Outputs>; DacLatency::MAX_TICKS as usize];
-    let mut slot = 0usize;
-    let mut applied = Outputs::default();
-    let mut last_computed = diodestat_core::Drive::default();
-    let mut watch = Watch::new(tick_hz, to_f(board.ctl().config().slew_ma_per_tick()));
-    let trace_every = u64::from(sc.trace_every.max(1));
-    for tick in 0..n_ticks {
-        // Timed events for this tick.
-        while let Some(&(at, event, action)) = events.get(next_event) {
-            if at > tick {
+    let mut runner = Runner::new(sc, cfg, latency, plant, Vec::new());
+    runner.run_until(tick_at(at_ms, tick_hz), &mut NoSink);
+    Ok(Fork { runner })
+}
+
+impl Fork {
+    /// The run that continues this fork with `event` added as the
+    /// scenario's last event, to the scenario's end.
+    pub fn resume(&self, event: &Event) -> Result<RunResult, ForkError> {
+        let mut r = self.runner.clone();
+        r.add_event(event)?;
+        r.run_until(u64::MAX, &mut NoSink);
+        Ok(r.finish(&mut NoSink))
+    }
+
+    /// The tick the fork stands at (the next to run).
+    pub fn tick(&self) -> u64 {
+        self.runner.tick
+    }
+}
+
+/// Everything a run carries from one tick to the next.
+#[derive(Clone)]
+struct Runner {
+    plant: Plant,
+    board: SimBoard,
+    /// Events by tick (stable: same-tick events in scenario order), with
+    /// their index in the scenario.
+    events: Vec<(u64, usize, Action)>,
+    /// Events in the scenario (the index the next added one gets).
+    event_count: usize,
+    next_event: usize,
+    ambient_c: f64,
+    ramp: Option<(f64, f64, u64, u64)>, // from, to, start, end
+    res: RunResult,
+    merge_ticks: u64,
+    last_warnings: Warnings,
+    prev: (f64, Fx, Mode),
+    kept: Retained,
+    last_state: State,
+    log_cursor: diodestat_core::Cursor,
+    /// The drives on their way to the DAC: a ring of `latency` slots, the
+    /// one at `slot` written `latency` ticks ago; `None`: a missed tick
+    /// wrote nothing. The board starts with the DAC at zero, enable low.
+    lat: usize,
+    pipeline: [Option<Outputs>; DacLatency::MAX_TICKS as usize],
+    slot: usize,
+    applied: Outputs,
+    last_computed: diodestat_core::Drive,
+    watch: Watch,
+    trace_every: u64,
+    n_ticks: u64,
+    dt: f64,
+    tick_hz: u32,
+    model: DiodeModel,
+    /// The next tick to run.
+    tick: u64,
+}
+
+impl Runner {
+    fn new(
+        sc: &Scenario,
+        cfg: ValidConfig,
+        latency: DacLatency,
+        plant: Plant,
+        windows: Vec<PowerWindow>,
+    ) -> Self {
+        let tick_hz = cfg.config().tick_hz;
+        let dt = 1.0 / f64::from(tick_hz);
+        let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
+        let config_fingerprint = Some(cfg.fingerprint());
+        // The core behind its embedded-hal edge, on the board's simulated
+        // DAC, enable line and interlock input.
+        let board = SimBoard::new(cfg);
+        let mut events: Vec<(u64, usize, Action)> = sc
+            .events
+            .iter()
+            .enumerate()
+            .map(|(k, e)| (tick_at(e.at_ms, tick_hz), k, e.action.clone()))
+            .collect();
+        events.sort_by_key(|e| e.0);
+        let watch = Watch::new(tick_hz, to_f(board.ctl().config().slew_ma_per_tick()));
+        Runner {
+            plant,
+            board,
+            events,
+            event_count: sc.events.len(),
+            next_event: 0,
+            ambient_c: sc.ambient_c,
+            ramp: None,
+            res: RunResult {
+                tick_hz,
+                config_fingerprint,
+                windows,
+                envelope: Envelope::new(n_ticks),
+                ..RunResult::default()
+            },
+            merge_ticks: tick_at(
+                WARNING_MERGE_MS.max(WARNING_MERGE_FRACTION * sc.duration_ms),
+                tick_hz,
+            ),
+            last_warnings: Warnings::default(),
+            prev: (0.0, Fx::ZERO, Mode::Apc),
+            kept: Retained::new(RETAINED_ROWS),
+            last_state: State::Off,
+            log_cursor: diodestat_core::Cursor::default(),
+            lat: latency.get() as usize,
+            pipeline: [None::<Outputs>; DacLatency::MAX_TICKS as usize],
+            slot: 0,
+            applied: Outputs::default(),
+            last_computed: diodestat_core::Drive::default(),
+            watch,
+            trace_every: u64::from(sc.trace_every.max(1)),
+            n_ticks,
+            dt,
+            tick_hz,
+            model: sc.diode_model,
+            tick: 0,
+        }
+    }
+
+    /// Add `event` as the scenario's next (last) event; it must not lie
+    /// before the next tick to run.
+    fn add_event(&mut self, event: &Event) -> Result<(), ForkError> {
+        let at = tick_at(event.at_ms, self.tick_hz);
+        if at < self.tick {
+            return Err(ForkError {
+                at_ms: event.at_ms,
+                fork_tick: self.tick,
+            });
+        }
+        // After every event of its tick (sorted stably, it has the highest
+        // index).
+        let pos = self.events.partition_point(|e| e.0 <= at);
+        self.events
+            .insert(pos, (at, self.event_count, event.action.clone()));
+        self.event_count += 1;
+        Ok(())
+    }
+
+    /// Apply the timed events of `tick`.
+    fn apply_events(&mut self, tick: u64) {
+        while let Some((at, event, action)) = self.events.get(self.next_event) {
+            if *at > tick {
                 break;
             }
-            next_event += 1;
-            watch.cut();
+            let event = *event;
+            self.next_event += 1;
+            self.watch.cut();
             let req = match action {
                 Action::Enable => Some(Request::Enable),
                 Action::Disable => Some(Request::Disable),
@@ -800,37 +936,37 @@ fn run_plant(
                 })),
                 Action::Clear => Some(Request::ClearFaults),
                 Action::AmbientStep { to_c } => {
-                    ambient_c = *to_c;
-                    ramp = None;
+                    self.ambient_c = *to_c;
+                    self.ramp = None;
                     None
                 }
                 Action::AmbientRamp { to_c, over_ms } => {
-                    let len = (over_ms * 1e-3 * f64::from(tick_hz)).round().max(1.0) as u64;
-                    ramp = Some((ambient_c, *to_c, tick, tick + len));
+                    let len = (over_ms * 1e-3 * f64::from(self.tick_hz)).round().max(1.0) as u64;
+                    self.ramp = Some((self.ambient_c, *to_c, tick, tick + len));
                     None
                 }
                 Action::Inject { fault } => {
-                    plant.inject(fault, true);
+                    self.plant.inject(fault, true);
                     if let Some(bus) = bus_of(fault) {
-                        board.set_failed(bus, true);
+                        self.board.set_failed(bus, true);
                     }
-                    res.happenings.push(Happening::Injected {
+                    self.res.happenings.push(Happening::Injected {
                         tick,
                         fault: fault.name(),
                     });
                     None
                 }
                 Action::Repair { fault } => {
-                    plant.inject(fault, false);
+                    self.plant.inject(fault, false);
                     if let Some(bus) = bus_of(fault) {
-                        board.set_failed(bus, false);
+                        self.board.set_failed(bus, false);
                     }
                     None
                 }
             };
             if let Some(r) = req {
-                if let Err(why) = board.request(r) {
-                    res.happenings.push(Happening::Rejected {
+                if let Err(why) = self.board.request(r) {
+                    self.res.happenings.push(Happening::Rejected {
                         tick,
                         event,
                         why: why.to_string(),
@@ -838,150 +974,194 @@ fn run_plant(
                 }
             }
         }
-        if let Some((from, to, start, end)) = ramp {
-            let x = ((tick - start) as f64 / (end - start) as f64).min(1.0);
-            ambient_c = from + (to - from) * x;
-            if tick >= end {
-                ramp = None;
+    }
+
+    /// Run the ticks from the next one up to (excluding) `end`, at most to
+    /// the scenario's end.
+    fn run_until(&mut self, end: u64, sink: &mut dyn TraceSink) {
+        let end = end.min(self.n_ticks);
+        let dt = self.dt;
+        while self.tick < end {
+            let tick = self.tick;
+            // Timed events for this tick.
+            if self
+                .events
+                .get(self.next_event)
+                .is_some_and(|e| e.0 <= tick)
+            {
+                self.apply_events(tick);
             }
-        }
-        // The board samples and steps the core, unless it misses this tick.
-        let sample = plant.sample(tick as u32, dt);
-        let computed = if plant.missed_left > 0 {
-            plant.missed_left -= 1;
-            None
-        } else {
-            // An edge error is latched in the core (and in its log) by the
-            // edge itself; what the hardware does is in the outputs.
-            let (drive, outputs, _edge_error) = board.tick(&sample);
-            last_computed = drive;
-            Some(outputs)
-        };
-        // What the hardware was set to `latency` ticks ago takes effect now.
-        if let Some(d) = std::mem::replace(&mut pipeline[slot], computed) {
-            applied = d;
-        }
-        slot += 1;
-        if slot == lat {
-            slot = 0;
-        }
-        plant.advance(
-            applied.dac_code,
-            applied.enable,
-            c_to_k(ambient_c),
-            sc.diode_model,
-            dt,
-        );
-        let p_mw = plant.p_front_w * 1e3;
-        res.peak_mw = res.peak_mw.max(p_mw);
-        if !res.windows.is_empty() {
-            for w in &mut res.windows {
-                w.observe(tick, p_mw);
+            if let Some((from, to, start, end)) = self.ramp {
+                let x = ((tick - start) as f64 / (end - start) as f64).min(1.0);
+                self.ambient_c = from + (to - from) * x;
+                if tick >= end {
+                    self.ramp = None;
+                }
             }
-        }
-        // Warnings change seldom: the power, drive and mode of the tick
-        // before are kept raw and converted only when one does.
-        let warnings = board.ctl().status().warnings;
-        if warnings != last_warnings {
-            let (p, d, m) = prev;
-            res.warnings_changed(tick, last_warnings, warnings, (p, to_f(d), m), merge_ticks);
-            last_warnings = warnings;
-        }
-        prev = (p_mw, board.ctl().drive_ma(), board.ctl().mode());
-        if !res.damaged && plant.diode.damaged() {
-            res.damaged = true;
-            res.happenings.push(Happening::FacetDamage { tick });
-        }
-        let st = board.ctl().state();
-        if st == State::Regulating {
-            watch.push(
-                tick,
-                TickSample {
-                    regulating: true,
-                    dac_code: last_computed.dac_code,
-                    cmd_ma: to_f(board.ctl().drive_ma()),
-                    ceiling_ma: to_f(board.ctl().ceiling_ma()),
-                    p_mw,
-                    monitor_mw: to_f(board.ctl().measurements().monitor_mw),
-                    setpoint_mw: (board.ctl().mode() == Mode::Apc)
-                        .then(|| to_f(board.ctl().power_target_mw())),
-                },
-            );
-        } else {
-            watch.cut();
-        }
-        if st != last_state {
-            res.happenings.push(Happening::State { tick, state: st });
-            last_state = st;
-        }
-        let unread = board.ctl().fault_log().since(log_cursor);
-        res.faults_lost += unread.lost();
-        log_cursor = unread.resume();
-        for e in unread {
-            let r = e.record;
-            res.happenings.push(Happening::Fault {
-                tick,
-                fault: r.fault.name(),
-                measured: to_f(r.measured),
-                limit: to_f(r.limit),
-            });
-        }
-        // Every tick feeds the plot envelope (only what the plots draw);
-        // every `trace_every`-th is recorded whole.
-        let m = board.ctl().measurements();
-        let i_ma = plant.driver.current_a() * 1e3;
-        let monitor_mw = to_f(m.monitor_mw);
-        let ceiling_ma = to_f(board.ctl().ceiling_ma());
-        let tj_c = k_to_c(plant.thermal.t_junction_k());
-        let sensed_c = to_f(m.temp_degc);
-        res.envelope.add_values(
-            tick,
-            [
-                p_mw, monitor_mw, i_ma, ceiling_ma, tj_c, sensed_c, ambient_c,
-            ],
-        );
-        if tick.is_multiple_of(trace_every) {
-            let status = board.ctl().status();
-            let row = TraceRow {
-                tick,
-                t_s: tick as f64 * dt,
-                state: st,
-                mode: status.mode,
-                enable: applied.enable,
-                dac_code: applied.dac_code,
-                faults: status.faults,
-                warnings: status.warnings,
-                p_mw,
-                i_ma,
-                cmd_ma: to_f(board.ctl().drive_ma()),
-                ceiling_ma,
-                monitor_mw,
-                tj_c,
-                sensed_c,
-                ambient_c,
-                supply_v: plant.supply_v,
-                supply_sensed_v: to_f(m.supply_mv) * 1e-3,
-                v_f_v: plant.v_f,
-                wavelength_nm: plant.wavelength_m * 1e9,
+            let ambient_c = self.ambient_c;
+            let plant = &mut self.plant;
+            let board = &mut self.board;
+            let res = &mut self.res;
+            // The board samples and steps the core, unless it misses this tick.
+            let sample = plant.sample(tick as u32, dt);
+            let computed = if plant.missed_left > 0 {
+                plant.missed_left -= 1;
+                None
+            } else {
+                // An edge error is latched in the core (and in its log) by the
+                // edge itself; what the hardware does is in the outputs.
+                let (drive, outputs, _edge_error) = board.tick(&sample);
+                self.last_computed = drive;
+                Some(outputs)
             };
-            kept.push(row);
-            sink.row(&row);
+            // What the hardware was set to `latency` ticks ago takes effect now.
+            if let Some(d) = std::mem::replace(&mut self.pipeline[self.slot], computed) {
+                self.applied = d;
+            }
+            self.slot += 1;
+            if self.slot == self.lat {
+                self.slot = 0;
+            }
+            let applied = self.applied;
+            plant.advance(
+                applied.dac_code,
+                applied.enable,
+                c_to_k(ambient_c),
+                self.model,
+                dt,
+            );
+            let p_mw = plant.p_front_w * 1e3;
+            res.peak_mw = res.peak_mw.max(p_mw);
+            if !res.windows.is_empty() {
+                for w in &mut res.windows {
+                    w.observe(tick, p_mw);
+                }
+            }
+            let ctl = board.ctl();
+            // Warnings change seldom: the power, drive and mode of the tick
+            // before are kept raw and converted only when one does.
+            let warnings = ctl.status().warnings;
+            if warnings != self.last_warnings {
+                let (p, d, m) = self.prev;
+                res.warnings_changed(
+                    tick,
+                    self.last_warnings,
+                    warnings,
+                    (p, to_f(d), m),
+                    self.merge_ticks,
+                );
+                self.last_warnings = warnings;
+            }
+            self.prev = (p_mw, ctl.drive_ma(), ctl.mode());
+            if !res.damaged && plant.diode.damaged() {
+                res.damaged = true;
+                res.happenings.push(Happening::FacetDamage { tick });
+            }
+            let st = ctl.state();
+            if st == State::Regulating {
+                self.watch.push(
+                    tick,
+                    TickSample {
+                        regulating: true,
+                        dac_code: self.last_computed.dac_code,
+                        cmd_ma: to_f(ctl.drive_ma()),
+                        ceiling_ma: to_f(ctl.ceiling_ma()),
+                        p_mw,
+                        monitor_mw: to_f(ctl.measurements().monitor_mw),
+                        setpoint_mw: (ctl.mode() == Mode::Apc).then(|| to_f(ctl.power_target_mw())),
+                    },
+                );
+            } else {
+                self.watch.cut();
+            }
+            if st != self.last_state {
+                res.happenings.push(Happening::State { tick, state: st });
+                self.last_state = st;
+            }
+            let unread = ctl.fault_log().since(self.log_cursor);
+            res.faults_lost += unread.lost();
+            self.log_cursor = unread.resume();
+            for e in unread {
+                let r = e.record;
+                res.happenings.push(Happening::Fault {
+                    tick,
+                    fault: r.fault.name(),
+                    measured: to_f(r.measured),
+                    limit: to_f(r.limit),
+                });
+            }
+            // Every tick feeds the plot envelope (only what the plots draw);
+            // every `trace_every`-th is recorded whole.
+            let m = ctl.measurements();
+            let i_ma = plant.driver.current_a() * 1e3;
+            let monitor_mw = to_f(m.monitor_mw);
+            let ceiling_ma = to_f(ctl.ceiling_ma());
+            let tj_c = k_to_c(plant.thermal.t_junction_k());
+            let sensed_c = to_f(m.temp_degc);
+            res.envelope.add_values(
+                tick,
+                [
+                    p_mw, monitor_mw, i_ma, ceiling_ma, tj_c, sensed_c, ambient_c,
+                ],
+            );
+            if tick.is_multiple_of(self.trace_every) {
+                let status = ctl.status();
+                let row = TraceRow {
+                    tick,
+                    t_s: tick as f64 * dt,
+                    state: st,
+                    mode: status.mode,
+                    enable: applied.enable,
+                    dac_code: applied.dac_code,
+                    faults: status.faults,
+                    warnings: status.warnings,
+                    p_mw,
+                    i_ma,
+                    cmd_ma: to_f(ctl.drive_ma()),
+                    ceiling_ma,
+                    monitor_mw,
+                    tj_c,
+                    sensed_c,
+                    ambient_c,
+                    supply_v: plant.supply_v,
+                    supply_sensed_v: to_f(m.supply_mv) * 1e-3,
+                    v_f_v: plant.v_f,
+                    wavelength_nm: plant.wavelength_m * 1e9,
+                };
+                self.kept.push(row);
+                sink.row(&row);
+            }
+            if tick.is_multiple_of(PROGRESS_TICKS) {
+                sink.progress(tick, self.n_ticks);
+            }
+            res.ticks = tick + 1;
+            self.tick = tick + 1;
         }
-        if tick.is_multiple_of(PROGRESS_TICKS) {
-            sink.progress(tick, n_ticks);
+    }
+
+    /// The result of the run (its end reached).
+    fn finish(self, sink: &mut dyn TraceSink) -> RunResult {
+        let Runner {
+            board,
+            mut res,
+            watch,
+            kept,
+            prev,
+            trace_every,
+            n_ticks,
+            ..
+        } = self;
+        res.final_state = board.ctl().state();
+        res.loop_findings = watch.finish();
+        for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
+            s.raised_ticks += res.ticks - s.last_raised_tick;
+            (s.last_p_mw, s.last_drive_ma, s.last_mode) = (prev.0, to_f(prev.1), prev.2);
         }
-        res.ticks = tick + 1;
+        res.trace_stride = kept.stride() * trace_every;
+        res.trace = kept.into_rows();
+        sink.progress(n_ticks, n_ticks);
+        res
     }
-    res.final_state = board.ctl().state();
-    res.loop_findings = watch.finish();
-    for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
-        s.raised_ticks += res.ticks - s.last_raised_tick;
-        (s.last_p_mw, s.last_drive_ma, s.last_mode) = (prev.0, to_f(prev.1), prev.2);
-    }
-    res.trace_stride = kept.stride() * trace_every;
-    res.trace = kept.into_rows();
-    sink.progress(n_ticks, n_ticks);
-    Ok(res)
 }
 
 #[cfg(test)]
@@ -1327,6 +1507,73 @@ mod tests {
         assert_eq!(a.trace, b.trace);
         assert_eq!(a.happenings, b.happenings);
         assert_ne!(a.trace, c.trace);
+    }
+
+    /// A run forked at a moment and continued with one more event is the
+    /// very run of the whole scenario from t = 0: every field of the
+    /// result is bit-identical (compared through their exact, round-trip
+    /// Debug forms), for injections before the enable, during the ramp, in
+    /// regulation with a later setpoint change, of a board bus, on a two
+    /// tick drive latency, and for one more event on the fork's own tick.
+    #[test]
+    fn forked_run_equals_the_run_from_t0() {
+        let module = DemoModule::visible();
+        let cfg = config(&module);
+        let ev = |at_ms: f64, action: Action| Event { at_ms, action };
+        let inject = |fault| Action::Inject { fault };
+        let cases = [
+            (0.05, ev(0.05, inject(HwFault::SensorOpen)), 1),
+            (2.0, ev(2.0, inject(HwFault::DacStuck { code: 4095 })), 1),
+            (20.0, ev(20.0, inject(HwFault::MonitorOpen)), 2),
+            (20.0, ev(20.0, inject(HwFault::EnablePin)), 1),
+            (25.0, ev(26.0, inject(HwFault::MissedTicks { ticks: 5 })), 3),
+            (20.0, ev(20.0, Action::Disable), 1),
+        ];
+        for (at_ms, extra, lat) in cases {
+            let mut sc = scenario(5, 20.0, 60.0);
+            sc.events.truncate(2);
+            sc.events.push(ev(40.0, Action::SetPower { mw: 10.0 }));
+            let latency = DacLatency::ticks(lat).unwrap();
+            let fork = fork_at(&sc, &module, cfg.clone(), latency, at_ms).unwrap();
+            assert_eq!(fork.tick(), tick_at(at_ms, cfg.config().tick_hz));
+            let forked = fork.resume(&extra).unwrap();
+            // Resuming does not move the fork: a second continuation is
+            // the same again.
+            let again = fork.resume(&extra).unwrap();
+            let mut whole = sc.clone();
+            whole.events.push(extra.clone());
+            let full = run(&whole, &module, cfg.clone(), latency).unwrap();
+            assert_eq!(format!("{forked:?}"), format!("{full:?}"), "{extra:?}");
+            assert_eq!(format!("{again:?}"), format!("{full:?}"), "{extra:?}");
+            assert!(full.happenings.len() > 2);
+        }
+    }
+
+    /// A fork refuses an event before its moment (it has already run past
+    /// it).
+    #[test]
+    fn fork_refuses_an_event_in_its_past() {
+        let module = DemoModule::visible();
+        let cfg = config(&module);
+        let fork = fork_at(
+            &scenario(1, 20.0, 10.0),
+            &module,
+            cfg,
+            DacLatency::ONE_TICK,
+            5.0,
+        )
+        .unwrap();
+        let early = Event {
+            at_ms: 4.0,
+            action: Action::Disable,
+        };
+        assert_eq!(
+            fork.resume(&early).unwrap_err(),
+            ForkError {
+                at_ms: 4.0,
+                fork_tick: 100
+            }
+        );
     }
 }
 

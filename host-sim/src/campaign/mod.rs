@@ -40,8 +40,9 @@ use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, Scenario};
 use crate::sim::{self, DacLatency, Happening};
 use verdict::{judge, unsafe_reasons, PassLines};
 
-/// A plant corner, or one drawn part of a Monte Carlo campaign.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+/// A plant corner, or one drawn part of a Monte Carlo campaign: its
+/// ambient and its factors and offsets against the module's nominal part.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Corner {
     /// Name.
     pub name: String,
@@ -56,6 +57,16 @@ pub struct Corner {
     pub tracking: f64,
     /// Operating hours before the run (aged diode).
     pub aged_hours: f64,
+    /// Factor on the threshold's characteristic temperature T0.
+    pub t0: f64,
+    /// Factor on the current-sense amplifier's gain.
+    pub sense_gain: f64,
+    /// Current-sense amplifier output offset, mV.
+    pub sense_offset_mv: f64,
+    /// Factor on the DAC's gain (its full-scale current).
+    pub dac_gain: f64,
+    /// DAC output offset, mV.
+    pub dac_offset_mv: f64,
 }
 
 fn nominal() -> Corner {
@@ -66,6 +77,27 @@ fn nominal() -> Corner {
         slope: 1.0,
         tracking: 1.0,
         aged_hours: 0.0,
+        t0: 1.0,
+        sense_gain: 1.0,
+        sense_offset_mv: 0.0,
+        dac_gain: 1.0,
+        dac_offset_mv: 0.0,
+    }
+}
+
+impl Corner {
+    /// The module as this corner or part has it: the diode's spread
+    /// ([`DemoModule::with_spread`]), T0 scaled, the converter chain's
+    /// gains scaled and its offsets added. (The tracking factor and the
+    /// hours act through the scenario, as faults do.)
+    pub fn module(&self, base: &DemoModule) -> DemoModule {
+        let mut m = base.with_spread(self.threshold, self.slope);
+        m.diode.t0_k *= self.t0;
+        m.driver.sense_gain *= self.sense_gain;
+        m.driver.sense_offset_v += self.sense_offset_mv * 1e-3;
+        m.driver.dac_vref_v *= self.dac_gain;
+        m.driver.dac_offset_v += self.dac_offset_mv * 1e-3;
+        m
     }
 }
 
@@ -94,24 +126,45 @@ pub fn corners(cold_c: f64, hot_c: f64) -> Vec<Corner> {
 }
 
 /// `n` parts drawn from the module's tolerances with `seed` (each factor
-/// uniform in `1 - t ..= 1 + t`), at the nominal corner's 25 degC, named
-/// `part-1` to `part-n`.
+/// uniform in `1 - t ..= 1 + t`, each offset uniform in `-h ..= h`), at
+/// the nominal corner's 25 degC, named `part-1` to `part-n`. Threshold,
+/// slope and tracking come from one stream seeded with `seed`, T0 and the
+/// converter chain from a second one, so adding tolerances leaves the
+/// first three draws of every part as they were.
 pub fn parts(module: &DemoModule, n: u32, seed: u64) -> Vec<Corner> {
+    draw_parts(&module.tolerances, n, seed)
+}
+
+/// [`parts`] from the tolerances alone (a record's header holds them).
+pub fn draw_parts(tolerances: &PartTolerances, n: u32, seed: u64) -> Vec<Corner> {
     let mut rng = crate::plant::Rng::new(seed);
-    let t = module.tolerances;
+    let mut chain = crate::plant::Rng::new(seed ^ CHAIN_STREAM);
+    let t = *tolerances;
+    let sym = |r: &mut crate::plant::Rng, h: f64| h * (2.0 * r.uniform() - 1.0);
     (1..=n)
         .map(|i| {
-            let mut draw = |tol: f64| 1.0 + tol * (2.0 * rng.uniform() - 1.0);
+            let threshold = 1.0 + sym(&mut rng, t.threshold);
+            let slope = 1.0 + sym(&mut rng, t.slope);
+            let tracking = 1.0 + sym(&mut rng, t.tracking);
             Corner {
                 name: format!("part-{i}"),
-                threshold: draw(t.threshold),
-                slope: draw(t.slope),
-                tracking: draw(t.tracking),
+                threshold,
+                slope,
+                tracking,
+                t0: 1.0 + sym(&mut chain, t.t0),
+                sense_gain: 1.0 + sym(&mut chain, t.sense_gain),
+                sense_offset_mv: sym(&mut chain, t.sense_offset_mv),
+                dac_gain: 1.0 + sym(&mut chain, t.dac_gain),
+                dac_offset_mv: sym(&mut chain, t.dac_offset_mv),
                 ..nominal()
             }
         })
         .collect()
 }
+
+/// Seed of the second draw stream of [`parts`] ("convchain" in ASCII)
+/// against the first's.
+const CHAIN_STREAM: u64 = 0x636f_6e76_6368_6169;
 
 /// How long a fault's case is watched after the injection.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -730,7 +783,7 @@ fn scenario(
     )
 }
 
-/// Run one case.
+/// Run one case from t = 0.
 pub fn run_case(
     bench: &Bench<'_>,
     spec: &FaultSpec,
@@ -739,9 +792,98 @@ pub fn run_case(
     slow_bound_s: f64,
 ) -> Result<CaseResult, String> {
     let (sc, timing) = scenario(bench, spec, case, corner, slow_bound_s);
-    let module = bench.module.with_spread(corner.threshold, corner.slope);
+    let module = corner.module(bench.module);
     let res =
         sim::run(&sc, &module, bench.cfg.clone(), bench.latency).map_err(|e| e.to_string())?;
+    assess(bench, spec, case, corner, &timing, &res)
+}
+
+/// The scenario of a case without its injection (the last event), named
+/// after nothing: what the cases of one fork share.
+fn lead_in(mut sc: Scenario) -> Scenario {
+    sc.events.pop();
+    sc.name = String::new();
+    sc
+}
+
+/// Run cases that share their lead-in (the same corner, moment, setpoint
+/// and watch length: [`fork_groups`]) by running the lead-in once to the
+/// injection moment and forking the run for each fault. Each result is
+/// bit-identical to [`run_case`]'s.
+pub fn run_forked(
+    bench: &Bench<'_>,
+    plan: &CasePlan,
+    group: &[Case],
+    slow_bound_s: f64,
+) -> Result<Vec<CaseResult>, String> {
+    let Some(first) = group.first() else {
+        return Ok(Vec::new());
+    };
+    let corner = &plan.corners[first.corner];
+    let (sc, timing) = scenario(
+        bench,
+        &plan.faults[first.fault],
+        first,
+        corner,
+        slow_bound_s,
+    );
+    let module = corner.module(bench.module);
+    let fork = sim::fork_at(
+        &lead_in(sc),
+        &module,
+        bench.cfg.clone(),
+        bench.latency,
+        timing.inject_ms,
+    )
+    .map_err(|e| e.to_string())?;
+    group
+        .iter()
+        .map(|case| {
+            let spec = &plan.faults[case.fault];
+            let (sc, timing) = scenario(bench, spec, case, corner, slow_bound_s);
+            let inject = sc.events.last().ok_or("a case without its injection")?;
+            let res = fork.resume(inject).map_err(|e| e.to_string())?;
+            assess(bench, spec, case, corner, &timing, &res)
+        })
+        .collect()
+}
+
+/// The cases of a plan grouped by shared lead-in (corner, injection
+/// moment and the scenario before the injection), each group in campaign
+/// order, the groups in the order of their first case.
+pub fn fork_groups(bench: &Bench<'_>, plan: &CasePlan, slow_bound_s: f64) -> Vec<Vec<Case>> {
+    let mut groups: Vec<Vec<Case>> = Vec::new();
+    let mut by_key: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+    for case in &plan.cases {
+        let corner = &plan.corners[case.corner];
+        let (sc, timing) = scenario(bench, &plan.faults[case.fault], case, corner, slow_bound_s);
+        // Debug formatting of f64 round-trips: equal keys, equal lead-ins.
+        let key = format!(
+            "{} {:?} {:?}",
+            case.corner,
+            timing.inject_ms.to_bits(),
+            lead_in(sc)
+        );
+        match by_key.get(&key) {
+            Some(&g) => groups[g].push(*case),
+            None => {
+                by_key.insert(key, groups.len());
+                groups.push(vec![*case]);
+            }
+        }
+    }
+    groups
+}
+
+/// Judge a finished run of a case.
+fn assess(
+    bench: &Bench<'_>,
+    spec: &FaultSpec,
+    case: &Case,
+    corner: &Corner,
+    timing: &Timing,
+    res: &sim::RunResult,
+) -> Result<CaseResult, String> {
     let tick_hz = res.tick_hz;
     let inject_tick = sim::tick_at(timing.inject_ms, tick_hz);
     let reference_tick = sim::tick_at(timing.reference_ms, tick_hz);
@@ -895,31 +1037,27 @@ pub fn run_case(
     })
 }
 
-/// Run a campaign selection in parallel with a progress bar.
+/// Run a campaign selection in parallel with a progress bar: the groups
+/// of cases that share a lead-in ([`fork_groups`]) spread over the worker
+/// threads, each forked at its injection moment ([`run_forked`]). The
+/// results come back in campaign order and do not depend on the number of
+/// threads (each case is computed alone from its own seeded run).
 pub fn run(bench: &Bench<'_>, sel: &Selection) -> Result<Vec<CaseResult>, String> {
-    let CasePlan {
-        faults,
-        corners,
-        cases,
-        ..
-    } = cases(bench, sel).map_err(|e| e.to_string())?;
-    let pb = crate::progress::bar(cases.len() as u64, "cases");
-    let out: Result<Vec<_>, String> = cases
+    let plan = cases(bench, sel).map_err(|e| e.to_string())?;
+    let groups = fork_groups(bench, &plan, sel.slow_bound_s);
+    let pb = crate::progress::bar(plan.cases.len() as u64, "cases");
+    let done: Result<Vec<Vec<CaseResult>>, String> = groups
         .par_iter()
-        .map(|c| {
-            let r = run_case(
-                bench,
-                &faults[c.fault],
-                c,
-                &corners[c.corner],
-                sel.slow_bound_s,
-            );
-            pb.inc(1);
+        .map(|g| {
+            let r = run_forked(bench, &plan, g, sel.slow_bound_s);
+            pb.inc(g.len() as u64);
             r
         })
         .collect();
     pb.finish_and_clear();
-    out
+    let mut out: Vec<CaseResult> = done?.into_iter().flatten().collect();
+    out.sort_by_key(|r| r.index);
+    Ok(out)
 }
 
 /// Run a selection on a bench and make its record.
@@ -964,4 +1102,169 @@ fn fnv1a64(bytes: &[u8]) -> u64 {
     bytes.iter().fold(0xcbf2_9ce4_8422_2325, |h, b| {
         (h ^ u64::from(*b)).wrapping_mul(0x0000_0100_0000_01b3)
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::board_file::{load_board, LoadedBoard};
+
+    fn board(name: &str) -> LoadedBoard {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../examples")
+            .join(name)
+            .join("board.toml");
+        load_board(&path).unwrap()
+    }
+
+    fn bench(b: &LoadedBoard) -> Bench<'_> {
+        Bench {
+            name: &b.name,
+            module: &b.module,
+            cfg: &b.valid,
+            latency: b.latency,
+            lines: b.pass_lines.as_ref().unwrap(),
+        }
+    }
+
+    /// A few fast faults and one slow one (kept short) at every moment on
+    /// two drawn parts: forks of every sort of lead-in.
+    fn selection() -> Selection {
+        Selection {
+            faults: Some(
+                [
+                    "sensor-open",
+                    "dac-stuck",
+                    "dac-bus",
+                    "missed-ticks",
+                    "monitor-drift",
+                ]
+                .map(String::from)
+                .to_vec(),
+            ),
+            slow_bound_s: 0.05,
+            parts: Some((2, 3)),
+            ..Selection::default()
+        }
+    }
+
+    fn json(r: &[CaseResult]) -> String {
+        serde_json::to_string(r).unwrap()
+    }
+
+    /// Every case run from a fork at its injection moment gives exactly
+    /// the result of the same case run from t = 0, and the forks are
+    /// shared (fewer lead-ins than cases).
+    #[test]
+    fn forked_cases_equal_cases_run_from_t0() {
+        let b = board("demo-red-30");
+        let bench = bench(&b);
+        let sel = selection();
+        let plan = cases(&bench, &sel).unwrap();
+        let groups = fork_groups(&bench, &plan, sel.slow_bound_s);
+        assert!(groups.len() * 3 < plan.cases.len(), "{}", groups.len());
+        assert_eq!(groups.iter().map(Vec::len).sum::<usize>(), plan.cases.len());
+        for g in &groups {
+            let forked = run_forked(&bench, &plan, g, sel.slow_bound_s).unwrap();
+            let from_t0: Vec<CaseResult> = g
+                .iter()
+                .map(|c| {
+                    run_case(
+                        &bench,
+                        &plan.faults[c.fault],
+                        c,
+                        &plan.corners[c.corner],
+                        sel.slow_bound_s,
+                    )
+                    .unwrap()
+                })
+                .collect();
+            assert_eq!(json(&forked), json(&from_t0));
+        }
+    }
+
+    /// One worker thread or two: the same results in the same order.
+    #[test]
+    fn results_do_not_depend_on_the_thread_count() {
+        let b = board("demo-pump-5w");
+        let bench = bench(&b);
+        let sel = selection();
+        let on = |n: usize| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(n)
+                .build()
+                .unwrap()
+                .install(|| run(&bench, &sel).unwrap())
+        };
+        let one = on(1);
+        assert_eq!(one.len(), cases(&bench, &sel).unwrap().total);
+        assert!(one.windows(2).all(|w| w[0].index < w[1].index));
+        assert_eq!(json(&one), json(&on(2)));
+    }
+
+    /// Every drawn value lies in its band, the bands are used (the draws
+    /// spread), and the threshold, slope and tracking draws are those of
+    /// the first stream alone (as before T0 and the converter chain were
+    /// drawn).
+    #[test]
+    fn parts_draw_every_tolerance_in_its_band() {
+        let t = PartTolerances::DEMO;
+        let p = draw_parts(&t, 500, 11);
+        let within = |v: f64, c: f64, h: f64| (v - c).abs() <= h;
+        for k in &p {
+            assert!(within(k.threshold, 1.0, t.threshold));
+            assert!(within(k.slope, 1.0, t.slope));
+            assert!(within(k.tracking, 1.0, t.tracking));
+            assert!(within(k.t0, 1.0, t.t0));
+            assert!(within(k.sense_gain, 1.0, t.sense_gain));
+            assert!(within(k.sense_offset_mv, 0.0, t.sense_offset_mv));
+            assert!(within(k.dac_gain, 1.0, t.dac_gain));
+            assert!(within(k.dac_offset_mv, 0.0, t.dac_offset_mv));
+        }
+        let spread = |f: fn(&Corner) -> f64, h: f64| {
+            let lo = p.iter().map(f).fold(f64::INFINITY, f64::min);
+            let hi = p.iter().map(f).fold(f64::NEG_INFINITY, f64::max);
+            hi - lo > 1.8 * h
+        };
+        assert!(spread(|k| k.t0, t.t0));
+        assert!(spread(|k| k.sense_offset_mv, t.sense_offset_mv));
+        assert!(spread(|k| k.dac_gain, t.dac_gain));
+        let mut rng = crate::plant::Rng::new(11);
+        for k in &p {
+            for (v, h) in [
+                (k.threshold, t.threshold),
+                (k.slope, t.slope),
+                (k.tracking, t.tracking),
+            ] {
+                assert_eq!(v, 1.0 + h * (2.0 * rng.uniform() - 1.0));
+            }
+        }
+    }
+
+    /// A part's converter chain reaches the plant: its DAC gain scales the
+    /// full-scale current, its offsets shift the setpoint and the sense
+    /// voltage, its T0 factor the diode's T0.
+    #[test]
+    fn a_part_moves_the_module() {
+        let base = DemoModule::pump();
+        let part = Corner {
+            t0: 1.1,
+            sense_gain: 0.99,
+            sense_offset_mv: 1.5,
+            dac_gain: 1.01,
+            dac_offset_mv: -2.0,
+            ..nominal()
+        };
+        let m = part.module(&base);
+        assert_eq!(m.diode.t0_k, base.diode.t0_k * 1.1);
+        let d0 = crate::plant::Driver::new(base.driver.clone()).unwrap();
+        let d = crate::plant::Driver::new(m.driver.clone()).unwrap();
+        let gm = base.driver.transconductance_a_per_v;
+        let want = d0.setpoint_a(2000) * 1.01 - 2e-3 * gm;
+        assert!((d.setpoint_a(2000) - want).abs() < 1e-12);
+        assert_eq!(d.setpoint_a(0), 0.0, "no negative current");
+        let want = d0.sense_voltage(1.0) * 0.99 + 1.5e-3;
+        assert!((d.sense_voltage(1.0) - want).abs() < 1e-12);
+        assert_eq!(nominal().module(&base), base);
+    }
 }

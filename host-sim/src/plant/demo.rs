@@ -41,8 +41,11 @@ pub struct DemoModule {
     pub tolerances: PartTolerances,
 }
 
-/// Part-to-part tolerances of a module, each a relative half-width: a
-/// part's factor is drawn uniformly from `1 - t ..= 1 + t`. Demo values.
+/// Part-to-part tolerances of a module: a part's factor is drawn
+/// uniformly from `1 - t ..= 1 + t` for a relative half-width `t`, an
+/// offset uniformly from `-h ..= h` for a half-width `h`. The fields after
+/// `tracking` may be left out of a module file: they then take the
+/// defaults of [`PartTolerances::DEMO`] (demo values, our choice).
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct PartTolerances {
@@ -52,15 +55,55 @@ pub struct PartTolerances {
     pub slope: f64,
     /// Monitor responsivity (tracking ratio).
     pub tracking: f64,
+    /// Characteristic temperature T0 of the threshold.
+    #[serde(default = "default_t0")]
+    pub t0: f64,
+    /// Current-sense amplifier gain.
+    #[serde(default = "default_sense_gain")]
+    pub sense_gain: f64,
+    /// Current-sense amplifier output offset, mV (half-width).
+    #[serde(default = "default_sense_offset_mv")]
+    pub sense_offset_mv: f64,
+    /// DAC gain (reference and source transconductance together).
+    #[serde(default = "default_dac_gain")]
+    pub dac_gain: f64,
+    /// DAC output offset, mV (half-width).
+    #[serde(default = "default_dac_offset_mv")]
+    pub dac_offset_mv: f64,
+}
+
+fn default_t0() -> f64 {
+    PartTolerances::DEMO.t0
+}
+fn default_sense_gain() -> f64 {
+    PartTolerances::DEMO.sense_gain
+}
+fn default_sense_offset_mv() -> f64 {
+    PartTolerances::DEMO.sense_offset_mv
+}
+fn default_dac_gain() -> f64 {
+    PartTolerances::DEMO.dac_gain
+}
+fn default_dac_offset_mv() -> f64 {
+    PartTolerances::DEMO.dac_offset_mv
 }
 
 impl PartTolerances {
-    /// The demo modules' tolerances: threshold +-15 %, slope +-8 % (the
-    /// loop analysis's corner spreads), monitor tracking +-10 %.
+    /// The demo modules' tolerances (demo values, our choice): threshold
+    /// +-15 %, slope +-8 % (the loop analysis's corner spreads), monitor
+    /// tracking +-10 %, T0 +-10 %, current-sense gain +-1 % and offset
+    /// +-2 mV, DAC gain +-1 % and offset +-2 mV (the order of a
+    /// general-purpose amplifier's and converter's initial accuracy, from
+    /// memory; a module file states its own parts' figures).
     pub const DEMO: PartTolerances = PartTolerances {
         threshold: 0.15,
         slope: 0.08,
         tracking: 0.10,
+        t0: 0.10,
+        sense_gain: 0.01,
+        sense_offset_mv: 2.0,
+        dac_gain: 0.01,
+        dac_offset_mv: 2.0,
     };
 }
 
@@ -287,6 +330,8 @@ impl DriverParams {
             // absolute rating is 60 mA): firmware cannot stop a failure
             // faster than one tick, only a hardware limit can.
             fail_high_current_a: 0.065,
+            dac_offset_v: 0.0,
+            sense_offset_v: 0.0,
             shutdown_tau_s: 1e-6,
         }
     }
@@ -308,6 +353,8 @@ impl DriverParams {
             // level. (Unclamped at the 12 A the output stage could reach,
             // one tick gives 11 to 13 W and facet damage.)
             fail_high_current_a: 7.0,
+            dac_offset_v: 0.0,
+            sense_offset_v: 0.0,
             shutdown_tau_s: 5e-6,
         }
     }

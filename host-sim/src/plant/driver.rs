@@ -46,6 +46,19 @@ pub struct DriverParams {
     pub fail_high_current_a: f64,
     /// Time constant of the output collapse when enable goes low, s.
     pub shutdown_tau_s: f64,
+    /// DAC output offset, V (added to every code's output; the current
+    /// setpoint never goes below zero). 0 unless measured; a Monte Carlo
+    /// part draws it from the module's tolerances.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub dac_offset_v: f64,
+    /// Current-sense amplifier output offset, V (added to the sense
+    /// voltage). 0 unless measured; drawn per Monte Carlo part.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub sense_offset_v: f64,
+}
+
+fn is_zero(v: &f64) -> bool {
+    *v == 0.0
 }
 
 impl DriverParams {
@@ -76,6 +89,16 @@ impl DriverParams {
             "fail_high_current_a",
             "must be >= 0",
         )?;
+        ensure(
+            self.dac_offset_v.is_finite(),
+            "dac_offset_v",
+            "must be finite",
+        )?;
+        ensure(
+            self.sense_offset_v.is_finite(),
+            "sense_offset_v",
+            "must be finite",
+        )?;
         ensure(pos(self.shutdown_tau_s), "shutdown_tau_s", "must be > 0")
     }
 
@@ -91,6 +114,8 @@ pub struct Driver {
     params: DriverParams,
     max_code: u16,
     amps_per_code: f64,
+    /// The DAC offset as output current, A.
+    offset_a: f64,
     tau_s: f64,
     on_dt: f64,
     on_decay: f64,
@@ -119,11 +144,13 @@ impl Driver {
         params.validate()?;
         let max_code = ((1u32 << params.dac_bits) - 1) as u16;
         let amps_per_code = params.full_scale_a() / max_code as f64;
+        let offset_a = params.dac_offset_v * params.transconductance_a_per_v;
         let tau_s = 1.0 / (core::f64::consts::TAU * params.bandwidth_hz);
         Ok(Self {
             params,
             max_code,
             amps_per_code,
+            offset_a,
             tau_s,
             on_dt: f64::NAN,
             on_decay: 0.0,
@@ -154,7 +181,12 @@ impl Driver {
     /// Current setpoint of a DAC code (clamped to full scale), A.
     #[inline]
     pub fn setpoint_a(&self, dac_code: u16) -> f64 {
-        dac_code.min(self.max_code) as f64 * self.amps_per_code
+        let i = dac_code.min(self.max_code) as f64 * self.amps_per_code;
+        if self.offset_a == 0.0 {
+            i
+        } else {
+            (i + self.offset_a).max(0.0)
+        }
     }
 
     /// Output current after the last step, A.
@@ -343,6 +375,7 @@ impl Driver {
     #[inline]
     pub fn sense_voltage(&self, i_a: f64) -> f64 {
         i_a * self.params.sense_ohm * self.params.sense_gain * self.sense_gain_error
+            + self.params.sense_offset_v
     }
 }
 
@@ -420,6 +453,8 @@ mod tests {
             sense_gain: 4.0,
             fail_high_current_a: 0.15,
             shutdown_tau_s: 1e-7,
+            dac_offset_v: 0.0,
+            sense_offset_v: 0.0,
         }
     }
 
