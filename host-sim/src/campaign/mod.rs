@@ -423,6 +423,14 @@ fn standing(fault: &HwFault) -> bool {
     !matches!(fault, HwFault::MissedTicks { .. })
 }
 
+/// Parts of a Monte Carlo run that the slow faults run on by default
+/// (`--slow-parts`): each slow case watches up to the slow bound (20 s of
+/// plant time by default), some hundred times a fast case, so a
+/// 1000-part run of every slow fault would take hours; 100 parts bound
+/// the probability of an unsafe slow case per part to about 3 % when
+/// none is seen (one-sided 95 % Clopper-Pearson).
+pub const SLOW_PARTS: u32 = 100;
+
 /// Noise seed of every case.
 pub const SEED: u64 = 1;
 
@@ -564,6 +572,14 @@ pub fn cases(bench: &Bench<'_>, sel: &Selection) -> Result<CasePlan, SelectionEr
                     .corners
                     .as_ref()
                     .is_some_and(|n| !n.contains(&corner.name))
+                {
+                    continue;
+                }
+                // A Monte Carlo run may hold its slow faults to its first
+                // parts (not numbered on the others).
+                if f.watch == WatchKind::Slow
+                    && sel.parts.is_some()
+                    && sel.slow_parts.is_some_and(|n| ci >= n as usize)
                 {
                     continue;
                 }
@@ -1092,8 +1108,10 @@ pub fn run_record(
         shard: sel.shard,
         total_cases: total,
         results,
+        monte_carlo: None,
         caution: crate::safety::SAFETY_CAUTION.to_string(),
-    })
+    }
+    .with_figures())
 }
 
 /// FNV-1a 64 over bytes (the same function as the core's configuration
@@ -1266,5 +1284,113 @@ mod tests {
         let want = d0.sense_voltage(1.0) * 0.99 + 1.5e-3;
         assert!((d.sense_voltage(1.0) - want).abs() < 1e-12);
         assert_eq!(nominal().module(&base), base);
+    }
+
+    /// A Monte Carlo record carries its figures in the JSON; two shards,
+    /// through JSON and merged, give exactly the single run's JSON, figures
+    /// included; the worst part's drawn values are those of its draw.
+    #[test]
+    fn monte_carlo_figures_are_in_the_json_and_merge() {
+        let b = board("demo-red-30");
+        let bench = bench(&b);
+        let sel = Selection {
+            faults: Some(vec!["monitor-intermittent".into(), "sensor-open".into()]),
+            moments: Some(vec![Moment::Steady, Moment::SoftStart]),
+            parts: Some((5, 2)),
+            ..Selection::default()
+        };
+        let file = "examples/demo-red-30/board.toml";
+        let single = run_record(&bench, "m", file, &sel).unwrap();
+        let mc = single.monte_carlo.clone().unwrap();
+        assert_eq!((mc.parts, mc.seed, mc.cases), (5, 2, 40));
+        assert_eq!(mc.per_fault.len(), 4);
+        assert_eq!(mc.per_fault.iter().map(|f| f.cases).sum::<u64>(), 40);
+        assert_eq!(
+            mc.per_fault.iter().map(|f| f.unsafe_cases).sum::<u64>(),
+            mc.unsafe_cases
+        );
+        let drawn = parts(bench.module, 5, 2);
+        assert!(drawn.contains(&mc.worst_part.part));
+        let worst = &mc.worst_part.part.name;
+        let unsafe_of = |name: &str| {
+            single
+                .results
+                .iter()
+                .filter(|r| r.corner == name && !r.safe)
+                .count() as u64
+        };
+        assert_eq!(mc.worst_part.unsafe_cases, unsafe_of(worst));
+        assert!(drawn.iter().all(|p| unsafe_of(&p.name) <= unsafe_of(worst)));
+        let text = serde_json::to_string_pretty(&single).unwrap();
+        assert!(text.contains("\"worst_part\"") && text.contains("\"dac_offset_mv\""));
+        let back = |r: &report::Record| -> report::Record {
+            serde_json::from_str(&serde_json::to_string_pretty(r).unwrap()).unwrap()
+        };
+        let shards: Vec<_> = (1..=2)
+            .map(|k| {
+                let r = run_record(
+                    &bench,
+                    "m",
+                    file,
+                    &Selection {
+                        shard: Some((k, 2)),
+                        ..sel.clone()
+                    },
+                )
+                .unwrap();
+                assert_eq!(r.monte_carlo, None);
+                back(&r)
+            })
+            .collect();
+        let merged = report::merge(shards).unwrap();
+        assert_eq!(serde_json::to_string_pretty(&merged).unwrap(), text);
+        assert!(report::markdown(&merged).contains("Worst part: part-"));
+    }
+
+    /// `--slow-parts K` holds the slow faults to the first K parts; the
+    /// fast ones run on every part; without it every fault runs on every
+    /// part; with corners it does nothing.
+    #[test]
+    fn slow_faults_run_on_the_first_parts() {
+        let b = board("demo-red-30");
+        let bench = bench(&b);
+        let sel = Selection {
+            faults: Some(vec!["heatsink-loss".into(), "sensor-open".into()]),
+            moments: Some(vec![Moment::Steady]),
+            parts: Some((5, 1)),
+            slow_parts: Some(2),
+            ..Selection::default()
+        };
+        let plan = cases(&bench, &sel).unwrap();
+        let on = |fault: &str| -> Vec<usize> {
+            plan.cases
+                .iter()
+                .filter(|c| plan.faults[c.fault].fault.name() == fault)
+                .map(|c| c.corner)
+                .collect()
+        };
+        assert_eq!(on("heatsink-loss"), vec![0, 1]);
+        assert_eq!(on("sensor-open"), vec![0, 1, 2, 3, 4]);
+        assert_eq!(plan.total, 7);
+        let all = cases(
+            &bench,
+            &Selection {
+                slow_parts: None,
+                ..sel.clone()
+            },
+        )
+        .unwrap();
+        assert_eq!(all.total, 10);
+        let corners = cases(
+            &bench,
+            &Selection {
+                parts: None,
+                ..sel.clone()
+            },
+        )
+        .unwrap();
+        assert_eq!(corners.total, 14);
+        assert!(report::command_line("b.toml", &sel)
+            .contains("--parts 5 --parts-seed 1 --slow-parts 2"));
     }
 }

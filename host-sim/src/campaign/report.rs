@@ -57,8 +57,21 @@ pub struct Record {
     pub total_cases: usize,
     /// The cases, in campaign order.
     pub results: Vec<CaseResult>,
+    /// The Monte Carlo figures of a whole Monte Carlo campaign (`None`:
+    /// corners, or a shard; [`merge`] computes them for the merged
+    /// record).
+    #[serde(default)]
+    pub monte_carlo: Option<MonteCarlo>,
     /// The safety caution.
     pub caution: String,
+}
+
+impl Record {
+    /// The record with its Monte Carlo figures filled from its cases.
+    pub fn with_figures(mut self) -> Record {
+        self.monte_carlo = monte_carlo(&self);
+        self
+    }
 }
 
 /// Why shard records cannot be merged.
@@ -163,7 +176,8 @@ pub fn merge(records: Vec<Record>) -> Result<Record, MergeError> {
         shard: None,
         results,
         ..first
-    })
+    }
+    .with_figures())
 }
 
 fn fmt_opt(v: Option<f64>, digits: usize) -> String {
@@ -341,14 +355,20 @@ pub fn markdown(rec: &Record) -> String {
             rec.header.pass_lines.rated_current_ma
         );
     }
-    if let Some(mc) = monte_carlo(rec) {
+    if let Some(mc) = &rec.monte_carlo {
+        let t = &mc.tolerances;
         let _ = writeln!(
             s,
-            "\n## Monte Carlo\n\n{} parts drawn from the module's tolerances (threshold +-{:.0} %, slope +-{:.0} %, monitor tracking +-{:.0} %, uniform; seed {}) at 25 degC, every selected fault and moment on each. {} of {} parts had an unsafe case: one-sided 95 % Clopper-Pearson upper bound on the probability that a part has one {:.4}. {} of {} cases unsafe: bound on the probability of an unsafe case {:.5} (cases on one part are not independent; the per-part figure is the one to quote).",
+            "\n## Monte Carlo\n\n{} parts drawn from the module's tolerances (uniform: threshold +-{:.0} %, slope +-{:.0} %, monitor tracking +-{:.0} %, T0 +-{:.0} %, current-sense gain +-{:.1} % and offset +-{} mV, DAC gain +-{:.1} % and offset +-{} mV; seed {}) at 25 degC, every selected fault and moment on each. {} of {} parts had an unsafe case: one-sided 95 % Clopper-Pearson upper bound on the probability that a part has one {:.4}. {} of {} cases unsafe: bound on the probability of an unsafe case {:.5} (cases on one part are not independent; the per-part figure is the one to quote).",
             mc.parts,
-            mc.tolerances.threshold * 100.0,
-            mc.tolerances.slope * 100.0,
-            mc.tolerances.tracking * 100.0,
+            t.threshold * 100.0,
+            t.slope * 100.0,
+            t.tracking * 100.0,
+            t.t0 * 100.0,
+            t.sense_gain * 100.0,
+            t.sense_offset_mv,
+            t.dac_gain * 100.0,
+            t.dac_offset_mv,
             mc.seed,
             mc.unsafe_parts,
             mc.parts,
@@ -357,6 +377,41 @@ pub fn markdown(rec: &Record) -> String {
             mc.cases,
             mc.case_upper_95
         );
+        if let Some(k) = rec.header.selection.slow_parts.filter(|&k| k < mc.parts) {
+            let _ = writeln!(
+                s,
+                "\nThe slow faults (watched until the plant settles, at most {} s) ran on the first {k} parts only (`--slow-parts`); each fault's parts are in the table below.",
+                rec.header.selection.slow_bound_s
+            );
+        }
+        let w = &mc.worst_part;
+        let p = &w.part;
+        let _ = writeln!(
+            s,
+            "\nWorst part: {} ({} unsafe cases; highest class ratio {}{}; {:.3} uJ above the rated power), drawn as threshold x{:.4}, slope x{:.4}, tracking x{:.4}, T0 x{:.4}, sense gain x{:.4}, sense offset {:+.3} mV, DAC gain x{:.4}, DAC offset {:+.3} mV.\n\n| fault | parts | cases | unsafe cases | parts with an unsafe case | 95 % upper bound per part |\n|---|---|---|---|---|---|",
+            p.name,
+            w.unsafe_cases,
+            fmt_opt(w.worst_class_ratio, 3),
+            w.worst_case
+                .as_ref()
+                .map_or(String::new(), |c| format!(", {c}")),
+            w.worst_over_power_uj,
+            p.threshold,
+            p.slope,
+            p.tracking,
+            p.t0,
+            p.sense_gain,
+            p.sense_offset_mv,
+            p.dac_gain,
+            p.dac_offset_mv
+        );
+        for f in &mc.per_fault {
+            let _ = writeln!(
+                s,
+                "| {} | {} | {} | {} | {} | {:.4} |",
+                f.fault, f.parts, f.cases, f.unsafe_cases, f.unsafe_parts, f.part_upper_95
+            );
+        }
     }
     s.push_str("\n## Fault reactions\n\n| fault | expected | detected by | worst reaction (us) | limit (us) | states reached | worst class ratio | worst above rated power (uJ) | worst above rated current (uC) | cases | unsafe | findings |\n|---|---|---|---|---|---|---|---|---|---|---|---|\n");
     for r in reaction_table(results) {
@@ -522,6 +577,9 @@ pub fn command_line(board_file: &str, sel: &Selection) -> String {
     }
     if let Some((n, seed)) = sel.parts {
         let _ = write!(s, " --parts {n} --parts-seed {seed}");
+        if let Some(k) = sel.slow_parts {
+            let _ = write!(s, " --slow-parts {k}");
+        }
     }
     if let Some(p) = &sel.setpoints_mw {
         let p: Vec<String> = p.iter().map(|v| v.to_string()).collect();
@@ -531,7 +589,7 @@ pub fn command_line(board_file: &str, sel: &Selection) -> String {
 }
 
 /// The figures of a Monte Carlo campaign.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct MonteCarlo {
     /// Parts drawn.
     pub parts: u32,
@@ -541,7 +599,8 @@ pub struct MonteCarlo {
     pub tolerances: crate::plant::PartTolerances,
     /// Parts with at least one unsafe case.
     pub unsafe_parts: u64,
-    /// One-sided 95 % Clopper-Pearson upper bound per part.
+    /// One-sided 95 % Clopper-Pearson upper bound on the probability that
+    /// a part has an unsafe case.
     pub part_upper_95: f64,
     /// Cases.
     pub cases: u64,
@@ -549,21 +608,126 @@ pub struct MonteCarlo {
     pub unsafe_cases: u64,
     /// One-sided 95 % Clopper-Pearson upper bound per case.
     pub case_upper_95: f64,
+    /// Per fault (label), in campaign order: its cases, unsafe cases and
+    /// parts with one.
+    pub per_fault: Vec<FaultCount>,
+    /// The worst part: the most unsafe cases, then the highest class
+    /// ratio, then the most energy above the rated power, then the lowest
+    /// number; with its drawn values.
+    pub worst_part: WorstPart,
+}
+
+/// One fault's Monte Carlo counts.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct FaultCount {
+    /// Fault label.
+    pub fault: String,
+    /// Fault kind.
+    pub kind: String,
+    /// Cases run.
+    pub cases: u64,
+    /// Unsafe cases.
+    pub unsafe_cases: u64,
+    /// Parts it ran on (fewer than drawn for a slow fault held to the
+    /// first parts, `--slow-parts`).
+    pub parts: u64,
+    /// Parts with an unsafe case of this fault.
+    pub unsafe_parts: u64,
+    /// One-sided 95 % Clopper-Pearson upper bound on the probability that
+    /// a part has an unsafe case of this fault.
+    pub part_upper_95: f64,
+}
+
+/// The worst part of a Monte Carlo campaign.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct WorstPart {
+    /// The part as drawn (name, factors, offsets).
+    pub part: super::Corner,
+    /// Its unsafe cases.
+    pub unsafe_cases: u64,
+    /// Its highest class ratio (accessible emission over the class
+    /// limit), if any case emitted.
+    pub worst_class_ratio: Option<f64>,
+    /// Its largest energy above the rated power, uJ.
+    pub worst_over_power_uj: f64,
+    /// Its case with the highest class ratio: fault and moment.
+    pub worst_case: Option<String>,
 }
 
 /// The Monte Carlo figures of a whole record (`None`: not a Monte Carlo
 /// run, or a shard).
 pub fn monte_carlo(rec: &Record) -> Option<MonteCarlo> {
     let (parts, seed) = rec.header.selection.parts?;
-    if rec.shard.is_some() {
+    if rec.shard.is_some() || parts == 0 {
         return None;
     }
-    let unsafe_parts = (1..=parts)
-        .filter(|i| {
-            let name = format!("part-{i}");
-            rec.results.iter().any(|r| r.corner == name && !r.safe)
-        })
-        .count() as u64;
+    let n = parts as usize;
+    // Cases by part number (names are part-1 ..= part-n).
+    let part_of = |r: &CaseResult| -> Option<usize> {
+        let k: usize = r.corner.strip_prefix("part-")?.parse().ok()?;
+        (1..=n).contains(&k).then_some(k - 1)
+    };
+    let mut unsafe_by_part = vec![0u64; n];
+    let mut ratio_by_part = vec![None::<f64>; n];
+    let mut worst_case_by_part = vec![None::<String>; n];
+    let mut over_by_part = vec![0.0f64; n];
+    let mut per_fault: Vec<FaultCount> = Vec::new();
+    let mut fault_parts: Vec<BTreeSet<usize>> = Vec::new();
+    let mut ran_parts: Vec<BTreeSet<usize>> = Vec::new();
+    for r in &rec.results {
+        let k = part_of(r);
+        let f = match per_fault.iter().position(|c| c.fault == r.fault) {
+            Some(f) => f,
+            None => {
+                per_fault.push(FaultCount {
+                    fault: r.fault.clone(),
+                    kind: r.kind.clone(),
+                    cases: 0,
+                    unsafe_cases: 0,
+                    parts: 0,
+                    unsafe_parts: 0,
+                    part_upper_95: 1.0,
+                });
+                fault_parts.push(BTreeSet::new());
+                ran_parts.push(BTreeSet::new());
+                per_fault.len() - 1
+            }
+        };
+        per_fault[f].cases += 1;
+        if let Some(k) = k {
+            ran_parts[f].insert(k);
+        }
+        if !r.safe {
+            per_fault[f].unsafe_cases += 1;
+            if let Some(k) = k {
+                fault_parts[f].insert(k);
+            }
+        }
+        if let Some(k) = k {
+            unsafe_by_part[k] += u64::from(!r.safe);
+            over_by_part[k] = over_by_part[k].max(r.judgement.over_power_uj);
+            if let Some(c) = r.judgement.class_ratio() {
+                if ratio_by_part[k].is_none_or(|w| c > w) {
+                    ratio_by_part[k] = Some(c);
+                    worst_case_by_part[k] = Some(format!("{} at {}", r.fault, r.moment.name()));
+                }
+            }
+        }
+    }
+    for ((c, p), ran) in per_fault.iter_mut().zip(&fault_parts).zip(&ran_parts) {
+        c.parts = ran.len() as u64;
+        c.unsafe_parts = p.len() as u64;
+        c.part_upper_95 = super::stats::clopper_pearson_upper(c.unsafe_parts, c.parts, 0.95)?;
+    }
+    let worse = |a: usize, b: usize| -> bool {
+        // Whether part a is worse than part b (b the lower number).
+        let ra = ratio_by_part[a].unwrap_or(f64::NEG_INFINITY);
+        let rb = ratio_by_part[b].unwrap_or(f64::NEG_INFINITY);
+        (unsafe_by_part[a], ra, over_by_part[a]) > (unsafe_by_part[b], rb, over_by_part[b])
+    };
+    let w = (1..n).fold(0, |w, k| if worse(k, w) { k } else { w });
+    let part = super::draw_parts(&rec.header.tolerances, parts, seed).swap_remove(w);
+    let unsafe_parts = unsafe_by_part.iter().filter(|&&u| u > 0).count() as u64;
     let cases = rec.results.len() as u64;
     let unsafe_cases = rec.results.iter().filter(|r| !r.safe).count() as u64;
     Some(MonteCarlo {
@@ -575,5 +739,13 @@ pub fn monte_carlo(rec: &Record) -> Option<MonteCarlo> {
         cases,
         unsafe_cases,
         case_upper_95: super::stats::clopper_pearson_upper(unsafe_cases, cases, 0.95)?,
+        per_fault,
+        worst_part: WorstPart {
+            part,
+            unsafe_cases: unsafe_by_part[w],
+            worst_class_ratio: ratio_by_part[w],
+            worst_over_power_uj: over_by_part[w],
+            worst_case: worst_case_by_part[w].clone(),
+        },
     })
 }

@@ -86,6 +86,10 @@ pub struct Selection {
     /// Monte Carlo: `(n, seed)` replaces the corners with `n` parts drawn
     /// from the module's tolerances.
     pub parts: Option<(u32, u64)>,
+    /// Monte Carlo: the slow faults (watched until the plant settles) run
+    /// on the first this many parts only (`None`: on every part).
+    #[serde(default)]
+    pub slow_parts: Option<u32>,
     /// This run's slice: `(k, n)` runs the cases numbered k-1 modulo n.
     pub shard: Option<(u32, u32)>,
 }
@@ -101,6 +105,7 @@ impl Default for Selection {
             setpoints_mw: None,
             slow_bound_s: 20.0,
             parts: None,
+            slow_parts: None,
             shard: None,
         }
     }

@@ -111,6 +111,9 @@ enum Cmd {
         /// Seed of the Monte Carlo parts.
         #[arg(long, default_value_t = 1, requires = "parts")]
         parts_seed: u64,
+        /// Monte Carlo: run the slow faults (heatsink loss, aging, degrading monitor) on the first N parts only.
+        #[arg(long, default_value_t = diodestat_sim::campaign::SLOW_PARTS, requires = "parts")]
+        slow_parts: u32,
         /// Run only slice K of N (cases numbered K-1 modulo N); merge the slices with campaign-merge.
         #[arg(long, value_parser = shard)]
         shard: Option<(u32, u32)>,
@@ -637,6 +640,7 @@ fn main() -> ExitCode {
             slow_bound_s,
             parts,
             parts_seed,
+            slow_parts,
             shard,
             out,
         } => match ambient_c.as_slice() {
@@ -651,6 +655,7 @@ fn main() -> ExitCode {
                     setpoints_mw: setpoints_mw.clone(),
                     slow_bound_s: *slow_bound_s,
                     parts: parts.map(|n| (n, *parts_seed)),
+                    slow_parts: parts.map(|_| *slow_parts),
                     shard: *shard,
                 },
                 out,
