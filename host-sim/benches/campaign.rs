@@ -1,7 +1,9 @@
 //! Campaign throughput in cases per second: the fast faults of the shipped
 //! campaign at every moment on the nominal corner of the pump demo board
 //! (every case a 30 ms watch window after its lead-in, 20 kHz tick), run
-//! one after the other on one core so the figure is per core.
+//! one after the other on one core so the figure is per core: each case
+//! from t = 0, and the cases forked at their injection moment (the lead-in
+//! of each group run once), as a campaign runs them.
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use diodestat_sim::board_file::load_board;
@@ -44,6 +46,15 @@ fn cases_per_second(c: &mut Criterion) {
                     sel.slow_bound_s,
                 )
                 .unwrap();
+                std::hint::black_box(r);
+            }
+        })
+    });
+    let groups = campaign::fork_groups(&bench, &plan, sel.slow_bound_s);
+    g.bench_function("pump fast faults, nominal corner, forked (cases)", |bch| {
+        bch.iter(|| {
+            for group in &groups {
+                let r = campaign::run_forked(&bench, &plan, group, sel.slow_bound_s).unwrap();
                 std::hint::black_box(r);
             }
         })

@@ -746,6 +746,25 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(e.contains("monitor.transimpedance_ohm = 0.0"), "{e}");
+        // The converter chain's and T0's tolerances, by key.
+        for (from, to, key) in [
+            (
+                "tracking = 0.10",
+                "tracking = 0.10\nt0 = 1.5",
+                "tolerances.t0",
+            ),
+            (
+                "tracking = 0.10",
+                "tracking = 0.10\ndac_offset_mv = -1.0",
+                "tolerances.dac_offset_mv",
+            ),
+        ] {
+            assert!(text.contains(from));
+            let e = parse_module(&text.replace(from, to), Path::new("m.toml"))
+                .unwrap_err()
+                .to_string();
+            assert!(e.contains(key), "{e}");
+        }
     }
 }
 

@@ -1078,17 +1078,21 @@ impl Runner {
                 res.happenings.push(Happening::State { tick, state: st });
                 self.last_state = st;
             }
-            let unread = ctl.fault_log().since(self.log_cursor);
-            res.faults_lost += unread.lost();
-            self.log_cursor = unread.resume();
-            for e in unread {
-                let r = e.record;
-                res.happenings.push(Happening::Fault {
-                    tick,
-                    fault: r.fault.name(),
-                    measured: to_f(r.measured),
-                    limit: to_f(r.limit),
-                });
+            // Nothing new in the log (nearly every tick): its end is still
+            // the cursor, and reading from there would yield nothing.
+            if ctl.fault_log().end() != self.log_cursor {
+                let unread = ctl.fault_log().since(self.log_cursor);
+                res.faults_lost += unread.lost();
+                self.log_cursor = unread.resume();
+                for e in unread {
+                    let r = e.record;
+                    res.happenings.push(Happening::Fault {
+                        tick,
+                        fault: r.fault.name(),
+                        measured: to_f(r.measured),
+                        limit: to_f(r.limit),
+                    });
+                }
             }
             // Every tick feeds the plot envelope (only what the plots draw);
             // every `trace_every`-th is recorded whole.

@@ -436,3 +436,36 @@ impl AdcParams {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A `[tolerances]` table with only the first three keys takes the
+    /// documented defaults for the rest; every key can be given; an
+    /// unknown key is refused.
+    #[test]
+    fn tolerances_default_the_converter_chain_and_t0() {
+        let t: PartTolerances =
+            toml::from_str("threshold = 0.1\nslope = 0.05\ntracking = 0.02").unwrap();
+        assert_eq!(
+            t,
+            PartTolerances {
+                threshold: 0.1,
+                slope: 0.05,
+                tracking: 0.02,
+                ..PartTolerances::DEMO
+            }
+        );
+        let t: PartTolerances = toml::from_str(
+            "threshold = 0.1\nslope = 0.05\ntracking = 0.02\nt0 = 0.2\nsense_gain = 0.03\nsense_offset_mv = 1.5\ndac_gain = 0.04\ndac_offset_mv = 0.5",
+        )
+        .unwrap();
+        assert_eq!((t.t0, t.sense_gain, t.dac_gain), (0.2, 0.03, 0.04));
+        assert_eq!((t.sense_offset_mv, t.dac_offset_mv), (1.5, 0.5));
+        assert!(toml::from_str::<PartTolerances>(
+            "threshold = 0.1\nslope = 0.05\ntracking = 0.02\ndac_ofset_mv = 1"
+        )
+        .is_err());
+    }
+}
