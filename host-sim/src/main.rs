@@ -114,6 +114,11 @@ enum Cmd {
         /// Run only slice K of N (cases numbered K-1 modulo N); merge the slices with campaign-merge.
         #[arg(long, value_parser = shard)]
         shard: Option<(u32, u32)>,
+        /// Switch one protection off for this campaign, to see which faults it must catch: overcurrent,
+        /// monitor-runaway, drive-mismatch, monitor-loss, over-temperature or power-implausible
+        /// (docs/campaign.md). An analysis of the design, not a configuration to ship.
+        #[arg(long)]
+        without: Option<String>,
         /// Output folder for campaign.md, campaign.json and campaign.xml (JUnit).
         #[arg(long, default_value = "out")]
         out: PathBuf,
@@ -545,15 +550,28 @@ fn campaign(
             board.display()
         )
     })?;
+    use diodestat_sim::campaign::without;
+    let switched = match &sel.without {
+        Some(name) => Some(without::switch_off(&b.valid, name).map_err(|e| e.to_string())?),
+        None => None,
+    };
     let bench = diodestat_sim::campaign::Bench {
         name: &b.name,
         module: &b.module,
-        cfg: &b.valid,
+        cfg: switched.as_ref().map_or(&b.valid, |s| &s.cfg),
         latency: b.latency,
         lines: &lines,
     };
     // Refuse a bad selection before touching the output.
-    diodestat_sim::campaign::cases(&bench, sel).map_err(|e| e.to_string())?;
+    let plan = diodestat_sim::campaign::cases(&bench, sel).map_err(|e| e.to_string())?;
+    if let Some(s) = &switched {
+        s.check_run(without::longest_run_ms(
+            &b.module,
+            &plan.faults,
+            sel.slow_bound_s,
+        ))
+        .map_err(|e| e.to_string())?;
+    }
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
     inputs.extend(b.module_file.clone());
@@ -638,6 +656,7 @@ fn main() -> ExitCode {
             parts,
             parts_seed,
             shard,
+            without,
             out,
         } => match ambient_c.as_slice() {
             [cold_c, hot_c] => campaign(
@@ -652,6 +671,7 @@ fn main() -> ExitCode {
                     slow_bound_s: *slow_bound_s,
                     parts: parts.map(|n| (n, *parts_seed)),
                     shard: *shard,
+                    without: without.clone(),
                 },
                 out,
             ),

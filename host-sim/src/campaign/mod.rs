@@ -24,6 +24,7 @@
 pub mod report;
 pub mod stats;
 pub mod verdict;
+pub mod without;
 
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -464,6 +465,9 @@ pub struct Selection {
     pub parts: Option<(u32, u64)>,
     /// This run's slice: `(k, n)` runs the cases numbered k-1 modulo n.
     pub shard: Option<(u32, u32)>,
+    /// A protection switched off for this campaign ([`without`]).
+    #[serde(default)]
+    pub without: Option<String>,
 }
 
 impl Default for Selection {
@@ -478,6 +482,7 @@ impl Default for Selection {
             slow_bound_s: 20.0,
             parts: None,
             shard: None,
+            without: None,
         }
     }
 }
@@ -819,7 +824,7 @@ fn compound(fault: HwFault, corner: &Corner) -> HwFault {
 
 /// Watch window of a slow fault, ms: five of the heatsink's time
 /// constants (with the fault's resistance factor), at most the bound.
-fn slow_watch_ms(module: &DemoModule, fault: &HwFault, bound_s: f64) -> f64 {
+pub(crate) fn slow_watch_ms(module: &DemoModule, fault: &HwFault, bound_s: f64) -> f64 {
     let th = &module.thermal;
     let factor = match fault {
         HwFault::HeatsinkLoss { factor } => *factor,
