@@ -132,6 +132,16 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
     },
+    /// Which protections each fault needs: the campaign with every protection on, then the same
+    /// campaign with one protection switched off (--without) per record; writes needs.md and needs.json.
+    CampaignNeeds {
+        /// campaign.json of the campaign with every protection on, then one per protection switched off.
+        #[arg(required = true, num_args = 2..)]
+        records: Vec<PathBuf>,
+        /// Output folder.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
     /// Power-loop report per board: margins and time-domain table at every plant corner, worst corner, Bode plots.
     LoopReport {
         /// Board configuration files (default: examples/*/board.toml).
@@ -594,6 +604,47 @@ fn campaign(
     campaign_verdict(&rec, out)
 }
 
+fn campaign_needs(records: &[PathBuf], out: &Path) -> Result<(), String> {
+    use diodestat_sim::campaign::needs;
+    let mut recs = Vec::new();
+    for p in records {
+        let text = files::read_text(p, "RECORD").map_err(|e| e.to_string())?;
+        let rec: diodestat_sim::campaign::report::Record = serde_json::from_str(&text)
+            .map_err(|e| format!("{}: not a campaign record: {e}", p.display()))?;
+        recs.push(rec);
+    }
+    let n = needs::needs(&recs).map_err(|e| e.to_string())?;
+    const NEEDS_FILES: [&str; 2] = ["needs.md", "needs.json"];
+    files::check_out_dir(out, "--out", &NEEDS_FILES, records).map_err(|e| e.to_string())?;
+    let json = serde_json::to_string_pretty(&n).map_err(|e| e.to_string())?;
+    let stage = Staging::new(out).map_err(|e| e.to_string())?;
+    for (name, body) in NEEDS_FILES.iter().zip([needs::markdown(&n), json]) {
+        std::fs::write(stage.path(name), body)
+            .map_err(|e| format!("{}: {e}", out.join(name).display()))?;
+    }
+    stage.commit().map_err(|e| e.to_string())?;
+    for f in &n.faults {
+        if !f.for_class.is_empty() {
+            println!(
+                "{}: leaves Class {} without {}",
+                f.fault,
+                n.class,
+                f.for_class.join(" or without ")
+            );
+        }
+    }
+    println!(
+        "{} protections switched off one at a time; wrote {}",
+        n.runs.len(),
+        out.join("needs.md").display()
+    );
+    println!(
+        "CAUTION: {} A campaign is evidence for a design review, not a classification.",
+        n.caution
+    );
+    Ok(())
+}
+
 fn campaign_merge(shards: &[PathBuf], out: &Path) -> Result<(), String> {
     let mut recs = Vec::new();
     for p in shards {
@@ -678,6 +729,7 @@ fn main() -> ExitCode {
             _ => Err("--ambient-c: give COLD,HOT (two temperatures, degC)".to_string()),
         },
         Cmd::CampaignMerge { shards, out } => campaign_merge(shards, out),
+        Cmd::CampaignNeeds { records, out } => campaign_needs(records, out),
         Cmd::LoopReport {
             boards,
             out,

@@ -21,6 +21,7 @@
 //! whose number is K-1 modulo N, and [`report::merge`] puts shard reports
 //! back into exactly the single run's report.
 
+pub mod needs;
 pub mod report;
 pub mod stats;
 pub mod verdict;
