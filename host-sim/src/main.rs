@@ -587,6 +587,14 @@ fn campaign(
     inputs.extend(b.module_file.clone());
     files::check_out_dir(out, "--out", &CAMPAIGN_FILES, &inputs).map_err(|e| e.to_string())?;
     println!("{}", board_line(&b));
+    if let Some(s) = &switched {
+        println!(
+            "protection switched off: {} ({}); the campaign runs the altered configuration, fingerprint {}",
+            s.fault.name(),
+            without::how(s.fault),
+            s.cfg.fingerprint()
+        );
+    }
     let t0 = Instant::now();
     let rec = diodestat_sim::campaign::report::run_record(
         &bench,
