@@ -14,7 +14,7 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use diodestat_core::ValidConfig;
-use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, LoadedBoard};
 use diodestat_sim::campaign::{self, needs, report, without, Bench, CaseResult, Selection};
 
 fn root() -> PathBuf {
@@ -89,7 +89,7 @@ fn without_monitor_loss_an_open_monitor_leaves_class_1() {
         ..quick()
     };
     let plan = campaign::cases(&bench(&b, &off.cfg), &sel).unwrap();
-    off.check_run(without::longest_run_ms(&b.module, &plan.faults, 0.3))
+    off.check_run(campaign::longest_run_ms(&b.module, &plan.faults, 0.3))
         .unwrap();
     let results = campaign::run(&bench(&b, &off.cfg), &sel).unwrap();
     let out = out_of_class(&results);
@@ -115,7 +115,7 @@ fn without_monitor_loss_an_open_monitor_leaves_class_1() {
 }
 
 fn record(b: &LoadedBoard, cfg: &ValidConfig, sel: &Selection) -> report::Record {
-    report::run_record(&bench(b, cfg), &b.module_name, BOARD, sel).unwrap()
+    campaign::run_record(&bench(b, cfg), &b.module_name, BOARD, sel).unwrap()
 }
 
 #[test]

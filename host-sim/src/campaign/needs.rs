@@ -11,8 +11,10 @@ use std::fmt::Write as _;
 
 use serde::{Deserialize, Serialize};
 
+use super::outcome::CaseResult;
 use super::report::Record;
-use super::{CaseResult, Selection};
+use super::selection::Selection;
+use super::without;
 
 /// One case that is unsafe with a protection switched off.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -331,7 +333,7 @@ pub fn markdown(n: &Needs) -> String {
         let how = diodestat_core::Fault::ALL
             .into_iter()
             .find(|f| f.name() == r.protection)
-            .map_or("", super::without::how);
+            .map_or("", without::how);
         let out: Vec<&OutCase> = r.out_of_class().collect();
         let peak = out.iter().map(|c| c.peak_accessible_mw).reduce(f64::max);
         let sus = out

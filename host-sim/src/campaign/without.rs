@@ -3,7 +3,7 @@
 //! protection cannot trip within the campaign's runs, everything else as
 //! configured. Comparing such a campaign with the board's own shows which
 //! single faults that protection must catch for the product to stay in
-//! its class ([`super::needs`]).
+//! its class (`campaign-needs`, `needs.rs`).
 //!
 //! A protection is switched off through the configuration the core runs
 //! with, never by editing the core:
@@ -221,26 +221,6 @@ pub fn switch_off(cfg: &ValidConfig, name: &str) -> Result<Switched, WithoutErro
     })
 }
 
-/// The longest run of a campaign's cases on `module`, ms: the latest
-/// injection (the retry's, after a latch in steady regulation) plus the
-/// longest watch window of `faults`.
-pub fn longest_run_ms(
-    module: &crate::plant::DemoModule,
-    faults: &[super::FaultSpec],
-    slow_bound_s: f64,
-) -> f64 {
-    let watch = faults
-        .iter()
-        .map(|f| match f.watch {
-            super::WatchKind::Fast => super::FAST_WATCH_MS,
-            super::WatchKind::Slow => {
-                super::slow_watch_ms(module, &f.fault, slow_bound_s).max(super::FAST_WATCH_MS)
-            }
-        })
-        .fold(0.0, f64::max);
-    super::STEADY_MS + super::RETRY_AFTER_MS + 1.0 + watch
-}
-
 impl Switched {
     /// Refuse a selection whose longest run (`run_ms`) could last as long
     /// as the debounce hold at the board's tick rate.
@@ -266,7 +246,7 @@ mod tests {
     use super::*;
 
     fn demo() -> ValidConfig {
-        crate::boardfile::load_board(std::path::Path::new(concat!(
+        crate::board_file::load_board(std::path::Path::new(concat!(
             env!("CARGO_MANIFEST_DIR"),
             "/../examples/demo-pump-5w/board.toml"
         )))
