@@ -216,3 +216,65 @@ fn the_cli_refuses_unknown_protections_with_the_list_and_writes_nothing() {
     );
     assert!(!dir.exists());
 }
+
+#[test]
+fn campaign_needs_from_the_cli_and_bad_records_refused_before_any_output() {
+    let dir = std::env::temp_dir().join(format!("diodestat-needs-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    let sub = |name: &str| dir.join(name).to_str().unwrap().to_string();
+    let common = [
+        "campaign",
+        BOARD,
+        "--faults",
+        "monitor-open",
+        "--moments",
+        "steady",
+        "--corners",
+        "nominal,cold",
+        "--slow-bound-s",
+        "1",
+    ];
+    let (ok, text) = diodestat(&[&common[..], &["--out", &sub("all-on")]].concat());
+    assert!(ok, "{text}");
+    let (ok, text) = diodestat(
+        &[
+            &common[..],
+            &["--without", "monitor-loss", "--out", &sub("off-loss")],
+        ]
+        .concat(),
+    );
+    // Unsafe cases: the campaign exits non-zero, and says which protection
+    // was off and the altered configuration's fingerprint.
+    assert!(!ok, "{text}");
+    assert!(
+        text.contains("protection switched off: monitor-loss"),
+        "{text}"
+    );
+    let all_on = sub("all-on/campaign.json");
+    let off = sub("off-loss/campaign.json");
+    // The campaign with every protection on must come first.
+    let (ok, text) = diodestat(&["campaign-needs", &off, &all_on, "--out", &sub("bad")]);
+    assert!(!ok, "{text}");
+    assert!(
+        text.contains("record 1 has monitor-loss switched off"),
+        "{text}"
+    );
+    assert!(!dir.join("bad").exists());
+    let (ok, text) = diodestat(&["campaign-needs", &all_on, &off, "--out", &sub("needs")]);
+    assert!(ok, "{text}");
+    assert!(
+        text.contains("monitor-open: leaves Class 1 without monitor-loss"),
+        "{text}"
+    );
+    let md = std::fs::read_to_string(dir.join("needs/needs.md")).unwrap();
+    assert!(
+        md.contains("| monitor-open | 2 | `monitor-loss` | `monitor-loss` |"),
+        "{md}"
+    );
+    assert!(md.contains("not a classification"), "{md}");
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("needs/needs.json")).unwrap())
+            .unwrap();
+    assert_eq!(json["runs"][0]["protection"], "monitor-loss");
+    std::fs::remove_dir_all(&dir).unwrap();
+}
