@@ -92,6 +92,10 @@ pub struct Selection {
     pub slow_parts: Option<u32>,
     /// This run's slice: `(k, n)` runs the cases numbered k-1 modulo n.
     pub shard: Option<(u32, u32)>,
+    /// A protection switched off for this campaign (`campaign::without`,
+    /// `--without`).
+    #[serde(default)]
+    pub without: Option<String>,
 }
 
 impl Default for Selection {
@@ -107,6 +111,7 @@ impl Default for Selection {
             parts: None,
             slow_parts: None,
             shard: None,
+            without: None,
         }
     }
 }
