@@ -1243,7 +1243,7 @@ mod tests {
     /// drawn).
     #[test]
     fn parts_draw_every_tolerance_in_its_band() {
-        let t = PartTolerances::DEMO;
+        let t = PartTolerances::CHAIN_EXAMPLE;
         let p = draw_parts(&t, 500, 11);
         let within = |v: f64, c: f64, h: f64| (v - c).abs() <= h;
         for k in &p {
