@@ -56,20 +56,25 @@ pub struct PartTolerances {
     /// Monitor responsivity (tracking ratio).
     pub tracking: f64,
     /// Characteristic temperature T0 of the threshold.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "is_zero")]
     pub t0: f64,
     /// Current-sense amplifier gain.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "is_zero")]
     pub sense_gain: f64,
     /// Current-sense amplifier output offset, mV (half-width).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "is_zero")]
     pub sense_offset_mv: f64,
     /// DAC gain (reference and source transconductance together).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "is_zero")]
     pub dac_gain: f64,
     /// DAC output offset, mV (half-width).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "is_zero")]
     pub dac_offset_mv: f64,
+}
+
+/// A tolerance left at 0 is not written (module files stay as they were).
+fn is_zero(v: &f64) -> bool {
+    *v == 0.0
 }
 
 impl PartTolerances {
