@@ -433,6 +433,7 @@ fn liv(
         out.join("liv.csv").display(),
         out.join("liv.svg").display()
     );
+    println!("CAUTION: {}", diodestat_sim::safety::SAFETY_CAUTION);
     Ok(())
 }
 
