@@ -293,7 +293,7 @@ fn body(c: &Config) -> Lines {
     l.code(format!("{i3}}},"));
     l.code(format!("{i2}}},"));
     // Board files describe no forward-voltage channel yet (see
-    // `boardfile::to_config`).
+    // `board_file::to_config`).
     l.note(
         format!("{i2}forward_voltage: None,"),
         "no forward-voltage channel",
@@ -413,7 +413,7 @@ mod tests {
     use super::*;
 
     fn demo() -> ValidConfig {
-        crate::board::calibrate(
+        crate::calibration::calibrate(
             diodestat_core::example::config(),
             &crate::plant::DemoModule::visible(),
         )
