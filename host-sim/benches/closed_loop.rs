@@ -100,6 +100,7 @@ fn bench(c: &mut Criterion) {
         seed: 1,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1000,
+        aging_speedup: 1.0,
         events: vec![
             Event {
                 at_ms: 0.0,

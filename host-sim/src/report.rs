@@ -1215,6 +1215,9 @@ mod tests {
             supply_sensed_v: 5.0,
             v_f_v: 2.0,
             wavelength_nm: 650.0,
+            age_h: 0.0,
+            threshold_factor: 1.0,
+            slope_factor: 1.0,
         }
     }
 

@@ -719,6 +719,7 @@ fn scenario(
             seed: SEED,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
+            aging_speedup: 1.0,
             events: ev,
             expects: Vec::new(),
         },

@@ -6,7 +6,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::diode::{DiodeParams, GainModel};
+use super::diode::{DiodeParams, GainModel, AGING_ACTIVATION_EV, AGING_CURRENT_EXPONENT};
 use super::driver::DriverParams;
 use super::monitor::MonitorParams;
 use super::sensors::{
@@ -156,6 +156,10 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.01,
             slope_loss_per_khour: 0.005,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            aging_ref_current_a: None,
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -197,6 +201,11 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.02,
             slope_loss_per_khour: 0.01,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            // The aging rates hold at the visible module's rated current.
+            aging_ref_current_a: Some(0.060),
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -238,6 +247,11 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.005,
             slope_loss_per_khour: 0.003,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            // The aging rates hold at the pump module's rated current.
+            aging_ref_current_a: Some(6.5),
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }

@@ -21,8 +21,8 @@ pub use constants::{
 pub use demo::{DemoModule, PartTolerances};
 pub use diode::{
     integrate_rodas4, varshni_ev, Diode, DiodeDerived, DiodeOutput, DiodeParams, DynamicStats,
-    GainModel, GainSi, RateCoefficients, Tolerance, Varshni, VARSHNI_ALAS_GAMMA, VARSHNI_GAAS,
-    VARSHNI_INAS, VARSHNI_INP,
+    GainModel, GainSi, RateCoefficients, Tolerance, Varshni, AGING_ACTIVATION_EV,
+    AGING_CURRENT_EXPONENT, VARSHNI_ALAS_GAMMA, VARSHNI_GAAS, VARSHNI_INAS, VARSHNI_INP,
 };
 pub use driver::{Driver, DriverParams};
 pub use error::{from_toml, PlantError};
