@@ -447,7 +447,7 @@ fn sensor_key(p: &SensorChainParams, e: &PlantError) -> KeyError {
     };
     let table = match (&p.sensor, *field) {
         (TempSensor::Ntc(_), "r25_ohm" | "beta_k" | "a" | "b" | "c") => "sensor.sensor.ntc",
-        (TempSensor::Rtd(_), "r0_ohm") => "sensor.sensor.rtd",
+        (TempSensor::Rtd(_), "r0_ohm" | "band_position") => "sensor.sensor.rtd",
         _ => "sensor.front_end",
     };
     (format!("{table}.{field}"), (*reason).to_string())

@@ -10,7 +10,7 @@ use super::diode::{DiodeParams, GainModel, AGING_ACTIVATION_EV, AGING_CURRENT_EX
 use super::driver::DriverParams;
 use super::monitor::MonitorParams;
 use super::sensors::{
-    AdcParams, FrontEndParams, Ntc, Rtd, SensorChainParams, TempSensor, Topology,
+    AdcParams, FrontEndParams, Ntc, Rtd, RtdClass, SensorChainParams, TempSensor, Topology,
 };
 use super::thermal::ThermalParams;
 
@@ -378,7 +378,11 @@ impl SensorChainParams {
     /// 2.2 kohm pull-up, 12-bit ADC.
     pub fn demo_pump() -> Self {
         Self {
-            sensor: TempSensor::Rtd(Rtd { r0_ohm: 1000.0 }),
+            sensor: TempSensor::Rtd(Rtd {
+                r0_ohm: 1000.0,
+                class: Some(RtdClass::B),
+                band_position: 0.0,
+            }),
             front_end: FrontEndParams {
                 topology: Topology::SensorToGround,
                 ref_resistor_ohm: 2200.0,

@@ -30,7 +30,7 @@ pub use monitor::{Monitor, MonitorParams, MONITOR_T_REF_K};
 pub use near::{ExpNear, LnNear};
 pub use rng::Rng;
 pub use sensors::{
-    Adc, AdcParams, FrontEndParams, Ntc, Rtd, SensorChain, SensorChainParams, TempSensor, Topology,
-    NTC_T25_K, RTD_A, RTD_B, RTD_C,
+    Adc, AdcParams, FrontEndParams, Ntc, Rtd, RtdClass, SensorChain, SensorChainParams, TempSensor,
+    Topology, NTC_T25_K, RTD_A, RTD_B, RTD_C,
 };
 pub use thermal::{Thermal, ThermalParams};
