@@ -184,6 +184,26 @@ fn bench(c: &mut Criterion) {
             acc
         })
     });
+    g.bench_function("diode_aging", |b| {
+        let dt = 1.0 / 20_000.0;
+        b.iter(|| {
+            let mut d = base.diode.clone();
+            for t in &ticks {
+                d.age_over(t.i_a, t.tj_k, dt);
+            }
+            d.age_hours()
+        })
+    });
+    g.bench_function("diode_aging_reference", |b| {
+        let dt = 1.0 / 20_000.0;
+        b.iter(|| {
+            let mut d = base.diode.clone();
+            for t in &ticks {
+                d.age_over_reference(t.i_a, t.tj_k, dt);
+            }
+            d.age_hours()
+        })
+    });
     g.bench_function("thermal", |b| {
         b.iter(|| {
             let mut th = base.thermal.clone();

@@ -218,7 +218,9 @@ pub enum HwFault {
         /// Resistance factor.
         factor: f64,
     },
-    /// The diode ages by `hours` at once.
+    /// The diode ages by `hours` at its aging reference conditions at once
+    /// (a part aged before the run; the aging during the run follows the
+    /// scenario's `aging_speedup`).
     Aging {
         /// Operating hours.
         hours: f64,
