@@ -36,11 +36,12 @@ use super::state::Diode;
 impl Diode {
     /// Adds `hours` of operation at the aging reference conditions:
     /// k_th = 1 + rise h/1000, k_sl = 1 - loss h/1000 (kept above 1e-6).
+    #[inline]
     pub fn age(&mut self, hours: f64) {
         if hours > 0.0 && hours.is_finite() {
             self.age_hours += hours;
         }
-        let kh = self.age_hours / 1000.0;
+        let kh = self.age_hours * 1e-3;
         self.k_th = 1.0 + self.m.rise * kh;
         self.k_sl = (1.0 - self.m.loss * kh).max(1e-6);
     }
@@ -77,7 +78,7 @@ impl Diode {
             x += m.aging_n * self.near.aging_ln.ln(i_a * m.aging_inv_i_ref);
         }
         let af = self.near.aging_exp.exp(x);
-        self.age(af * dt_s / 3600.0);
+        self.age(af * dt_s * (1.0 / 3600.0));
     }
 
     /// [`Diode::age_over`] with every ln and exp by the library.
