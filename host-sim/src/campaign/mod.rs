@@ -21,11 +21,13 @@
 //! whose number is K-1 modulo N, and [`report::merge`] puts shard reports
 //! back into exactly the single run's report.
 
+pub mod needs;
 mod outcome;
 pub mod report;
 mod selection;
 pub mod stats;
 pub mod verdict;
+pub mod without;
 
 pub use outcome::{CaseResult, Detection};
 pub use selection::{Moment, Selection, SelectionError, COLD_C, HOT_C};
@@ -617,6 +619,21 @@ fn slow_watch_ms(module: &DemoModule, fault: &HwFault, bound_s: f64) -> f64 {
     let tau_s = th.c_h_j_per_k * th.r_ha_k_per_w * factor
         + th.c_c_j_per_k * (th.r_ch_k_per_w + th.r_ha_k_per_w * factor);
     (5.0 * tau_s).min(bound_s) * 1e3
+}
+
+/// The longest run of a campaign's cases on `module`, ms: the latest
+/// injection (the retry's, after a latch in steady regulation) plus the
+/// longest watch window of `faults` (what a protection held off by its
+/// debounce, [`without::Switched::check_run`], must outlast).
+pub fn longest_run_ms(module: &DemoModule, faults: &[FaultSpec], slow_bound_s: f64) -> f64 {
+    let watch = faults
+        .iter()
+        .map(|f| match f.watch {
+            WatchKind::Fast => FAST_WATCH_MS,
+            WatchKind::Slow => slow_watch_ms(module, &f.fault, slow_bound_s).max(FAST_WATCH_MS),
+        })
+        .fold(0.0, f64::max);
+    STEADY_MS + RETRY_AFTER_MS + 1.0 + watch
 }
 
 struct Timing {
