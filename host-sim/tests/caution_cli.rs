@@ -1,7 +1,7 @@
-//! The safety caution on the output of the commands that report on a diode
-//! or a loop: `liv` and `loop-gate` print it, `fit` prints it and writes it
-//! into `fit.md` (`run`, `campaign`, `campaign-needs`, `loop-report` and
-//! `loop-tune` are checked by their own tests).
+//! The safety caution on the output of the commands that report on a diode,
+//! a loop or a campaign: `liv` and `loop-gate` print it, `fit` prints it and
+//! writes it into `fit.md`, and a campaign with an unsafe case prints the
+//! case (its setpoint rounded as in the report) and the caution.
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -67,5 +67,35 @@ fn loop_gate_prints_the_caution() {
         out.to_str().unwrap(),
     ]);
     assert!(ok, "{text}");
+    assert!(text.contains(SAFETY_CAUTION), "{text}");
+}
+
+#[test]
+fn an_unsafe_campaign_case_is_printed_with_its_setpoint_rounded_and_the_caution() {
+    // The VCSEL board's setpoint (two thirds of 0.6 mW) runs as the core's
+    // fixed-point value 0.400004 mW; the printed line rounds it as the
+    // report's tables do (4 decimals).
+    let out = scratch("campaign-unsafe");
+    let (ok, text) = diodestat(&[
+        "campaign",
+        "examples/demo-vcsel-850/board.toml",
+        "--without",
+        "monitor-loss",
+        "--faults",
+        "monitor-open",
+        "--moments",
+        "steady",
+        "--corners",
+        "nominal",
+        "--slow-bound-s",
+        "2",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(!ok, "{text}");
+    assert!(
+        text.contains("UNSAFE: monitor-open steady nominal 0.4000 mW: "),
+        "{text}"
+    );
     assert!(text.contains(SAFETY_CAUTION), "{text}");
 }

@@ -515,7 +515,7 @@ fn campaign_verdict(
     );
     for r in &bad {
         println!(
-            "UNSAFE: {} {} {} {} mW: {}",
+            "UNSAFE: {} {} {} {:.4} mW: {}",
             r.fault,
             r.moment.name(),
             r.corner,
