@@ -130,6 +130,9 @@ pub struct Plant {
     pub monitor_drift_per_s: f64,
     /// The board's external fault input asserted.
     pub external_fault: bool,
+    /// Speed of the diode's aging clock against simulated time (the
+    /// scenario's `aging_speedup`; 1: real time, 0: no aging in the run).
+    pub aging_speedup: f64,
     /// Draws of the intermittent contact (its own stream: the noise of
     /// the other channels is the same with or without it).
     contact_rng: Rng,
@@ -186,6 +189,7 @@ impl Plant {
             monitor_open_fraction: 0.0,
             monitor_drift_per_s: 0.0,
             external_fault: false,
+            aging_speedup: 1.0,
             contact_rng: Rng::new(seed ^ 0x636f_6e74_6163_7421),
             mon_filt_v: 0.0,
             mon_in_v: 0.0,
@@ -306,6 +310,15 @@ impl Plant {
                 }
             }
         };
+        // Aging over the tick at its drive and junction temperature.
+        if self.aging_speedup > 0.0 {
+            let dt_age = dt * self.aging_speedup;
+            if self.reference {
+                self.diode.age_over_reference(i, tj, dt_age);
+            } else {
+                self.diode.age_over(i, tj, dt_age);
+            }
+        }
         self.p_front_w = out.p_front_w;
         self.wavelength_m = out.wavelength_m;
         self.v_f = out.v_f_v;
@@ -840,9 +853,10 @@ impl Runner {
         sc: &Scenario,
         cfg: ValidConfig,
         latency: DacLatency,
-        plant: Plant,
+        mut plant: Plant,
         windows: Vec<PowerWindow>,
     ) -> Self {
+        plant.aging_speedup = sc.aging_speedup;
         let tick_hz = cfg.config().tick_hz;
         let dt = 1.0 / f64::from(tick_hz);
         let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
@@ -1131,6 +1145,9 @@ impl Runner {
                     supply_sensed_v: to_f(m.supply_mv) * 1e-3,
                     v_f_v: plant.v_f,
                     wavelength_nm: plant.wavelength_m * 1e9,
+                    age_h: plant.diode.age_hours(),
+                    threshold_factor: plant.diode.aging_factors().0,
+                    slope_factor: plant.diode.aging_factors().1,
                 };
                 self.kept.push(row);
                 sink.row(&row);
@@ -1198,6 +1215,7 @@ mod tests {
             seed,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
+            aging_speedup: 1.0,
             events: vec![
                 ev(0.0, Action::SetPower { mw: setpoint_mw }),
                 ev(0.1, Action::Enable),
@@ -1614,6 +1632,7 @@ mod fault_log_tests {
             seed: 1,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1000,
+            aging_speedup: 1.0,
             events,
             expects: Vec::new(),
         };

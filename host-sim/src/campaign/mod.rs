@@ -69,6 +69,9 @@ pub struct Corner {
     pub dac_gain: f64,
     /// DAC output offset, mV.
     pub dac_offset_mv: f64,
+    /// Where the temperature sensor's error lies in its IEC 60751 class
+    /// band, -1 ..= 1 (0: the nominal curve; only a sensor with a class).
+    pub sensor_band: f64,
 }
 
 fn nominal() -> Corner {
@@ -79,6 +82,7 @@ fn nominal() -> Corner {
         slope: 1.0,
         tracking: 1.0,
         aged_hours: 0.0,
+        sensor_band: 0.0,
         t0: 1.0,
         sense_gain: 1.0,
         sense_offset_mv: 0.0,
@@ -90,7 +94,8 @@ fn nominal() -> Corner {
 impl Corner {
     /// The module as this corner or part has it: the diode's spread
     /// ([`DemoModule::with_spread`]), T0 scaled, the converter chain's
-    /// gains scaled and its offsets added. (The tracking factor and the
+    /// gains scaled and its offsets added, the temperature sensor
+    /// at its place in its class band. (The tracking factor and the
     /// hours act through the scenario, as faults do.)
     pub fn module(&self, base: &DemoModule) -> DemoModule {
         let mut m = base.with_spread(self.threshold, self.slope);
@@ -99,6 +104,7 @@ impl Corner {
         m.driver.sense_offset_v += self.sense_offset_mv * 1e-3;
         m.driver.dac_vref_v *= self.dac_gain;
         m.driver.dac_offset_v += self.dac_offset_mv * 1e-3;
+        m.sensor.sensor = m.sensor.sensor.with_band_position(self.sensor_band);
         m
     }
 }
@@ -128,17 +134,29 @@ pub fn corners(cold_c: f64, hot_c: f64) -> Vec<Corner> {
 }
 
 /// `n` parts drawn from the module's tolerances with `seed` (each factor
-/// uniform in `1 - t ..= 1 + t`, each offset uniform in `-h ..= h`), at
-/// the nominal corner's 25 degC, named `part-1` to `part-n`. Threshold,
-/// slope and tracking come from one stream seeded with `seed`, T0 and the
-/// converter chain from a second one, so adding tolerances leaves the
-/// first three draws of every part as they were.
+/// uniform in `1 - t ..= 1 + t`, each offset uniform in `-h ..= h`; a
+/// temperature sensor given by its IEC 60751 class also draws its error
+/// uniformly within the class band), at the nominal corner's 25 degC, named
+/// `part-1` to `part-n`. Threshold, slope, tracking and the sensor band
+/// come from one stream seeded with `seed`, T0 and the converter chain from
+/// a second one, so adding tolerances leaves the first draws of every part
+/// as they were.
 pub fn parts(module: &DemoModule, n: u32, seed: u64) -> Vec<Corner> {
-    draw_parts(&module.tolerances, n, seed)
+    draw_parts(
+        &module.tolerances,
+        module.sensor.sensor.rtd_class().is_some(),
+        n,
+        seed,
+    )
 }
 
 /// [`parts`] from the tolerances alone (a record's header holds them).
-pub fn draw_parts(tolerances: &PartTolerances, n: u32, seed: u64) -> Vec<Corner> {
+pub fn draw_parts(
+    tolerances: &PartTolerances,
+    sensor_classed: bool,
+    n: u32,
+    seed: u64,
+) -> Vec<Corner> {
     let mut rng = crate::plant::Rng::new(seed);
     let mut chain = crate::plant::Rng::new(seed ^ CHAIN_STREAM);
     let t = *tolerances;
@@ -148,6 +166,11 @@ pub fn draw_parts(tolerances: &PartTolerances, n: u32, seed: u64) -> Vec<Corner>
             let threshold = 1.0 + sym(&mut rng, t.threshold);
             let slope = 1.0 + sym(&mut rng, t.slope);
             let tracking = 1.0 + sym(&mut rng, t.tracking);
+            let sensor_band = if sensor_classed {
+                (1.0 + sym(&mut rng, 1.0)) - 1.0
+            } else {
+                0.0
+            };
             Corner {
                 name: format!("part-{i}"),
                 threshold,
@@ -158,6 +181,7 @@ pub fn draw_parts(tolerances: &PartTolerances, n: u32, seed: u64) -> Vec<Corner>
                 sense_offset_mv: sym(&mut chain, t.sense_offset_mv),
                 dac_gain: 1.0 + sym(&mut chain, t.dac_gain),
                 dac_offset_mv: sym(&mut chain, t.dac_offset_mv),
+                sensor_band,
                 ..nominal()
             }
         })
@@ -805,6 +829,7 @@ fn scenario(
             seed: SEED,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
+            aging_speedup: 1.0,
             events: ev,
             expects: Vec::new(),
         },
@@ -1121,6 +1146,7 @@ pub fn run_record(
             },
             pass_lines: *bench.lines,
             tolerances: bench.module.tolerances,
+            sensor_classed: bench.module.sensor.sensor.rtd_class().is_some(),
         },
         shard: sel.shard,
         total_cases: total,
@@ -1244,7 +1270,7 @@ mod tests {
     #[test]
     fn parts_draw_every_tolerance_in_its_band() {
         let t = PartTolerances::CHAIN_EXAMPLE;
-        let p = draw_parts(&t, 500, 11);
+        let p = draw_parts(&t, false, 500, 11);
         let within = |v: f64, c: f64, h: f64| (v - c).abs() <= h;
         for k in &p {
             assert!(within(k.threshold, 1.0, t.threshold));

@@ -44,6 +44,10 @@ pub struct Header {
     pub pass_lines: PassLines,
     /// The module's part tolerances (what a Monte Carlo run draws from).
     pub tolerances: crate::plant::PartTolerances,
+    /// Whether a Monte Carlo part draws its temperature sensor's place in
+    /// an IEC 60751 class band.
+    #[serde(default)]
+    pub sensor_classed: bool,
 }
 
 /// A campaign's JSON record.
@@ -739,7 +743,13 @@ pub fn monte_carlo(rec: &Record) -> Option<MonteCarlo> {
         (unsafe_by_part[a], ra, over_by_part[a]) > (unsafe_by_part[b], rb, over_by_part[b])
     };
     let w = (1..n).fold(0, |w, k| if worse(k, w) { k } else { w });
-    let part = super::draw_parts(&rec.header.tolerances, parts, seed).swap_remove(w);
+    let part = super::draw_parts(
+        &rec.header.tolerances,
+        rec.header.sensor_classed,
+        parts,
+        seed,
+    )
+    .swap_remove(w);
     let unsafe_parts = unsafe_by_part.iter().filter(|&&u| u > 0).count() as u64;
     let cases = rec.results.len() as u64;
     let unsafe_cases = rec.results.iter().filter(|r| !r.safe).count() as u64;
