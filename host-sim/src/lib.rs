@@ -34,3 +34,4 @@ pub mod scenario;
 pub mod sim;
 pub mod stability;
 pub mod trace;
+pub mod units;

@@ -41,6 +41,7 @@
 //! ([`WarningSpan`]) and the optical power over chosen intervals
 //! ([`PowerWindow`], see [`run_watching`]).
 
+use crate::units::Scale;
 use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
 use crate::board_io::{Bus, Outputs, SimBoard};
@@ -779,7 +780,9 @@ fn run_plant(
     let mut slot = 0usize;
     let mut applied = Outputs::default();
     let mut last_computed = diodestat_core::Drive::default();
-    let mut watch = Watch::new(tick_hz, to_f(board.ctl().config().slew_ma_per_tick()));
+    let units = board.ctl().config().config().units();
+    let (ma_per_iu, mw_per_ou) = (units.ma_per_iu(), units.mw_per_ou());
+    let mut watch = Watch::new(tick_hz, units.ma(board.ctl().config().slew_iu_per_tick()));
     let trace_every = u64::from(sc.trace_every.max(1));
     for tick in 0..n_ticks {
         // Timed events for this tick.
@@ -792,8 +795,8 @@ fn run_plant(
             let req = match action {
                 Action::Enable => Some(Request::Enable),
                 Action::Disable => Some(Request::Disable),
-                Action::SetPower { mw } => Some(Request::SetPowerMw(fx(*mw))),
-                Action::SetCurrent { ma } => Some(Request::SetCurrentMa(fx(*ma))),
+                Action::SetPower { mw } => Some(Request::SetPower(fx(*mw / mw_per_ou))),
+                Action::SetCurrent { ma } => Some(Request::SetCurrent(fx(*ma / ma_per_iu))),
                 Action::Mode { mode } => Some(Request::SetMode(match mode {
                     ModeName::Apc => Mode::Apc,
                     ModeName::Acc => Mode::Acc,
@@ -884,10 +887,16 @@ fn run_plant(
         let warnings = board.ctl().status().warnings;
         if warnings != last_warnings {
             let (p, d, m) = prev;
-            res.warnings_changed(tick, last_warnings, warnings, (p, to_f(d), m), merge_ticks);
+            res.warnings_changed(
+                tick,
+                last_warnings,
+                warnings,
+                (p, to_f(d) * ma_per_iu, m),
+                merge_ticks,
+            );
             last_warnings = warnings;
         }
-        prev = (p_mw, board.ctl().drive_ma(), board.ctl().mode());
+        prev = (p_mw, board.ctl().drive_iu(), board.ctl().mode());
         if !res.damaged && plant.diode.damaged() {
             res.damaged = true;
             res.happenings.push(Happening::FacetDamage { tick });
@@ -899,12 +908,12 @@ fn run_plant(
                 TickSample {
                     regulating: true,
                     dac_code: last_computed.dac_code,
-                    cmd_ma: to_f(board.ctl().drive_ma()),
-                    ceiling_ma: to_f(board.ctl().ceiling_ma()),
+                    cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
+                    ceiling_ma: to_f(board.ctl().ceiling_iu()) * ma_per_iu,
                     p_mw,
-                    monitor_mw: to_f(board.ctl().measurements().monitor_mw),
+                    monitor_mw: to_f(board.ctl().measurements().monitor_ou) * mw_per_ou,
                     setpoint_mw: (board.ctl().mode() == Mode::Apc)
-                        .then(|| to_f(board.ctl().power_target_mw())),
+                        .then(|| to_f(board.ctl().power_target_ou()) * mw_per_ou),
                 },
             );
         } else {
@@ -922,16 +931,16 @@ fn run_plant(
             res.happenings.push(Happening::Fault {
                 tick,
                 fault: r.fault.name(),
-                measured: to_f(r.measured),
-                limit: to_f(r.limit),
+                measured: units.record(r.fault, r.measured),
+                limit: units.record(r.fault, r.limit),
             });
         }
         // Every tick feeds the plot envelope (only what the plots draw);
         // every `trace_every`-th is recorded whole.
         let m = board.ctl().measurements();
         let i_ma = plant.driver.current_a() * 1e3;
-        let monitor_mw = to_f(m.monitor_mw);
-        let ceiling_ma = to_f(board.ctl().ceiling_ma());
+        let monitor_mw = to_f(m.monitor_ou) * mw_per_ou;
+        let ceiling_ma = to_f(board.ctl().ceiling_iu()) * ma_per_iu;
         let tj_c = k_to_c(plant.thermal.t_junction_k());
         let sensed_c = to_f(m.temp_degc);
         res.envelope.add_values(
@@ -953,14 +962,14 @@ fn run_plant(
                 warnings: status.warnings,
                 p_mw,
                 i_ma,
-                cmd_ma: to_f(board.ctl().drive_ma()),
+                cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
                 ceiling_ma,
                 monitor_mw,
                 tj_c,
                 sensed_c,
                 ambient_c,
                 supply_v: plant.supply_v,
-                supply_sensed_v: to_f(m.supply_mv) * 1e-3,
+                supply_sensed_v: to_f(m.supply_vu) * units.mv_per_vu() * 1e-3,
                 v_f_v: plant.v_f,
                 wavelength_nm: plant.wavelength_m * 1e9,
             };
@@ -1064,7 +1073,7 @@ mod tests {
             let (module, cfg) = (board.module, board.valid);
             let dt = 1.0 / f64::from(cfg.config().tick_hz);
             let mut ctl = diodestat_core::Controller::new(cfg);
-            ctl.request(Request::SetPowerMw(fx(mw))).unwrap();
+            ctl.request(Request::SetPower(fx(mw))).unwrap();
             let mut fast = Plant::new(&module, 25.0, 3).unwrap();
             let mut refp = Plant::new_reference(&module, 25.0, 3).unwrap();
             let floor_w = 1e-9 * module.rated_power_w;
