@@ -273,7 +273,7 @@ impl Controller {
         self.present = verdict.present;
         if !verdict.tripped.is_empty() {
             self.status.faults =
-                FaultSet::from_bits(self.status.faults.bits() | verdict.tripped.bits());
+                FaultSet::of_faults(self.status.faults.bits() | verdict.tripped.bits());
             self.status.state = State::Latched;
         }
 

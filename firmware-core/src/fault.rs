@@ -69,6 +69,13 @@ impl FaultSet {
         FaultSet(bits & Fault::ALL_BITS)
     }
 
+    /// The set of a mask of faults' bits, taken as it is: for masks built
+    /// from [`Fault::bit`] only (the protections' masks), which
+    /// [`FaultSet::from_bits`] would leave unchanged.
+    pub(crate) const fn of_faults(bits: u32) -> FaultSet {
+        FaultSet(bits)
+    }
+
     /// The raw bit mask.
     pub const fn bits(self) -> u32 {
         self.0
@@ -126,24 +133,39 @@ pub struct Cursor(pub u32);
 /// number ([`Entry`]); read new records with [`FaultLog::since`], which
 /// never repeats a record and counts the ones the ring overwrote before
 /// they were read.
-#[derive(Clone, Debug, Default)]
+#[derive(Clone, Debug)]
 pub struct FaultLog {
     first: Option<FaultRecord>,
     first_seq: u32,
-    later: heapless::Deque<FaultRecord, FAULT_RING_LEN>,
+    /// The later records: the one with sequence number `s` in slot
+    /// `s % FAULT_RING_LEN`; those from `later_from` on, the newest
+    /// [`FAULT_RING_LEN`] of them, are held.
+    ring: [FaultRecord; FAULT_RING_LEN],
+    /// Sequence number of the first later record (the one after the
+    /// first; after a restore or [`FaultLog::forget`], the next one).
+    later_from: u32,
     /// Sequence number of the next record.
     next_seq: u32,
+}
+
+/// What an unused slot of the ring holds (never read).
+const BLANK: FaultRecord = FaultRecord {
+    fault: Fault::Overcurrent,
+    tick: 0,
+    measured: Fx::ZERO,
+    limit: Fx::ZERO,
+};
+
+impl Default for FaultLog {
+    fn default() -> Self {
+        FaultLog::new()
+    }
 }
 
 impl FaultLog {
     /// An empty log.
     pub const fn new() -> Self {
-        FaultLog {
-            first: None,
-            first_seq: 0,
-            later: heapless::Deque::new(),
-            next_seq: 0,
-        }
+        FaultLog::continuing_at(0)
     }
 
     /// An empty log whose next record gets sequence number `next_seq` (a
@@ -152,7 +174,8 @@ impl FaultLog {
         FaultLog {
             first: None,
             first_seq: next_seq,
-            later: heapless::Deque::new(),
+            ring: [BLANK; FAULT_RING_LEN],
+            later_from: next_seq,
             next_seq,
         }
     }
@@ -170,21 +193,46 @@ impl FaultLog {
 
     /// Record a fault. Never fails: when the ring is full the oldest later
     /// record is overwritten (readers learn it through [`Unread::lost`]).
+    #[inline]
     pub fn record(&mut self, rec: FaultRecord) {
         let seq = self.next_seq;
         // Saturates after 4 294 967 295 records, each of which needs a
-        // latch: unreachable in service.
+        // latch: unreachable in service (from there on, each record
+        // replaces the newest).
         self.next_seq = seq.saturating_add(1);
         if self.first.is_none() {
             self.first = Some(rec);
             self.first_seq = seq;
+            self.later_from = self.next_seq;
             return;
         }
-        if self.later.is_full() {
-            let _ = self.later.pop_front();
+        if let Some(slot) = self.ring.get_mut(seq as usize % FAULT_RING_LEN) {
+            *slot = rec;
         }
-        // Cannot fail: a slot was freed above if the ring was full.
-        let _ = self.later.push_back(rec);
+    }
+
+    /// Later records held (at most [`FAULT_RING_LEN`]).
+    fn held(&self) -> u32 {
+        // (`later_from` is never past `next_seq`.)
+        self.next_seq
+            .saturating_sub(self.later_from)
+            .min(FAULT_RING_LEN as u32)
+    }
+
+    /// The later records held, oldest first, as the ring's two runs.
+    fn runs(&self) -> (&[FaultRecord], &[FaultRecord]) {
+        let held = self.held() as usize;
+        let oldest = self.next_seq.wrapping_sub(held as u32) as usize % FAULT_RING_LEN;
+        let (before, from_oldest) = self.ring.split_at(oldest);
+        match from_oldest.get(..held) {
+            Some(run) => (run, &[]),
+            None => (
+                from_oldest,
+                before
+                    .get(..held.saturating_sub(from_oldest.len()))
+                    .unwrap_or(&[]),
+            ),
+        }
     }
 
     /// The first fault recorded.
@@ -202,7 +250,8 @@ impl FaultLog {
 
     /// Later faults held, oldest first.
     pub fn later(&self) -> impl Iterator<Item = &FaultRecord> {
-        self.later.iter()
+        let (a, b) = self.runs();
+        a.iter().chain(b.iter())
     }
 
     /// How many later records the ring overwrote since the first one.
@@ -216,7 +265,7 @@ impl FaultLog {
     /// Records held now (first plus later). Not a reading position: the
     /// ring stops growing at its capacity; read with [`FaultLog::since`].
     pub fn len(&self) -> usize {
-        usize::from(self.first.is_some()) + self.later.len()
+        usize::from(self.first.is_some()) + self.held() as usize
     }
 
     /// Whether the log holds nothing.
@@ -252,14 +301,15 @@ impl FaultLog {
         let from = from.0.min(self.next_seq);
         let first = self.first_entry().filter(|e| e.seq >= from);
         // Sequence number of the oldest later record held.
-        let oldest = self.next_seq - self.later.len() as u32;
+        let held = self.held();
+        let oldest = self.next_seq - held;
         let skip = from.saturating_sub(oldest) as usize;
-        let later_count = self.later.len().saturating_sub(skip) as u32;
+        let later_count = (held as usize).saturating_sub(skip) as u32;
         let delivered = u32::from(first.is_some()) + later_count;
         Unread {
             first,
             later: {
-                let (a, b) = self.later.as_slices();
+                let (a, b) = self.runs();
                 a.iter().chain(b.iter()).skip(skip)
             },
             seq: oldest.max(from),
@@ -470,5 +520,128 @@ mod reader_tests {
         // A cursor past the end (from another log) reads nothing.
         assert_eq!(log.since(Cursor(99)).count(), 0);
         assert_eq!(log.since(Cursor(99)).lost(), 0);
+    }
+
+    /// The log as it was before its ring was indexed by sequence number
+    /// (a `heapless::Deque`), kept for the comparison below.
+    struct DequeLog {
+        first: Option<FaultRecord>,
+        first_seq: u32,
+        later: heapless::Deque<FaultRecord, FAULT_RING_LEN>,
+        next_seq: u32,
+    }
+
+    impl DequeLog {
+        fn continuing_at(next_seq: u32) -> Self {
+            DequeLog {
+                first: None,
+                first_seq: next_seq,
+                later: heapless::Deque::new(),
+                next_seq,
+            }
+        }
+
+        fn record(&mut self, rec: FaultRecord) {
+            let seq = self.next_seq;
+            self.next_seq = seq.saturating_add(1);
+            if self.first.is_none() {
+                self.first = Some(rec);
+                self.first_seq = seq;
+                return;
+            }
+            if self.later.is_full() {
+                let _ = self.later.pop_front();
+            }
+            let _ = self.later.push_back(rec);
+        }
+
+        fn first_entry(&self) -> Option<Entry> {
+            self.first.map(|record| Entry {
+                seq: self.first_seq,
+                record,
+            })
+        }
+
+        fn len(&self) -> usize {
+            usize::from(self.first.is_some()) + self.later.len()
+        }
+
+        fn dropped(&self) -> u32 {
+            self.next_seq
+                .saturating_sub(self.first_seq)
+                .saturating_sub(self.len() as u32)
+        }
+
+        /// `since(from)`: the entries, the lost count and the resume cursor.
+        fn since(&self, from: Cursor) -> (Vec<Entry>, u32, Cursor) {
+            let from = from.0.min(self.next_seq);
+            let first = self.first_entry().filter(|e| e.seq >= from);
+            let oldest = self.next_seq - self.later.len() as u32;
+            let skip = from.saturating_sub(oldest) as usize;
+            let later_count = self.later.len().saturating_sub(skip) as u32;
+            let delivered = u32::from(first.is_some()) + later_count;
+            let mut out: Vec<Entry> = first.into_iter().collect();
+            let mut seq = oldest.max(from);
+            for record in self.later.iter().skip(skip) {
+                out.push(Entry {
+                    seq,
+                    record: *record,
+                });
+                seq = seq.saturating_add(1);
+            }
+            let lost = (self.next_seq - from).saturating_sub(delivered);
+            (out, lost, Cursor(self.next_seq))
+        }
+    }
+
+    proptest::proptest! {
+        /// The log answers every question as the Deque log it replaced,
+        /// after any sequence of records and forgets, from any start
+        /// (a new log, or one restored at any sequence number with or
+        /// without its first record), read from any cursor.
+        #[test]
+        fn the_log_reads_as_the_deque_log_it_replaced(
+            start in proptest::prop_oneof![
+                proptest::strategy::Just(0u32),
+                0u32..100,
+                proptest::num::u32::ANY,
+            ],
+            restored_first in proptest::option::of(0u32..=100),
+            ops in proptest::collection::vec(0u32..40, 0..80),
+            cursors in proptest::collection::vec(0u32..200, 1..8),
+        ) {
+            let mut log = FaultLog::continuing_at(start);
+            let mut old = DequeLog::continuing_at(start);
+            if let Some(back) = restored_first {
+                let e = Entry { seq: start.saturating_sub(back), record: rec(7) };
+                log = FaultLog::restored(Some(e), start);
+                old.first = Some(e.record);
+                old.first_seq = e.seq;
+            }
+            for (n, op) in ops.into_iter().enumerate() {
+                if op == 0 {
+                    log.forget();
+                    old = DequeLog::continuing_at(old.next_seq);
+                } else {
+                    log.record(rec(n as u32));
+                    old.record(rec(n as u32));
+                }
+                proptest::prop_assert_eq!(log.first_entry(), old.first_entry());
+                let later: Vec<FaultRecord> = log.later().copied().collect();
+                let want: Vec<FaultRecord> = old.later.iter().copied().collect();
+                proptest::prop_assert_eq!(later, want);
+                proptest::prop_assert_eq!(log.len(), old.len());
+                proptest::prop_assert_eq!(log.is_empty(), old.first.is_none());
+                proptest::prop_assert_eq!(log.dropped(), old.dropped());
+                proptest::prop_assert_eq!(log.end(), Cursor(old.next_seq));
+                for &c in &cursors {
+                    let c = Cursor(old.next_seq.saturating_sub(c));
+                    let unread = log.since(c);
+                    let (lost, resume) = (unread.lost(), unread.resume());
+                    let got: Vec<Entry> = unread.collect();
+                    proptest::prop_assert_eq!((got, lost, resume), old.since(c));
+                }
+            }
+        }
     }
 }

@@ -872,61 +872,67 @@ impl Protections {
         // A level decaying after its condition went needs no mask.
         let present = if calm { 0 } else { present_mask(&ctx) } | self.slow;
         let may_trip = armed(state) & !active.bits();
-        let tripped = self.walk(cfg.t.weight, &cfg.t.trip_at, present, may_trip);
+        let tripped = self.walk(cfg.t.weight, &cfg.t.trip_at, present) & may_trip;
         if tripped != 0 {
             record_trips(log, cfg, m, last_cmd_iu, tripped, tick);
         }
         Verdict {
-            present: FaultSet::from_bits(present),
-            tripped: FaultSet::from_bits(tripped),
+            // (Both masks hold faults' bits only.)
+            present: FaultSet::of_faults(present),
+            tripped: FaultSet::of_faults(tripped),
         }
     }
 
     /// Move the levels of the faults present or counting (`present`: the
     /// conditions of this sample; `weight` and `trip_levels` (`trip_at`) as in
-    /// [`crate::config`]'s per-tick quantities) and return those that reach
-    /// their level and `may_trip`. Out of line: the usual tick does not come
-    /// here.
+    /// [`crate::config`]'s per-tick quantities) and return those present
+    /// whose level reached its `trip_at` (the caller keeps those it may
+    /// trip). A level that falls is below its `trip_at`: only a present
+    /// fault can reach it. Out of line: the usual tick does not come here.
     #[inline(never)]
-    fn walk(
-        &mut self,
-        weight: u32,
-        trip_levels: &[u32; SLOTS],
-        present: u32,
-        may_trip: u32,
-    ) -> u32 {
-        let mut tripped = 0;
+    fn walk(&mut self, weight: u32, trip_levels: &[u32; SLOTS], present: u32) -> u32 {
+        let mut reached = 0;
         let mut counting = 0;
-        // Walk the faults present or counting, lowest bit first (the order
-        // of the records); every other level is zero already.
-        let mut todo = present | self.counting;
+        // The faults present rise (every other level is zero already or
+        // falls below). (`todo` is not zero in the loops: its lowest bit
+        // is below 32; both arrays have `SLOTS` entries: no check is left.)
+        let mut todo = present;
         while todo != 0 {
-            // (`todo` is not zero: below 32.)
             let i = todo.trailing_zeros() as usize % SLOTS;
             todo &= todo - 1;
-            // (Both arrays have `SLOTS` entries: no check is left.)
             let (Some(level), Some(&trip_at)) = (self.levels.get_mut(i), trip_levels.get(i)) else {
                 continue;
             };
+            // (A level never exceeds its `trip_at`, at most 255 × 65 535
+            // < 2^24, and `weight` is at most 255: no overflow.)
+            let now = level.wrapping_add(weight).min(trip_at);
+            *level = now;
             // The bit of fault `i` (a fault's bit is its discriminant).
             let b = 1u32 << i;
-            if present & b == 0 {
-                *level = level.saturating_sub(1);
-            } else {
-                // (A level never exceeds its `trip_at`, at most 255 ×
-                // 65 535 < 2^24, and `weight` is at most 255: no overflow.)
-                *level = level.wrapping_add(weight).min(trip_at);
-                if *level >= trip_at && may_trip & b != 0 {
-                    tripped |= b;
-                }
+            if now >= trip_at {
+                reached |= b;
             }
-            if *level != 0 {
+            if now != 0 {
                 counting |= b;
+            }
+        }
+        // The faults counting and not present fall.
+        let mut todo = self.counting & !present;
+        while todo != 0 {
+            let i = todo.trailing_zeros() as usize % SLOTS;
+            todo &= todo - 1;
+            let Some(level) = self.levels.get_mut(i) else {
+                continue;
+            };
+            let now = level.saturating_sub(1);
+            *level = now;
+            if now != 0 {
+                counting |= 1u32 << i;
             }
         }
         self.counting = counting;
         self.busy = counting | self.slow;
-        tripped
+        reached
     }
 }
 
@@ -1205,6 +1211,73 @@ mod tests {
                 let got = present_mask(&ctx);
                 assert_eq!(got, want, "{m:?} {last_cmd} {light}");
                 assert_eq!(quiet(&ctx), want == 0);
+            }
+        }
+    }
+
+    /// The walk as it was before the present and falling faults got a
+    /// loop each (and before `may_trip` moved to the caller), for the
+    /// comparison below.
+    fn walk_before(
+        p: &mut Protections,
+        weight: u32,
+        trip_levels: &[u32; SLOTS],
+        present: u32,
+        may_trip: u32,
+    ) -> u32 {
+        let mut tripped = 0;
+        let mut counting = 0;
+        let mut todo = present | p.counting;
+        while todo != 0 {
+            let i = todo.trailing_zeros() as usize % SLOTS;
+            todo &= todo - 1;
+            let (Some(level), Some(&trip_at)) = (p.levels.get_mut(i), trip_levels.get(i)) else {
+                continue;
+            };
+            let b = 1u32 << i;
+            if present & b == 0 {
+                *level = level.saturating_sub(1);
+            } else {
+                *level = level.wrapping_add(weight).min(trip_at);
+                if *level >= trip_at && may_trip & b != 0 {
+                    tripped |= b;
+                }
+            }
+            if *level != 0 {
+                counting |= b;
+            }
+        }
+        p.counting = counting;
+        p.busy = counting | p.slow;
+        tripped
+    }
+
+    proptest::proptest! {
+        /// The walk (levels, counting, busy and the faults tripped) equals
+        /// the walk it replaced, tick after tick, for any weight, debounce
+        /// counts, held slow conditions, conditions present and arming.
+        #[test]
+        fn walk_equals_the_walk_it_replaced(
+            weight in 1u32..=255,
+            debounces in proptest::collection::vec(1u32..=65_535, Fault::COUNT),
+            short in proptest::collection::vec(1u32..=4, Fault::COUNT),
+            slow in 0u32..=Fault::ALL_BITS,
+            ticks in proptest::collection::vec((0u32..=Fault::ALL_BITS, proptest::num::u32::ANY), 1..60),
+        ) {
+            let mut trip_at = [0u32; SLOTS];
+            for (i, t) in trip_at.iter_mut().enumerate().take(Fault::COUNT) {
+                // Half the faults with a debounce of a few ticks, so that
+                // levels reach their `trip_at` and fall from it.
+                let n = if i % 2 == 0 { short[i] } else { debounces[i] };
+                *t = weight * n;
+            }
+            let mut p = Protections { slow, busy: slow, ..Protections::default() };
+            let mut q = p.clone();
+            for (present, may_trip) in ticks {
+                let want = walk_before(&mut q, weight, &trip_at, present, may_trip);
+                let got = p.walk(weight, &trip_at, present) & may_trip;
+                proptest::prop_assert_eq!(got, want);
+                proptest::prop_assert_eq!(&p, &q);
             }
         }
     }

@@ -17,7 +17,8 @@
 
 use crate::config::{dac_code_clamped, AdcCal, DacCal};
 
-/// The core's engineering value: a signed 16.16 fixed-point number.
+/// The core's number: a signed 16.16 fixed-point value in one of the
+/// board's units.
 pub type Fx = fixed::types::I16F16;
 
 /// A fine-resolution gain (signed 8.24 fixed point): units per ADC count,

@@ -12,9 +12,9 @@ fuzz_target!(|data: &[u8]| {
         return;
     };
     // Files a board names are looked up under a folder that does not exist.
-    match diodestat_sim::boardfile::parse_board(text, Path::new("fuzz-no-such-folder")) {
+    match diodestat_sim::board_file::parse_board(text, Path::new("fuzz-no-such-folder")) {
         Ok(b) => {
-            assert!(diodestat_sim::boardfile::name_is_plain(&b.name));
+            assert!(diodestat_sim::board_file::name_is_plain(&b.name));
             let src = diodestat_sim::export::rust_module(&b.name, &b.valid);
             assert_eq!(src.lines().next().map(|l| l.starts_with("//! ")), Some(true));
             assert!(src.contains(&format!("Fingerprint::from_u64(0x{})", b.valid.fingerprint())));

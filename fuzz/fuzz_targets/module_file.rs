@@ -11,7 +11,7 @@ fuzz_target!(|data: &[u8]| {
     let Ok(text) = std::str::from_utf8(data) else {
         return;
     };
-    match diodestat_sim::modulefile::parse_module(text, Path::new("fuzz.toml")) {
+    match diodestat_sim::module_file::parse_module(text, Path::new("fuzz.toml")) {
         Ok(m) => {
             assert!(diodestat_sim::plant::Diode::new(m.module.diode.clone()).is_ok());
         }

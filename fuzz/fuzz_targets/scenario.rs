@@ -19,7 +19,7 @@ fuzz_target!(|data: &[u8]| {
         return;
     };
     let module = DemoModule::visible();
-    let cfg = diodestat_sim::board::calibrate(diodestat_core::example::config(), &module);
+    let cfg = diodestat_sim::calibration::calibrate(diodestat_core::example::config(), &module);
     let tick_hz = cfg.tick_hz;
     let Ok(valid) = cfg.validate() else {
         return;

@@ -12,7 +12,7 @@ fuzz_target!(|data: &[u8]| {
     let Ok(text) = std::str::from_utf8(data) else {
         return;
     };
-    match diodestat_sim::boardfile::parse_table_csv(text, Path::new("t.csv")) {
+    match diodestat_sim::board_file::parse_table_csv(text, Path::new("t.csv")) {
         Ok(points) => {
             for p in points {
                 assert!(p.degc.to_num::<f64>().abs() < 32767.0);

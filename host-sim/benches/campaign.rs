@@ -4,7 +4,7 @@
 //! one after the other on one core so the figure is per core.
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
-use diodestat_sim::boardfile::load_board;
+use diodestat_sim::board_file::load_board;
 use diodestat_sim::campaign::{self, Bench, Selection, WatchKind};
 
 fn cases_per_second(c: &mut Criterion) {

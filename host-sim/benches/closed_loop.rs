@@ -8,7 +8,7 @@ use diodestat_core::{Controller, Drive, Fx, Request, Sample, ValidConfig};
 use diodestat_sim::plant::{c_to_k, DemoModule};
 use diodestat_sim::scenario::{Action, DiodeModel, Event, Scenario};
 use diodestat_sim::sim::Plant;
-use diodestat_sim::{board, sim};
+use diodestat_sim::{calibration, sim};
 
 const TICKS: u32 = 2000;
 const SETPOINT_MW: f64 = 20.0;
@@ -89,7 +89,7 @@ fn replay_plant(mut plant: Plant, drives: &[Drive], dt: f64) -> u16 {
 
 fn bench(c: &mut Criterion) {
     let module = DemoModule::visible();
-    let cfg = board::calibrate(diodestat_core::example::config(), &module)
+    let cfg = calibration::calibrate(diodestat_core::example::config(), &module)
         .validate()
         .unwrap();
     let sc = Scenario {

@@ -8,7 +8,7 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
-use crate::boardfile::{load_board_from, LoadedBoard};
+use crate::board_file::{load_board_from, LoadedBoard};
 use crate::expect::{self, Outcome};
 use crate::files;
 use crate::scenario::{self, Scenario};

@@ -377,7 +377,7 @@ fn body(c: &Config) -> Lines {
     l.code(format!("{i3}}},"));
     l.code(format!("{i2}}},"));
     // Board files describe no forward-voltage channel yet (see
-    // `boardfile::to_config`).
+    // `board_file::to_config`).
     l.note(
         format!("{i2}forward_voltage: None,"),
         "no forward-voltage channel",
@@ -500,7 +500,7 @@ mod tests {
     use super::*;
 
     fn demo() -> ValidConfig {
-        crate::board::calibrate(
+        crate::calibration::calibrate(
             diodestat_core::example::config(),
             &crate::plant::DemoModule::visible(),
         )

@@ -2,7 +2,8 @@
 //! reader, the per-sweep fits (threshold by two methods, slope efficiency,
 //! series resistance and turn-on voltage, kinks and roll-over, residuals
 //! and confidence intervals), T0 and T1 across case temperatures, the
-//! module file written from a template, the report and the plot.
+//! module file written from a template, the report and the plot, and
+//! all of it written at once ([`write_fit`], the outputs of `diodestat fit`).
 //! Methods and their sources are in `docs/fit.md`.
 //!
 //! The fits assume the junction at the case temperature: pulsed or
@@ -14,8 +15,8 @@ use std::path::{Path, PathBuf};
 use plotters::prelude::*;
 use serde::Serialize;
 
-use crate::files::{self, FileError};
-use crate::modulefile::{ModuleFile, ModuleFileError};
+use crate::files::{self, FileError, Staging};
+use crate::module_file::{self, ModuleFile, ModuleFileError};
 use crate::plant::{c_to_k, thermal_voltage_v};
 
 /// Two-sided 95 % interval half-width in standard errors (normal
@@ -1128,6 +1129,84 @@ pub fn sweeps_csv(sweeps: &[Sweep], comment: &[&str]) -> String {
         }
     }
     s
+}
+
+/// What `fit` wrote and found.
+pub struct FitOutcome {
+    /// The report.
+    pub report: FitReport,
+    /// The Markdown report (also printed).
+    pub markdown: String,
+}
+
+/// Fit the sweeps in `sweeps_path`, take every figure the sweeps cannot
+/// give from the module file `template`, and write `module.toml`,
+/// `fit.md`, `fit.json` and `fit.svg` into `out`.
+pub fn write_fit(
+    sweeps_path: &Path,
+    template: &Path,
+    name: Option<&str>,
+    kink_tol: f64,
+    out: &Path,
+) -> Result<FitOutcome, String> {
+    let outputs = ["module.toml", "fit.md", "fit.json", "fit.svg"];
+    files::check_out_dir(
+        out,
+        "--out",
+        &outputs,
+        &[sweeps_path.to_path_buf(), template.to_path_buf()],
+    )
+    .map_err(|e| e.to_string())?;
+    let tpl_text = files::read_text(template, "--template").map_err(|e| e.to_string())?;
+    module_file::parse_module(&tpl_text, template)
+        .map_err(|e| FitError::Template(e).to_string())?;
+    let tpl: ModuleFile = toml::from_str(&tpl_text).map_err(|e| e.to_string())?;
+    let sweeps = load_sweeps(sweeps_path).map_err(|e| e.to_string())?;
+    let report = fit_all(
+        &sweeps,
+        sweeps_path,
+        kink_tol,
+        tpl.diode.wavelength_nm,
+        tpl.diode.wavelength_drift_nm_per_k,
+    )
+    .map_err(|e| e.to_string())?;
+    let stem = sweeps_path
+        .file_stem()
+        .map_or("sweeps".into(), |s| s.to_string_lossy().into_owned());
+    let default_name = format!("{stem}-fitted");
+    let name = name.unwrap_or(&default_name);
+    let module = fitted_module(&tpl, &report, name).map_err(|e| e.to_string())?;
+    let file_name = |p: &Path| {
+        p.file_name()
+            .map_or(String::new(), |s| s.to_string_lossy().into_owned())
+    };
+    let text = format!(
+        "# Module file written by `diodestat fit` from {} (diode figures fitted at the\n\
+         # reference temperature; T0 and T1 across the sweeps' case temperatures) with\n\
+         # every other value taken from the template {}. Schema: docs/module-files.md.\n\
+         # The rate-equation parameters are derived from the figures.\n\n{}",
+        file_name(sweeps_path),
+        file_name(template),
+        module_file::to_toml(&module)
+    );
+    let md = markdown(&report, &file_name(sweeps_path), name);
+    let json = serde_json::to_string_pretty(&report).map_err(|e| e.to_string())?;
+    let svg = svg(&report, &sweeps, name)?;
+    let stage = Staging::new(out).map_err(|e| e.to_string())?;
+    for (f, body) in [
+        ("module.toml", text.as_str()),
+        ("fit.md", md.as_str()),
+        ("fit.json", json.as_str()),
+        ("fit.svg", svg.as_str()),
+    ] {
+        std::fs::write(stage.path(f), body)
+            .map_err(|e| format!("{}: {e}", out.join(f).display()))?;
+    }
+    stage.commit().map_err(|e| e.to_string())?;
+    Ok(FitOutcome {
+        report,
+        markdown: md,
+    })
 }
 
 #[cfg(test)]

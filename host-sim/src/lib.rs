@@ -12,26 +12,27 @@
 #![forbid(unsafe_code)]
 #![warn(missing_docs)]
 
-pub mod board;
-pub mod board_io;
-pub mod boardfile;
+pub mod board_file;
+pub mod calibration;
 pub mod campaign;
 pub mod check;
 pub mod expect;
 pub mod export;
 pub mod files;
 pub mod fit;
-pub mod fit_cmd;
 pub mod laser_class;
 pub mod liv;
 pub mod locate;
-pub mod modulefile;
+pub mod module_file;
 pub mod oscillation;
 pub mod plant;
 pub mod progress;
 pub mod report;
+pub mod safety;
 pub mod scenario;
 pub mod sim;
+pub mod sim_board;
 pub mod stability;
+pub mod step_response;
 pub mod trace;
 pub mod units;

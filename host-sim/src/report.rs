@@ -14,15 +14,11 @@ use serde::Serialize;
 
 use crate::expect::Outcome;
 use crate::liv::LivCurve;
+use crate::safety::SAFETY_CAUTION;
 use crate::scenario::{Action, ModeName, Scenario};
 use crate::sim::{Happening, RunResult, TraceRow};
-use crate::stability::time_domain::{on_ceiling, overshoot_pct, settled_from, SETTLING_BAND};
+use crate::step_response::{on_ceiling, overshoot_pct, settled_from, SETTLING_BAND};
 use crate::trace::Channel;
-
-/// The safety caution every report carries.
-pub const SAFETY_CAUTION: &str = "Simulation results complement, never replace, a hardware current limit, \
-interlock gating of the enable line, an independent watchdog and eye protection. Follow IEC 60825-1, \
-local regulations and your site's laser safety officer.";
 
 /// Step-response figures of one stretch of regulation: from the hand-over
 /// or from an accepted setpoint or mode request, up to the next scenario
@@ -1346,7 +1342,7 @@ mod tests {
 #[cfg(test)]
 mod summary_tests {
     use super::*;
-    use crate::boardfile::load_board;
+    use crate::board_file::load_board;
     use crate::scenario::parse;
 
     /// The demo red board at 50 degC ambient: the derated ceiling holds the

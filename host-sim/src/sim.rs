@@ -44,12 +44,12 @@
 use crate::units::Scale;
 use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
-use crate::board_io::{Bus, Outputs, SimBoard};
 use crate::oscillation::{Found, TickSample, Watch};
 use crate::plant::{
     c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, Rng, SensorChain, Thermal,
 };
 use crate::scenario::{Action, AdcChannel, DiodeModel, HwFault, ModeName, Scenario};
+use crate::sim_board::{Bus, Outputs, SimBoard};
 
 pub use crate::trace::TraceRow;
 use crate::trace::{Envelope, NoSink, Retained, TraceSink, RETAINED_ROWS};
@@ -239,7 +239,7 @@ impl Plant {
             temp_counts,
             supply_counts: self
                 .adc_supply
-                .sample(self.supply_v / crate::board::SUPPLY_DIVIDER),
+                .sample(self.supply_v / crate::calibration::SUPPLY_DIVIDER),
             interlock_closed: self.interlock_closed,
             forward_counts: None,
             external_fault: self.external_fault,
@@ -1004,11 +1004,11 @@ mod tests {
             assert_eq!(to_f(v), v.to_num::<f64>());
         }
     }
-    use crate::board;
+    use crate::calibration;
     use crate::scenario::Event;
 
     fn config(module: &DemoModule) -> ValidConfig {
-        board::calibrate(diodestat_core::example::config(), module)
+        calibration::calibrate(diodestat_core::example::config(), module)
             .validate()
             .unwrap()
     }
@@ -1069,7 +1069,7 @@ mod tests {
                 .join("../examples")
                 .join(name)
                 .join("board.toml");
-            let board = crate::boardfile::load_board(&path).unwrap();
+            let board = crate::board_file::load_board(&path).unwrap();
             let (module, cfg) = (board.module, board.valid);
             let dt = 1.0 / f64::from(cfg.config().tick_hz);
             let mut ctl = diodestat_core::Controller::new(cfg);
@@ -1342,7 +1342,7 @@ mod tests {
 #[cfg(test)]
 mod fault_log_tests {
     use super::*;
-    use crate::board;
+    use crate::calibration;
     use crate::scenario::Event;
 
     /// Thirty interlock trips, each cleared and re-enabled: the run reports
@@ -1351,7 +1351,7 @@ mod fault_log_tests {
     #[test]
     fn thirty_trips_are_all_reported() {
         let module = DemoModule::visible();
-        let cfg = board::calibrate(diodestat_core::example::config(), &module)
+        let cfg = calibration::calibrate(diodestat_core::example::config(), &module)
             .validate()
             .unwrap();
         let ev = |at_ms: f64, action: Action| Event { at_ms, action };

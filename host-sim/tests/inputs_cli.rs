@@ -451,7 +451,7 @@ fn every_shipped_scenario_passes_the_checks() {
             let text = std::fs::read_to_string(&f).unwrap();
             let sc = diodestat_sim::scenario::parse(&text)
                 .unwrap_or_else(|e| panic!("{}: {e}", f.display()));
-            let b = diodestat_sim::boardfile::load_board(&sc.board_path(&f)).unwrap();
+            let b = diodestat_sim::board_file::load_board(&sc.board_path(&f)).unwrap();
             diodestat_sim::scenario::check_for_board(&sc, &text, b.config.tick_hz, &b.module)
                 .unwrap_or_else(|e| panic!("{}: {e}", f.display()));
         }

@@ -9,7 +9,7 @@ s = S / s_scale, and writes the trajectory as JSON.
 
     rate_eq_scipy.py PROBLEM.json RESULT.json
 
-The right-hand side mirrors host-sim/src/plant/diode.rs:
+The right-hand side mirrors host-sim/src/plant/diode/rate_equations.rs:
     dN/dt = eta_i I / (q V) - (A N + B N^2 + C N^3) - v_g g S
     dS/dt = Gamma v_g g S - S / tau_p + Gamma beta_sp B N^2
     g = g_N(N) / (1 + eps S), g_N logarithmic (tangent below n_knee) or linear

@@ -11,14 +11,14 @@
 use std::path::{Path, PathBuf};
 
 use diodestat_core::{example, Fx};
-use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, LoadedBoard};
 use diodestat_sim::plant::DemoModule;
 use diodestat_sim::scenario::{self, Action, HwFault};
 use diodestat_sim::stability::corners::markdown;
 use diodestat_sim::stability::{
     analyse_corners, gate, standard_corners, CornerOptions, PASS_GM_DB, PASS_PM_DEG,
 };
-use diodestat_sim::{board, sim};
+use diodestat_sim::{calibration, sim};
 
 fn examples() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../examples")
@@ -31,7 +31,7 @@ fn shipped(name: &str) -> LoadedBoard {
 #[test]
 fn red_board_file_is_the_configuration_the_simulator_used_before() {
     let b = shipped("demo-red-30");
-    let mut before = board::calibrate(example::config(), &DemoModule::visible());
+    let mut before = calibration::calibrate(example::config(), &DemoModule::visible());
     // The board lowers the demo configuration's current ceiling (50 mA
     // gave about 33 mW, above the module's 30 mW rating, at 0 degC) and
     // its largest setpoint; everything else is the demo configuration.

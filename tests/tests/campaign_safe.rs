@@ -13,11 +13,11 @@
 
 use std::path::{Path, PathBuf};
 
-use diodestat_sim::boardfile::{load_board, parse_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, parse_board, LoadedBoard};
 use diodestat_sim::campaign::{
     self, report, verdict::PassLines, Bench, CaseResult, Detection, Moment, Selection,
 };
-use diodestat_sim::{board, plant::DemoModule};
+use diodestat_sim::{calibration, plant::DemoModule};
 
 fn examples() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../examples")
@@ -301,7 +301,7 @@ fn source_failing_high_without_a_hardware_clamp_is_reported_unsafe() {
     // within one tick overdrives the module before any firmware can act.
     let mut b = shipped("demo-red-30");
     b.module.driver.fail_high_current_a = 0.150;
-    b.valid = board::calibrate(diodestat_core::example::config(), &b.module)
+    b.valid = calibration::calibrate(diodestat_core::example::config(), &b.module)
         .validate()
         .unwrap();
     let sel = Selection {
@@ -402,10 +402,10 @@ fn shards_merge_into_the_single_run() {
         ..quick()
     };
     let file = "examples/demo-red-30/board.toml";
-    let single = report::run_record(&bench, &b.module_name, file, &sel).unwrap();
+    let single = campaign::run_record(&bench, &b.module_name, file, &sel).unwrap();
     assert_eq!(single.results.len(), single.total_cases);
     let shard = |k| {
-        report::run_record(
+        campaign::run_record(
             &bench,
             &b.module_name,
             file,
@@ -520,11 +520,11 @@ fn a_monte_carlo_smoke_run_shards_and_bounds() {
         ..quick()
     };
     let file = "examples/demo-pump-5w/board.toml";
-    let single = report::run_record(&bench, &b.module_name, file, &sel).unwrap();
+    let single = campaign::run_record(&bench, &b.module_name, file, &sel).unwrap();
     assert_eq!(single.results.len(), 40);
     let shards: Vec<_> = (1..=2)
         .map(|k| {
-            report::run_record(
+            campaign::run_record(
                 &bench,
                 &b.module_name,
                 file,

@@ -9,7 +9,7 @@ mod board_config;
 
 use std::path::Path;
 
-use diodestat_sim::boardfile::load_board;
+use diodestat_sim::board_file::load_board;
 
 #[test]
 fn generated_constants_are_the_board_file() {

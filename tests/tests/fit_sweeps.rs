@@ -12,7 +12,7 @@
 use std::path::{Path, PathBuf};
 
 use diodestat_sim::fit::{self, Sweep};
-use diodestat_sim::modulefile::{self, ModuleFile};
+use diodestat_sim::module_file::{self, ModuleFile};
 use diodestat_tests::{python_has, run_script};
 
 fn root() -> PathBuf {
@@ -98,7 +98,7 @@ fn synthetic_sweeps_give_back_the_known_figures() {
         assert!((1.0..1.6).contains(&(f.rms_w / NOISE.0)), "{}", f.rms_w);
         // The fitted module loads, and its derived model gives the fitted figures.
         let m = fit::fitted_module(&template(), &r, "x").unwrap();
-        let (th2, sl2, _) = modulefile::figures(&m.to_module().unwrap().diode);
+        let (th2, sl2, _) = module_file::figures(&m.to_module().unwrap().diode);
         assert!((th2 / th - 1.0).abs() < 1e-3 && (sl2 / sl - 1.0).abs() < 1e-3);
     }
 }
@@ -174,7 +174,7 @@ fn shipped_sweeps_are_the_generator_output_and_the_fitted_module_their_fit() {
         std::fs::read_to_string(&sweeps_path).unwrap(),
         shipped_sweeps_text()
     );
-    diodestat_sim::fit_cmd::fit_command(
+    diodestat_sim::fit::write_fit(
         &sweeps_path,
         &root().join("examples/modules/bench-808-datasheet.toml"),
         Some("bench-808-fitted"),
@@ -190,6 +190,6 @@ fn shipped_sweeps_are_the_generator_output_and_the_fitted_module_their_fit() {
         std::fs::read_to_string(root().join(FITTED)).unwrap(),
         written
     );
-    modulefile::load_module(&root().join(FITTED), "MODULE").unwrap();
+    module_file::load_module(&root().join(FITTED), "MODULE").unwrap();
     let _ = std::fs::remove_dir_all(&out);
 }

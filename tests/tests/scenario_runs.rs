@@ -5,7 +5,7 @@
 use std::path::{Path, PathBuf};
 
 use diodestat_core::State;
-use diodestat_sim::boardfile::load_board;
+use diodestat_sim::board_file::load_board;
 use diodestat_sim::scenario::{self, Scenario};
 use diodestat_sim::sim::{self, Happening, RunResult};
 

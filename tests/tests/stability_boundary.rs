@@ -8,7 +8,7 @@
 use std::path::{Path, PathBuf};
 
 use diodestat_core::{Fx, State, ValidConfig};
-use diodestat_sim::boardfile::{load_board, parse_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, parse_board, LoadedBoard};
 use diodestat_sim::oscillation::{periodicity, Finding, Oscillation};
 use diodestat_sim::report;
 use diodestat_sim::scenario::{self, Action, DiodeModel, Event, Scenario};

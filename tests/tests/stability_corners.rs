@@ -4,7 +4,7 @@
 //! corners.
 
 use diodestat_core::{example, Fx, ValidConfig};
-use diodestat_sim::board;
+use diodestat_sim::calibration;
 use diodestat_sim::plant::DemoModule;
 use diodestat_sim::stability::corners::{markdown, SLOPE_SPREAD, TRACKING_SPREAD};
 use diodestat_sim::stability::{
@@ -16,7 +16,9 @@ const SETPOINT_MW: f64 = 20.0;
 
 fn setup() -> (DemoModule, ValidConfig) {
     let m = DemoModule::visible();
-    let cfg = board::calibrate(example::config(), &m).validate().unwrap();
+    let cfg = calibration::calibrate(example::config(), &m)
+        .validate()
+        .unwrap();
     (m, cfg)
 }
 
@@ -93,7 +95,7 @@ fn example_gains_pass_the_common_practice_line_at_every_corner() {
 #[test]
 fn aggressive_gains_fail_the_gate() {
     let (m, _) = setup();
-    let mut c = board::calibrate(example::config(), &m);
+    let mut c = calibration::calibrate(example::config(), &m);
     c.apc.kp_iu_per_ou = Fx::from_num(1.2);
     c.apc.ki_iu_per_ou_ms = Fx::from_num(12);
     let cfg = c.validate().unwrap();

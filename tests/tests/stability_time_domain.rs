@@ -5,15 +5,16 @@
 
 use std::path::{Path, PathBuf};
 
-use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, LoadedBoard};
 use diodestat_sim::stability::assessment::{assess, default_setpoint_mw, Figure, PassLines};
 use diodestat_sim::stability::time_domain::{
-    corner_response, detrend, oscillation_in, other_level_mw, overshoot_pct, periodicity,
-    settled_from, small_step_agreement, StepPlan, LIMIT_CYCLE_MIN_STEPS,
+    corner_response, detrend, oscillation_in, other_level_mw, periodicity, small_step_agreement,
+    StepPlan, LIMIT_CYCLE_MIN_STEPS,
 };
 use diodestat_sim::stability::{
     closed_loop_step_front, corner_loop, standard_corners, CornerLoop, CornerOptions, LoopParams,
 };
+use diodestat_sim::step_response::{overshoot_pct, settled_from};
 
 fn root() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("..")

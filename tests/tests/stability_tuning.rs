@@ -4,7 +4,7 @@
 
 use std::path::Path;
 
-use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, LoadedBoard};
 use diodestat_sim::stability::assessment::default_setpoint_mw;
 use diodestat_sim::stability::{
     corner_loop, design_for_bandwidth, design_pi, loop_margins, standard_corners, CornerOptions,

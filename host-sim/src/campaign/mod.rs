@@ -21,77 +21,26 @@
 //! whose number is K-1 modulo N, and [`report::merge`] puts shard reports
 //! back into exactly the single run's report.
 
+mod outcome;
 pub mod report;
+mod selection;
 pub mod stats;
 pub mod verdict;
 
+pub use outcome::{CaseResult, Detection};
+pub use selection::{Moment, Selection, SelectionError, COLD_C, HOT_C};
+
 use crate::units::Scale;
+
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use diodestat_core::{State, ValidConfig};
 
-use crate::plant::DemoModule;
+use crate::plant::{DemoModule, PartTolerances};
 use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, Scenario};
 use crate::sim::{self, DacLatency, Happening};
-use crate::stability::corners::{SLOPE_SPREAD, THRESHOLD_SPREAD};
-use verdict::{judge, unsafe_reasons, Judgement, PassLines};
-
-/// When the fault is injected.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum Moment {
-    /// During soft start.
-    SoftStart,
-    /// In steady regulation.
-    Steady,
-    /// Right after a setpoint change.
-    SetpointChange,
-    /// While derating (hot mount).
-    Derating,
-    /// Latent: present before the enable request (a fault the board
-    /// powered up with). Events that are not a standing state (missed
-    /// ticks) are not run at this moment.
-    Latent,
-    /// During the soft stop after a disable request: the stop is the safe
-    /// state, so no fault must latch, but the power lines still hold.
-    SoftStop,
-    /// The fault latches, the operator clears it and enables again with
-    /// the fault still present: the second start must be refused or
-    /// latch. Run for the standing faults that must latch.
-    ClearRetry,
-}
-
-impl Moment {
-    /// Every moment, in campaign order.
-    pub const ALL: [Moment; 7] = [
-        Moment::SoftStart,
-        Moment::Steady,
-        Moment::SetpointChange,
-        Moment::Derating,
-        Moment::Latent,
-        Moment::SoftStop,
-        Moment::ClearRetry,
-    ];
-
-    /// The name on the command line and in reports.
-    pub fn name(self) -> &'static str {
-        match self {
-            Moment::SoftStart => "soft-start",
-            Moment::Steady => "steady",
-            Moment::SetpointChange => "setpoint-change",
-            Moment::Derating => "derating",
-            Moment::Latent => "latent",
-            Moment::SoftStop => "soft-stop",
-            Moment::ClearRetry => "clear-retry",
-        }
-    }
-
-    /// The moment a name stands for.
-    pub fn parse(s: &str) -> Option<Moment> {
-        Self::ALL.into_iter().find(|m| m.name() == s)
-    }
-}
+use verdict::{judge, unsafe_reasons, PassLines};
 
 /// A plant corner, or one drawn part of a Monte Carlo campaign.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -122,11 +71,6 @@ fn nominal() -> Corner {
     }
 }
 
-/// Default ambient of the cold corner, degC.
-pub const COLD_C: f64 = 0.0;
-/// Default ambient of the hot corner, degC.
-pub const HOT_C: f64 = 40.0;
-
 /// The corners of the shipped campaign (the part spreads are the loop
 /// analysis's standard ones) for an ambient range `cold_c..=hot_c`.
 pub fn corners(cold_c: f64, hot_c: f64) -> Vec<Corner> {
@@ -144,8 +88,10 @@ pub fn corners(cold_c: f64, hot_c: f64) -> Vec<Corner> {
         c("hot", &|k| k.ambient_c = hot_c),
         c("tracking-low", &|k| k.tracking = 0.9),
         c("aged", &|k| k.aged_hours = 20_000.0),
-        c("threshold-high", &|k| k.threshold = 1.0 + THRESHOLD_SPREAD),
-        c("slope-low", &|k| k.slope = 1.0 - SLOPE_SPREAD),
+        c("threshold-high", &|k| {
+            k.threshold = 1.0 + PartTolerances::DEMO.threshold
+        }),
+        c("slope-low", &|k| k.slope = 1.0 - PartTolerances::DEMO.slope),
     ]
 }
 
@@ -442,98 +388,6 @@ pub const STEADY_MS: f64 = 30.0;
 /// How long after a latch the operator clears and enables again, ms.
 pub const RETRY_AFTER_MS: f64 = 15.0;
 
-/// What to run: a subset of the faults, moments, corners and setpoints,
-/// the ambient range, the slow faults' bound and the shard.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct Selection {
-    /// Fault labels or kinds to run (`None`: all).
-    pub faults: Option<Vec<String>>,
-    /// Moments (`None`: all).
-    pub moments: Option<Vec<Moment>>,
-    /// Corner names (`None`: all).
-    pub corners: Option<Vec<String>>,
-    /// Ambient of the cold corner, degC.
-    pub cold_c: f64,
-    /// Ambient of the hot corner, degC.
-    pub hot_c: f64,
-    /// Setpoints, mW (`None`: two thirds of the board's highest).
-    pub setpoints_mw: Option<Vec<f64>>,
-    /// Longest watch window of a slow fault, s.
-    pub slow_bound_s: f64,
-    /// Monte Carlo: `(n, seed)` replaces the corners with `n` parts drawn
-    /// from the module's tolerances.
-    pub parts: Option<(u32, u64)>,
-    /// This run's slice: `(k, n)` runs the cases numbered k-1 modulo n.
-    pub shard: Option<(u32, u32)>,
-}
-
-impl Default for Selection {
-    fn default() -> Self {
-        Selection {
-            faults: None,
-            moments: None,
-            corners: None,
-            cold_c: COLD_C,
-            hot_c: HOT_C,
-            setpoints_mw: None,
-            slow_bound_s: 20.0,
-            parts: None,
-            shard: None,
-        }
-    }
-}
-
-/// Why a selection cannot run on a board.
-#[derive(Clone, Debug, PartialEq)]
-pub enum SelectionError {
-    /// A fault name matches no fault of the campaign.
-    Fault(String, Vec<String>),
-    /// A corner name matches no corner.
-    Corner(String),
-    /// A setpoint lies outside the board's range.
-    Setpoint {
-        /// The setpoint, mW.
-        mw: f64,
-        /// Board range, mW.
-        min: f64,
-        /// Board range, mW.
-        max: f64,
-    },
-    /// The ambient range is not cold < hot, or the bound not positive.
-    Range(&'static str),
-    /// The shard is not 1 <= K <= N.
-    Shard(u32, u32),
-    /// No case is left.
-    Empty,
-}
-
-impl std::fmt::Display for SelectionError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            SelectionError::Fault(s, known) => write!(
-                f,
-                "--faults: {s:?} names no fault of the campaign (kinds or labels: {})",
-                known.join(", ")
-            ),
-            SelectionError::Corner(s) => write!(
-                f,
-                "--corners: {s:?} names no corner (nominal, cold, hot, tracking-low, aged, threshold-high, slope-low)"
-            ),
-            SelectionError::Setpoint { mw, min, max } => write!(
-                f,
-                "--setpoints-mw: {mw} mW is outside the board's setpoint range {min} ..= {max} mW"
-            ),
-            SelectionError::Range(why) => write!(f, "{why}"),
-            SelectionError::Shard(k, n) => {
-                write!(f, "--shard {k}/{n}: K must be 1 to N and N at least 1")
-            }
-            SelectionError::Empty => write!(f, "the selection leaves no case to run"),
-        }
-    }
-}
-
-impl std::error::Error for SelectionError {}
-
 /// One case: indices into the fault list, the moments, the corners and
 /// the setpoints, and its number in the whole campaign.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -689,81 +543,6 @@ pub fn cases(bench: &Bench<'_>, sel: &Selection) -> Result<CasePlan, SelectionEr
         cases: out,
         total: index,
     })
-}
-
-/// How a fault was detected.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum Detection {
-    /// By one of its expected protections, within its reaction limit.
-    Expected,
-    /// By one of its expected protections, later than its reaction limit.
-    Late,
-    /// Only by protections not expected for it (a finding).
-    Unexpected,
-    /// Not detected, and it must be.
-    Missed,
-    /// Not detected, and it need not be.
-    NotRequired,
-    /// The core had latched another fault before this one arrived and the
-    /// laser stayed off (the corner cannot run at this moment).
-    AlreadyLatched,
-}
-
-/// One case's outcome.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct CaseResult {
-    /// Number in the whole campaign.
-    pub index: usize,
-    /// Fault label.
-    pub fault: String,
-    /// Fault kind.
-    pub kind: String,
-    /// Moment.
-    pub moment: Moment,
-    /// Corner name.
-    pub corner: String,
-    /// Setpoint, mW.
-    pub setpoint_mw: f64,
-    /// Whether the fault must latch.
-    pub must_latch: bool,
-    /// Protections that count as its detection.
-    pub expected: Vec<String>,
-    /// Protections that caught it (core faults latched from the reference
-    /// moment on, and [`ENABLE_REFUSED`]).
-    pub caught_by: Vec<String>,
-    /// How it was detected.
-    pub detection: Detection,
-    /// Time from the fault reaching the laser (the injection; for a latent
-    /// fault the start of emission; at a retry the retry) to the first
-    /// latch, ticks.
-    pub latency_ticks: Option<u64>,
-    /// The same, us.
-    pub latency_us: Option<f64>,
-    /// Reaction-time limit, us.
-    pub reaction_limit_us: Option<f64>,
-    /// Watch window after the injection, ms.
-    pub watch_ms: f64,
-    /// Whether the plant had settled when the window closed (or the laser
-    /// was off).
-    pub settled: bool,
-    /// The record against the pass lines.
-    pub judgement: Judgement,
-    /// Facet damage.
-    pub damaged: bool,
-    /// Final state.
-    pub final_state: String,
-    /// The mount was derating when the fault arrived.
-    pub derating_at_injection: bool,
-    /// The core had latched a fault before the injection (the corner
-    /// cannot run at this moment): the laser was already off.
-    pub latched_before_injection: bool,
-    /// Why the case is unsafe (empty: safe).
-    pub unsafe_reasons: Vec<String>,
-    /// A finding for the reviewer (an unexpected detection).
-    pub finding: Option<String>,
-    /// Safe.
-    pub safe: bool,
 }
 
 /// The campaign's operating points on a board: the setpoint is two thirds
@@ -1143,4 +922,48 @@ pub fn run(bench: &Bench<'_>, sel: &Selection) -> Result<Vec<CaseResult>, String
         .collect();
     pb.finish_and_clear();
     out
+}
+
+/// Run a selection on a bench and make its record.
+pub fn run_record(
+    bench: &Bench<'_>,
+    module_name: &str,
+    board_file: &str,
+    sel: &Selection,
+) -> Result<report::Record, String> {
+    let total = cases(bench, sel).map_err(|e| e.to_string())?.total;
+    let results = run(bench, sel)?;
+    let module_json = serde_json::to_string(bench.module).map_err(|e| e.to_string())?;
+    Ok(report::Record {
+        header: report::Header {
+            tool: format!("diodestat {}", env!("CARGO_PKG_VERSION")),
+            command: report::command_line(board_file, sel),
+            board: bench.name.to_string(),
+            board_file: board_file.to_string(),
+            config_fingerprint: bench.cfg.fingerprint().to_string(),
+            module: module_name.to_string(),
+            module_hash: format!("{:016x}", fnv1a64(module_json.as_bytes())),
+            seed: SEED,
+            diode_model: "quasi-static".into(),
+            dac_latency_ticks: bench.latency.get(),
+            selection: Selection {
+                shard: None,
+                ..sel.clone()
+            },
+            pass_lines: *bench.lines,
+            tolerances: bench.module.tolerances,
+        },
+        shard: sel.shard,
+        total_cases: total,
+        results,
+        caution: crate::safety::SAFETY_CAUTION.to_string(),
+    })
+}
+
+/// FNV-1a 64 over bytes (the same function as the core's configuration
+/// fingerprint), naming the module description a campaign ran on.
+fn fnv1a64(bytes: &[u8]) -> u64 {
+    bytes.iter().fold(0xcbf2_9ce4_8422_2325, |h, b| {
+        (h ^ u64::from(*b)).wrapping_mul(0x0000_0100_0000_01b3)
+    })
 }

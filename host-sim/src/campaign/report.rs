@@ -8,8 +8,9 @@ use std::fmt::Write as _;
 
 use serde::{Deserialize, Serialize};
 
+use super::outcome::CaseResult;
+use super::selection::Selection;
 use super::verdict::PassLines;
-use super::{CaseResult, Selection};
 
 /// What makes two campaign runs the same campaign: every artefact carries
 /// it.
@@ -529,42 +530,6 @@ pub fn command_line(board_file: &str, sel: &Selection) -> String {
     s
 }
 
-/// Run a selection on a bench and make its record.
-pub fn run_record(
-    bench: &super::Bench<'_>,
-    module_name: &str,
-    board_file: &str,
-    sel: &Selection,
-) -> Result<Record, String> {
-    let total = super::cases(bench, sel).map_err(|e| e.to_string())?.total;
-    let results = super::run(bench, sel)?;
-    let module_json = serde_json::to_string(bench.module).map_err(|e| e.to_string())?;
-    Ok(Record {
-        header: Header {
-            tool: format!("diodestat {}", env!("CARGO_PKG_VERSION")),
-            command: command_line(board_file, sel),
-            board: bench.name.to_string(),
-            board_file: board_file.to_string(),
-            config_fingerprint: bench.cfg.fingerprint().to_string(),
-            module: module_name.to_string(),
-            module_hash: format!("{:016x}", fnv1a64(module_json.as_bytes())),
-            seed: super::SEED,
-            diode_model: "quasi-static".into(),
-            dac_latency_ticks: bench.latency.get(),
-            selection: Selection {
-                shard: None,
-                ..sel.clone()
-            },
-            pass_lines: *bench.lines,
-            tolerances: bench.module.tolerances,
-        },
-        shard: sel.shard,
-        total_cases: total,
-        results,
-        caution: crate::report::SAFETY_CAUTION.to_string(),
-    })
-}
-
 /// The figures of a Monte Carlo campaign.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct MonteCarlo {
@@ -610,13 +575,5 @@ pub fn monte_carlo(rec: &Record) -> Option<MonteCarlo> {
         cases,
         unsafe_cases,
         case_upper_95: super::stats::clopper_pearson_upper(unsafe_cases, cases, 0.95)?,
-    })
-}
-
-/// FNV-1a 64 over bytes (the same function as the core's configuration
-/// fingerprint), naming the module description a campaign ran on.
-fn fnv1a64(bytes: &[u8]) -> u64 {
-    bytes.iter().fold(0xcbf2_9ce4_8422_2325, |h, b| {
-        (h ^ u64::from(*b)).wrapping_mul(0x0000_0100_0000_01b3)
     })
 }

@@ -739,14 +739,14 @@ mod tests {
             noise_lsb_rms = 0.5
             seed = 9
         "#;
-        let p: SensorChainParams = crate::plant::from_toml(text).unwrap();
+        let p: SensorChainParams = crate::plant::error::from_toml(text).unwrap();
         assert!(matches!(
             p.sensor,
             TempSensor::Ntc(Ntc::SteinhartHart { .. })
         ));
         let bad = text.replace("seed = 9", "seed = 9\nextra = 1");
-        assert!(crate::plant::from_toml::<SensorChainParams>(&bad).is_err());
+        assert!(crate::plant::error::from_toml::<SensorChainParams>(&bad).is_err());
         let bad2 = text.replace("c = 9.9e-8", "c = 9.9e-8\nd = 1.0");
-        assert!(crate::plant::from_toml::<SensorChainParams>(&bad2).is_err());
+        assert!(crate::plant::error::from_toml::<SensorChainParams>(&bad2).is_err());
     }
 }

@@ -150,7 +150,7 @@ impl Thermal {
     /// Creates the ladder with every node at `t_initial_k`.
     pub fn new(params: ThermalParams, t_initial_k: f64) -> Result<Self, PlantError> {
         params.validate()?;
-        crate::plant::error::ensure(
+        ensure(
             t_initial_k.is_finite() && t_initial_k > 0.0,
             "t_initial_k",
             "must be a finite temperature above 0 K",

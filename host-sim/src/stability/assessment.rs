@@ -26,7 +26,7 @@ use std::path::Path;
 use diodestat_core::ValidConfig;
 
 use crate::plant::DemoModule;
-use crate::report::SAFETY_CAUTION;
+use crate::safety::SAFETY_CAUTION;
 
 use super::bode::{write_bode_svg, BodeError, BodeLoop};
 use super::corners::{
@@ -440,7 +440,7 @@ impl Assessment {
             // The ±1 % band narrower than the two-step quantisation hunting:
             // settling there measures the hunting, not the loop.
             let fine = |st: &super::time_domain::StepFigures| {
-                super::time_domain::SETTLING_BAND * st.final_mw.abs() < 2.0 * r.dac_step_mw
+                crate::step_response::SETTLING_BAND * st.final_mw.abs() < 2.0 * r.dac_step_mw
             };
             narrow |= fine(&r.away) || fine(&r.back);
             let ms = |st: &super::time_domain::StepFigures| {

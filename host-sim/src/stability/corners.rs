@@ -39,7 +39,9 @@
 use crate::units::Scale;
 use diodestat_core::{Fx, ValidConfig};
 
-use crate::plant::{c_to_k, k_to_c, DemoModule, Diode, DiodeParams, Monitor, PlantError, Thermal};
+use crate::plant::{
+    c_to_k, k_to_c, DemoModule, Diode, DiodeParams, Monitor, PartTolerances, PlantError, Thermal,
+};
 use crate::sim::{DacLatency, MONITOR_FILTER_HZ};
 
 use super::design::{design_pi, Design, DesignError, DesignSpec};
@@ -96,11 +98,11 @@ pub const COLD_C: f64 = 0.0;
 /// Ambient of the hot corner, degC (demo value).
 pub const HOT_C: f64 = 40.0;
 /// Threshold spread of the standard corners, ± fraction (demo value).
-pub const THRESHOLD_SPREAD: f64 = 0.15;
+pub const THRESHOLD_SPREAD: f64 = PartTolerances::DEMO.threshold;
 /// Slope spread of the standard corners, ± fraction (demo value).
-pub const SLOPE_SPREAD: f64 = 0.08;
+pub const SLOPE_SPREAD: f64 = PartTolerances::DEMO.slope;
 /// Tracking-ratio (monitor responsivity) spread, ± fraction (demo value).
-pub const TRACKING_SPREAD: f64 = 0.10;
+pub const TRACKING_SPREAD: f64 = PartTolerances::DEMO.tracking;
 /// Age of the aged corner, h (demo value).
 pub const AGED_HOURS: f64 = 20_000.0;
 
@@ -664,12 +666,14 @@ pub fn design_for_corners(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::board;
+    use crate::calibration;
     use diodestat_core::example;
 
     fn setup() -> (DemoModule, ValidConfig) {
         let m = DemoModule::visible();
-        let cfg = board::calibrate(example::config(), &m).validate().unwrap();
+        let cfg = calibration::calibrate(example::config(), &m)
+            .validate()
+            .unwrap();
         (m, cfg)
     }
 

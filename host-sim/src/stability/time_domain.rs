@@ -74,11 +74,11 @@ use crate::plant::{DemoModule, PlantError};
 use crate::scenario::{Action, DiodeModel, Event, HwFault, Scenario};
 use crate::sim::{self, DacLatency, Happening, RunResult, TraceRow};
 
+use crate::step_response::{on_ceiling, overshoot_pct, settled_from, SETTLING_BAND};
+
 use super::corners::{CornerLoop, PlantCorner};
 use super::loop_model::{closed_loop_step_front_with, Discretisation};
 
-/// Settling band, fraction of the final value (±1 %).
-pub const SETTLING_BAND: f64 = 0.01;
 pub use crate::oscillation::{detrend, periodicity, LIMIT_CYCLE_MIN_STEPS, PERIODIC_CORRELATION};
 
 /// What the time-domain run does (see the module documentation).
@@ -369,30 +369,6 @@ fn mean(xs: impl Iterator<Item = f64>) -> f64 {
     }
 }
 
-/// Index from which every later value stays within `band` of `target`
-/// (0: always inside; `None`: the last value is outside).
-pub fn settled_from(xs: &[f64], target: f64, band: f64) -> Option<usize> {
-    match xs.iter().rposition(|x| (x - target).abs() > band) {
-        None => Some(0),
-        Some(i) if i + 1 < xs.len() => Some(i + 1),
-        Some(_) => None,
-    }
-}
-
-/// Overshoot of `xs` beyond `final_value`, in percent of the step from
-/// `initial` (in the direction of the step; 0 if it never passes it).
-pub fn overshoot_pct(xs: &[f64], initial: f64, final_value: f64) -> f64 {
-    let step = final_value - initial;
-    if step == 0.0 || !step.is_finite() {
-        return 0.0;
-    }
-    let beyond = xs
-        .iter()
-        .map(|x| (x - final_value) / step)
-        .fold(0.0, f64::max);
-    100.0 * beyond
-}
-
 /// The periodic oscillation of a steady stretch of optical power, if any.
 pub fn oscillation_in(
     p_mw: &[f64],
@@ -499,15 +475,6 @@ fn faults(r: &RunResult) -> Vec<&'static str> {
 
 fn regulating(rows: &[TraceRow]) -> bool {
     !rows.is_empty() && rows.iter().all(|r| r.state == State::Regulating)
-}
-
-/// Most of `rows` have the drive on the ceiling in force.
-pub(crate) fn on_ceiling(rows: &[TraceRow]) -> bool {
-    let n = rows
-        .iter()
-        .filter(|r| r.cmd_ma >= r.ceiling_ma - 1e-3)
-        .count();
-    2 * n > rows.len()
 }
 
 fn step_figures(

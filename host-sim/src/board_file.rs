@@ -6,7 +6,7 @@
 //! and `diodestat export` emits exactly what the file says.
 //!
 //! Calibration is either given channel by channel or derived from the
-//! module's nominal hardware by the factory calibration of [`crate::board`];
+//! module's nominal hardware by the factory calibration of [`crate::calibration`];
 //! the temperature table is either built from the module's sensor equation
 //! or given as points (inline or in a CSV file beside the board file).
 
@@ -21,12 +21,12 @@ use diodestat_core::{
 use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, Units, ValidConfig};
 use serde::{Deserialize, Deserializer};
 
-use crate::board;
+use crate::calibration;
 use crate::campaign::verdict::{PassLines, SourceType};
 use crate::files::{self, FileError};
 use crate::laser_class::LaserClass;
 use crate::locate::{locate, plain_message, Place, Seg};
-use crate::modulefile;
+use crate::module_file;
 use crate::plant::DemoModule;
 use crate::sim::DacLatency;
 use crate::units::{self, Scale};
@@ -406,7 +406,7 @@ fn default_weight() -> u16 {
 #[serde(rename_all = "kebab-case")]
 pub enum CalibrationSource {
     /// The module's nominal factory calibration at 25 degC
-    /// ([`board::calibrate`]); channels given in the file replace it.
+    /// ([`calibration::calibrate`]); channels given in the file replace it.
     Module,
     /// Every channel given in the file.
     Explicit,
@@ -705,7 +705,7 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
             ),
         ));
     }
-    let loaded_module = modulefile::resolve(&file.module, base_dir, "module")
+    let loaded_module = module_file::resolve(&file.module, base_dir, "module")
         .map_err(|why| invalid_at("module".into(), why))?;
     let module = loaded_module.module;
     let latency = file
@@ -857,7 +857,7 @@ impl Conv {
 /// largest value of it the file names and its channel's full scale
 /// ([`units::choose_decade`]).
 pub fn board_units(f: &BoardFile, module: &DemoModule) -> Result<Units, KeyError> {
-    let fs = board::full_scales(module);
+    let fs = calibration::full_scales(module);
     let p = &f.protection;
     let c = &f.calibration;
     let source_ma = match &c.dac {
@@ -1135,9 +1135,9 @@ fn calibration(
 }
 
 /// The module's nominal factory calibration (the ADC and DAC channels of
-/// [`board::calibrate`]).
+/// [`calibration::calibrate`]).
 fn module_calibration(module: &DemoModule, units: Units) -> Calibration {
-    board::calibrate_in(diodestat_core::example::config(), module, units).calibration
+    calibration::calibrate_in(diodestat_core::example::config(), module, units).calibration
 }
 
 fn temperature(
@@ -1198,7 +1198,7 @@ fn temperature(
                     format!("{points} points; the core's table holds 2 to {TEMP_TABLE_LEN}"),
                 ));
             }
-            let mut cal = board::temp_cal_range(module, min, max, points);
+            let mut cal = calibration::temp_cal_range(module, min, max, points);
             if let Some(v) = t.low_fault_counts {
                 cal.low_fault_counts = v;
             }
@@ -1946,7 +1946,7 @@ table_points = 25
 
     #[test]
     fn explicit_table_from_csv_beside_the_file() {
-        let dir = std::env::temp_dir().join(format!("diodestat-boardfile-{}", std::process::id()));
+        let dir = std::env::temp_dir().join(format!("diodestat-board_file-{}", std::process::id()));
         std::fs::create_dir_all(&dir).unwrap();
         std::fs::write(
             dir.join("ntc.csv"),

@@ -230,7 +230,7 @@ mod tests {
     /// its plant; the outputs of the last tick.
     fn emitting() -> (SimBoard, Plant, Outputs, u32) {
         let m = DemoModule::visible();
-        let c = crate::board::calibrate(diodestat_core::example::config(), &m)
+        let c = crate::calibration::calibrate(diodestat_core::example::config(), &m)
             .validate()
             .unwrap();
         let dt = 1.0 / f64::from(c.config().tick_hz);

@@ -10,20 +10,21 @@ use std::time::Instant;
 
 use diodestat_core::Fx;
 
-use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, LoadedBoard};
 use diodestat_sim::files::{self, FileError, Staging};
 use diodestat_sim::progress;
-use diodestat_sim::report::SAFETY_CAUTION;
+use diodestat_sim::safety::SAFETY_CAUTION;
 use diodestat_sim::stability::assessment::{
     assess, default_setpoint_mw, slug, Assessment, PassLines, DEFAULT_MAX_OVERSHOOT_PCT,
 };
 use diodestat_sim::stability::corners::markdown as margins_table;
 use diodestat_sim::stability::margins::Margins;
-use diodestat_sim::stability::time_domain::{StepFigures, SETTLING_BAND};
+use diodestat_sim::stability::time_domain::StepFigures;
 use diodestat_sim::stability::{
     corner_loop, design_for_bandwidth, design_pi, standard_corners, CornerOptions, Design,
     DesignError, DesignSpec, LoopParams, DESIGN_GM_DB, DESIGN_PM_DEG, PASS_GM_DB, PASS_PM_DEG,
 };
+use diodestat_sim::step_response::SETTLING_BAND;
 
 /// Where the shipped board configurations live.
 pub const SHIPPED_BOARDS_DIR: &str = "examples";

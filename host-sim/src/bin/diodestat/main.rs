@@ -5,7 +5,7 @@ use std::process::ExitCode;
 use std::time::Instant;
 
 use clap::{Parser, Subcommand};
-use diodestat_sim::boardfile::{load_board, LoadedBoard};
+use diodestat_sim::board_file::{load_board, LoadedBoard};
 use diodestat_sim::files::{self, Staging};
 use diodestat_sim::{check, report};
 
@@ -337,7 +337,7 @@ fn liv(
     out: &Path,
 ) -> Result<(), String> {
     use diodestat_sim::liv::{sweep, Heating};
-    let loaded = diodestat_sim::modulefile::resolve(module, Path::new(""), "MODULE")?;
+    let loaded = diodestat_sim::module_file::resolve(module, Path::new(""), "MODULE")?;
     let inputs: Vec<PathBuf> = loaded.path.iter().cloned().collect();
     let m = loaded.module;
     let module = loaded.name.as_str();
@@ -504,7 +504,7 @@ fn campaign_verdict(
     }
     println!(
         "CAUTION: {} A campaign is evidence for a design review, not a classification.",
-        report::SAFETY_CAUTION
+        diodestat_sim::safety::SAFETY_CAUTION
     );
     if bad.is_empty() {
         Ok(())
@@ -520,7 +520,7 @@ fn fit_cmd(
     kink_tol: f64,
     out: &Path,
 ) -> Result<(), String> {
-    let done = diodestat_sim::fit_cmd::fit_command(sweeps, template, name, kink_tol, out)?;
+    let done = diodestat_sim::fit::write_fit(sweeps, template, name, kink_tol, out)?;
     print!("{}", done.markdown);
     println!(
         "wrote {}, {}, {} and {}",
@@ -560,7 +560,7 @@ fn campaign(
     files::check_out_dir(out, "--out", &CAMPAIGN_FILES, &inputs).map_err(|e| e.to_string())?;
     println!("{}", board_line(&b));
     let t0 = Instant::now();
-    let rec = diodestat_sim::campaign::report::run_record(
+    let rec = diodestat_sim::campaign::run_record(
         &bench,
         &b.module_name,
         &board.display().to_string(),
