@@ -931,6 +931,18 @@ pub fn board_units(f: &BoardFile, module: &DemoModule) -> Result<Units, KeyError
 /// the board's units ([`board_units`]).
 pub fn to_config(f: &BoardFile, module: &DemoModule, base_dir: &Path) -> Result<Config, KeyError> {
     let units = board_units(f, module)?;
+    to_config_in(f, module, base_dir, units)
+}
+
+/// [`to_config`] in the given units (the loader's own choice is
+/// [`board_units`]): a value those units cannot hold is refused with its
+/// key and the accepted range.
+pub fn to_config_in(
+    f: &BoardFile,
+    module: &DemoModule,
+    base_dir: &Path,
+    units: Units,
+) -> Result<Config, KeyError> {
     let u = Conv { units };
     let p = &f.protection;
     let mut cfg = Config {

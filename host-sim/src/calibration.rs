@@ -13,9 +13,6 @@ use crate::plant::{DemoModule, Monitor, SensorChain, Topology, ZERO_CELSIUS_K};
 /// Reference temperature of the factory calibration, K.
 pub const CAL_T_K: f64 = 25.0 + ZERO_CELSIUS_K;
 
-/// Supply divider ratio of the simulated boards (supply volts per ADC volt).
-pub const SUPPLY_DIVIDER: f64 = 8.0;
-
 fn gain(v: f64) -> Gain {
     Gain::saturating_from_num(v)
 }
@@ -54,7 +51,7 @@ pub fn full_scales(module: &DemoModule) -> FullScales {
         source_ma: module.driver.dac_vref_v * module.driver.transconductance_a_per_v * 1e3,
         sense_ma: full / counts_per_ma,
         monitor_mw: full / counts_per_mw,
-        supply_mv: full * 1e3 / counts_per_v * SUPPLY_DIVIDER,
+        supply_mv: full * 1e3 / counts_per_v * module.supply_divider,
     }
 }
 
@@ -90,7 +87,7 @@ pub fn calibrate_in(mut cfg: Config, module: &DemoModule, u: Units) -> Config {
         unit_exp: u.current_exp,
     };
     // Supply through the divider.
-    let counts_per_mv = 1e-3 * counts_per_v / SUPPLY_DIVIDER;
+    let counts_per_mv = 1e-3 * counts_per_v / module.supply_divider;
     cfg.calibration.supply = AdcCal {
         offset_counts: 0,
         units_per_count: gain(1.0 / (counts_per_mv * u.mv_per_vu())),

@@ -118,6 +118,8 @@ pub struct Plant {
     pub adc_supply: Adc,
     /// Supply voltage, V.
     pub supply_v: f64,
+    /// Divider in front of the supply ADC, supply volts per ADC volt.
+    pub supply_divider: f64,
     /// Interlock closed.
     pub interlock_closed: bool,
     /// Ticks still to be missed.
@@ -181,6 +183,7 @@ impl Plant {
             adc_current,
             adc_supply,
             supply_v: module.supply_v,
+            supply_divider: module.supply_divider,
             interlock_closed: true,
             missed_left: 0,
             monitor_open_fraction: 0.0,
@@ -237,9 +240,7 @@ impl Plant {
             monitor_counts: self.adc_monitor.sample(self.mon_filt_v),
             current_counts: self.adc_current.sample(self.driver.sense_voltage(i)),
             temp_counts,
-            supply_counts: self
-                .adc_supply
-                .sample(self.supply_v / crate::calibration::SUPPLY_DIVIDER),
+            supply_counts: self.adc_supply.sample(self.supply_v / self.supply_divider),
             interlock_closed: self.interlock_closed,
             forward_counts: None,
             external_fault: self.external_fault,
