@@ -376,8 +376,6 @@ pub enum ConfigError {
         channel: Channel,
         /// Its configured decade.
         unit_exp: i8,
-        /// The decade it must have (`None`: any in range).
-        expected: Option<i8>,
     },
     /// `tick_hz` is zero.
     TickRateZero,
@@ -652,13 +650,9 @@ impl core::fmt::Display for ConfigError {
     fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
         use ConfigError::*;
         match *self {
-            UnitOutOfRange { channel, unit_exp, expected: Some(e) } => write!(
+            UnitOutOfRange { channel, unit_exp } => write!(
                 f,
-                "{channel:?} unit 1e{unit_exp} differs from its partner channel's 1e{e}"
-            ),
-            UnitOutOfRange { channel, unit_exp, expected: None } => write!(
-                f,
-                "{channel:?} unit 1e{unit_exp} outside 1e{} ..= 1e{}",
+                "{channel:?} unit 1e{unit_exp} outside 1e{} ..= 1e{} or not its quantity's (the DAC's is the current sense's, the forward voltage's the supply's)",
                 Units::MIN_EXP,
                 Units::MAX_EXP
             ),
@@ -854,43 +848,36 @@ fn positive_rate(which: RampKind, per_ms: Fx, tick_hz: u32) -> Result<Fx, Config
 }
 
 /// Every channel's unit in range, the DAC's equal to the current sense's
-/// and the forward voltage's to the supply's.
+/// and the forward voltage's to the supply's (one refusal site: the check
+/// costs little flash on Cortex-M0).
 fn check_units(c: &Config) -> Result<(), ConfigError> {
-    let cal = &c.calibration;
-    let fv = c.forward_voltage.as_ref().map(|f| f.cal.unit_exp);
-    let channels = [
-        (Channel::Monitor, Some(cal.monitor.unit_exp), None),
-        (
-            Channel::CurrentSense,
-            Some(cal.current_sense.unit_exp),
-            None,
-        ),
-        (Channel::Supply, Some(cal.supply.unit_exp), None),
-        (
-            Channel::Dac,
-            Some(cal.dac.unit_exp),
-            Some(cal.current_sense.unit_exp),
-        ),
-        (Channel::ForwardVoltage, fv, Some(cal.supply.unit_exp)),
-    ];
-    for (channel, unit_exp, partner) in channels {
-        let Some(unit_exp) = unit_exp else { continue };
-        if !(Units::MIN_EXP..=Units::MAX_EXP).contains(&unit_exp) {
-            return Err(ConfigError::UnitOutOfRange {
-                channel,
-                unit_exp,
-                expected: None,
-            });
-        }
-        if let Some(e) = partner.filter(|&e| e != unit_exp) {
-            return Err(ConfigError::UnitOutOfRange {
-                channel,
-                unit_exp,
-                expected: Some(e),
-            });
-        }
+    const fn out(e: i8) -> bool {
+        e < Units::MIN_EXP || e > Units::MAX_EXP
     }
-    Ok(())
+    let cal = &c.calibration;
+    let (m, i, v) = (
+        cal.monitor.unit_exp,
+        cal.current_sense.unit_exp,
+        cal.supply.unit_exp,
+    );
+    let fv = match &c.forward_voltage {
+        Some(f) => f.cal.unit_exp,
+        None => v,
+    };
+    let (channel, unit_exp) = if out(m) {
+        (Channel::Monitor, m)
+    } else if out(i) {
+        (Channel::CurrentSense, i)
+    } else if out(v) {
+        (Channel::Supply, v)
+    } else if cal.dac.unit_exp != i {
+        (Channel::Dac, cal.dac.unit_exp)
+    } else if fv != v {
+        (Channel::ForwardVoltage, fv)
+    } else {
+        return Ok(());
+    };
+    Err(ConfigError::UnitOutOfRange { channel, unit_exp })
 }
 
 fn check_adc(channel: Channel, cal: &AdcCal) -> Result<Fx, ConfigError> {
