@@ -434,3 +434,106 @@ fn a_clear_starts_every_debounce_afresh() {
     r.step_with(|s| s.current_counts = bad);
     assert!(r.ctl.faults().contains(Fault::DriveMismatch));
 }
+
+/// A plausibility configuration on the linear demo diode (25 mA threshold,
+/// 0.9 mW/mA at every temperature): 10 % warning margin, 20 % fault
+/// margin, 0.5 mA allowance, debounce `n` ticks.
+fn plausible_demo(n: u16) -> diodestat_core::ValidConfig {
+    use diodestat_core::{DiodePoint, Plausibility};
+    let pt = |t: f64| DiodePoint {
+        degc: fx(t),
+        threshold_iu: fx(25.0),
+        slope_ou_per_iu: fx(0.9),
+    };
+    demo_with(|c| {
+        c.plausibility = Some(Plausibility {
+            points: heapless::Vec::from_slice(&[pt(-20.0), pt(100.0)]).unwrap(),
+            warning_margin: fx(0.1),
+            fault_margin: fx(0.2),
+            allowance_iu: fx(0.5),
+            debounce: n,
+        })
+    })
+}
+
+/// A rig in ACC at 40 mA (the healthy diode makes 13.5 mW there), stepped
+/// to the fifth tick after an evaluation of the slow protections, with its
+/// monitor then reading 2 mW: the current the healthy diode needs for
+/// 2 mW is 25 + 2/0.9 = 27.2 mA, the fault bound 1.2 × 27.2 + 0.5 =
+/// 33.2 mA, below the 40 mA sensed; 2 mW is above the monitor-loss floor
+/// (0.3 mW). Returns the rig and the tick the monitor dropped on.
+fn acc_rig_with_a_dark_monitor(n: u16) -> (Rig, u32) {
+    use diodestat_core::SLOW_EVERY;
+    let cfg = plausible_demo(n);
+    let dark = counts_for(&cfg.config().calibration.monitor, fx(2.0));
+    let mut r = Rig::regulating_acc(cfg, fx(40.0));
+    r.run(2 * SLOW_EVERY);
+    assert!(!r.ctl.conditions().contains(Fault::PowerImplausible));
+    assert!(!r.last.status.warnings.end_of_life, "healthy: no warning");
+    while r.s.tick % SLOW_EVERY != 4 {
+        r.step();
+    }
+    r.monitor_override = Some(dark);
+    let dropped = r.s.tick + 1;
+    (r, dropped)
+}
+
+/// The plausibility check runs on the ticks whose index is a multiple of
+/// `SLOW_EVERY` (32) and its verdict is held in between: a monitor that
+/// drops between two evaluations is seen at the next one (the condition
+/// and the end-of-life warning on that tick, not before), and a monitor
+/// that recovers between two evaluations is still counted as implausible
+/// up to the next one.
+#[test]
+fn the_plausibility_check_runs_every_32_ticks_and_holds_its_verdict() {
+    use diodestat_core::SLOW_EVERY;
+    let (mut r, dropped) = acc_rig_with_a_dark_monitor(1_000);
+    let seen = dropped.next_multiple_of(SLOW_EVERY);
+    while r.s.tick < seen - 1 {
+        let d = r.step();
+        assert!(!r.ctl.conditions().contains(Fault::PowerImplausible));
+        assert!(!d.status.warnings.end_of_life, "tick {}", r.s.tick);
+    }
+    let d = r.step();
+    assert_eq!(r.s.tick, seen);
+    assert!(r.ctl.conditions().contains(Fault::PowerImplausible));
+    assert!(d.status.warnings.end_of_life);
+    // The monitor recovers three ticks later: held to the next evaluation.
+    r.run(2);
+    r.monitor_override = None;
+    while r.s.tick < seen + SLOW_EVERY - 1 {
+        let d = r.step();
+        assert!(
+            r.ctl.conditions().contains(Fault::PowerImplausible),
+            "tick {}",
+            r.s.tick
+        );
+        assert!(d.status.warnings.end_of_life, "tick {}", r.s.tick);
+    }
+    let d = r.step();
+    assert!(!r.ctl.conditions().contains(Fault::PowerImplausible));
+    assert!(!d.status.warnings.end_of_life);
+    assert_eq!(r.ctl.state(), State::Regulating);
+}
+
+/// With a debounce longer than the evaluation period, the held condition
+/// goes on counting across the next evaluation and the fault latches on
+/// its `n`-th tick, counted from the evaluation that saw it.
+#[test]
+fn a_plausibility_debounce_longer_than_the_evaluation_period_trips_on_time() {
+    use diodestat_core::SLOW_EVERY;
+    let n = 40u16;
+    assert!(u32::from(n) > SLOW_EVERY);
+    let (mut r, dropped) = acc_rig_with_a_dark_monitor(n);
+    let seen = dropped.next_multiple_of(SLOW_EVERY);
+    let latched = seen + u32::from(n) - 1;
+    while r.s.tick < latched - 1 {
+        let d = r.step();
+        assert!(d.status.faults.is_empty(), "tripped at tick {}", r.s.tick);
+    }
+    let d = r.step();
+    assert_eq!(r.s.tick, latched);
+    assert_eq!(names(d.status.faults), ["power-implausible"]);
+    let rec = r.ctl.fault_log().first().copied().expect("recorded");
+    assert_eq!((rec.fault, rec.tick), (Fault::PowerImplausible, latched));
+}

@@ -121,7 +121,10 @@ pub fn temp_cal(module: &DemoModule) -> TempCal {
 /// dropped), with fault rails 1 % of full scale from each end and the open
 /// rail given by the sensor topology.
 pub fn temp_cal_range(module: &DemoModule, min_c: f64, max_c: f64, points: usize) -> TempCal {
-    let chain = SensorChain::new(module.sensor.clone()).expect("demo sensor valid");
+    // The firmware knows the sensor's nominal curve, not this part's error.
+    let mut nominal = module.sensor.clone();
+    nominal.sensor = nominal.sensor.nominal();
+    let chain = SensorChain::new(nominal).expect("demo sensor valid");
     let max = chain.max_code();
     let mut table = heapless::Vec::new();
     for (counts, degc) in chain.temp_table(min_c, max_c, points) {

@@ -431,6 +431,22 @@ mod tests {
     }
 
     #[test]
+    fn class_1_at_850_nm_the_vcsel_board() {
+        // IEC 60825-1:2014, Table 9 (from memory): C4 = 10^(0.002 (lambda
+        // - 700)) for 700 to 1050 nm, 10^0.3 = 1.995 at 850 nm; Table 3
+        // (from memory): 7e-4 C4 t^0.75 J up to T2 = 10 s, then
+        // 7e-4 C4 T2^-0.25 W: 0.785 mW for continuous emission at the
+        // 100 s time base, and 7.85 uJ within 1 ms.
+        assert!(rel(c4(850.0), 1.9953) < 1e-4);
+        let a = Ael::new(LaserClass::C1, 850.0).unwrap();
+        assert_eq!(a.time_base_s(), 100.0);
+        assert!(rel(a.cw_w().unwrap(), 0.7854e-3) < 1e-3);
+        assert!(rel(a.energy_j(1e-3).unwrap().unwrap(), 7.854e-6) < 1e-3);
+        // 10 s: the two rows of Table 3 meet (7.85 mJ).
+        assert!(rel(a.energy_j(10.0).unwrap().unwrap(), 7.854e-3) < 1e-3);
+    }
+
+    #[test]
     fn correction_factors_meet_at_their_band_edges() {
         assert_eq!(c4(699.9), 1.0);
         assert!(rel(c4(700.0), 1.0) < 1e-12);

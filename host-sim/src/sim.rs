@@ -132,6 +132,9 @@ pub struct Plant {
     pub monitor_drift_per_s: f64,
     /// The board's external fault input asserted.
     pub external_fault: bool,
+    /// Speed of the diode's aging clock against simulated time (the
+    /// scenario's `aging_speedup`; 1: real time, 0: no aging in the run).
+    pub aging_speedup: f64,
     /// Draws of the intermittent contact (its own stream: the noise of
     /// the other channels is the same with or without it).
     contact_rng: Rng,
@@ -189,6 +192,7 @@ impl Plant {
             monitor_open_fraction: 0.0,
             monitor_drift_per_s: 0.0,
             external_fault: false,
+            aging_speedup: 1.0,
             contact_rng: Rng::new(seed ^ 0x636f_6e74_6163_7421),
             mon_filt_v: 0.0,
             mon_in_v: 0.0,
@@ -307,6 +311,15 @@ impl Plant {
                 }
             }
         };
+        // Aging over the tick at its drive and junction temperature.
+        if self.aging_speedup > 0.0 {
+            let dt_age = dt * self.aging_speedup;
+            if self.reference {
+                self.diode.age_over_reference(i, tj, dt_age);
+            } else {
+                self.diode.age_over(i, tj, dt_age);
+            }
+        }
         self.p_front_w = out.p_front_w;
         self.wavelength_m = out.wavelength_m;
         self.v_f = out.v_f_v;
@@ -747,6 +760,7 @@ fn run_plant(
     // The core behind its embedded-hal edge, on the board's simulated
     // DAC, enable line and interlock input.
     let mut board = SimBoard::new(cfg);
+    plant.aging_speedup = sc.aging_speedup;
     let mut events: Vec<(u64, usize, &Action)> = sc
         .events
         .iter()
@@ -973,6 +987,9 @@ fn run_plant(
                 supply_sensed_v: to_f(m.supply_vu) * units.mv_per_vu() * 1e-3,
                 v_f_v: plant.v_f,
                 wavelength_nm: plant.wavelength_m * 1e9,
+                age_h: plant.diode.age_hours(),
+                threshold_factor: plant.diode.aging_factors().0,
+                slope_factor: plant.diode.aging_factors().1,
             };
             kept.push(row);
             sink.row(&row);
@@ -1024,6 +1041,7 @@ mod tests {
             seed,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
+            aging_speedup: 1.0,
             events: vec![
                 ev(0.0, Action::SetPower { mw: setpoint_mw }),
                 ev(0.1, Action::Enable),
@@ -1373,6 +1391,7 @@ mod fault_log_tests {
             seed: 1,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1000,
+            aging_speedup: 1.0,
             events,
             expects: Vec::new(),
         };

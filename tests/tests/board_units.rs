@@ -286,6 +286,37 @@ fn a_board_computes_the_same_in_other_units() {
             .collect()
     };
     assert_eq!(states(&milli), states(&scaled));
+    // The loop analysis reads the same small-signal loop at every corner:
+    // gains, DAC and monitor gains within 0.1 % (the gains' own rounding in
+    // either unit).
+    use diodestat_sim::stability::corners::{analyse_corners, standard_corners, CornerOptions};
+    let sp = 20.0;
+    let a = |v: &diodestat_core::ValidConfig| {
+        analyse_corners(
+            &b.module,
+            v,
+            &standard_corners(v, sp),
+            &CornerOptions::default(),
+        )
+        .unwrap()
+    };
+    let scaled_cfg =
+        board_file::to_config_in(&file, &b.module, &examples().join("demo-red-30"), other)
+            .unwrap()
+            .validate()
+            .unwrap();
+    for (m, s) in a(&b.valid).iter().zip(a(&scaled_cfg).iter()) {
+        let (m, s) = (&m.corner.params, &s.corner.params);
+        for (what, x, y) in [
+            ("kp", m.kp_ma_per_mw, s.kp_ma_per_mw),
+            ("ki", m.ki_per_tick, s.ki_per_tick),
+            ("dac gain", m.dac_gain, s.dac_gain),
+            ("monitor gain", m.monitor_gain, s.monitor_gain),
+            ("slope", m.slope_mw_per_ma, s.slope_mw_per_ma),
+        ] {
+            assert!((x - y).abs() <= 1e-3 * x.abs(), "{what}: {x} against {y}");
+        }
+    }
     // Regulated power at the end of each trace row, tick by tick, within 1 %.
     for (a, s) in milli.trace.iter().zip(&scaled.trace) {
         assert!(

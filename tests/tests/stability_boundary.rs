@@ -87,6 +87,7 @@ fn run(
         seed: 0,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
+        aging_speedup: 1.0,
         events: vec![
             ev(0.0, Action::SetPower { mw: setpoint_mw }),
             ev(0.5, Action::Enable),

@@ -275,6 +275,16 @@ fn header_lines(s: &mut String, rec: &Record) {
         "- Module ratings: {:.3} mW optical, {:.3} mA current, facet damage at {:.3} mW; allowances {} uJ above the rated power, {} uC above the rated current.",
         l.rated_power_mw, l.rated_current_ma, l.damage_mw, l.over_power_allowance_uj, l.over_current_allowance_uc
     );
+    if let Some(w) = &h.selection.without {
+        let how = diodestat_core::Fault::ALL
+            .into_iter()
+            .find(|f| f.name() == w)
+            .map_or("", super::without::how);
+        let _ = writeln!(
+            s,
+            "- **Protection switched off: `{w}`** ({how}). An analysis of the design, not the board as configured: the configuration fingerprint above is that of the altered configuration."
+        );
+    }
     if let Some((k, n)) = rec.shard {
         let _ = writeln!(
             s,
@@ -526,6 +536,9 @@ pub fn command_line(board_file: &str, sel: &Selection) -> String {
     if let Some(p) = &sel.setpoints_mw {
         let p: Vec<String> = p.iter().map(|v| v.to_string()).collect();
         let _ = write!(s, " --setpoints-mw {}", p.join(","));
+    }
+    if let Some(w) = &sel.without {
+        let _ = write!(s, " --without {w}");
     }
     s
 }

@@ -88,6 +88,10 @@ pub struct Selection {
     pub parts: Option<(u32, u64)>,
     /// This run's slice: `(k, n)` runs the cases numbered k-1 modulo n.
     pub shard: Option<(u32, u32)>,
+    /// A protection switched off for this campaign (`campaign::without`,
+    /// `--without`).
+    #[serde(default)]
+    pub without: Option<String>,
 }
 
 impl Default for Selection {
@@ -102,6 +106,7 @@ impl Default for Selection {
             slow_bound_s: 20.0,
             parts: None,
             shard: None,
+            without: None,
         }
     }
 }

@@ -6,11 +6,11 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::diode::{DiodeParams, GainModel};
+use super::diode::{DiodeParams, GainModel, AGING_ACTIVATION_EV, AGING_CURRENT_EXPONENT};
 use super::driver::DriverParams;
 use super::monitor::MonitorParams;
 use super::sensors::{
-    AdcParams, FrontEndParams, Ntc, Rtd, SensorChainParams, TempSensor, Topology,
+    AdcParams, FrontEndParams, Ntc, Rtd, RtdClass, SensorChainParams, TempSensor, Topology,
 };
 use super::thermal::ThermalParams;
 
@@ -170,6 +170,10 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.01,
             slope_loss_per_khour: 0.005,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            aging_ref_current_a: None,
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -211,6 +215,11 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.02,
             slope_loss_per_khour: 0.01,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            // The aging rates hold at the visible module's rated current.
+            aging_ref_current_a: Some(0.060),
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -252,6 +261,11 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.005,
             slope_loss_per_khour: 0.003,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            // The aging rates hold at the pump module's rated current.
+            aging_ref_current_a: Some(6.5),
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -378,7 +392,11 @@ impl SensorChainParams {
     /// 2.2 kohm pull-up, 12-bit ADC.
     pub fn demo_pump() -> Self {
         Self {
-            sensor: TempSensor::Rtd(Rtd { r0_ohm: 1000.0 }),
+            sensor: TempSensor::Rtd(Rtd {
+                r0_ohm: 1000.0,
+                class: Some(RtdClass::B),
+                band_position: 0.0,
+            }),
             front_end: FrontEndParams {
                 topology: Topology::SensorToGround,
                 ref_resistor_ohm: 2200.0,

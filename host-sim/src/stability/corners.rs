@@ -345,7 +345,7 @@ impl CornerPlant {
             monitor,
             thermal,
             counts_per_v: full / module.adc.vref_v,
-            mw_per_count: cal.units_per_count.to_num(),
+            mw_per_count: cal.units_per_count.to_num::<f64>() * cfg.config().units().mw_per_ou(),
             mon_offset: f64::from(cal.offset_counts),
         })
     }

@@ -455,6 +455,7 @@ fn scenario(corner: &PlantCorner, plan: &StepPlan, low_mw: f64, seed: u64) -> Sc
         seed,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
+        aging_speedup: 1.0,
         events,
         expects: Vec::new(),
     }
@@ -720,6 +721,7 @@ pub fn small_step_agreement(
         seed: 0,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
+        aging_speedup: 1.0,
         events,
         expects: Vec::new(),
     };

@@ -114,6 +114,11 @@ enum Cmd {
         /// Run only slice K of N (cases numbered K-1 modulo N); merge the slices with campaign-merge.
         #[arg(long, value_parser = shard)]
         shard: Option<(u32, u32)>,
+        /// Switch one protection off for this campaign, to see which faults it must catch: overcurrent,
+        /// monitor-runaway, drive-mismatch, monitor-loss, over-temperature or power-implausible
+        /// (docs/campaign.md). An analysis of the design, not a configuration to ship.
+        #[arg(long)]
+        without: Option<String>,
         /// Output folder for campaign.md, campaign.json and campaign.xml (JUnit).
         #[arg(long, default_value = "out")]
         out: PathBuf,
@@ -123,6 +128,16 @@ enum Cmd {
         /// The shards' campaign.json files.
         #[arg(required = true)]
         shards: Vec<PathBuf>,
+        /// Output folder.
+        #[arg(long, default_value = "out")]
+        out: PathBuf,
+    },
+    /// Which protections each fault needs: the campaign with every protection on, then the same
+    /// campaign with one protection switched off (--without) per record; writes needs.md and needs.json.
+    CampaignNeeds {
+        /// campaign.json of the campaign with every protection on, then one per protection switched off.
+        #[arg(required = true, num_args = 2..)]
+        records: Vec<PathBuf>,
         /// Output folder.
         #[arg(long, default_value = "out")]
         out: PathBuf,
@@ -394,12 +409,17 @@ fn liv(
     stage.commit().map_err(|e| e.to_string())?;
     for c in &curves {
         let last = c.points.last();
-        let fit = c.fit.map_or("does not lase".to_string(), |f| {
-            format!(
+        let fit = match (c.below, c.fit) {
+            (Some(b), _) => b.to_string(),
+            (None, Some(f)) => format!(
                 "threshold {:.3} mA, slope {:.4} W/A (line through 10-40 % of the peak)",
                 f.threshold_ma, f.slope_w_per_a
-            )
-        });
+            ),
+            (None, None) => {
+                "lases, but too few points lie between 10 and 40 % of the peak to read a threshold"
+                    .to_string()
+            }
+        };
         println!(
             "{}: {fit}; at {:.1} mA {:.3} mW, junction {:.1} degC{}",
             c.heating.label(),
@@ -545,20 +565,41 @@ fn campaign(
             board.display()
         )
     })?;
+    use diodestat_sim::campaign::without;
+    let switched = match &sel.without {
+        Some(name) => Some(without::switch_off(&b.valid, name).map_err(|e| e.to_string())?),
+        None => None,
+    };
     let bench = diodestat_sim::campaign::Bench {
         name: &b.name,
         module: &b.module,
-        cfg: &b.valid,
+        cfg: switched.as_ref().map_or(&b.valid, |s| &s.cfg),
         latency: b.latency,
         lines: &lines,
     };
     // Refuse a bad selection before touching the output.
-    diodestat_sim::campaign::cases(&bench, sel).map_err(|e| e.to_string())?;
+    let plan = diodestat_sim::campaign::cases(&bench, sel).map_err(|e| e.to_string())?;
+    if let Some(s) = &switched {
+        s.check_run(diodestat_sim::campaign::longest_run_ms(
+            &b.module,
+            &plan.faults,
+            sel.slow_bound_s,
+        ))
+        .map_err(|e| e.to_string())?;
+    }
     let mut inputs = vec![board.to_path_buf()];
     inputs.extend(b.table_csv.clone());
     inputs.extend(b.module_file.clone());
     files::check_out_dir(out, "--out", &CAMPAIGN_FILES, &inputs).map_err(|e| e.to_string())?;
     println!("{}", board_line(&b));
+    if let Some(s) = &switched {
+        println!(
+            "protection switched off: {} ({}); the campaign runs the altered configuration, fingerprint {}",
+            s.fault.name(),
+            without::how(s.fault),
+            s.cfg.fingerprint()
+        );
+    }
     let t0 = Instant::now();
     let rec = diodestat_sim::campaign::run_record(
         &bench,
@@ -574,6 +615,47 @@ fn campaign(
         rec.results.len() as f64 / secs.max(1e-9)
     );
     campaign_verdict(&rec, out)
+}
+
+fn campaign_needs(records: &[PathBuf], out: &Path) -> Result<(), String> {
+    use diodestat_sim::campaign::needs;
+    let mut recs = Vec::new();
+    for p in records {
+        let text = files::read_text(p, "RECORD").map_err(|e| e.to_string())?;
+        let rec: diodestat_sim::campaign::report::Record = serde_json::from_str(&text)
+            .map_err(|e| format!("{}: not a campaign record: {e}", p.display()))?;
+        recs.push(rec);
+    }
+    let n = needs::needs(&recs).map_err(|e| e.to_string())?;
+    const NEEDS_FILES: [&str; 2] = ["needs.md", "needs.json"];
+    files::check_out_dir(out, "--out", &NEEDS_FILES, records).map_err(|e| e.to_string())?;
+    let json = serde_json::to_string_pretty(&n).map_err(|e| e.to_string())?;
+    let stage = Staging::new(out).map_err(|e| e.to_string())?;
+    for (name, body) in NEEDS_FILES.iter().zip([needs::markdown(&n), json]) {
+        std::fs::write(stage.path(name), body)
+            .map_err(|e| format!("{}: {e}", out.join(name).display()))?;
+    }
+    stage.commit().map_err(|e| e.to_string())?;
+    for f in &n.faults {
+        if !f.for_class.is_empty() {
+            println!(
+                "{}: leaves Class {} without {}",
+                f.fault,
+                n.class,
+                f.for_class.join(" or without ")
+            );
+        }
+    }
+    println!(
+        "{} protections switched off one at a time; wrote {}",
+        n.runs.len(),
+        out.join("needs.md").display()
+    );
+    println!(
+        "CAUTION: {} A campaign is evidence for a design review, not a classification.",
+        n.caution
+    );
+    Ok(())
 }
 
 fn campaign_merge(shards: &[PathBuf], out: &Path) -> Result<(), String> {
@@ -638,6 +720,7 @@ fn main() -> ExitCode {
             parts,
             parts_seed,
             shard,
+            without,
             out,
         } => match ambient_c.as_slice() {
             [cold_c, hot_c] => campaign(
@@ -652,12 +735,14 @@ fn main() -> ExitCode {
                     slow_bound_s: *slow_bound_s,
                     parts: parts.map(|n| (n, *parts_seed)),
                     shard: *shard,
+                    without: without.clone(),
                 },
                 out,
             ),
             _ => Err("--ambient-c: give COLD,HOT (two temperatures, degC)".to_string()),
         },
         Cmd::CampaignMerge { shards, out } => campaign_merge(shards, out),
+        Cmd::CampaignNeeds { records, out } => campaign_needs(records, out),
         Cmd::LoopReport {
             boards,
             out,
