@@ -384,6 +384,7 @@ pub fn gate(
         "pass lines: PM >= {PASS_PM_DEG} deg, GM >= {PASS_GM_DB} dB (common practice), overshoot \
          within each board's limit, no limit cycle, no fault latched"
     );
+    println!("CAUTION: {SAFETY_CAUTION}");
     if failures.is_empty() {
         println!("loop gate passed: {} board configurations", boards.len());
         Ok(())

@@ -438,6 +438,7 @@ fn liv(
         out.join("liv.csv").display(),
         out.join("liv.svg").display()
     );
+    println!("CAUTION: {}", diodestat_sim::safety::SAFETY_CAUTION);
     Ok(())
 }
 
@@ -514,7 +515,7 @@ fn campaign_verdict(
     );
     for r in &bad {
         println!(
-            "UNSAFE: {} {} {} {} mW: {}",
+            "UNSAFE: {} {} {} {:.4} mW: {}",
             r.fault,
             r.moment.name(),
             r.corner,
