@@ -17,7 +17,7 @@ const AMBIENT_C: f64 = 25.0;
 /// The requests of the benchmark scenario at their ticks.
 fn requests(ctl: &mut Controller, tick: u32) {
     let r = match tick {
-        0 => Request::SetPowerMw(Fx::saturating_from_num(SETPOINT_MW)),
+        0 => Request::SetPower(Fx::saturating_from_num(SETPOINT_MW)),
         2 => Request::Enable,
         _ => return,
     };

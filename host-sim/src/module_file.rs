@@ -33,6 +33,7 @@
 //! and slope, 10 mV for the turn-on voltage); the shipped demo module files
 //! do this, so they reproduce the built-in demo modules exactly.
 
+use crate::plant::DEFAULT_SUPPLY_DIVIDER;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
@@ -87,6 +88,11 @@ pub struct ModuleFile {
 pub struct SupplySection {
     /// Nominal supply voltage of the current source, V.
     pub voltage_v: f64,
+    /// Ratio of the divider in front of the supply ADC channel (supply
+    /// volts per ADC volt); default 8 (boards up to about 24 V on a 3.3 V
+    /// ADC).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub divider: Option<f64>,
 }
 
 /// `[diode]`: datasheet-level figures at the reference temperature.
@@ -494,6 +500,13 @@ impl ModuleFile {
                 "must be a finite number above 0",
             ));
         }
+        let supply_divider = self.supply.divider.unwrap_or(DEFAULT_SUPPLY_DIVIDER);
+        if !(supply_divider.is_finite() && supply_divider >= 1.0) {
+            return Err(refuse(
+                "supply.divider",
+                "must be a finite ratio of 1 or more",
+            ));
+        }
         let mut diode = self.diode.params()?;
         // The aging rates hold at the rated current unless told otherwise.
         diode.aging_ref_current_a = diode
@@ -513,6 +526,7 @@ impl ModuleFile {
             rated_current_a: self.rated_current_ma * 1e-3,
             tolerances: self.tolerances,
             supply_v: self.supply.voltage_v,
+            supply_divider,
             diode,
             monitor: self.monitor.clone(),
             driver: self.source.clone(),

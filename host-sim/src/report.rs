@@ -380,7 +380,7 @@ pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Su
                 let unit = Fault::ALL
                     .iter()
                     .find(|f| f.name() == *fault)
-                    .map_or("", |f| f.unit());
+                    .map_or("", |f| crate::units::eng_unit(f.unit()));
                 let latency_ms = injected.map(|i| ms(tick - i));
                 faults.push(FaultNote {
                     at_ms: ms(*tick),

@@ -41,6 +41,7 @@
 //! ([`WarningSpan`]) and the optical power over chosen intervals
 //! ([`PowerWindow`], see [`run_watching`]).
 
+use crate::units::Scale;
 use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
 use crate::oscillation::{Found, TickSample, Watch};
@@ -118,6 +119,8 @@ pub struct Plant {
     pub adc_supply: Adc,
     /// Supply voltage, V.
     pub supply_v: f64,
+    /// Divider in front of the supply ADC, supply volts per ADC volt.
+    pub supply_divider: f64,
     /// Interlock closed.
     pub interlock_closed: bool,
     /// Ticks still to be missed.
@@ -184,6 +187,7 @@ impl Plant {
             adc_current,
             adc_supply,
             supply_v: module.supply_v,
+            supply_divider: module.supply_divider,
             interlock_closed: true,
             missed_left: 0,
             monitor_open_fraction: 0.0,
@@ -241,9 +245,7 @@ impl Plant {
             monitor_counts: self.adc_monitor.sample(self.mon_filt_v),
             current_counts: self.adc_current.sample(self.driver.sense_voltage(i)),
             temp_counts,
-            supply_counts: self
-                .adc_supply
-                .sample(self.supply_v / crate::calibration::SUPPLY_DIVIDER),
+            supply_counts: self.adc_supply.sample(self.supply_v / self.supply_divider),
             interlock_closed: self.interlock_closed,
             forward_counts: None,
             external_fault: self.external_fault,
@@ -789,6 +791,7 @@ pub fn fork_at(
 ) -> Result<Fork, PlantError> {
     let plant = Plant::new(module, sc.ambient_c, sc.seed)?;
     let tick_hz = cfg.config().tick_hz;
+<<<<<<< HEAD
     let mut runner = Runner::new(sc, cfg, latency, plant, Vec::new());
     runner.run_until(tick_at(at_ms, tick_hz), &mut NoSink);
     Ok(Fork { runner })
@@ -934,6 +937,57 @@ impl Runner {
     fn apply_events(&mut self, tick: u64) {
         while let Some((at, event, action)) = self.events.get(self.next_event) {
             if *at > tick {
+=======
+    let dt = 1.0 / f64::from(tick_hz);
+    let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
+    let config_fingerprint = Some(cfg.fingerprint());
+    // The core behind its embedded-hal edge, on the board's simulated
+    // DAC, enable line and interlock input.
+    let mut board = SimBoard::new(cfg);
+    plant.aging_speedup = sc.aging_speedup;
+    let mut events: Vec<(u64, usize, &Action)> = sc
+        .events
+        .iter()
+        .enumerate()
+        .map(|(k, e)| (tick_at(e.at_ms, tick_hz), k, &e.action))
+        .collect();
+    events.sort_by_key(|e| e.0);
+    let mut next_event = 0usize;
+    let mut ambient_c = sc.ambient_c;
+    let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
+    let mut res = RunResult {
+        tick_hz,
+        config_fingerprint,
+        windows,
+        envelope: Envelope::new(n_ticks),
+        ..RunResult::default()
+    };
+    let merge_ticks = tick_at(
+        WARNING_MERGE_MS.max(WARNING_MERGE_FRACTION * sc.duration_ms),
+        tick_hz,
+    );
+    let mut last_warnings = Warnings::default();
+    let mut prev = (0.0, Fx::ZERO, Mode::Apc);
+    let mut kept = Retained::new(RETAINED_ROWS);
+    let mut last_state = State::Off;
+    let mut log_cursor = diodestat_core::Cursor::default();
+    // The drives on their way to the DAC: a ring of `latency` slots, the
+    // one at `slot` written `latency` ticks ago; `None`: a missed tick
+    // wrote nothing. The board starts with the DAC at zero, enable low.
+    let lat = latency.get() as usize;
+    let mut pipeline = [None::<Outputs>; DacLatency::MAX_TICKS as usize];
+    let mut slot = 0usize;
+    let mut applied = Outputs::default();
+    let mut last_computed = diodestat_core::Drive::default();
+    let units = board.ctl().config().config().units();
+    let (ma_per_iu, mw_per_ou) = (units.ma_per_iu(), units.mw_per_ou());
+    let mut watch = Watch::new(tick_hz, units.ma(board.ctl().config().slew_iu_per_tick()));
+    let trace_every = u64::from(sc.trace_every.max(1));
+    for tick in 0..n_ticks {
+        // Timed events for this tick.
+        while let Some(&(at, event, action)) = events.get(next_event) {
+            if at > tick {
+>>>>>>> main
                 break;
             }
             let event = *event;
@@ -942,8 +996,8 @@ impl Runner {
             let req = match action {
                 Action::Enable => Some(Request::Enable),
                 Action::Disable => Some(Request::Disable),
-                Action::SetPower { mw } => Some(Request::SetPowerMw(fx(*mw))),
-                Action::SetCurrent { ma } => Some(Request::SetCurrentMa(fx(*ma))),
+                Action::SetPower { mw } => Some(Request::SetPower(fx(*mw / mw_per_ou))),
+                Action::SetCurrent { ma } => Some(Request::SetCurrent(fx(*ma / ma_per_iu))),
                 Action::Mode { mode } => Some(Request::SetMode(match mode {
                     ModeName::Apc => Mode::Apc,
                     ModeName::Acc => Mode::Acc,
@@ -1012,6 +1066,7 @@ impl Runner {
                     self.ramp = None;
                 }
             }
+<<<<<<< HEAD
             let ambient_c = self.ambient_c;
             let plant = &mut self.plant;
             let board = &mut self.board;
@@ -1027,6 +1082,102 @@ impl Runner {
                 let (drive, outputs, _edge_error) = board.tick(&sample);
                 self.last_computed = drive;
                 Some(outputs)
+=======
+        }
+        // Warnings change seldom: the power, drive and mode of the tick
+        // before are kept raw and converted only when one does.
+        let warnings = board.ctl().status().warnings;
+        if warnings != last_warnings {
+            let (p, d, m) = prev;
+            res.warnings_changed(
+                tick,
+                last_warnings,
+                warnings,
+                (p, to_f(d) * ma_per_iu, m),
+                merge_ticks,
+            );
+            last_warnings = warnings;
+        }
+        prev = (p_mw, board.ctl().drive_iu(), board.ctl().mode());
+        if !res.damaged && plant.diode.damaged() {
+            res.damaged = true;
+            res.happenings.push(Happening::FacetDamage { tick });
+        }
+        let st = board.ctl().state();
+        if st == State::Regulating {
+            watch.push(
+                tick,
+                TickSample {
+                    regulating: true,
+                    dac_code: last_computed.dac_code,
+                    cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
+                    ceiling_ma: to_f(board.ctl().ceiling_iu()) * ma_per_iu,
+                    p_mw,
+                    monitor_mw: to_f(board.ctl().measurements().monitor_ou) * mw_per_ou,
+                    setpoint_mw: (board.ctl().mode() == Mode::Apc)
+                        .then(|| to_f(board.ctl().power_target_ou()) * mw_per_ou),
+                },
+            );
+        } else {
+            watch.cut();
+        }
+        if st != last_state {
+            res.happenings.push(Happening::State { tick, state: st });
+            last_state = st;
+        }
+        let unread = board.ctl().fault_log().since(log_cursor);
+        res.faults_lost += unread.lost();
+        log_cursor = unread.resume();
+        for e in unread {
+            let r = e.record;
+            res.happenings.push(Happening::Fault {
+                tick,
+                fault: r.fault.name(),
+                measured: units.record(r.fault, r.measured),
+                limit: units.record(r.fault, r.limit),
+            });
+        }
+        // Every tick feeds the plot envelope (only what the plots draw);
+        // every `trace_every`-th is recorded whole.
+        let m = board.ctl().measurements();
+        let i_ma = plant.driver.current_a() * 1e3;
+        let monitor_mw = to_f(m.monitor_ou) * mw_per_ou;
+        let ceiling_ma = to_f(board.ctl().ceiling_iu()) * ma_per_iu;
+        let tj_c = k_to_c(plant.thermal.t_junction_k());
+        let sensed_c = to_f(m.temp_degc);
+        res.envelope.add_values(
+            tick,
+            [
+                p_mw, monitor_mw, i_ma, ceiling_ma, tj_c, sensed_c, ambient_c,
+            ],
+        );
+        if tick.is_multiple_of(trace_every) {
+            let status = board.ctl().status();
+            let row = TraceRow {
+                tick,
+                t_s: tick as f64 * dt,
+                state: st,
+                mode: status.mode,
+                enable: applied.enable,
+                dac_code: applied.dac_code,
+                faults: status.faults,
+                warnings: status.warnings,
+                p_mw,
+                i_ma,
+                cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
+                ceiling_ma,
+                monitor_mw,
+                tj_c,
+                sensed_c,
+                ambient_c,
+                supply_v: plant.supply_v,
+                supply_sensed_v: to_f(m.supply_vu) * units.mv_per_vu() * 1e-3,
+                v_f_v: plant.v_f,
+                wavelength_nm: plant.wavelength_m * 1e9,
+                age_h: plant.diode.age_hours(),
+                threshold_factor: plant.diode.aging_factors().0,
+                slope_factor: plant.diode.aging_factors().1,
+>>>>>>> main
             };
             // What the hardware was set to `latency` ticks ago takes effect now.
             if let Some(d) = std::mem::replace(&mut self.pipeline[self.slot], computed) {
@@ -1266,7 +1417,7 @@ mod tests {
             let (module, cfg) = (board.module, board.valid);
             let dt = 1.0 / f64::from(cfg.config().tick_hz);
             let mut ctl = diodestat_core::Controller::new(cfg);
-            ctl.request(Request::SetPowerMw(fx(mw))).unwrap();
+            ctl.request(Request::SetPower(fx(mw))).unwrap();
             let mut fast = Plant::new(&module, 25.0, 3).unwrap();
             let mut refp = Plant::new_reference(&module, 25.0, 3).unwrap();
             let floor_w = 1e-9 * module.rated_power_w;

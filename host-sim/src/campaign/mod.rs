@@ -32,6 +32,8 @@ pub mod without;
 pub use outcome::{CaseResult, Detection};
 pub use selection::{Moment, Selection, SelectionError, COLD_C, HOT_C};
 
+use crate::units::Scale;
+
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
@@ -570,8 +572,8 @@ pub fn cases(bench: &Bench<'_>, sel: &Selection) -> Result<CasePlan, SelectionEr
     }
     let c = bench.cfg.config();
     let (min, max) = (
-        c.power.min_setpoint_mw.to_num::<f64>(),
-        c.power.max_setpoint_mw.to_num::<f64>(),
+        c.units().mw(c.power.min_setpoint_ou),
+        c.units().mw(c.power.max_setpoint_ou),
     );
     let setpoints = sel
         .setpoints_mw
@@ -663,7 +665,7 @@ impl Plan {
     /// The plan for a module and its configuration.
     pub fn new(module: &DemoModule, cfg: &ValidConfig) -> Self {
         let c = cfg.config();
-        let max = c.power.max_setpoint_mw.to_num::<f64>();
+        let max = c.units().mw(c.power.max_setpoint_ou);
         Plan {
             setpoint_mw: max * 2.0 / 3.0,
             changed_mw: max / 3.0,

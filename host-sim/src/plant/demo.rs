@@ -14,6 +14,14 @@ use super::sensors::{
 };
 use super::thermal::ThermalParams;
 
+/// Supply divider of the built-in demo modules and of module files that
+/// give none (supply volts per ADC volt).
+pub const DEFAULT_SUPPLY_DIVIDER: f64 = 8.0;
+
+fn default_supply_divider() -> f64 {
+    DEFAULT_SUPPLY_DIVIDER
+}
+
 /// Everything the simulator needs for one laser module.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -25,6 +33,10 @@ pub struct DemoModule {
     pub rated_current_a: f64,
     /// Nominal driver supply, V.
     pub supply_v: f64,
+    /// Divider in front of the supply ADC channel, supply volts per ADC
+    /// volt.
+    #[serde(default = "default_supply_divider")]
+    pub supply_divider: f64,
     /// Laser diode.
     pub diode: DiodeParams,
     /// Back-facet monitor photodiode.
@@ -133,6 +145,7 @@ impl DemoModule {
             rated_power_w: 0.030,
             rated_current_a: 0.060,
             supply_v: 5.0,
+            supply_divider: DEFAULT_SUPPLY_DIVIDER,
             diode: DiodeParams::demo_visible(),
             monitor: MonitorParams::demo_visible(),
             driver: DriverParams::demo_visible(),
@@ -149,6 +162,7 @@ impl DemoModule {
             rated_power_w: 5.0,
             rated_current_a: 6.5,
             supply_v: 3.3,
+            supply_divider: DEFAULT_SUPPLY_DIVIDER,
             diode: DiodeParams::demo_pump(),
             monitor: MonitorParams::demo_pump(),
             driver: DriverParams::demo_pump(),

@@ -18,7 +18,7 @@ pub use constants::{
     c_to_k, ideal_responsivity_a_per_w, ideal_slope_w_per_a, k_to_c, photon_energy_j,
     thermal_voltage_v, C, H, K_B, Q, ZERO_CELSIUS_K,
 };
-pub use demo::{DemoModule, PartTolerances};
+pub use demo::{DemoModule, PartTolerances, DEFAULT_SUPPLY_DIVIDER};
 pub use diode::{
     integrate_rodas4, varshni_ev, Diode, DiodeDerived, DiodeOutput, DiodeParams, DynamicStats,
     GainModel, GainSi, RateCoefficients, Tolerance, Varshni, AGING_ACTIVATION_EV,
