@@ -41,7 +41,6 @@
 //! ([`WarningSpan`]) and the optical power over chosen intervals
 //! ([`PowerWindow`], see [`run_watching`]).
 
-use crate::units::Scale;
 use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
 use crate::oscillation::{Found, TickSample, Watch};
@@ -50,6 +49,7 @@ use crate::plant::{
 };
 use crate::scenario::{Action, AdcChannel, DiodeModel, Event, HwFault, ModeName, Scenario};
 use crate::sim_board::{Bus, Outputs, SimBoard};
+use crate::units::Scale;
 
 pub use crate::trace::TraceRow;
 use crate::trace::{Envelope, NoSink, Retained, TraceSink, RETAINED_ROWS};
@@ -119,8 +119,6 @@ pub struct Plant {
     pub adc_supply: Adc,
     /// Supply voltage, V.
     pub supply_v: f64,
-    /// Divider in front of the supply ADC, supply volts per ADC volt.
-    pub supply_divider: f64,
     /// Interlock closed.
     pub interlock_closed: bool,
     /// Ticks still to be missed.
@@ -133,6 +131,8 @@ pub struct Plant {
     pub monitor_drift_per_s: f64,
     /// The board's external fault input asserted.
     pub external_fault: bool,
+    /// Divider in front of the supply ADC, supply volts per ADC volt.
+    pub supply_divider: f64,
     /// Speed of the diode's aging clock against simulated time (the
     /// scenario's `aging_speedup`; 1: real time, 0: no aging in the run).
     pub aging_speedup: f64,
@@ -187,12 +187,12 @@ impl Plant {
             adc_current,
             adc_supply,
             supply_v: module.supply_v,
-            supply_divider: module.supply_divider,
             interlock_closed: true,
             missed_left: 0,
             monitor_open_fraction: 0.0,
             monitor_drift_per_s: 0.0,
             external_fault: false,
+            supply_divider: module.supply_divider,
             aging_speedup: 1.0,
             contact_rng: Rng::new(seed ^ 0x636f_6e74_6163_7421),
             mon_filt_v: 0.0,
@@ -791,7 +791,6 @@ pub fn fork_at(
 ) -> Result<Fork, PlantError> {
     let plant = Plant::new(module, sc.ambient_c, sc.seed)?;
     let tick_hz = cfg.config().tick_hz;
-<<<<<<< HEAD
     let mut runner = Runner::new(sc, cfg, latency, plant, Vec::new());
     runner.run_until(tick_at(at_ms, tick_hz), &mut NoSink);
     Ok(Fork { runner })
@@ -847,6 +846,10 @@ struct Runner {
     dt: f64,
     tick_hz: u32,
     model: DiodeModel,
+    /// The board's units, and mA per current unit and mW per optical unit.
+    units: diodestat_core::Units,
+    ma_per_iu: f64,
+    mw_per_ou: f64,
     /// The next tick to run.
     tick: u64,
 }
@@ -874,7 +877,9 @@ impl Runner {
             .map(|(k, e)| (tick_at(e.at_ms, tick_hz), k, e.action.clone()))
             .collect();
         events.sort_by_key(|e| e.0);
-        let watch = Watch::new(tick_hz, to_f(board.ctl().config().slew_ma_per_tick()));
+        let units = board.ctl().config().config().units();
+        let (ma_per_iu, mw_per_ou) = (units.ma_per_iu(), units.mw_per_ou());
+        let watch = Watch::new(tick_hz, units.ma(board.ctl().config().slew_iu_per_tick()));
         Runner {
             plant,
             board,
@@ -910,6 +915,9 @@ impl Runner {
             dt,
             tick_hz,
             model: sc.diode_model,
+            units,
+            ma_per_iu,
+            mw_per_ou,
             tick: 0,
         }
     }
@@ -937,57 +945,6 @@ impl Runner {
     fn apply_events(&mut self, tick: u64) {
         while let Some((at, event, action)) = self.events.get(self.next_event) {
             if *at > tick {
-=======
-    let dt = 1.0 / f64::from(tick_hz);
-    let n_ticks = (sc.duration_ms * 1e-3 * f64::from(tick_hz)).round() as u64;
-    let config_fingerprint = Some(cfg.fingerprint());
-    // The core behind its embedded-hal edge, on the board's simulated
-    // DAC, enable line and interlock input.
-    let mut board = SimBoard::new(cfg);
-    plant.aging_speedup = sc.aging_speedup;
-    let mut events: Vec<(u64, usize, &Action)> = sc
-        .events
-        .iter()
-        .enumerate()
-        .map(|(k, e)| (tick_at(e.at_ms, tick_hz), k, &e.action))
-        .collect();
-    events.sort_by_key(|e| e.0);
-    let mut next_event = 0usize;
-    let mut ambient_c = sc.ambient_c;
-    let mut ramp: Option<(f64, f64, u64, u64)> = None; // from, to, start, end
-    let mut res = RunResult {
-        tick_hz,
-        config_fingerprint,
-        windows,
-        envelope: Envelope::new(n_ticks),
-        ..RunResult::default()
-    };
-    let merge_ticks = tick_at(
-        WARNING_MERGE_MS.max(WARNING_MERGE_FRACTION * sc.duration_ms),
-        tick_hz,
-    );
-    let mut last_warnings = Warnings::default();
-    let mut prev = (0.0, Fx::ZERO, Mode::Apc);
-    let mut kept = Retained::new(RETAINED_ROWS);
-    let mut last_state = State::Off;
-    let mut log_cursor = diodestat_core::Cursor::default();
-    // The drives on their way to the DAC: a ring of `latency` slots, the
-    // one at `slot` written `latency` ticks ago; `None`: a missed tick
-    // wrote nothing. The board starts with the DAC at zero, enable low.
-    let lat = latency.get() as usize;
-    let mut pipeline = [None::<Outputs>; DacLatency::MAX_TICKS as usize];
-    let mut slot = 0usize;
-    let mut applied = Outputs::default();
-    let mut last_computed = diodestat_core::Drive::default();
-    let units = board.ctl().config().config().units();
-    let (ma_per_iu, mw_per_ou) = (units.ma_per_iu(), units.mw_per_ou());
-    let mut watch = Watch::new(tick_hz, units.ma(board.ctl().config().slew_iu_per_tick()));
-    let trace_every = u64::from(sc.trace_every.max(1));
-    for tick in 0..n_ticks {
-        // Timed events for this tick.
-        while let Some(&(at, event, action)) = events.get(next_event) {
-            if at > tick {
->>>>>>> main
                 break;
             }
             let event = *event;
@@ -996,8 +953,8 @@ impl Runner {
             let req = match action {
                 Action::Enable => Some(Request::Enable),
                 Action::Disable => Some(Request::Disable),
-                Action::SetPower { mw } => Some(Request::SetPower(fx(*mw / mw_per_ou))),
-                Action::SetCurrent { ma } => Some(Request::SetCurrent(fx(*ma / ma_per_iu))),
+                Action::SetPower { mw } => Some(Request::SetPower(fx(*mw / self.mw_per_ou))),
+                Action::SetCurrent { ma } => Some(Request::SetCurrent(fx(*ma / self.ma_per_iu))),
                 Action::Mode { mode } => Some(Request::SetMode(match mode {
                     ModeName::Apc => Mode::Apc,
                     ModeName::Acc => Mode::Acc,
@@ -1066,7 +1023,6 @@ impl Runner {
                     self.ramp = None;
                 }
             }
-<<<<<<< HEAD
             let ambient_c = self.ambient_c;
             let plant = &mut self.plant;
             let board = &mut self.board;
@@ -1082,102 +1038,6 @@ impl Runner {
                 let (drive, outputs, _edge_error) = board.tick(&sample);
                 self.last_computed = drive;
                 Some(outputs)
-=======
-        }
-        // Warnings change seldom: the power, drive and mode of the tick
-        // before are kept raw and converted only when one does.
-        let warnings = board.ctl().status().warnings;
-        if warnings != last_warnings {
-            let (p, d, m) = prev;
-            res.warnings_changed(
-                tick,
-                last_warnings,
-                warnings,
-                (p, to_f(d) * ma_per_iu, m),
-                merge_ticks,
-            );
-            last_warnings = warnings;
-        }
-        prev = (p_mw, board.ctl().drive_iu(), board.ctl().mode());
-        if !res.damaged && plant.diode.damaged() {
-            res.damaged = true;
-            res.happenings.push(Happening::FacetDamage { tick });
-        }
-        let st = board.ctl().state();
-        if st == State::Regulating {
-            watch.push(
-                tick,
-                TickSample {
-                    regulating: true,
-                    dac_code: last_computed.dac_code,
-                    cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
-                    ceiling_ma: to_f(board.ctl().ceiling_iu()) * ma_per_iu,
-                    p_mw,
-                    monitor_mw: to_f(board.ctl().measurements().monitor_ou) * mw_per_ou,
-                    setpoint_mw: (board.ctl().mode() == Mode::Apc)
-                        .then(|| to_f(board.ctl().power_target_ou()) * mw_per_ou),
-                },
-            );
-        } else {
-            watch.cut();
-        }
-        if st != last_state {
-            res.happenings.push(Happening::State { tick, state: st });
-            last_state = st;
-        }
-        let unread = board.ctl().fault_log().since(log_cursor);
-        res.faults_lost += unread.lost();
-        log_cursor = unread.resume();
-        for e in unread {
-            let r = e.record;
-            res.happenings.push(Happening::Fault {
-                tick,
-                fault: r.fault.name(),
-                measured: units.record(r.fault, r.measured),
-                limit: units.record(r.fault, r.limit),
-            });
-        }
-        // Every tick feeds the plot envelope (only what the plots draw);
-        // every `trace_every`-th is recorded whole.
-        let m = board.ctl().measurements();
-        let i_ma = plant.driver.current_a() * 1e3;
-        let monitor_mw = to_f(m.monitor_ou) * mw_per_ou;
-        let ceiling_ma = to_f(board.ctl().ceiling_iu()) * ma_per_iu;
-        let tj_c = k_to_c(plant.thermal.t_junction_k());
-        let sensed_c = to_f(m.temp_degc);
-        res.envelope.add_values(
-            tick,
-            [
-                p_mw, monitor_mw, i_ma, ceiling_ma, tj_c, sensed_c, ambient_c,
-            ],
-        );
-        if tick.is_multiple_of(trace_every) {
-            let status = board.ctl().status();
-            let row = TraceRow {
-                tick,
-                t_s: tick as f64 * dt,
-                state: st,
-                mode: status.mode,
-                enable: applied.enable,
-                dac_code: applied.dac_code,
-                faults: status.faults,
-                warnings: status.warnings,
-                p_mw,
-                i_ma,
-                cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
-                ceiling_ma,
-                monitor_mw,
-                tj_c,
-                sensed_c,
-                ambient_c,
-                supply_v: plant.supply_v,
-                supply_sensed_v: to_f(m.supply_vu) * units.mv_per_vu() * 1e-3,
-                v_f_v: plant.v_f,
-                wavelength_nm: plant.wavelength_m * 1e9,
-                age_h: plant.diode.age_hours(),
-                threshold_factor: plant.diode.aging_factors().0,
-                slope_factor: plant.diode.aging_factors().1,
->>>>>>> main
             };
             // What the hardware was set to `latency` ticks ago takes effect now.
             if let Some(d) = std::mem::replace(&mut self.pipeline[self.slot], computed) {
@@ -1212,12 +1072,12 @@ impl Runner {
                     tick,
                     self.last_warnings,
                     warnings,
-                    (p, to_f(d), m),
+                    (p, to_f(d) * self.ma_per_iu, m),
                     self.merge_ticks,
                 );
                 self.last_warnings = warnings;
             }
-            self.prev = (p_mw, ctl.drive_ma(), ctl.mode());
+            self.prev = (p_mw, ctl.drive_iu(), ctl.mode());
             if !res.damaged && plant.diode.damaged() {
                 res.damaged = true;
                 res.happenings.push(Happening::FacetDamage { tick });
@@ -1229,11 +1089,12 @@ impl Runner {
                     TickSample {
                         regulating: true,
                         dac_code: self.last_computed.dac_code,
-                        cmd_ma: to_f(ctl.drive_ma()),
-                        ceiling_ma: to_f(ctl.ceiling_ma()),
+                        cmd_ma: to_f(ctl.drive_iu()) * self.ma_per_iu,
+                        ceiling_ma: to_f(ctl.ceiling_iu()) * self.ma_per_iu,
                         p_mw,
-                        monitor_mw: to_f(ctl.measurements().monitor_mw),
-                        setpoint_mw: (ctl.mode() == Mode::Apc).then(|| to_f(ctl.power_target_mw())),
+                        monitor_mw: to_f(ctl.measurements().monitor_ou) * self.mw_per_ou,
+                        setpoint_mw: (ctl.mode() == Mode::Apc)
+                            .then(|| to_f(ctl.power_target_ou()) * self.mw_per_ou),
                     },
                 );
             } else {
@@ -1254,8 +1115,8 @@ impl Runner {
                     res.happenings.push(Happening::Fault {
                         tick,
                         fault: r.fault.name(),
-                        measured: to_f(r.measured),
-                        limit: to_f(r.limit),
+                        measured: self.units.record(r.fault, r.measured),
+                        limit: self.units.record(r.fault, r.limit),
                     });
                 }
             }
@@ -1263,8 +1124,8 @@ impl Runner {
             // every `trace_every`-th is recorded whole.
             let m = ctl.measurements();
             let i_ma = plant.driver.current_a() * 1e3;
-            let monitor_mw = to_f(m.monitor_mw);
-            let ceiling_ma = to_f(ctl.ceiling_ma());
+            let monitor_mw = to_f(m.monitor_ou) * self.mw_per_ou;
+            let ceiling_ma = to_f(ctl.ceiling_iu()) * self.ma_per_iu;
             let tj_c = k_to_c(plant.thermal.t_junction_k());
             let sensed_c = to_f(m.temp_degc);
             res.envelope.add_values(
@@ -1286,14 +1147,14 @@ impl Runner {
                     warnings: status.warnings,
                     p_mw,
                     i_ma,
-                    cmd_ma: to_f(ctl.drive_ma()),
+                    cmd_ma: to_f(ctl.drive_iu()) * self.ma_per_iu,
                     ceiling_ma,
                     monitor_mw,
                     tj_c,
                     sensed_c,
                     ambient_c,
                     supply_v: plant.supply_v,
-                    supply_sensed_v: to_f(m.supply_mv) * 1e-3,
+                    supply_sensed_v: to_f(m.supply_vu) * self.units.mv_per_vu() * 1e-3,
                     v_f_v: plant.v_f,
                     wavelength_nm: plant.wavelength_m * 1e9,
                     age_h: plant.diode.age_hours(),
@@ -1327,7 +1188,8 @@ impl Runner {
         res.loop_findings = watch.finish();
         for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
             s.raised_ticks += res.ticks - s.last_raised_tick;
-            (s.last_p_mw, s.last_drive_ma, s.last_mode) = (prev.0, to_f(prev.1), prev.2);
+            (s.last_p_mw, s.last_drive_ma, s.last_mode) =
+                (prev.0, to_f(prev.1) * self.ma_per_iu, prev.2);
         }
         res.trace_stride = kept.stride() * trace_every;
         res.trace = kept.into_rows();
