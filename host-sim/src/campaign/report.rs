@@ -358,7 +358,7 @@ pub fn markdown(rec: &Record) -> String {
     }) {
         let _ = writeln!(
             s,
-            "Worst case against the ratings: {} at {} on {} (peak {:.3} mW against {:.3} mW rated; {:.3} uJ above it; peak {:.3} mA against {:.3} mA rated).",
+            "\nWorst case against the ratings: {} at {} on {} (peak {:.3} mW against {:.3} mW rated; {:.3} uJ above it; peak {:.3} mA against {:.3} mA rated).",
             w.fault,
             w.moment.name(),
             w.corner,

@@ -380,8 +380,9 @@ impl Assessment {
             s.push_str("**Verdict: PASS** at every corner.\n\n");
         } else {
             s.push_str(&format!(
-                "**Verdict: FAIL** ({} findings)\n\n",
-                findings.len()
+                "**Verdict: FAIL** ({} finding{})\n\n",
+                findings.len(),
+                if findings.len() == 1 { "" } else { "s" }
             ));
             for f in &findings {
                 s.push_str(&format!("- corner {}: {}\n", f.corner, f.figure));

@@ -333,7 +333,7 @@ pub fn report(
             if n == 0 {
                 "pass".to_string()
             } else {
-                format!("FAIL ({n} findings)")
+                format!("FAIL ({})", crate::count_of(n, "finding"))
             },
             dir.display()
         );
@@ -393,8 +393,8 @@ pub fn gate(
             println!("FAIL {f}");
         }
         Err(format!(
-            "loop gate failed: {} findings; first: {}",
-            failures.len(),
+            "loop gate failed: {}; first: {}",
+            crate::count_of(failures.len(), "finding"),
             failures[0]
         ))
     }

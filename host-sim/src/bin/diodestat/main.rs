@@ -241,6 +241,15 @@ fn finite_in(
     }
 }
 
+/// "1 finding", "2 findings": a count with its noun in the right number.
+fn count_of(n: usize, noun: &str) -> String {
+    if n == 1 {
+        format!("1 {noun}")
+    } else {
+        format!("{n} {noun}s")
+    }
+}
+
 fn range_text(lo: f64, hi: f64, unit: &str) -> String {
     match (lo == f64::MIN_POSITIVE, hi == f64::MAX) {
         (true, true) => format!(" above 0{unit}"),
@@ -795,5 +804,17 @@ fn main() -> ExitCode {
             eprintln!("error: {e}");
             ExitCode::FAILURE
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::count_of;
+
+    #[test]
+    fn a_count_takes_the_noun_in_its_number() {
+        assert_eq!(count_of(0, "finding"), "0 findings");
+        assert_eq!(count_of(1, "finding"), "1 finding");
+        assert_eq!(count_of(2, "finding"), "2 findings");
     }
 }
