@@ -603,3 +603,26 @@ fn regulation_holds_the_setpoint_across_the_range() {
         assert!(r.ctl.faults().is_empty());
     }
 }
+
+/// APC -> ACC needs nothing from the power loop: the switch leaves its
+/// ramped setpoint and its integrator as they were, whatever the monitor
+/// reads on that tick (only a switch to APC while regulating starts the
+/// loop afresh, from the measured power and the present drive).
+#[test]
+fn apc_to_acc_leaves_the_power_loop_as_it_was() {
+    let cfg = demo();
+    let mon = cfg.config().calibration.monitor;
+    let mut r = Rig::regulating_apc(cfg, fx(12.0), 1_000);
+    let (sp, integ) = (r.ctl.power_setpoint_mw(), r.ctl.integrator_ma());
+    assert_eq!(sp, fx(12.0));
+    r.req(Request::SetCurrentMa(r.ctl.drive_ma()));
+    r.req(Request::SetMode(Mode::Acc));
+    let dim = counts_for(&mon, fx(5.0));
+    let d = r.step_with(|s| s.monitor_counts = dim);
+    assert_eq!(
+        (d.status.mode, d.status.state),
+        (Mode::Acc, State::Regulating)
+    );
+    assert_eq!(r.ctl.power_setpoint_mw(), sp);
+    assert_eq!(r.ctl.integrator_ma(), integ);
+}
