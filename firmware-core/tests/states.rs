@@ -626,3 +626,21 @@ fn apc_to_acc_leaves_the_power_loop_as_it_was() {
     assert_eq!(r.ctl.power_setpoint_mw(), sp);
     assert_eq!(r.ctl.integrator_ma(), integ);
 }
+
+/// In ACC the at-ceiling warning says whether the current setpoint is
+/// held on the ceiling in force: off below it, on at it.
+#[test]
+fn acc_warns_at_the_ceiling_and_not_below_it() {
+    let cfg = demo();
+    let top = cfg.config().current.ceiling_ma;
+    let mut r = Rig::regulating_acc(cfg.clone(), fx(40.0));
+    let d = r.run(10);
+    assert!(
+        !d.status.warnings.at_ceiling,
+        "40 mA under a {top} mA ceiling"
+    );
+    let mut r = Rig::regulating_acc(cfg, top);
+    let d = r.run(10);
+    assert_eq!(r.ctl.drive_ma(), top);
+    assert!(d.status.warnings.at_ceiling, "on the {top} mA ceiling");
+}
