@@ -38,8 +38,8 @@ fn bench(c: &mut Criterion) {
 
     let cfg = apc.cfg().clone();
     let oc = lowest_at_or_above(
-        |k| cfg.current_ma(k),
-        cfg.config().protection.overcurrent_ma,
+        |k| cfg.current_iu(k),
+        cfg.config().protection.overcurrent_iu,
         cfg.config().calibration.current_sense.full_scale_counts,
     );
     {

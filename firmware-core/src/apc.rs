@@ -21,19 +21,19 @@ const FX_FRAC: u32 = 16;
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct PowerLoop {
-    /// Integrator in mA with 40 fractional bits.
+    /// Integrator in iu with 40 fractional bits.
     integ: i64,
 }
 
 /// Limits for one PI step.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub(crate) struct Limits {
-    /// Output of the previous tick, mA.
-    pub prev_ma: Fx,
-    /// Slew per tick, mA.
-    pub slew_ma: Fx,
-    /// Ceiling for this tick, mA.
-    pub ceiling_ma: Fx,
+    /// Output of the previous tick, iu.
+    pub prev_iu: Fx,
+    /// Slew per tick, iu.
+    pub slew_iu: Fx,
+    /// Ceiling for this tick, iu.
+    pub ceiling_iu: Fx,
 }
 
 #[inline]
@@ -57,18 +57,18 @@ fn from_wide(w: i64) -> Fx {
 }
 
 impl PowerLoop {
-    /// Set the integrator so that, at zero error, the output is `out_ma`
+    /// Set the integrator so that, at zero error, the output is `out_iu`
     /// (bumpless hand-over and transfer).
-    pub(crate) fn preset(&mut self, out_ma: Fx) {
-        self.integ = to_wide(out_ma);
+    pub(crate) fn preset(&mut self, out_iu: Fx) {
+        self.integ = to_wide(out_iu);
     }
 
-    /// The integrator value, mA.
-    pub fn integrator_ma(&self) -> Fx {
+    /// The integrator value, iu.
+    pub fn integrator_iu(&self) -> Fx {
         from_wide(self.integ)
     }
 
-    /// One PI step. Returns the new output in mA.
+    /// One PI step. Returns the new output in iu.
     ///
     /// The integrator and the sums are 64-bit; only the proportional term
     /// and the output saturate to the [`Fx`] range. The integrator always
@@ -81,11 +81,11 @@ impl PowerLoop {
         &mut self,
         kp: Fx,
         ki: Gain,
-        setpoint_mw: Fx,
-        monitor_mw: Fx,
+        setpoint_ou: Fx,
+        monitor_ou: Fx,
         lim: Limits,
     ) -> Fx {
-        let e = setpoint_mw.saturating_sub(monitor_mw);
+        let e = setpoint_ou.saturating_sub(monitor_ou);
         // `kp.saturating_mul(e)`: the product floored to 16 fractional
         // bits, saturated.
         let p = sat_shr16(i64::from(kp.to_bits()) * i64::from(e.to_bits()));
@@ -102,10 +102,10 @@ impl PowerLoop {
         } else {
             from_wide(candidate.wrapping_add(to_wide(Fx::from_bits(p))))
         };
-        let lo = lim.prev_ma.saturating_sub(lim.slew_ma);
-        let hi = lim.prev_ma.saturating_add(lim.slew_ma);
+        let lo = lim.prev_iu.saturating_sub(lim.slew_iu);
+        let hi = lim.prev_iu.saturating_add(lim.slew_iu);
         let slewed = clamp_fx(u, lo, hi);
-        let out = clamp_fx(slewed, Fx::ZERO, lim.ceiling_ma);
+        let out = clamp_fx(slewed, Fx::ZERO, lim.ceiling_iu);
         let pushing_up = out < u && e > Fx::ZERO;
         let pushing_down = out > u && e < Fx::ZERO;
         let integ = if pushing_up || pushing_down {
@@ -114,7 +114,7 @@ impl PowerLoop {
             candidate
         };
         // The integrator never holds more than the ceiling nor less than zero.
-        let top = to_wide(lim.ceiling_ma.max(Fx::ZERO));
+        let top = to_wide(lim.ceiling_iu.max(Fx::ZERO));
         self.integ = if integ < 0 {
             0
         } else if integ > top {
@@ -152,26 +152,26 @@ mod tests {
         integ: &mut i64,
         kp: Fx,
         ki: Gain,
-        setpoint_mw: Fx,
-        monitor_mw: Fx,
+        setpoint_ou: Fx,
+        monitor_ou: Fx,
         lim: Limits,
     ) -> Fx {
-        let e = setpoint_mw.saturating_sub(monitor_mw);
+        let e = setpoint_ou.saturating_sub(monitor_ou);
         let p = kp.saturating_mul(e);
         let inc = (e.to_bits() as i64).saturating_mul(ki.to_bits() as i64);
         let candidate = integ.saturating_add(inc);
         let u = Fx::from_bits(sat_i32(
             candidate.saturating_add(to_wide(p)) >> (FRAC - FX_FRAC),
         ));
-        let lo = lim.prev_ma.saturating_sub(lim.slew_ma);
-        let hi = lim.prev_ma.saturating_add(lim.slew_ma);
-        let out = clamp_fx(clamp_fx(u, lo, hi), Fx::ZERO, lim.ceiling_ma);
+        let lo = lim.prev_iu.saturating_sub(lim.slew_iu);
+        let hi = lim.prev_iu.saturating_add(lim.slew_iu);
+        let out = clamp_fx(clamp_fx(u, lo, hi), Fx::ZERO, lim.ceiling_iu);
         let pushing_up = out < u && e > Fx::ZERO;
         let pushing_down = out > u && e < Fx::ZERO;
         if !(pushing_up || pushing_down) {
             *integ = candidate;
         }
-        *integ = (*integ).clamp(0, to_wide(lim.ceiling_ma.max(Fx::ZERO)));
+        *integ = (*integ).clamp(0, to_wide(lim.ceiling_iu.max(Fx::ZERO)));
         out
     }
 
@@ -220,9 +220,9 @@ mod tests {
             let sp = Fx::from_bits(pick(2));
             let mon = Fx::from_bits(pick(3));
             let lim = Limits {
-                prev_ma: Fx::from_bits(pick(4)),
-                slew_ma: Fx::from_bits(pick(5)),
-                ceiling_ma: Fx::from_bits(pick(6)),
+                prev_iu: Fx::from_bits(pick(4)),
+                slew_iu: Fx::from_bits(pick(5)),
+                ceiling_iu: Fx::from_bits(pick(6)),
             };
             // Integrator states: preset from any Fx (the widest reachable),
             // then a few steps from there.
@@ -254,13 +254,13 @@ mod tests {
 
     fn lim(prev: i32, slew: i32, ceil: i32) -> Limits {
         Limits {
-            prev_ma: Fx::from_num(prev),
-            slew_ma: Fx::from_num(slew),
-            ceiling_ma: Fx::from_num(ceil),
+            prev_iu: Fx::from_num(prev),
+            slew_iu: Fx::from_num(slew),
+            ceiling_iu: Fx::from_num(ceil),
         }
     }
 
-    /// An integrator sum beyond the `Fx` range of mA saturates the output
+    /// An integrator sum beyond the `Fx` range of iu saturates the output
     /// high (it does not wrap): at a high word of exactly 2^23 (the first
     /// sum past the range) and at 1.5 × 2^23.
     #[test]
@@ -279,12 +279,12 @@ mod tests {
             );
             // Pushed up by the slew limit, which holds the integrator.
             assert_eq!(out, Fx::from_num(11), "ki bits {ki_bits}");
-            assert_eq!(pi.integrator_ma(), Fx::ZERO, "ki bits {ki_bits}");
+            assert_eq!(pi.integrator_iu(), Fx::ZERO, "ki bits {ki_bits}");
         }
     }
 
     /// A proportional term beyond the `Fx` range saturates high at the
-    /// first product past the range: kp = 2, e = 16 384 mW, kp·e = 2^47
+    /// first product past the range: kp = 2, e = 16 384 ou, kp·e = 2^47
     /// in bits (a high word of exactly 2^15).
     #[test]
     fn a_proportional_term_beyond_the_fx_range_saturates_high() {
@@ -297,7 +297,7 @@ mod tests {
             lim(10, 1, 50),
         );
         assert_eq!(out, Fx::from_num(11));
-        assert_eq!(pi.integrator_ma(), Fx::ZERO);
+        assert_eq!(pi.integrator_iu(), Fx::ZERO);
     }
 
     #[test]
@@ -308,7 +308,7 @@ mod tests {
         // e = 4: p = 8, I = 1 => u = 9.
         let u = pi.step(kp, ki, Fx::from_num(4), Fx::ZERO, lim(0, 100, 100));
         assert_eq!(u, Fx::from_num(9));
-        assert_eq!(pi.integrator_ma(), Fx::from_num(1));
+        assert_eq!(pi.integrator_iu(), Fx::from_num(1));
         // Same error: I = 2 => u = 10.
         let u = pi.step(kp, ki, Fx::from_num(4), Fx::ZERO, lim(9, 100, 100));
         assert_eq!(u, Fx::from_num(10));
@@ -324,7 +324,7 @@ mod tests {
             assert_eq!(u, Fx::from_num(10));
         }
         // The integrator stopped at the ceiling, it did not wind up to 5000.
-        assert!(pi.integrator_ma() <= Fx::from_num(10));
+        assert!(pi.integrator_iu() <= Fx::from_num(10));
     }
 
     #[test]
@@ -364,7 +364,7 @@ mod tests {
             lim(20, 1, 100),
         );
         assert_eq!(u, Fx::from_num(19));
-        assert_eq!(pi.integrator_ma(), Fx::from_num(20));
+        assert_eq!(pi.integrator_iu(), Fx::from_num(20));
     }
 
     #[test]
@@ -372,7 +372,7 @@ mod tests {
         let mut pi = PowerLoop::default();
         pi.preset(Fx::from_num(80));
         let _ = pi.step(Fx::ONE, Gain::ZERO, Fx::ZERO, Fx::ZERO, lim(40, 100, 40));
-        assert_eq!(pi.integrator_ma(), Fx::from_num(40));
+        assert_eq!(pi.integrator_iu(), Fx::from_num(40));
         let mut pi = PowerLoop::default();
         for _ in 0..10 {
             let u = pi.step(
@@ -383,7 +383,7 @@ mod tests {
                 lim(0, 100, 40),
             );
             assert_eq!(u, Fx::ZERO);
-            assert_eq!(pi.integrator_ma(), Fx::ZERO);
+            assert_eq!(pi.integrator_iu(), Fx::ZERO);
         }
     }
 

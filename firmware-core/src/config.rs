@@ -8,7 +8,7 @@
 
 use crate::fault::{Fault, SLOTS};
 use crate::temp_table::{self, TempPoint, Window, TEMP_TABLE_LEN};
-use crate::units::{ms_to_ticks, per_tick, scale_counts, Fx, Gain};
+use crate::units::{ms_to_ticks, per_tick, scale_counts, Fx, Gain, Units};
 
 /// The complete board configuration, in engineering units.
 #[derive(Clone, Debug, PartialEq)]
@@ -47,16 +47,16 @@ pub struct Config {
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct ForwardVoltage {
-    /// The channel's calibration, mV.
+    /// The channel's calibration, vu.
     pub cal: AdcCal,
     /// Reading at or above which the diode is open (the source at its
-    /// compliance), mV.
-    pub open_mv: Fx,
-    /// Reading at or below which the diode is shorted, mV.
-    pub short_mv: Fx,
+    /// compliance), vu.
+    pub open_vu: Fx,
+    /// Reading at or below which the diode is shorted, vu.
+    pub short_vu: Fx,
     /// Both apply while the command that produced the sample is at or above
-    /// this, mA (above zero; below it the voltage says little).
-    pub min_drive_ma: Fx,
+    /// this, iu (above zero; below it the voltage says little).
+    pub min_drive_iu: Fx,
     /// Debounce of both, ticks.
     pub debounce: u16,
 }
@@ -72,10 +72,10 @@ pub const DIODE_POINTS: usize = 8;
 pub struct DiodePoint {
     /// Case temperature as the core measures it, degC.
     pub degc: Fx,
-    /// Threshold current, mA.
-    pub threshold_ma: Fx,
-    /// Slope efficiency, front-facet mW per mA.
-    pub slope_mw_per_ma: Fx,
+    /// Threshold current, iu.
+    pub threshold_iu: Fx,
+    /// Slope efficiency, front-facet ou per iu.
+    pub slope_ou_per_iu: Fx,
 }
 
 /// Current-for-power plausibility. The current the healthy diode needs for
@@ -98,8 +98,8 @@ pub struct Plausibility {
     pub warning_margin: Fx,
     /// Fault margin, a fraction of `I(P, T)`, at least the warning margin.
     pub fault_margin: Fx,
-    /// Absolute allowance for sense and calibration error, mA.
-    pub allowance_ma: Fx,
+    /// Absolute allowance for sense and calibration error, iu.
+    pub allowance_iu: Fx,
     /// Debounce of the fault, ticks.
     pub debounce: u16,
 }
@@ -110,22 +110,22 @@ pub struct Plausibility {
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct CurrentLimits {
-    /// Absolute maximum current of the diode (datasheet rating), mA.
-    pub absolute_max_ma: Fx,
-    /// Operating ceiling below the absolute maximum, mA. No path commands more.
-    pub ceiling_ma: Fx,
+    /// Absolute maximum current of the diode (datasheet rating), iu.
+    pub absolute_max_iu: Fx,
+    /// Operating ceiling below the absolute maximum, iu. No path commands more.
+    pub ceiling_iu: Fx,
 }
 
-/// Accepted optical power setpoints, front-facet mW as calibrated on the monitor.
+/// Accepted optical power setpoints, front-facet ou as calibrated on the monitor.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct PowerRange {
-    /// Lowest setpoint, mW.
-    pub min_setpoint_mw: Fx,
-    /// Highest setpoint, mW.
-    pub max_setpoint_mw: Fx,
+    /// Lowest setpoint, ou.
+    pub min_setpoint_ou: Fx,
+    /// Highest setpoint, ou.
+    pub max_setpoint_ou: Fx,
 }
 
 /// Ramps and delays. Rates are per millisecond; the core converts them to
@@ -137,16 +137,16 @@ pub struct PowerRange {
 pub struct Ramps {
     /// Delay between the enable request and the start of current, ms (may be 0).
     pub emission_delay_ms: u32,
-    /// Soft-start current rate, mA/ms. Also bounds how fast the ceiling
+    /// Soft-start current rate, iu/ms. Also bounds how fast the ceiling
     /// envelope rises after the hand-over.
-    pub soft_start_ma_per_ms: Fx,
-    /// Soft-stop current rate, mA/ms.
-    pub soft_stop_ma_per_ms: Fx,
+    pub soft_start_iu_per_ms: Fx,
+    /// Soft-stop current rate, iu/ms.
+    pub soft_stop_iu_per_ms: Fx,
     /// Fraction of the power setpoint at which soft start hands over to the
     /// power loop, in (0, 1].
     pub handover_fraction: Fx,
-    /// Power setpoint ramp, mW/ms.
-    pub setpoint_mw_per_ms: Fx,
+    /// Power setpoint ramp, ou/ms.
+    pub setpoint_ou_per_ms: Fx,
 }
 
 /// Gains and slew limit of the discrete PI power loop and the ACC slew.
@@ -155,12 +155,12 @@ pub struct Ramps {
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct ApcGains {
-    /// Proportional gain, mA per mW of error.
-    pub kp_ma_per_mw: Fx,
-    /// Integral gain, mA per (mW × ms) of error.
-    pub ki_ma_per_mw_ms: Fx,
-    /// Output slew limit, mA/ms (APC and ACC).
-    pub slew_ma_per_ms: Fx,
+    /// Proportional gain, iu per ou of error.
+    pub kp_iu_per_ou: Fx,
+    /// Integral gain, iu per (ou × ms) of error.
+    pub ki_iu_per_ou_ms: Fx,
+    /// Output slew limit, iu/ms (APC and ACC).
+    pub slew_iu_per_ms: Fx,
 }
 
 /// Temperature derating: full ceiling below the knee, linear to the floor at
@@ -174,8 +174,8 @@ pub struct Derating {
     pub knee_degc: Fx,
     /// Temperature where the ceiling reaches the floor and over-temperature trips, degC.
     pub cutoff_degc: Fx,
-    /// Ceiling at the cut-off, mA.
-    pub floor_ma: Fx,
+    /// Ceiling at the cut-off, iu.
+    pub floor_iu: Fx,
 }
 
 /// Protection limits. A limit is the first value that trips; a debounce `N`
@@ -187,19 +187,19 @@ pub struct Derating {
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Protection {
-    /// Overcurrent trip, mA (sensed).
-    pub overcurrent_ma: Fx,
+    /// Overcurrent trip, iu (sensed).
+    pub overcurrent_iu: Fx,
     /// Overcurrent debounce, ticks.
     pub overcurrent_debounce: u16,
-    /// Monitor power runaway trip, mW.
-    pub runaway_mw: Fx,
+    /// Monitor power runaway trip, ou.
+    pub runaway_ou: Fx,
     /// Runaway debounce, ticks.
     pub runaway_debounce: u16,
-    /// Monitor-loss floor: the monitor reading below which there is "no light", mW.
-    pub monitor_loss_floor_mw: Fx,
-    /// Monitor loss applies while the commanded drive is at or above this, mA
+    /// Monitor-loss floor: the monitor reading below which there is "no light", ou.
+    pub monitor_loss_floor_ou: Fx,
+    /// Monitor loss applies while the commanded drive is at or above this, iu
     /// (set it near the ceiling, and above the hottest threshold current).
-    pub monitor_loss_drive_ma: Fx,
+    pub monitor_loss_drive_iu: Fx,
     /// Monitor-loss debounce, ticks.
     pub monitor_loss_debounce: u16,
     /// Sensor open/short debounce, ticks.
@@ -208,14 +208,14 @@ pub struct Protection {
     pub over_temp_debounce: u16,
     /// Interlock debounce, ticks.
     pub interlock_debounce: u16,
-    /// Supply window low end, mV.
-    pub supply_min_mv: Fx,
-    /// Supply window high end, mV.
-    pub supply_max_mv: Fx,
+    /// Supply window low end, vu.
+    pub supply_min_vu: Fx,
+    /// Supply window high end, vu.
+    pub supply_max_vu: Fx,
     /// Supply debounce, ticks.
     pub supply_debounce: u16,
-    /// Allowed difference between sensed current and the previous command, mA.
-    pub mismatch_tolerance_ma: Fx,
+    /// Allowed difference between sensed current and the previous command, iu.
+    pub mismatch_tolerance_iu: Fx,
     /// Mismatch debounce, ticks.
     pub mismatch_debounce: u16,
     /// Number of missing ticks (gap in the tick index) that trips.
@@ -248,7 +248,8 @@ pub const fn debounce_key(fault: Fault) -> &'static str {
     fault.debounce_key()
 }
 
-/// A linear ADC channel: `value = (counts - offset_counts) × units_per_count`.
+/// A linear ADC channel: `value = (counts - offset_counts) × units_per_count`,
+/// in the unit `unit_exp` names.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
@@ -256,24 +257,33 @@ pub const fn debounce_key(fault: Fault) -> &'static str {
 pub struct AdcCal {
     /// Reading at zero input, counts.
     pub offset_counts: i32,
-    /// Engineering units per count (mW, mA or mV per count).
+    /// Engineering units per count (ou, iu or vu per count).
     pub units_per_count: Gain,
     /// Highest count the ADC returns (for example 4095 for 12 bits).
     pub full_scale_counts: u16,
+    /// The unit the channel reads in, a decade of the SI unit: `10^unit_exp`
+    /// W for the monitor, A for the current sense, V for the supply and the
+    /// forward voltage (-3: mW, mA, mV). It makes the board's [`Units`]
+    /// ([`Config::units`]) and sits in the struct's padding, so the
+    /// configuration is no larger for it.
+    pub unit_exp: i8,
 }
 
-/// The DAC that sets the current source: `code = drive_ma × codes_per_ma + offset_codes`.
+/// The DAC that sets the current source: `code = drive_iu × codes_per_iu + offset_codes`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct DacCal {
-    /// Codes per mA.
-    pub codes_per_ma: Fx,
+    /// Codes per iu.
+    pub codes_per_iu: Fx,
     /// Code at zero current.
     pub offset_codes: i32,
     /// Highest code (for example 4095 for 12 bits).
     pub max_code: u16,
+    /// The current unit of `codes_per_iu`, `10^unit_exp` A: the current
+    /// sense's (validation refuses another).
+    pub unit_exp: i8,
 }
 
 /// Which ADC rail an open temperature sensor reads.
@@ -311,11 +321,11 @@ pub struct TempCal {
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
 pub struct Calibration {
-    /// Monitor photodiode channel, in front-facet mW.
+    /// Monitor photodiode channel, in front-facet ou.
     pub monitor: AdcCal,
-    /// Drive-current sense channel, mA.
+    /// Drive-current sense channel, iu.
     pub current_sense: AdcCal,
-    /// Supply voltage channel, mV.
+    /// Supply voltage channel, vu.
     pub supply: AdcCal,
     /// Current-source DAC.
     pub dac: DacCal,
@@ -327,13 +337,13 @@ pub struct Calibration {
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum RampKind {
-    /// `ramp.soft_start_ma_per_ms`.
+    /// `ramp.soft_start_iu_per_ms`.
     SoftStart,
-    /// `ramp.soft_stop_ma_per_ms`.
+    /// `ramp.soft_stop_iu_per_ms`.
     SoftStop,
-    /// `ramp.setpoint_mw_per_ms`.
+    /// `ramp.setpoint_ou_per_ms`.
     Setpoint,
-    /// `apc.slew_ma_per_ms`.
+    /// `apc.slew_iu_per_ms`.
     Slew,
 }
 
@@ -357,6 +367,16 @@ pub enum Channel {
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum ConfigError {
+    /// A channel's `unit_exp` lies outside [`Units::MIN_EXP`] ..=
+    /// [`Units::MAX_EXP`], or differs from the channel it must agree with
+    /// (the DAC's from the current sense's, the forward voltage's from the
+    /// supply's).
+    UnitOutOfRange {
+        /// The channel.
+        channel: Channel,
+        /// Its configured decade.
+        unit_exp: i8,
+    },
     /// `tick_hz` is zero.
     TickRateZero,
     /// `tick_hz` above the 1 MHz the per-tick arithmetic is sized for.
@@ -367,33 +387,33 @@ pub enum ConfigError {
     /// The absolute maximum current is zero or negative.
     AbsoluteLimitNotPositive {
         /// Configured value.
-        absolute_max_ma: Fx,
+        absolute_max_iu: Fx,
     },
     /// The ceiling is zero or negative.
     CeilingNotPositive {
         /// Configured value.
-        ceiling_ma: Fx,
+        ceiling_iu: Fx,
     },
     /// The ceiling is above the absolute limit.
     CeilingAboveAbsolute {
         /// Configured ceiling.
-        ceiling_ma: Fx,
+        ceiling_iu: Fx,
         /// Configured absolute limit.
-        absolute_max_ma: Fx,
+        absolute_max_iu: Fx,
     },
     /// The overcurrent trip is not above the ceiling (it would trip in normal use).
     OvercurrentNotAboveCeiling {
         /// Configured trip.
-        overcurrent_ma: Fx,
+        overcurrent_iu: Fx,
         /// Configured ceiling.
-        ceiling_ma: Fx,
+        ceiling_iu: Fx,
     },
     /// The overcurrent trip is above the absolute limit.
     OvercurrentAboveAbsolute {
         /// Configured trip.
-        overcurrent_ma: Fx,
+        overcurrent_iu: Fx,
         /// Configured absolute limit.
-        absolute_max_ma: Fx,
+        absolute_max_iu: Fx,
     },
     /// A ramp or slew rate is zero or negative.
     RampRateNotPositive {
@@ -424,36 +444,36 @@ pub enum ConfigError {
     /// The power setpoint range is empty or negative.
     PowerRangeInvalid {
         /// Configured minimum.
-        min_setpoint_mw: Fx,
+        min_setpoint_ou: Fx,
         /// Configured maximum.
-        max_setpoint_mw: Fx,
+        max_setpoint_ou: Fx,
     },
     /// The runaway trip is not above the highest setpoint.
     RunawayNotAboveSetpointRange {
         /// Configured trip.
-        runaway_mw: Fx,
+        runaway_ou: Fx,
         /// Highest setpoint.
-        max_setpoint_mw: Fx,
+        max_setpoint_ou: Fx,
     },
     /// The monitor-loss floor is not below the lowest setpoint's hand-over level.
     MonitorLossFloorNotBelowSetpoints {
         /// Configured floor.
-        floor_mw: Fx,
-        /// `handover_fraction × min_setpoint_mw`.
-        lowest_handover_mw: Fx,
+        floor_ou: Fx,
+        /// `handover_fraction × min_setpoint_ou`.
+        lowest_handover_ou: Fx,
     },
     /// The monitor-loss floor is negative.
     MonitorLossFloorNegative {
         /// Configured floor.
-        floor_mw: Fx,
+        floor_ou: Fx,
     },
     /// The monitor-loss drive level is not positive or is above the ceiling
     /// (the check could never apply).
     MonitorLossDriveOutOfRange {
         /// Configured level.
-        drive_ma: Fx,
+        drive_iu: Fx,
         /// Configured ceiling.
-        ceiling_ma: Fx,
+        ceiling_iu: Fx,
     },
     /// The derating knee is not below the cut-off.
     DeratingKneeNotBelowCutoff {
@@ -465,9 +485,9 @@ pub enum ConfigError {
     /// The derating floor is negative or above the ceiling.
     DeratingFloorOutOfRange {
         /// Configured floor.
-        floor_ma: Fx,
+        floor_iu: Fx,
         /// Configured ceiling.
-        ceiling_ma: Fx,
+        ceiling_iu: Fx,
     },
     /// The temperature table has fewer than two points.
     TempTableTooShort {
@@ -501,17 +521,17 @@ pub enum ConfigError {
         /// Configured gain.
         gain: Fx,
     },
-    /// `kp × runaway_mw` does not fit the fixed-point range.
+    /// `kp × runaway_ou` does not fit the fixed-point range.
     ProportionalGainOverflow {
         /// Configured gain.
-        kp_ma_per_mw: Fx,
+        kp_iu_per_ou: Fx,
         /// The error range it must handle.
-        runaway_mw: Fx,
+        runaway_ou: Fx,
     },
     /// The integral gain per tick does not fit (or rounds to zero).
     IntegralGainOutOfRange {
         /// Configured gain.
-        ki_ma_per_mw_ms: Fx,
+        ki_iu_per_ou_ms: Fx,
         /// Tick rate.
         tick_hz: u32,
     },
@@ -532,7 +552,7 @@ pub enum ConfigError {
     /// The ceiling needs a DAC code above the DAC's maximum.
     CeilingNotRepresentable {
         /// Configured ceiling.
-        ceiling_ma: Fx,
+        ceiling_iu: Fx,
         /// Code it would need (saturated).
         code: i32,
         /// DAC maximum.
@@ -541,30 +561,30 @@ pub enum ConfigError {
     /// The runaway trip is above what the monitor channel can read.
     RunawayBeyondMonitorRange {
         /// Configured trip.
-        runaway_mw: Fx,
+        runaway_ou: Fx,
         /// Monitor full-scale reading.
-        full_scale_mw: Fx,
+        full_scale_ou: Fx,
     },
     /// The overcurrent trip is above what the current sense can read.
     OvercurrentBeyondSenseRange {
         /// Configured trip.
-        overcurrent_ma: Fx,
+        overcurrent_iu: Fx,
         /// Current-sense full-scale reading.
-        full_scale_ma: Fx,
+        full_scale_iu: Fx,
     },
     /// The supply window is empty or beyond the supply channel's range.
     SupplyWindowInvalid {
         /// Configured minimum.
-        supply_min_mv: Fx,
+        supply_min_vu: Fx,
         /// Configured maximum.
-        supply_max_mv: Fx,
+        supply_max_vu: Fx,
         /// Supply full-scale reading.
-        full_scale_mv: Fx,
+        full_scale_vu: Fx,
     },
     /// The mismatch tolerance is zero or negative.
     MismatchToleranceNotPositive {
         /// Configured tolerance.
-        tolerance_ma: Fx,
+        tolerance_iu: Fx,
     },
     /// A fast protection's debounce is longer than
     /// [`FAST_DEBOUNCE_MAX_US`] allows at the tick rate.
@@ -594,18 +614,18 @@ pub enum ConfigError {
     /// The forward-voltage limits are not `0 <= short < open <= full scale`.
     ForwardVoltageLimitsInvalid {
         /// Configured short floor.
-        short_mv: Fx,
+        short_vu: Fx,
         /// Configured open (compliance) level.
-        open_mv: Fx,
+        open_vu: Fx,
         /// The channel's full-scale reading.
-        full_scale_mv: Fx,
+        full_scale_vu: Fx,
     },
     /// The forward-voltage drive level is not in (0, ceiling].
     ForwardDriveOutOfRange {
         /// Configured level.
-        min_drive_ma: Fx,
+        min_drive_iu: Fx,
         /// Configured ceiling.
-        ceiling_ma: Fx,
+        ceiling_iu: Fx,
     },
     /// A plausibility point is out of order (temperatures not strictly
     /// increasing), has a negative threshold or a slope not positive, or
@@ -621,8 +641,8 @@ pub enum ConfigError {
         warning_margin: Fx,
         /// Configured fault margin.
         fault_margin: Fx,
-        /// Configured allowance, mA.
-        allowance_ma: Fx,
+        /// Configured allowance, iu.
+        allowance_iu: Fx,
     },
 }
 
@@ -630,21 +650,27 @@ impl core::fmt::Display for ConfigError {
     fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
         use ConfigError::*;
         match *self {
+            UnitOutOfRange { channel, unit_exp } => write!(
+                f,
+                "{channel:?} unit 1e{unit_exp} outside 1e{} ..= 1e{} or not its quantity's (the DAC's is the current sense's, the forward voltage's the supply's)",
+                Units::MIN_EXP,
+                Units::MAX_EXP
+            ),
             TickRateZero => write!(f, "tick rate is zero"),
             TickRateTooHigh { tick_hz } => write!(f, "tick rate {tick_hz} Hz above 1 MHz"),
-            AbsoluteLimitNotPositive { absolute_max_ma } => {
-                write!(f, "absolute current limit {absolute_max_ma} mA is not positive")
+            AbsoluteLimitNotPositive { absolute_max_iu } => {
+                write!(f, "absolute current limit {absolute_max_iu} iu is not positive")
             }
-            CeilingNotPositive { ceiling_ma } => write!(f, "ceiling {ceiling_ma} mA is not positive"),
-            CeilingAboveAbsolute { ceiling_ma, absolute_max_ma } => {
-                write!(f, "ceiling {ceiling_ma} mA above absolute limit {absolute_max_ma} mA")
+            CeilingNotPositive { ceiling_iu } => write!(f, "ceiling {ceiling_iu} iu is not positive"),
+            CeilingAboveAbsolute { ceiling_iu, absolute_max_iu } => {
+                write!(f, "ceiling {ceiling_iu} iu above absolute limit {absolute_max_iu} iu")
             }
-            OvercurrentNotAboveCeiling { overcurrent_ma, ceiling_ma } => {
-                write!(f, "overcurrent trip {overcurrent_ma} mA not above ceiling {ceiling_ma} mA")
+            OvercurrentNotAboveCeiling { overcurrent_iu, ceiling_iu } => {
+                write!(f, "overcurrent trip {overcurrent_iu} iu not above ceiling {ceiling_iu} iu")
             }
-            OvercurrentAboveAbsolute { overcurrent_ma, absolute_max_ma } => write!(
+            OvercurrentAboveAbsolute { overcurrent_iu, absolute_max_iu } => write!(
                 f,
-                "overcurrent trip {overcurrent_ma} mA above absolute limit {absolute_max_ma} mA"
+                "overcurrent trip {overcurrent_iu} iu above absolute limit {absolute_max_iu} iu"
             ),
             RampRateNotPositive { which, per_ms } => {
                 write!(f, "{which:?} rate {per_ms}/ms is not positive")
@@ -658,31 +684,31 @@ impl core::fmt::Display for ConfigError {
             HandoverFractionOutOfRange { fraction } => {
                 write!(f, "hand-over fraction {fraction} not in (0, 1]")
             }
-            PowerRangeInvalid { min_setpoint_mw, max_setpoint_mw } => write!(
+            PowerRangeInvalid { min_setpoint_ou, max_setpoint_ou } => write!(
                 f,
-                "power setpoint range {min_setpoint_mw}..{max_setpoint_mw} mW is empty or negative"
+                "power setpoint range {min_setpoint_ou}..{max_setpoint_ou} ou is empty or negative"
             ),
-            RunawayNotAboveSetpointRange { runaway_mw, max_setpoint_mw } => write!(
+            RunawayNotAboveSetpointRange { runaway_ou, max_setpoint_ou } => write!(
                 f,
-                "runaway trip {runaway_mw} mW not above the highest setpoint {max_setpoint_mw} mW"
+                "runaway trip {runaway_ou} ou not above the highest setpoint {max_setpoint_ou} ou"
             ),
-            MonitorLossFloorNotBelowSetpoints { floor_mw, lowest_handover_mw } => write!(
+            MonitorLossFloorNotBelowSetpoints { floor_ou, lowest_handover_ou } => write!(
                 f,
-                "monitor-loss floor {floor_mw} mW not below the lowest hand-over level {lowest_handover_mw} mW"
+                "monitor-loss floor {floor_ou} ou not below the lowest hand-over level {lowest_handover_ou} ou"
             ),
-            MonitorLossFloorNegative { floor_mw } => {
-                write!(f, "monitor-loss floor {floor_mw} mW is negative")
+            MonitorLossFloorNegative { floor_ou } => {
+                write!(f, "monitor-loss floor {floor_ou} ou is negative")
             }
-            MonitorLossDriveOutOfRange { drive_ma, ceiling_ma } => write!(
+            MonitorLossDriveOutOfRange { drive_iu, ceiling_iu } => write!(
                 f,
-                "monitor-loss drive level {drive_ma} mA not in (0, ceiling {ceiling_ma} mA]"
+                "monitor-loss drive level {drive_iu} iu not in (0, ceiling {ceiling_iu} iu]"
             ),
             DeratingKneeNotBelowCutoff { knee_degc, cutoff_degc } => write!(
                 f,
                 "derating knee {knee_degc} degC not below cut-off {cutoff_degc} degC"
             ),
-            DeratingFloorOutOfRange { floor_ma, ceiling_ma } => {
-                write!(f, "derating floor {floor_ma} mA not in [0, ceiling {ceiling_ma} mA]")
+            DeratingFloorOutOfRange { floor_iu, ceiling_iu } => {
+                write!(f, "derating floor {floor_iu} iu not in [0, ceiling {ceiling_iu} iu]")
             }
             TempTableTooShort { len } => write!(f, "temperature table has {len} points, needs 2"),
             TempTableNotMonotonic { index } => {
@@ -699,13 +725,13 @@ impl core::fmt::Display for ConfigError {
                 "{} gain {gain} is not positive",
                 if proportional { "proportional" } else { "integral" }
             ),
-            ProportionalGainOverflow { kp_ma_per_mw, runaway_mw } => write!(
+            ProportionalGainOverflow { kp_iu_per_ou, runaway_ou } => write!(
                 f,
-                "kp {kp_ma_per_mw} mA/mW times {runaway_mw} mW overflows the fixed-point range"
+                "kp {kp_iu_per_ou} iu/ou times {runaway_ou} ou overflows the fixed-point range"
             ),
-            IntegralGainOutOfRange { ki_ma_per_mw_ms, tick_hz } => write!(
+            IntegralGainOutOfRange { ki_iu_per_ou_ms, tick_hz } => write!(
                 f,
-                "ki {ki_ma_per_mw_ms} mA/(mW ms) at {tick_hz} Hz does not fit the per-tick gain"
+                "ki {ki_iu_per_ou_ms} iu/(ou ms) at {tick_hz} Hz does not fit the per-tick gain"
             ),
             CalibrationGainNotPositive { channel } => {
                 write!(f, "{channel:?} calibration gain is not positive")
@@ -714,24 +740,24 @@ impl core::fmt::Display for ConfigError {
                 f,
                 "{channel:?} calibration offset {offset} outside 0..={full_scale}"
             ),
-            CeilingNotRepresentable { ceiling_ma, code, max_code } => write!(
+            CeilingNotRepresentable { ceiling_iu, code, max_code } => write!(
                 f,
-                "ceiling {ceiling_ma} mA needs DAC code {code} above {max_code}"
+                "ceiling {ceiling_iu} iu needs DAC code {code} above {max_code}"
             ),
-            RunawayBeyondMonitorRange { runaway_mw, full_scale_mw } => write!(
+            RunawayBeyondMonitorRange { runaway_ou, full_scale_ou } => write!(
                 f,
-                "runaway trip {runaway_mw} mW beyond the monitor full scale {full_scale_mw} mW"
+                "runaway trip {runaway_ou} ou beyond the monitor full scale {full_scale_ou} ou"
             ),
-            OvercurrentBeyondSenseRange { overcurrent_ma, full_scale_ma } => write!(
+            OvercurrentBeyondSenseRange { overcurrent_iu, full_scale_iu } => write!(
                 f,
-                "overcurrent trip {overcurrent_ma} mA beyond the sense full scale {full_scale_ma} mA"
+                "overcurrent trip {overcurrent_iu} iu beyond the sense full scale {full_scale_iu} iu"
             ),
-            SupplyWindowInvalid { supply_min_mv, supply_max_mv, full_scale_mv } => write!(
+            SupplyWindowInvalid { supply_min_vu, supply_max_vu, full_scale_vu } => write!(
                 f,
-                "supply window {supply_min_mv}..{supply_max_mv} mV empty or beyond full scale {full_scale_mv} mV"
+                "supply window {supply_min_vu}..{supply_max_vu} vu empty or beyond full scale {full_scale_vu} vu"
             ),
-            MismatchToleranceNotPositive { tolerance_ma } => {
-                write!(f, "mismatch tolerance {tolerance_ma} mA is not positive")
+            MismatchToleranceNotPositive { tolerance_iu } => {
+                write!(f, "mismatch tolerance {tolerance_iu} iu is not positive")
             }
             FastDebounceTooLong { fault, debounce, max } => write!(
                 f,
@@ -748,21 +774,21 @@ impl core::fmt::Display for ConfigError {
                 "temperature table ends at {hottest_degc} degC: it must reach the derating cut-off plus {} degC, {needed_degc} degC",
                 TEMP_COVER_MARGIN_DEGC
             ),
-            ForwardVoltageLimitsInvalid { short_mv, open_mv, full_scale_mv } => write!(
+            ForwardVoltageLimitsInvalid { short_vu, open_vu, full_scale_vu } => write!(
                 f,
-                "forward_voltage short {short_mv} mV / open {open_mv} mV not 0 <= short < open <= full scale {full_scale_mv} mV"
+                "forward_voltage short {short_vu} vu / open {open_vu} vu not 0 <= short < open <= full scale {full_scale_vu} vu"
             ),
-            ForwardDriveOutOfRange { min_drive_ma, ceiling_ma } => write!(
+            ForwardDriveOutOfRange { min_drive_iu, ceiling_iu } => write!(
                 f,
-                "forward_voltage.min_drive_ma = {min_drive_ma} mA not in (0, ceiling {ceiling_ma} mA]"
+                "forward_voltage.min_drive_iu = {min_drive_iu} iu not in (0, ceiling {ceiling_iu} iu]"
             ),
             PlausibilityPointInvalid { index } => write!(
                 f,
                 "plausibility.points[{index}]: temperatures must rise strictly, thresholds be >= 0 and slopes > 0 (and one point at least)"
             ),
-            PlausibilityMarginsInvalid { warning_margin, fault_margin, allowance_ma } => write!(
+            PlausibilityMarginsInvalid { warning_margin, fault_margin, allowance_iu } => write!(
                 f,
-                "plausibility margins warning {warning_margin} / fault {fault_margin} not 0 <= warning <= fault <= 4, or allowance {allowance_ma} mA negative"
+                "plausibility margins warning {warning_margin} / fault {fault_margin} not 0 <= warning <= fault <= 4, or allowance {allowance_iu} iu negative"
             ),
         }
     }
@@ -783,10 +809,10 @@ pub struct ValidConfig {
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub(crate) struct PerTick {
-    pub soft_start_ma: Fx,
-    pub soft_stop_ma: Fx,
-    pub slew_ma: Fx,
-    pub setpoint_mw: Fx,
+    pub soft_start_iu: Fx,
+    pub soft_stop_iu: Fx,
+    pub slew_iu: Fx,
+    pub setpoint_ou: Fx,
     pub emission_delay: u32,
     pub ki: Gain,
     /// The fault a temperature reading at or below the low rail means
@@ -800,9 +826,9 @@ pub(crate) struct PerTick {
     pub trip_at: [u32; SLOTS],
     /// `intermittent_weight`: what a tick with the condition present adds.
     pub weight: u32,
-    /// `-mismatch_tolerance_ma` (wrapping), the lower end of the window of
+    /// `-mismatch_tolerance_iu` (wrapping), the lower end of the window of
     /// drive differences that raise no mismatch.
-    pub neg_mismatch_tolerance_ma: Fx,
+    pub neg_mismatch_tolerance_iu: Fx,
 }
 
 const MAX_TICK_HZ: u32 = 1_000_000;
@@ -819,6 +845,39 @@ fn positive_rate(which: RampKind, per_ms: Fx, tick_hz: u32) -> Result<Fx, Config
             tick_hz,
         }),
     }
+}
+
+/// Every channel's unit in range, the DAC's equal to the current sense's
+/// and the forward voltage's to the supply's (one refusal site: the check
+/// costs little flash on Cortex-M0).
+fn check_units(c: &Config) -> Result<(), ConfigError> {
+    const fn out(e: i8) -> bool {
+        e < Units::MIN_EXP || e > Units::MAX_EXP
+    }
+    let cal = &c.calibration;
+    let (m, i, v) = (
+        cal.monitor.unit_exp,
+        cal.current_sense.unit_exp,
+        cal.supply.unit_exp,
+    );
+    let fv = match &c.forward_voltage {
+        Some(f) => f.cal.unit_exp,
+        None => v,
+    };
+    let (channel, unit_exp) = if out(m) {
+        (Channel::Monitor, m)
+    } else if out(i) {
+        (Channel::CurrentSense, i)
+    } else if out(v) {
+        (Channel::Supply, v)
+    } else if cal.dac.unit_exp != i {
+        (Channel::Dac, cal.dac.unit_exp)
+    } else if fv != v {
+        (Channel::ForwardVoltage, fv)
+    } else {
+        return Ok(());
+    };
+    Err(ConfigError::UnitOutOfRange { channel, unit_exp })
 }
 
 fn check_adc(channel: Channel, cal: &AdcCal) -> Result<Fx, ConfigError> {
@@ -839,11 +898,24 @@ fn check_adc(channel: Channel, cal: &AdcCal) -> Result<Fx, ConfigError> {
 }
 
 impl Config {
+    /// What the numbers of this configuration mean: the board's current,
+    /// optical-power and voltage units (fields ending `_iu`, `_ou`, `_vu`),
+    /// as its calibration names them (the current sense's, the monitor's
+    /// and the supply's `unit_exp`).
+    pub const fn units(&self) -> Units {
+        Units {
+            current_exp: self.calibration.current_sense.unit_exp,
+            power_exp: self.calibration.monitor.unit_exp,
+            voltage_exp: self.calibration.supply.unit_exp,
+        }
+    }
+
     /// Check every field and the relations between them; derive the
     /// per-tick quantities. The first problem found is returned.
     pub fn validate(self) -> Result<ValidConfig, ConfigError> {
         use ConfigError as E;
         let c = &self;
+        check_units(c)?;
         // Tick rate.
         if c.tick_hz == 0 {
             return Err(E::TickRateZero);
@@ -853,41 +925,41 @@ impl Config {
         }
         // Current limits.
         let cur = c.current;
-        if cur.absolute_max_ma <= Fx::ZERO {
+        if cur.absolute_max_iu <= Fx::ZERO {
             return Err(E::AbsoluteLimitNotPositive {
-                absolute_max_ma: cur.absolute_max_ma,
+                absolute_max_iu: cur.absolute_max_iu,
             });
         }
-        if cur.ceiling_ma <= Fx::ZERO {
+        if cur.ceiling_iu <= Fx::ZERO {
             return Err(E::CeilingNotPositive {
-                ceiling_ma: cur.ceiling_ma,
+                ceiling_iu: cur.ceiling_iu,
             });
         }
-        if cur.ceiling_ma > cur.absolute_max_ma {
+        if cur.ceiling_iu > cur.absolute_max_iu {
             return Err(E::CeilingAboveAbsolute {
-                ceiling_ma: cur.ceiling_ma,
-                absolute_max_ma: cur.absolute_max_ma,
+                ceiling_iu: cur.ceiling_iu,
+                absolute_max_iu: cur.absolute_max_iu,
             });
         }
         let p = c.protection;
-        if p.overcurrent_ma <= cur.ceiling_ma {
+        if p.overcurrent_iu <= cur.ceiling_iu {
             return Err(E::OvercurrentNotAboveCeiling {
-                overcurrent_ma: p.overcurrent_ma,
-                ceiling_ma: cur.ceiling_ma,
+                overcurrent_iu: p.overcurrent_iu,
+                ceiling_iu: cur.ceiling_iu,
             });
         }
-        if p.overcurrent_ma > cur.absolute_max_ma {
+        if p.overcurrent_iu > cur.absolute_max_iu {
             return Err(E::OvercurrentAboveAbsolute {
-                overcurrent_ma: p.overcurrent_ma,
-                absolute_max_ma: cur.absolute_max_ma,
+                overcurrent_iu: p.overcurrent_iu,
+                absolute_max_iu: cur.absolute_max_iu,
             });
         }
         // Ramps.
         let r = c.ramp;
-        let soft_start_ma = positive_rate(RampKind::SoftStart, r.soft_start_ma_per_ms, c.tick_hz)?;
-        let soft_stop_ma = positive_rate(RampKind::SoftStop, r.soft_stop_ma_per_ms, c.tick_hz)?;
-        let setpoint_mw = positive_rate(RampKind::Setpoint, r.setpoint_mw_per_ms, c.tick_hz)?;
-        let slew_ma = positive_rate(RampKind::Slew, c.apc.slew_ma_per_ms, c.tick_hz)?;
+        let soft_start_iu = positive_rate(RampKind::SoftStart, r.soft_start_iu_per_ms, c.tick_hz)?;
+        let soft_stop_iu = positive_rate(RampKind::SoftStop, r.soft_stop_iu_per_ms, c.tick_hz)?;
+        let setpoint_ou = positive_rate(RampKind::Setpoint, r.setpoint_ou_per_ms, c.tick_hz)?;
+        let slew_iu = positive_rate(RampKind::Slew, c.apc.slew_iu_per_ms, c.tick_hz)?;
         let emission_delay =
             ms_to_ticks(r.emission_delay_ms, c.tick_hz).ok_or(E::EmissionDelayTooLong {
                 emission_delay_ms: r.emission_delay_ms,
@@ -899,34 +971,34 @@ impl Config {
         }
         // Power range and the monitor checks that depend on it.
         let pw = c.power;
-        if pw.min_setpoint_mw <= Fx::ZERO || pw.min_setpoint_mw > pw.max_setpoint_mw {
+        if pw.min_setpoint_ou <= Fx::ZERO || pw.min_setpoint_ou > pw.max_setpoint_ou {
             return Err(E::PowerRangeInvalid {
-                min_setpoint_mw: pw.min_setpoint_mw,
-                max_setpoint_mw: pw.max_setpoint_mw,
+                min_setpoint_ou: pw.min_setpoint_ou,
+                max_setpoint_ou: pw.max_setpoint_ou,
             });
         }
-        if p.runaway_mw <= pw.max_setpoint_mw {
+        if p.runaway_ou <= pw.max_setpoint_ou {
             return Err(E::RunawayNotAboveSetpointRange {
-                runaway_mw: p.runaway_mw,
-                max_setpoint_mw: pw.max_setpoint_mw,
+                runaway_ou: p.runaway_ou,
+                max_setpoint_ou: pw.max_setpoint_ou,
             });
         }
-        if p.monitor_loss_floor_mw < Fx::ZERO {
+        if p.monitor_loss_floor_ou < Fx::ZERO {
             return Err(E::MonitorLossFloorNegative {
-                floor_mw: p.monitor_loss_floor_mw,
+                floor_ou: p.monitor_loss_floor_ou,
             });
         }
-        let lowest_handover_mw = pw.min_setpoint_mw.saturating_mul(r.handover_fraction);
-        if p.monitor_loss_floor_mw >= lowest_handover_mw {
+        let lowest_handover_ou = pw.min_setpoint_ou.saturating_mul(r.handover_fraction);
+        if p.monitor_loss_floor_ou >= lowest_handover_ou {
             return Err(E::MonitorLossFloorNotBelowSetpoints {
-                floor_mw: p.monitor_loss_floor_mw,
-                lowest_handover_mw,
+                floor_ou: p.monitor_loss_floor_ou,
+                lowest_handover_ou,
             });
         }
-        if p.monitor_loss_drive_ma <= Fx::ZERO || p.monitor_loss_drive_ma > cur.ceiling_ma {
+        if p.monitor_loss_drive_iu <= Fx::ZERO || p.monitor_loss_drive_iu > cur.ceiling_iu {
             return Err(E::MonitorLossDriveOutOfRange {
-                drive_ma: p.monitor_loss_drive_ma,
-                ceiling_ma: cur.ceiling_ma,
+                drive_iu: p.monitor_loss_drive_iu,
+                ceiling_iu: cur.ceiling_iu,
             });
         }
         // Derating.
@@ -937,10 +1009,10 @@ impl Config {
                 cutoff_degc: d.cutoff_degc,
             });
         }
-        if d.floor_ma < Fx::ZERO || d.floor_ma > cur.ceiling_ma {
+        if d.floor_iu < Fx::ZERO || d.floor_iu > cur.ceiling_iu {
             return Err(E::DeratingFloorOutOfRange {
-                floor_ma: d.floor_ma,
-                ceiling_ma: cur.ceiling_ma,
+                floor_iu: d.floor_iu,
+                ceiling_iu: cur.ceiling_iu,
             });
         }
         // Debounces: none zero, the fast ones bounded.
@@ -966,33 +1038,33 @@ impl Config {
         if p.missed_tick_limit == 0 {
             return Err(E::MissedTickLimitZero);
         }
-        if p.mismatch_tolerance_ma <= Fx::ZERO {
+        if p.mismatch_tolerance_iu <= Fx::ZERO {
             return Err(E::MismatchToleranceNotPositive {
-                tolerance_ma: p.mismatch_tolerance_ma,
+                tolerance_iu: p.mismatch_tolerance_iu,
             });
         }
         // Loop gains.
         let g = c.apc;
-        if g.kp_ma_per_mw <= Fx::ZERO {
+        if g.kp_iu_per_ou <= Fx::ZERO {
             return Err(E::GainNotPositive {
                 proportional: true,
-                gain: g.kp_ma_per_mw,
+                gain: g.kp_iu_per_ou,
             });
         }
-        if g.ki_ma_per_mw_ms < Fx::ZERO {
+        if g.ki_iu_per_ou_ms < Fx::ZERO {
             return Err(E::GainNotPositive {
                 proportional: false,
-                gain: g.ki_ma_per_mw_ms,
+                gain: g.ki_iu_per_ou_ms,
             });
         }
-        if g.kp_ma_per_mw.checked_mul(p.runaway_mw).is_none() {
+        if g.kp_iu_per_ou.checked_mul(p.runaway_ou).is_none() {
             return Err(E::ProportionalGainOverflow {
-                kp_ma_per_mw: g.kp_ma_per_mw,
-                runaway_mw: p.runaway_mw,
+                kp_iu_per_ou: g.kp_iu_per_ou,
+                runaway_ou: p.runaway_ou,
             });
         }
-        let ki = ki_per_tick(g.ki_ma_per_mw_ms, c.tick_hz).ok_or(E::IntegralGainOutOfRange {
-            ki_ma_per_mw_ms: g.ki_ma_per_mw_ms,
+        let ki = ki_per_tick(g.ki_iu_per_ou_ms, c.tick_hz).ok_or(E::IntegralGainOutOfRange {
+            ki_iu_per_ou_ms: g.ki_iu_per_ou_ms,
             tick_hz: c.tick_hz,
         })?;
         // Calibration.
@@ -1000,30 +1072,30 @@ impl Config {
         let monitor_fs = check_adc(Channel::Monitor, &cal.monitor)?;
         let sense_fs = check_adc(Channel::CurrentSense, &cal.current_sense)?;
         let supply_fs = check_adc(Channel::Supply, &cal.supply)?;
-        if p.runaway_mw > monitor_fs {
+        if p.runaway_ou > monitor_fs {
             return Err(E::RunawayBeyondMonitorRange {
-                runaway_mw: p.runaway_mw,
-                full_scale_mw: monitor_fs,
+                runaway_ou: p.runaway_ou,
+                full_scale_ou: monitor_fs,
             });
         }
-        if p.overcurrent_ma > sense_fs {
+        if p.overcurrent_iu > sense_fs {
             return Err(E::OvercurrentBeyondSenseRange {
-                overcurrent_ma: p.overcurrent_ma,
-                full_scale_ma: sense_fs,
+                overcurrent_iu: p.overcurrent_iu,
+                full_scale_iu: sense_fs,
             });
         }
-        if p.supply_min_mv >= p.supply_max_mv
-            || p.supply_min_mv < Fx::ZERO
-            || p.supply_max_mv > supply_fs
+        if p.supply_min_vu >= p.supply_max_vu
+            || p.supply_min_vu < Fx::ZERO
+            || p.supply_max_vu > supply_fs
         {
             return Err(E::SupplyWindowInvalid {
-                supply_min_mv: p.supply_min_mv,
-                supply_max_mv: p.supply_max_mv,
-                full_scale_mv: supply_fs,
+                supply_min_vu: p.supply_min_vu,
+                supply_max_vu: p.supply_max_vu,
+                full_scale_vu: supply_fs,
             });
         }
         let dac = cal.dac;
-        if dac.codes_per_ma <= Fx::ZERO {
+        if dac.codes_per_iu <= Fx::ZERO {
             return Err(E::CalibrationGainNotPositive {
                 channel: Channel::Dac,
             });
@@ -1035,10 +1107,10 @@ impl Config {
                 full_scale: dac.max_code,
             });
         }
-        let ceiling_code = dac_code_unclamped(&dac, cur.ceiling_ma);
+        let ceiling_code = dac_code_unclamped(&dac, cur.ceiling_iu);
         if ceiling_code > i64::from(dac.max_code) {
             return Err(E::CeilingNotRepresentable {
-                ceiling_ma: cur.ceiling_ma,
+                ceiling_iu: cur.ceiling_iu,
                 code: crate::units::sat_i32(ceiling_code),
                 max_code: dac.max_code,
             });
@@ -1072,18 +1144,18 @@ impl Config {
             });
         }
         if let Some(fv) = &c.forward_voltage {
-            let full_scale_mv = check_adc(Channel::ForwardVoltage, &fv.cal)?;
-            if fv.short_mv < Fx::ZERO || fv.short_mv >= fv.open_mv || fv.open_mv > full_scale_mv {
+            let full_scale_vu = check_adc(Channel::ForwardVoltage, &fv.cal)?;
+            if fv.short_vu < Fx::ZERO || fv.short_vu >= fv.open_vu || fv.open_vu > full_scale_vu {
                 return Err(E::ForwardVoltageLimitsInvalid {
-                    short_mv: fv.short_mv,
-                    open_mv: fv.open_mv,
-                    full_scale_mv,
+                    short_vu: fv.short_vu,
+                    open_vu: fv.open_vu,
+                    full_scale_vu,
                 });
             }
-            if fv.min_drive_ma <= Fx::ZERO || fv.min_drive_ma > cur.ceiling_ma {
+            if fv.min_drive_iu <= Fx::ZERO || fv.min_drive_iu > cur.ceiling_iu {
                 return Err(E::ForwardDriveOutOfRange {
-                    min_drive_ma: fv.min_drive_ma,
-                    ceiling_ma: cur.ceiling_ma,
+                    min_drive_iu: fv.min_drive_iu,
+                    ceiling_iu: cur.ceiling_iu,
                 });
             }
         }
@@ -1096,10 +1168,10 @@ impl Config {
         };
         Ok(ValidConfig {
             t: PerTick {
-                soft_start_ma,
-                soft_stop_ma,
-                slew_ma,
-                setpoint_mw,
+                soft_start_iu,
+                soft_stop_iu,
+                slew_iu,
+                setpoint_ou,
                 emission_delay,
                 ki,
                 low_rail_bit: low_rail.bit(),
@@ -1114,7 +1186,7 @@ impl Config {
                         })
                 }),
                 weight: u32::from(p.intermittent_weight),
-                neg_mismatch_tolerance_ma: p.mismatch_tolerance_ma.wrapping_neg(),
+                neg_mismatch_tolerance_iu: p.mismatch_tolerance_iu.wrapping_neg(),
             },
             cfg: self,
         })
@@ -1141,8 +1213,8 @@ fn check_plausibility(pl: &Plausibility) -> Result<(), ConfigError> {
     let mut prev: Option<Fx> = None;
     for (index, pt) in pl.points.iter().enumerate() {
         if prev.is_some_and(|t| pt.degc <= t)
-            || pt.threshold_ma < Fx::ZERO
-            || pt.slope_mw_per_ma <= Fx::ZERO
+            || pt.threshold_iu < Fx::ZERO
+            || pt.slope_ou_per_iu <= Fx::ZERO
         {
             return Err(ConfigError::PlausibilityPointInvalid { index });
         }
@@ -1152,26 +1224,26 @@ fn check_plausibility(pl: &Plausibility) -> Result<(), ConfigError> {
     if pl.warning_margin < Fx::ZERO
         || pl.warning_margin > pl.fault_margin
         || pl.fault_margin > four
-        || pl.allowance_ma < Fx::ZERO
+        || pl.allowance_iu < Fx::ZERO
     {
         return Err(ConfigError::PlausibilityMarginsInvalid {
             warning_margin: pl.warning_margin,
             fault_margin: pl.fault_margin,
-            allowance_ma: pl.allowance_ma,
+            allowance_iu: pl.allowance_iu,
         });
     }
     Ok(())
 }
 
 /// Integral gain per tick: `ki_ms × 1000 / tick_hz`, as a [`Gain`].
-fn ki_per_tick(ki_ma_per_mw_ms: Fx, tick_hz: u32) -> Option<Gain> {
+fn ki_per_tick(ki_iu_per_ou_ms: Fx, tick_hz: u32) -> Option<Gain> {
     if tick_hz == 0 {
         return None;
     }
     // Fx has 16 fractional bits, Gain 24: shift up by 8 first.
-    let bits = (ki_ma_per_mw_ms.to_bits() as i64).checked_mul(1000 << 8)? / tick_hz as i64;
+    let bits = (ki_iu_per_ou_ms.to_bits() as i64).checked_mul(1000 << 8)? / tick_hz as i64;
     let g = Gain::from_bits(i32::try_from(bits).ok()?);
-    if ki_ma_per_mw_ms > Fx::ZERO && g == Gain::ZERO {
+    if ki_iu_per_ou_ms > Fx::ZERO && g == Gain::ZERO {
         return None;
     }
     Some(g)
@@ -1183,7 +1255,7 @@ fn ki_per_tick(ki_ma_per_mw_ms: Fx, tick_hz: u32) -> Option<Gain> {
 /// as the exact 64-bit sum, so the code is the same.
 #[inline]
 pub(crate) fn dac_code_clamped(dac: &DacCal, ma: Fx) -> u16 {
-    let wide = i64::from(ma.to_bits()) * i64::from(dac.codes_per_ma.to_bits());
+    let wide = i64::from(ma.to_bits()) * i64::from(dac.codes_per_iu.to_bits());
     let scaled = (wide.wrapping_add(1 << 31) >> 32) as i32;
     let code = scaled.saturating_add(dac.offset_codes);
     if code <= 0 {
@@ -1198,7 +1270,7 @@ pub(crate) fn dac_code_clamped(dac: &DacCal, ma: Fx) -> u16 {
 /// The DAC code for a current without clamping, in i64.
 pub(crate) fn dac_code_unclamped(dac: &DacCal, ma: Fx) -> i64 {
     // Fx × Fx = 32 fractional bits; round to nearest.
-    let wide = (ma.to_bits() as i64) * (dac.codes_per_ma.to_bits() as i64);
+    let wide = (ma.to_bits() as i64) * (dac.codes_per_iu.to_bits() as i64);
     ((wide + (1 << 31)) >> 32) + i64::from(dac.offset_codes)
 }
 
@@ -1208,36 +1280,36 @@ impl ValidConfig {
         &self.cfg
     }
 
-    /// Proportional gain of the power loop, mA/mW, exactly as the core uses it.
+    /// Proportional gain of the power loop, iu/ou, exactly as the core uses it.
     pub fn kp(&self) -> Fx {
-        self.cfg.apc.kp_ma_per_mw
+        self.cfg.apc.kp_iu_per_ou
     }
 
-    /// Integral gain per tick, mA/mW, exactly as the core uses it. The loop
+    /// Integral gain per tick, iu/ou, exactly as the core uses it. The loop
     /// is `u[n] = kp·e[n] + I[n]`, `I[n] = I[n-1] + ki·e[n]`, i.e.
     /// `C(z) = kp + ki·z/(z-1)`.
     pub fn ki_per_tick(&self) -> Gain {
         self.t.ki
     }
 
-    /// Soft-start step per tick, mA.
-    pub fn soft_start_ma_per_tick(&self) -> Fx {
-        self.t.soft_start_ma
+    /// Soft-start step per tick, iu.
+    pub fn soft_start_iu_per_tick(&self) -> Fx {
+        self.t.soft_start_iu
     }
 
-    /// Soft-stop step per tick, mA.
-    pub fn soft_stop_ma_per_tick(&self) -> Fx {
-        self.t.soft_stop_ma
+    /// Soft-stop step per tick, iu.
+    pub fn soft_stop_iu_per_tick(&self) -> Fx {
+        self.t.soft_stop_iu
     }
 
-    /// Output slew limit per tick, mA.
-    pub fn slew_ma_per_tick(&self) -> Fx {
-        self.t.slew_ma
+    /// Output slew limit per tick, iu.
+    pub fn slew_iu_per_tick(&self) -> Fx {
+        self.t.slew_iu
     }
 
-    /// Setpoint ramp per tick, mW.
-    pub fn setpoint_mw_per_tick(&self) -> Fx {
-        self.t.setpoint_mw
+    /// Setpoint ramp per tick, ou.
+    pub fn setpoint_ou_per_tick(&self) -> Fx {
+        self.t.setpoint_ou
     }
 
     /// Emission delay in ticks.
@@ -1263,40 +1335,40 @@ impl ValidConfig {
         dac_code_clamped(&self.cfg.calibration.dac, ma)
     }
 
-    /// Temperature-derated current ceiling at `degc`, mA: the configured
+    /// Temperature-derated current ceiling at `degc`, iu: the configured
     /// ceiling below the knee, linear to the floor at the cut-off, the floor
     /// beyond. (The absolute limit is always above it.)
-    pub fn derated_ceiling_ma(&self, degc: Fx) -> Fx {
+    pub fn derated_ceiling_iu(&self, degc: Fx) -> Fx {
         let d = &self.cfg.derating;
-        let top = self.cfg.current.ceiling_ma;
+        let top = self.cfg.current.ceiling_iu;
         if degc <= d.knee_degc {
             return top;
         }
         if degc >= d.cutoff_degc {
-            return d.floor_ma;
+            return d.floor_iu;
         }
         // top - (top - floor) × (T - knee) / (cutoff - knee), in i64.
-        let span = (top.to_bits() as i64) - (d.floor_ma.to_bits() as i64);
+        let span = (top.to_bits() as i64) - (d.floor_iu.to_bits() as i64);
         let num = (degc.to_bits() as i64) - (d.knee_degc.to_bits() as i64);
         let den = (d.cutoff_degc.to_bits() as i64) - (d.knee_degc.to_bits() as i64);
         let drop = if den > 0 { span * num / den } else { span };
         Fx::from_bits(crate::units::sat_i32(top.to_bits() as i64 - drop))
     }
 
-    /// Monitor reading in mW for raw counts.
-    pub fn monitor_mw(&self, counts: u16) -> Fx {
+    /// Monitor reading in ou for raw counts.
+    pub fn monitor_ou(&self, counts: u16) -> Fx {
         let c = &self.cfg.calibration.monitor;
         scale_counts(i32::from(counts) - c.offset_counts, c.units_per_count)
     }
 
-    /// Sensed current in mA for raw counts.
-    pub fn current_ma(&self, counts: u16) -> Fx {
+    /// Sensed current in iu for raw counts.
+    pub fn current_iu(&self, counts: u16) -> Fx {
         let c = &self.cfg.calibration.current_sense;
         scale_counts(i32::from(counts) - c.offset_counts, c.units_per_count)
     }
 
-    /// Supply in mV for raw counts.
-    pub fn supply_mv(&self, counts: u16) -> Fx {
+    /// Supply in vu for raw counts.
+    pub fn supply_vu(&self, counts: u16) -> Fx {
         let c = &self.cfg.calibration.supply;
         scale_counts(i32::from(counts) - c.offset_counts, c.units_per_count)
     }
@@ -1329,9 +1401,10 @@ mod tests {
                 }
             };
             let dac = DacCal {
-                codes_per_ma: Fx::from_bits(pick(0)),
+                codes_per_iu: Fx::from_bits(pick(0)),
                 offset_codes: pick(1),
                 max_code: pick(2) as u16,
+                unit_exp: -3,
             };
             let ma = Fx::from_bits(pick(3));
             let want = dac_code_unclamped(&dac, ma).clamp(0, i64::from(dac.max_code)) as u16;

@@ -5,7 +5,7 @@
 //!  ^                 |                 |                       |
 //!  |              Disable           Disable                 Disable
 //!  |                 v                 v                       v
-//!  +-----------------+<----- 0 mA --- Stopping <---------------+
+//!  +-----------------+<----- 0 iu --- Stopping <---------------+
 //! any state --fault--> Latched --ClearFaults (no condition present)--> Off
 //! ```
 //!
@@ -37,12 +37,12 @@ pub struct Controller {
     /// [`Drive`].
     status: Status,
     requested_mode: Mode,
-    power_target_mw: Fx,
-    power_sp_mw: Fx,
-    current_target_ma: Fx,
-    drive_ma: Fx,
-    envelope_ma: Fx,
-    ceiling_ma: Fx,
+    power_target_ou: Fx,
+    power_sp_ou: Fx,
+    current_target_iu: Fx,
+    drive_iu: Fx,
+    envelope_iu: Fx,
+    ceiling_iu: Fx,
     arming_left: u32,
     pi: PowerLoop,
     prot: Protections,
@@ -58,7 +58,7 @@ impl Controller {
     /// A controller in Off, APC mode, with the lowest power setpoint and a
     /// zero current setpoint.
     pub fn new(cfg: ValidConfig) -> Self {
-        let min_mw = cfg.config().power.min_setpoint_mw;
+        let min_ou = cfg.config().power.min_setpoint_ou;
         let temp_segment = Window::empty(&cfg.config().calibration.temperature.table);
         Controller {
             cfg,
@@ -74,12 +74,12 @@ impl Controller {
                 },
             },
             requested_mode: Mode::Apc,
-            power_target_mw: min_mw,
-            power_sp_mw: Fx::ZERO,
-            current_target_ma: Fx::ZERO,
-            drive_ma: Fx::ZERO,
-            envelope_ma: Fx::ZERO,
-            ceiling_ma: Fx::ZERO,
+            power_target_ou: min_ou,
+            power_sp_ou: Fx::ZERO,
+            current_target_iu: Fx::ZERO,
+            drive_iu: Fx::ZERO,
+            envelope_iu: Fx::ZERO,
+            ceiling_iu: Fx::ZERO,
             arming_left: 0,
             pi: PowerLoop::default(),
             prot: Protections::default(),
@@ -158,8 +158,8 @@ impl Controller {
                 }
                 Ok(())
             }
-            Request::SetPowerMw(mw) => {
-                let (min, max) = (c.power.min_setpoint_mw, c.power.max_setpoint_mw);
+            Request::SetPower(mw) => {
+                let (min, max) = (c.power.min_setpoint_ou, c.power.max_setpoint_ou);
                 if mw < min || mw > max {
                     return Err(Rejection::OutOfRange {
                         requested: mw,
@@ -167,11 +167,11 @@ impl Controller {
                         max,
                     });
                 }
-                self.power_target_mw = mw;
+                self.power_target_ou = mw;
                 Ok(())
             }
-            Request::SetCurrentMa(ma) => {
-                let max = c.current.ceiling_ma;
+            Request::SetCurrent(ma) => {
+                let max = c.current.ceiling_iu;
                 if ma < Fx::ZERO || ma > max {
                     return Err(Rejection::OutOfRange {
                         requested: ma,
@@ -179,7 +179,7 @@ impl Controller {
                         max,
                     });
                 }
-                self.current_target_ma = ma;
+                self.current_target_iu = ma;
                 Ok(())
             }
             Request::SetMode(mode) => {
@@ -198,8 +198,8 @@ impl Controller {
                 self.status.state = State::Off;
                 self.status.faults = FaultSet::EMPTY;
                 self.prot.reset();
-                self.drive_ma = Fx::ZERO;
-                self.envelope_ma = Fx::ZERO;
+                self.drive_iu = Fx::ZERO;
+                self.envelope_iu = Fx::ZERO;
                 Ok(())
             }
         }
@@ -217,7 +217,7 @@ impl Controller {
         self.last_tick = Some(s.tick);
         // The command that produced this sample: the drive of the previous
         // tick (see 3.).
-        let last_cmd = self.drive_ma;
+        let last_cmd = self.drive_iu;
         let direct;
         (self.meas, direct) =
             Measurements::from_sample(&self.cfg, s, missed, last_cmd, &mut self.temp_segment);
@@ -225,16 +225,16 @@ impl Controller {
             self.status.warnings.end_of_life = self.prot.evaluate_slow(&self.cfg, &self.meas);
         }
         let m = &self.meas;
-        let monitor_mw = m.monitor_mw;
+        let monitor_ou = m.monitor_ou;
 
         // 2. Static ceiling (configured and derated).
         let c = self.cfg.config();
         let derated = if m.sensor_at_rail {
-            c.derating.floor_ma
+            c.derating.floor_iu
         } else {
-            self.cfg.derated_ceiling_ma(m.temp_degc)
+            self.cfg.derated_ceiling_iu(m.temp_degc)
         };
-        let static_ceiling = derated.min(c.current.ceiling_ma);
+        let static_ceiling = derated.min(c.current.ceiling_iu);
         self.status.warnings.derating = !m.sensor_at_rail && m.temp_degc > c.derating.knee_degc;
         self.status.warnings.sensor_suspect = m.sensor_at_rail;
 
@@ -250,8 +250,8 @@ impl Controller {
         // ceiling. (In ACC a derated ceiling below threshold is dark by
         // design and only the configured level applies.)
         // (Evaluated only when the monitor reads dark.)
-        let loss_drive = c.protection.monitor_loss_drive_ma;
-        let (state, mode, ceiling) = (self.status.state, self.status.mode, self.ceiling_ma);
+        let loss_drive = c.protection.monitor_loss_drive_iu;
+        let (state, mode, ceiling) = (self.status.state, self.status.mode, self.ceiling_iu);
         let light_expected = || {
             if state == State::Regulating && mode == Mode::Apc {
                 loss_drive.min(ceiling)
@@ -280,47 +280,47 @@ impl Controller {
         // 4. The state. Each arm leaves the drive clamped to the ceiling in
         // force (zero when the state after it does not emit) and says
         // whether that state emits.
-        self.apply_mode_change(monitor_mw);
+        self.apply_mode_change(monitor_ou);
         let (drive, enable, at_ceiling) = match self.status.state {
             State::Off | State::Latched => {
-                self.envelope_ma = Fx::ZERO;
-                self.ceiling_ma = Fx::ZERO;
+                self.envelope_iu = Fx::ZERO;
+                self.ceiling_iu = Fx::ZERO;
                 (Fx::ZERO, false, false)
             }
             State::Arming => {
                 // Nothing starts emitting while a condition is present,
                 // debounced or not: the start waits ([`Self::start_held`]).
                 if self.arming_left == 0 && !self.present.is_empty() {
-                    self.ceiling_ma = Fx::ZERO;
+                    self.ceiling_iu = Fx::ZERO;
                     (Fx::ZERO, false, false)
                 } else if self.arming_left == 0 {
                     self.status.state = State::Ramping;
-                    self.envelope_ma = Fx::ZERO;
-                    let d = self.ramp(monitor_mw, static_ceiling);
-                    (clamp_fx(d, Fx::ZERO, self.ceiling_ma), true, false)
+                    self.envelope_iu = Fx::ZERO;
+                    let d = self.ramp(monitor_ou, static_ceiling);
+                    (clamp_fx(d, Fx::ZERO, self.ceiling_iu), true, false)
                 } else {
                     self.arming_left -= 1;
-                    self.ceiling_ma = Fx::ZERO;
+                    self.ceiling_iu = Fx::ZERO;
                     (Fx::ZERO, false, false)
                 }
             }
             State::Ramping => {
-                let d = self.ramp(monitor_mw, static_ceiling);
-                (clamp_fx(d, Fx::ZERO, self.ceiling_ma), true, false)
+                let d = self.ramp(monitor_ou, static_ceiling);
+                (clamp_fx(d, Fx::ZERO, self.ceiling_iu), true, false)
             }
             State::Regulating => {
-                let (d, at_ceiling) = self.regulate(monitor_mw, static_ceiling);
+                let (d, at_ceiling) = self.regulate(monitor_ou, static_ceiling);
                 (d, true, at_ceiling)
             }
             State::Stopping => {
                 let d = self
-                    .drive_ma
-                    .saturating_sub(self.cfg.soft_stop_ma_per_tick())
+                    .drive_iu
+                    .saturating_sub(self.cfg.soft_stop_iu_per_tick())
                     .max(Fx::ZERO)
                     .min(static_ceiling);
-                self.envelope_ma = d;
+                self.envelope_iu = d;
                 // Zero when the ramp ends in Off.
-                self.ceiling_ma = d;
+                self.ceiling_iu = d;
                 if d == Fx::ZERO {
                     self.status.state = State::Off;
                 }
@@ -328,7 +328,7 @@ impl Controller {
             }
         };
         self.status.warnings.at_ceiling = at_ceiling;
-        self.drive_ma = drive;
+        self.drive_iu = drive;
         Drive {
             dac_code: if enable { self.cfg.dac_code(drive) } else { 0 },
             enable,
@@ -336,62 +336,62 @@ impl Controller {
         }
     }
 
-    fn apply_mode_change(&mut self, monitor_mw: Fx) {
+    fn apply_mode_change(&mut self, monitor_ou: Fx) {
         if self.requested_mode == self.status.mode {
             return;
         }
         if self.status.state == State::Regulating && self.requested_mode == Mode::Apc {
             // Bumpless ACC -> APC: start the power setpoint at the measured
             // power and the integrator at the present drive.
-            self.power_sp_mw = self.measured_setpoint(monitor_mw);
-            self.pi.preset(self.drive_ma);
+            self.power_sp_ou = self.measured_setpoint(monitor_ou);
+            self.pi.preset(self.drive_iu);
         }
         // APC -> ACC needs nothing: the drive slews from where it is.
         self.status.mode = self.requested_mode;
     }
 
     /// Soft start in current mode.
-    fn ramp(&mut self, monitor_mw: Fx, static_ceiling: Fx) -> Fx {
+    fn ramp(&mut self, monitor_ou: Fx, static_ceiling: Fx) -> Fx {
         let c = self.cfg.config();
-        let handover_mw = self
-            .power_target_mw
+        let handover_ou = self
+            .power_target_ou
             .saturating_mul(c.ramp.handover_fraction);
         match self.status.mode {
-            Mode::Apc if monitor_mw >= handover_mw => {
+            Mode::Apc if monitor_ou >= handover_ou => {
                 // Hand over at the present drive: the power setpoint ramps
                 // on from the measured power.
                 self.status.state = State::Regulating;
-                self.power_sp_mw = self.measured_setpoint(monitor_mw);
-                self.pi.preset(self.drive_ma);
-                self.ceiling_ma = self.envelope_ma.min(static_ceiling);
-                return self.drive_ma;
+                self.power_sp_ou = self.measured_setpoint(monitor_ou);
+                self.pi.preset(self.drive_iu);
+                self.ceiling_iu = self.envelope_iu.min(static_ceiling);
+                return self.drive_iu;
             }
             _ => {}
         }
         let env = self
-            .envelope_ma
-            .saturating_add(self.cfg.soft_start_ma_per_tick());
+            .envelope_iu
+            .saturating_add(self.cfg.soft_start_iu_per_tick());
         let target = match self.status.mode {
             Mode::Apc => static_ceiling,
-            Mode::Acc => self.current_target_ma.min(static_ceiling),
+            Mode::Acc => self.current_target_iu.min(static_ceiling),
         };
         // A target below the present drive (ACC setpoint lowered, or a
         // transfer from APC) is approached at the slew rate, not in one step;
         // a lower ceiling still applies at once.
         let slew_floor = self
-            .drive_ma
-            .saturating_sub(self.cfg.slew_ma_per_tick())
+            .drive_iu
+            .saturating_sub(self.cfg.slew_iu_per_tick())
             .min(static_ceiling);
         let d = env.min(target).max(slew_floor);
-        self.envelope_ma = env.min(c.current.ceiling_ma);
-        self.ceiling_ma = self.envelope_ma.min(static_ceiling);
+        self.envelope_iu = env.min(c.current.ceiling_iu);
+        self.ceiling_iu = self.envelope_iu.min(static_ceiling);
         if d >= target {
             // Reached the ceiling (APC without enough light) or the ACC
             // setpoint, or is above the ACC setpoint: regulate from here (ACC
             // slews the rest of the way); monitor loss covers "no light".
             self.status.state = State::Regulating;
             self.pi.preset(d);
-            self.power_sp_mw = self.measured_setpoint(monitor_mw);
+            self.power_sp_ou = self.measured_setpoint(monitor_ou);
         }
         d
     }
@@ -399,49 +399,49 @@ impl Controller {
     /// The power setpoint a bumpless start of the power loop begins from:
     /// the measured power, within the accepted setpoint range; the setpoint
     /// ramp then carries it to the target from either side.
-    fn measured_setpoint(&self, monitor_mw: Fx) -> Fx {
+    fn measured_setpoint(&self, monitor_ou: Fx) -> Fx {
         clamp_fx(
-            monitor_mw,
+            monitor_ou,
             Fx::ZERO,
-            self.cfg.config().power.max_setpoint_mw,
+            self.cfg.config().power.max_setpoint_ou,
         )
     }
 
     /// Closed-loop regulation, APC or ACC: the drive, clamped to
     /// `[0, ceiling]`, and whether it sits at the ceiling (before that
     /// clamp).
-    fn regulate(&mut self, monitor_mw: Fx, static_ceiling: Fx) -> (Fx, bool) {
+    fn regulate(&mut self, monitor_ou: Fx, static_ceiling: Fx) -> (Fx, bool) {
         let c = self.cfg.config();
-        self.envelope_ma = self
-            .envelope_ma
-            .saturating_add(self.cfg.soft_start_ma_per_tick())
-            .min(c.current.ceiling_ma);
-        let ceiling = self.envelope_ma.min(static_ceiling);
-        self.ceiling_ma = ceiling;
-        let slew = self.cfg.slew_ma_per_tick();
+        self.envelope_iu = self
+            .envelope_iu
+            .saturating_add(self.cfg.soft_start_iu_per_tick())
+            .min(c.current.ceiling_iu);
+        let ceiling = self.envelope_iu.min(static_ceiling);
+        self.ceiling_iu = ceiling;
+        let slew = self.cfg.slew_iu_per_tick();
         match self.status.mode {
             Mode::Apc => {
-                self.power_sp_mw = toward(
-                    self.power_sp_mw,
-                    self.power_target_mw,
-                    self.cfg.setpoint_mw_per_tick(),
+                self.power_sp_ou = toward(
+                    self.power_sp_ou,
+                    self.power_target_ou,
+                    self.cfg.setpoint_ou_per_tick(),
                 );
                 let out = self.pi.step(
                     self.cfg.kp(),
                     self.cfg.ki_per_tick(),
-                    self.power_sp_mw,
-                    monitor_mw,
+                    self.power_sp_ou,
+                    monitor_ou,
                     Limits {
-                        prev_ma: self.drive_ma,
-                        slew_ma: slew,
-                        ceiling_ma: ceiling,
+                        prev_iu: self.drive_iu,
+                        slew_iu: slew,
+                        ceiling_iu: ceiling,
                     },
                 );
                 // The PI output is clamped to `[0, ceiling]` already.
                 (out, out >= ceiling)
             }
             Mode::Acc => {
-                let d = toward(self.drive_ma, self.current_target_ma, slew).min(ceiling);
+                let d = toward(self.drive_iu, self.current_target_iu, slew).min(ceiling);
                 (clamp_fx(d, Fx::ZERO, ceiling), d >= ceiling)
             }
         }
@@ -457,9 +457,9 @@ impl Controller {
         }
         self.status.faults.insert(rec.fault);
         self.status.state = State::Latched;
-        self.drive_ma = Fx::ZERO;
-        self.envelope_ma = Fx::ZERO;
-        self.ceiling_ma = Fx::ZERO;
+        self.drive_iu = Fx::ZERO;
+        self.envelope_iu = Fx::ZERO;
+        self.ceiling_iu = Fx::ZERO;
         self.log.record(rec);
     }
 
@@ -511,34 +511,34 @@ impl Controller {
         &self.meas
     }
 
-    /// Current commanded in the latest tick, mA.
-    pub fn drive_ma(&self) -> Fx {
-        self.drive_ma
+    /// Current commanded in the latest tick, iu.
+    pub fn drive_iu(&self) -> Fx {
+        self.drive_iu
     }
 
-    /// The ceiling in force in the latest tick, mA (zero when not emitting).
-    pub fn ceiling_ma(&self) -> Fx {
-        self.ceiling_ma
+    /// The ceiling in force in the latest tick, iu (zero when not emitting).
+    pub fn ceiling_iu(&self) -> Fx {
+        self.ceiling_iu
     }
 
-    /// The requested power setpoint, mW.
-    pub fn power_target_mw(&self) -> Fx {
-        self.power_target_mw
+    /// The requested power setpoint, ou.
+    pub fn power_target_ou(&self) -> Fx {
+        self.power_target_ou
     }
 
-    /// The ramped power setpoint the loop follows now, mW.
-    pub fn power_setpoint_mw(&self) -> Fx {
-        self.power_sp_mw
+    /// The ramped power setpoint the loop follows now, ou.
+    pub fn power_setpoint_ou(&self) -> Fx {
+        self.power_sp_ou
     }
 
-    /// The requested current setpoint, mA.
-    pub fn current_target_ma(&self) -> Fx {
-        self.current_target_ma
+    /// The requested current setpoint, iu.
+    pub fn current_target_iu(&self) -> Fx {
+        self.current_target_iu
     }
 
-    /// The power-loop integrator, mA.
-    pub fn integrator_ma(&self) -> Fx {
-        self.pi.integrator_ma()
+    /// The power-loop integrator, iu.
+    pub fn integrator_iu(&self) -> Fx {
+        self.pi.integrator_iu()
     }
 }
 
@@ -571,7 +571,7 @@ mod tests {
                 .wrapping_add(1_442_695_040_888_963_407);
             (x >> 33) as u32
         };
-        let holds = |c: &Controller| c.state().is_emitting() || c.drive_ma() == Fx::ZERO;
+        let holds = |c: &Controller| c.state().is_emitting() || c.drive_iu() == Fx::ZERO;
         let mut emitting_ticks = 0u32;
         for _ in 0..20 {
             let mut ctl = Controller::new(cfg.clone());
@@ -596,7 +596,7 @@ mod tests {
                         } else {
                             Mode::Acc
                         }),
-                        _ => Request::SetCurrentMa(Fx::from_num(next() % 50)),
+                        _ => Request::SetCurrent(Fx::from_num(next() % 50)),
                     };
                     let _ = ctl.request(req);
                     assert!(holds(&ctl), "after {req:?}");
@@ -604,7 +604,7 @@ mod tests {
                 s.tick = s.tick.wrapping_add(1);
                 // Sensed current and light follow the drive, with the odd
                 // outlier.
-                let d = ctl.drive_ma().to_num::<i32>().max(0) as u32;
+                let d = ctl.drive_iu().to_num::<i32>().max(0) as u32;
                 s.current_counts = (d * 58 + next() % 3) as u16;
                 s.monitor_counts = (d.saturating_sub(10) * 45 + next() % 3) as u16;
                 if next().is_multiple_of(400) {

@@ -139,10 +139,12 @@ impl Fnv1a64 {
             offset_counts,
             units_per_count,
             full_scale_counts,
+            unit_exp,
         } = *c;
         self.i32(offset_counts);
         self.gain(units_per_count);
         self.u16(full_scale_counts);
+        self.u8(unit_exp as u8);
     }
 
     fn config(&mut self, c: &Config) {
@@ -161,49 +163,49 @@ impl Fnv1a64 {
         self.u32(*tick_hz);
 
         let CurrentLimits {
-            absolute_max_ma,
-            ceiling_ma,
+            absolute_max_iu,
+            ceiling_iu,
         } = *current;
-        self.fx(absolute_max_ma);
-        self.fx(ceiling_ma);
+        self.fx(absolute_max_iu);
+        self.fx(ceiling_iu);
 
         let PowerRange {
-            min_setpoint_mw,
-            max_setpoint_mw,
+            min_setpoint_ou,
+            max_setpoint_ou,
         } = *power;
-        self.fx(min_setpoint_mw);
-        self.fx(max_setpoint_mw);
+        self.fx(min_setpoint_ou);
+        self.fx(max_setpoint_ou);
 
         let Ramps {
             emission_delay_ms,
-            soft_start_ma_per_ms,
-            soft_stop_ma_per_ms,
+            soft_start_iu_per_ms,
+            soft_stop_iu_per_ms,
             handover_fraction,
-            setpoint_mw_per_ms,
+            setpoint_ou_per_ms,
         } = *ramp;
         self.u32(emission_delay_ms);
-        self.fx(soft_start_ma_per_ms);
-        self.fx(soft_stop_ma_per_ms);
+        self.fx(soft_start_iu_per_ms);
+        self.fx(soft_stop_iu_per_ms);
         self.fx(handover_fraction);
-        self.fx(setpoint_mw_per_ms);
+        self.fx(setpoint_ou_per_ms);
 
         let ApcGains {
-            kp_ma_per_mw,
-            ki_ma_per_mw_ms,
-            slew_ma_per_ms,
+            kp_iu_per_ou,
+            ki_iu_per_ou_ms,
+            slew_iu_per_ms,
         } = *apc;
-        self.fx(kp_ma_per_mw);
-        self.fx(ki_ma_per_mw_ms);
-        self.fx(slew_ma_per_ms);
+        self.fx(kp_iu_per_ou);
+        self.fx(ki_iu_per_ou_ms);
+        self.fx(slew_iu_per_ms);
 
         let Derating {
             knee_degc,
             cutoff_degc,
-            floor_ma,
+            floor_iu,
         } = *derating;
         self.fx(knee_degc);
         self.fx(cutoff_degc);
-        self.fx(floor_ma);
+        self.fx(floor_iu);
 
         self.protection(protection);
         self.calibration(calibration);
@@ -214,15 +216,15 @@ impl Fnv1a64 {
                 self.u8(1);
                 let ForwardVoltage {
                     cal,
-                    open_mv,
-                    short_mv,
-                    min_drive_ma,
+                    open_vu,
+                    short_vu,
+                    min_drive_iu,
                     debounce,
                 } = *f;
                 self.adc(&cal);
-                self.fx(open_mv);
-                self.fx(short_mv);
-                self.fx(min_drive_ma);
+                self.fx(open_vu);
+                self.fx(short_vu);
+                self.fx(min_drive_iu);
                 self.u16(debounce);
             }
         }
@@ -235,23 +237,23 @@ impl Fnv1a64 {
                     points,
                     warning_margin,
                     fault_margin,
-                    allowance_ma,
+                    allowance_iu,
                     debounce,
                 } = p;
                 self.len(points.len());
                 for pt in points {
                     let DiodePoint {
                         degc,
-                        threshold_ma,
-                        slope_mw_per_ma,
+                        threshold_iu,
+                        slope_ou_per_iu,
                     } = *pt;
                     self.fx(degc);
-                    self.fx(threshold_ma);
-                    self.fx(slope_mw_per_ma);
+                    self.fx(threshold_iu);
+                    self.fx(slope_ou_per_iu);
                 }
                 self.fx(*warning_margin);
                 self.fx(*fault_margin);
-                self.fx(*allowance_ma);
+                self.fx(*allowance_iu);
                 self.u16(*debounce);
             }
         }
@@ -259,39 +261,39 @@ impl Fnv1a64 {
 
     fn protection(&mut self, p: &Protection) {
         let Protection {
-            overcurrent_ma,
+            overcurrent_iu,
             overcurrent_debounce,
-            runaway_mw,
+            runaway_ou,
             runaway_debounce,
-            monitor_loss_floor_mw,
-            monitor_loss_drive_ma,
+            monitor_loss_floor_ou,
+            monitor_loss_drive_iu,
             monitor_loss_debounce,
             sensor_debounce,
             over_temp_debounce,
             interlock_debounce,
-            supply_min_mv,
-            supply_max_mv,
+            supply_min_vu,
+            supply_max_vu,
             supply_debounce,
-            mismatch_tolerance_ma,
+            mismatch_tolerance_iu,
             mismatch_debounce,
             missed_tick_limit,
             external_debounce,
             intermittent_weight,
         } = *p;
-        self.fx(overcurrent_ma);
+        self.fx(overcurrent_iu);
         self.u16(overcurrent_debounce);
-        self.fx(runaway_mw);
+        self.fx(runaway_ou);
         self.u16(runaway_debounce);
-        self.fx(monitor_loss_floor_mw);
-        self.fx(monitor_loss_drive_ma);
+        self.fx(monitor_loss_floor_ou);
+        self.fx(monitor_loss_drive_iu);
         self.u16(monitor_loss_debounce);
         self.u16(sensor_debounce);
         self.u16(over_temp_debounce);
         self.u16(interlock_debounce);
-        self.fx(supply_min_mv);
-        self.fx(supply_max_mv);
+        self.fx(supply_min_vu);
+        self.fx(supply_max_vu);
         self.u16(supply_debounce);
-        self.fx(mismatch_tolerance_ma);
+        self.fx(mismatch_tolerance_iu);
         self.u16(mismatch_debounce);
         self.u16(missed_tick_limit);
         self.u16(external_debounce);
@@ -310,13 +312,15 @@ impl Fnv1a64 {
         self.adc(current_sense);
         self.adc(supply);
         let DacCal {
-            codes_per_ma,
+            codes_per_iu,
             offset_codes,
             max_code,
+            unit_exp,
         } = *dac;
-        self.fx(codes_per_ma);
+        self.fx(codes_per_iu);
         self.i32(offset_codes);
         self.u16(max_code);
+        self.u8(unit_exp as u8);
         let TempCal {
             table,
             low_fault_counts,
@@ -398,11 +402,15 @@ mod tests {
         assert_eq!(fp(&base.clone()), f0);
         let lsb = Fx::from_bits(1);
         type Edit = (&'static str, fn(&mut Config));
-        let edits: [Edit; 12] = [
+        let edits: [Edit; 13] = [
+            ("current unit", |c| {
+                c.calibration.current_sense.unit_exp -= 1;
+                c.calibration.dac.unit_exp -= 1;
+            }),
             ("tick_hz", |c| c.tick_hz += 1),
-            ("kp", |c| c.apc.kp_ma_per_mw += Fx::from_bits(1)),
-            ("ki", |c| c.apc.ki_ma_per_mw_ms += Fx::from_bits(1)),
-            ("ceiling", |c| c.current.ceiling_ma -= Fx::from_bits(1)),
+            ("kp", |c| c.apc.kp_iu_per_ou += Fx::from_bits(1)),
+            ("ki", |c| c.apc.ki_iu_per_ou_ms += Fx::from_bits(1)),
+            ("ceiling", |c| c.current.ceiling_iu -= Fx::from_bits(1)),
             ("overcurrent debounce", |c| {
                 c.protection.overcurrent_debounce += 1
             }),
@@ -440,15 +448,15 @@ mod tests {
         let mut with = base.clone();
         with.forward_voltage = Some(ForwardVoltage {
             cal: base.calibration.supply,
-            open_mv: Fx::from_num(3000),
-            short_mv: Fx::from_num(500),
-            min_drive_ma: Fx::from_num(5),
+            open_vu: Fx::from_num(3000),
+            short_vu: Fx::from_num(500),
+            min_drive_iu: Fx::from_num(5),
             debounce: 2,
         });
         let f1 = fp(&with);
         assert_ne!(f1, f0);
         if let Some(fv) = with.forward_voltage.as_mut() {
-            fv.short_mv += lsb;
+            fv.short_vu += lsb;
         }
         assert_ne!(fp(&with), f1);
     }

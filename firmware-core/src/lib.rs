@@ -37,8 +37,8 @@
 //! - counts and engineering units: [`Fx`] and [`Gain`], the conversions of
 //!   an ADC channel ([`AdcCal::to_units`], [`AdcCal::counts_for`]) and of
 //!   the DAC ([`DacCal::code`]), and those of a validated configuration
-//!   ([`ValidConfig::monitor_mw`], [`ValidConfig::current_ma`],
-//!   [`ValidConfig::supply_mv`], [`ValidConfig::counts_to_degc`],
+//!   ([`ValidConfig::monitor_ou`], [`ValidConfig::current_iu`],
+//!   [`ValidConfig::supply_vu`], [`ValidConfig::counts_to_degc`],
 //!   [`ValidConfig::dac_code`]).
 //!
 //! Features (all off by default): `defmt` derives `defmt::Format` on every
@@ -61,7 +61,7 @@
 //! let drive = ctl.step(&sample);
 //! assert!(!drive.enable);
 //!
-//! ctl.request(Request::SetPowerMw(Fx::from_num(5))).unwrap();
+//! ctl.request(Request::SetPower(Fx::from_num(5))).unwrap();
 //! ctl.request(Request::Enable).unwrap();
 //! ```
 #![no_std]
@@ -116,4 +116,4 @@ pub use protect::{Measurements, SLOW_EVERY};
 pub use request::{Rejection, Request};
 pub use store::{LatchStore, StoreError, MAX_SLOT_LEN};
 pub use temp_table::{TempPoint, TEMP_TABLE_LEN};
-pub use units::{Fx, Gain};
+pub use units::{Fx, Gain, Units};

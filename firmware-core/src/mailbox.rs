@@ -196,8 +196,8 @@ impl Packed for Request {
         let (kind, value) = match self {
             Request::Enable => (1, 0),
             Request::Disable => (2, 0),
-            Request::SetPowerMw(mw) => (3, fx_word(mw)),
-            Request::SetCurrentMa(ma) => (4, fx_word(ma)),
+            Request::SetPower(mw) => (3, fx_word(mw)),
+            Request::SetCurrent(ma) => (4, fx_word(ma)),
             Request::SetMode(Mode::Apc) => (5, 0),
             Request::SetMode(Mode::Acc) => (6, 0),
             Request::ClearFaults => (7, 0),
@@ -213,8 +213,8 @@ impl Packed for Request {
         match kind {
             1 => plain(Request::Enable),
             2 => plain(Request::Disable),
-            3 => Some(Request::SetPowerMw(word_fx(value))),
-            4 => Some(Request::SetCurrentMa(word_fx(value))),
+            3 => Some(Request::SetPower(word_fx(value))),
+            4 => Some(Request::SetCurrent(word_fx(value))),
             5 => plain(Request::SetMode(Mode::Apc)),
             6 => plain(Request::SetMode(Mode::Acc)),
             7 => plain(Request::ClearFaults),
@@ -293,7 +293,7 @@ mod tests {
         assert!(m.is_empty());
         assert_eq!(m.pop(), None);
         m.push(Request::Enable).unwrap();
-        m.push(Request::SetPowerMw(Fx::from_num(5))).unwrap();
+        m.push(Request::SetPower(Fx::from_num(5))).unwrap();
         m.push(Request::Disable).unwrap();
         assert_eq!(m.len(), 3);
         assert_eq!(
@@ -306,7 +306,7 @@ mod tests {
         assert_eq!(
             rest,
             [
-                Request::SetPowerMw(Fx::from_num(5)),
+                Request::SetPower(Fx::from_num(5)),
                 Request::Disable,
                 Request::ClearFaults
             ]
@@ -321,14 +321,14 @@ mod tests {
         // at every offset, with a capacity that does not divide 2^32.
         for round in 0..12u32 {
             for k in 0..5 {
-                m.push(Request::SetCurrentMa(Fx::from_num(round * 10 + k)))
+                m.push(Request::SetCurrent(Fx::from_num(round * 10 + k)))
                     .unwrap();
             }
             assert!(m.push(Request::Enable).is_err());
             for k in 0..5 {
                 assert_eq!(
                     m.pop(),
-                    Some(Request::SetCurrentMa(Fx::from_num(round * 10 + k)))
+                    Some(Request::SetCurrent(Fx::from_num(round * 10 + k)))
                 );
             }
             assert_eq!(m.pop(), None);
@@ -352,9 +352,9 @@ mod tests {
         let all = [
             Request::Enable,
             Request::Disable,
-            Request::SetPowerMw(Fx::from_num(-3.5)),
-            Request::SetPowerMw(Fx::MAX),
-            Request::SetCurrentMa(Fx::MIN),
+            Request::SetPower(Fx::from_num(-3.5)),
+            Request::SetPower(Fx::MAX),
+            Request::SetCurrent(Fx::MIN),
             Request::SetMode(Mode::Apc),
             Request::SetMode(Mode::Acc),
             Request::ClearFaults,

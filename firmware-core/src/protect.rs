@@ -192,8 +192,8 @@ macro_rules! protections {
         /// a fault trips; out of line, so that no record is computed before
         /// it is needed.
         #[inline(never)]
-        fn trip_values(cfg: &ValidConfig, m: &Measurements, last_cmd_ma: Fx, fault: Fault) -> (Fx, Fx) {
-            let ctx = Ctx::plain(cfg, m, last_cmd_ma);
+        fn trip_values(cfg: &ValidConfig, m: &Measurements, last_cmd_iu: Fx, fault: Fault) -> (Fx, Fx) {
+            let ctx = Ctx::plain(cfg, m, last_cmd_iu);
             match fault {
                 $(Fault::$variant => { let $rx = &ctx; $record })*
             }
@@ -228,36 +228,36 @@ protections! {
     /// Sensed drive current at or above the overcurrent limit (fast).
     Overcurrent = 0 {
         name: "overcurrent",
-        unit: "mA",
+        unit: "iu",
         speed: fast,
         armed: always,
         debounce: "protection.overcurrent_debounce", |c| c.protection.overcurrent_debounce,
-        condition: tick |x| x.m.current_ma >= x.p.overcurrent_ma,
-        record: |x| (x.m.current_ma, x.p.overcurrent_ma),
+        condition: tick |x| x.m.current_iu >= x.p.overcurrent_iu,
+        record: |x| (x.m.current_iu, x.p.overcurrent_iu),
     }
     /// Monitor (back-facet) power at or above the runaway limit (fast).
     MonitorRunaway = 1 {
         name: "monitor-runaway",
-        unit: "mW",
+        unit: "ou",
         speed: fast,
         armed: always,
         debounce: "protection.runaway_debounce", |c| c.protection.runaway_debounce,
-        condition: tick |x| x.m.monitor_mw >= x.p.runaway_mw,
-        record: |x| (x.m.monitor_mw, x.p.runaway_mw),
+        condition: tick |x| x.m.monitor_ou >= x.p.runaway_ou,
+        record: |x| (x.m.monitor_ou, x.p.runaway_ou),
     }
     /// Drive at or above the "light expected" level (or, in APC regulation,
     /// on a lower ceiling in force) while the monitor reads at or below its
     /// floor: open photodiode, no light, dead diode.
     MonitorLoss = 2 {
         name: "monitor-loss",
-        unit: "mW",
+        unit: "ou",
         speed: tick,
         armed: driving,
         debounce: "protection.monitor_loss_debounce", |c| c.protection.monitor_loss_debounce,
-        condition: tick |x| x.m.monitor_mw <= x.p.monitor_loss_floor_mw
-            && x.last_cmd_ma > Fx::ZERO
-            && x.last_cmd_ma >= (x.light_expected_ma)(),
-        record: |x| (x.m.monitor_mw, x.p.monitor_loss_floor_mw),
+        condition: tick |x| x.m.monitor_ou <= x.p.monitor_loss_floor_ou
+            && x.last_cmd_iu > Fx::ZERO
+            && x.last_cmd_iu >= (x.light_expected_iu)(),
+        record: |x| (x.m.monitor_ou, x.p.monitor_loss_floor_ou),
     }
     /// Temperature sensor reads at the open-circuit rail.
     SensorOpen = 3 {
@@ -303,33 +303,33 @@ protections! {
     /// Supply at or below its minimum.
     SupplyUnder = 7 {
         name: "supply-under",
-        unit: "mV",
+        unit: "vu",
         speed: tick,
         armed: active,
         debounce: "protection.supply_debounce", |c| c.protection.supply_debounce,
-        condition: tick |x| x.m.supply_mv <= x.p.supply_min_mv,
-        record: |x| (x.m.supply_mv, x.p.supply_min_mv),
+        condition: tick |x| x.m.supply_vu <= x.p.supply_min_vu,
+        record: |x| (x.m.supply_vu, x.p.supply_min_vu),
     }
     /// Supply at or above its maximum.
     SupplyOver = 8 {
         name: "supply-over",
-        unit: "mV",
+        unit: "vu",
         speed: tick,
         armed: active,
         debounce: "protection.supply_debounce", |c| c.protection.supply_debounce,
-        condition: tick |x| x.m.supply_mv >= x.p.supply_max_mv,
-        record: |x| (x.m.supply_mv, x.p.supply_max_mv),
+        condition: tick |x| x.m.supply_vu >= x.p.supply_max_vu,
+        record: |x| (x.m.supply_vu, x.p.supply_max_vu),
     }
     /// Sensed current differs from the command beyond tolerance (fast once
     /// debounced): DAC or current-source failure.
     DriveMismatch = 9 {
         name: "drive-mismatch",
-        unit: "mA",
+        unit: "iu",
         speed: fast,
         armed: always,
         debounce: "protection.mismatch_debounce", |c| c.protection.mismatch_debounce,
-        condition: tick |x| !mismatch_within(x.cfg, x.m, x.last_cmd_ma),
-        record: |x| (mismatch_ma(x.m, x.last_cmd_ma), x.p.mismatch_tolerance_ma),
+        condition: tick |x| !mismatch_within(x.cfg, x.m, x.last_cmd_iu),
+        record: |x| (mismatch_iu(x.m, x.last_cmd_iu), x.p.mismatch_tolerance_iu),
     }
     /// A gap in the tick index: the board missed control ticks.
     MissedTicks = 10 {
@@ -367,7 +367,7 @@ protections! {
     /// diode at its end of life.
     PowerImplausible = 12 {
         name: "power-implausible",
-        unit: "mA",
+        unit: "iu",
         speed: slow,
         armed: driving,
         debounce: "plausibility.debounce",
@@ -375,7 +375,7 @@ protections! {
         condition: slow |x| x.plausibility.is_some_and(|(_, fault, _)| fault),
         // The bound at the tripping sample.
         record: |x| (
-            x.m.current_ma,
+            x.m.current_iu,
             x.c.plausibility.as_ref().map_or(Fx::MAX, |pl| plausibility(pl, x.m).2),
         ),
     }
@@ -383,22 +383,22 @@ protections! {
     /// the diode (or its wiring) is open.
     DiodeOpen = 13 {
         name: "diode-open",
-        unit: "mV",
+        unit: "vu",
         speed: tick,
         armed: driving,
         debounce: "forward_voltage.debounce", |c| c.forward_voltage.map_or(1, |f| f.debounce),
-        condition: forward |f| f.mv >= f.fv.open_mv,
-        record: |x| (x.m.forward_mv, x.c.forward_voltage.map_or(Fx::ZERO, |f| f.open_mv)),
+        condition: forward |f| f.mv >= f.fv.open_vu,
+        record: |x| (x.m.forward_vu, x.c.forward_voltage.map_or(Fx::ZERO, |f| f.open_vu)),
     }
     /// Forward voltage below its floor while driving: the diode is shorted.
     DiodeShort = 14 {
         name: "diode-short",
-        unit: "mV",
+        unit: "vu",
         speed: tick,
         armed: driving,
         debounce: "forward_voltage.debounce", |c| c.forward_voltage.map_or(1, |f| f.debounce),
-        condition: forward |f| f.mv <= f.fv.short_mv,
-        record: |x| (x.m.forward_mv, x.c.forward_voltage.map_or(Fx::ZERO, |f| f.short_mv)),
+        condition: forward |f| f.mv <= f.fv.short_vu,
+        record: |x| (x.m.forward_vu, x.c.forward_voltage.map_or(Fx::ZERO, |f| f.short_vu)),
     }
     /// The board's external fault input is asserted (a hardware comparator
     /// trip, a watchdog pre-warning) (fast).
@@ -467,17 +467,17 @@ struct Ctx<'a, F> {
     m: &'a Measurements,
     /// The conditions read straight off the sample ([`direct_mask`]).
     direct: u32,
-    /// The command that produced the sample, mA.
-    last_cmd_ma: Fx,
-    /// The command at or above which the monitor must see light, mA
+    /// The command that produced the sample, iu.
+    last_cmd_iu: Fx,
+    /// The command at or above which the monitor must see light, iu
     /// (evaluated only when needed).
-    light_expected_ma: F,
+    light_expected_iu: F,
 }
 
 impl<'a> Ctx<'a, fn() -> Fx> {
     /// A context without `direct` and the monitor-loss drive (for a
     /// record).
-    fn plain(cfg: &'a ValidConfig, m: &'a Measurements, last_cmd_ma: Fx) -> Self {
+    fn plain(cfg: &'a ValidConfig, m: &'a Measurements, last_cmd_iu: Fx) -> Self {
         let c = cfg.config();
         Ctx {
             cfg,
@@ -485,8 +485,8 @@ impl<'a> Ctx<'a, fn() -> Fx> {
             p: &c.protection,
             m,
             direct: 0,
-            last_cmd_ma,
-            light_expected_ma: || Fx::ZERO,
+            last_cmd_iu,
+            light_expected_iu: || Fx::ZERO,
         }
     }
 }
@@ -534,9 +534,9 @@ const SENSOR_RAILS: u32 = Fault::SensorOpen.bit() | Fault::SensorShort.bit();
 
 /// What a `forward` condition of the table reads: the forward-voltage
 /// channel, on a board that measures it, while the command that produced
-/// the sample is at or above its `min_drive_ma` (driving).
+/// the sample is at or above its `min_drive_iu` (driving).
 struct Forward<'a> {
-    /// The forward voltage, mV.
+    /// The forward voltage, vu.
     mv: Fx,
     /// Its configuration.
     fv: &'a ForwardVoltage,
@@ -551,26 +551,26 @@ fn counts(n: u16) -> Fx {
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Measurements {
-    /// Monitor reading, front-facet mW.
-    pub monitor_mw: Fx,
-    /// Sensed drive current, mA.
-    pub current_ma: Fx,
+    /// Monitor reading, front-facet ou.
+    pub monitor_ou: Fx,
+    /// Sensed drive current, iu.
+    pub current_iu: Fx,
     /// Temperature, degC (meaningless while `sensor_at_rail`).
     pub temp_degc: Fx,
     /// Raw temperature counts.
     pub temp_counts: u16,
     /// Temperature sensor reads at a fault rail.
     pub sensor_at_rail: bool,
-    /// Supply, mV.
-    pub supply_mv: Fx,
+    /// Supply, vu.
+    pub supply_vu: Fx,
     /// Interlock closed.
     pub interlock_closed: bool,
     /// Ticks missing before this sample: the index step less one (0 when
     /// it stepped by one). A repeated index reads `u32::MAX` and a backward
     /// one at least `2^31 - 1` ([`Fault::TickOrder`]).
     pub missed_ticks: u32,
-    /// Forward voltage, mV (zero on a board without the channel).
-    pub forward_mv: Fx,
+    /// Forward voltage, vu (zero on a board without the channel).
+    pub forward_vu: Fx,
     /// The external fault input is asserted.
     pub external_fault: bool,
 }
@@ -585,7 +585,7 @@ const TICK_ORDER_MISSED: u32 = i32::MAX as u32;
 impl Measurements {
     /// Calibrate a sample. `temp_segment` is the temperature table window
     /// of the previous sample (updated; see
-    /// [`crate::temp_table::degc_cached`]); `last_cmd_ma` the command that
+    /// [`crate::temp_table::degc_cached`]); `last_cmd_iu` the command that
     /// produced the sample. Also returns the conditions read straight off
     /// the sample (sensor open, short; external fault; diode open, short)
     /// as a mask, for [`Protections::check`]; its sensor bits are empty
@@ -595,7 +595,7 @@ impl Measurements {
         cfg: &ValidConfig,
         s: &crate::io::Sample,
         missed_ticks: u32,
-        last_cmd_ma: Fx,
+        last_cmd_iu: Fx,
         temp_segment: &mut Window,
     ) -> (Self, u32) {
         // The temperature first: its window may have to be found again (a
@@ -620,26 +620,26 @@ impl Measurements {
                 rails,
                 external: s.external_fault,
             });
-        let mut forward_mv = Fx::ZERO;
+        let mut forward_vu = Fx::ZERO;
         if let (Some(fv), Some(counts)) = (&cfg.config().forward_voltage, s.forward_counts) {
-            forward_mv = scale_counts(
+            forward_vu = scale_counts(
                 i32::from(counts) - fv.cal.offset_counts,
                 fv.cal.units_per_count,
             );
-            if last_cmd_ma >= fv.min_drive_ma {
-                direct |= forward_mask(&Forward { mv: forward_mv, fv });
+            if last_cmd_iu >= fv.min_drive_iu {
+                direct |= forward_mask(&Forward { mv: forward_vu, fv });
             }
         }
         let m = Measurements {
-            monitor_mw: cfg.monitor_mw(s.monitor_counts),
-            current_ma: cfg.current_ma(s.current_counts),
+            monitor_ou: cfg.monitor_ou(s.monitor_counts),
+            current_iu: cfg.current_iu(s.current_counts),
             temp_degc,
             temp_counts: s.temp_counts,
             sensor_at_rail: rails != 0,
-            supply_mv: cfg.supply_mv(s.supply_counts),
+            supply_vu: cfg.supply_vu(s.supply_counts),
             interlock_closed: s.interlock_closed,
             missed_ticks,
-            forward_mv,
+            forward_vu,
             external_fault: s.external_fault,
         };
         (m, direct)
@@ -682,23 +682,23 @@ fn saturating_fx(v: u32) -> Fx {
     Fx::checked_from_num(v).unwrap_or(Fx::MAX)
 }
 
-/// `|sensed - commanded|`, mA.
-fn mismatch_ma(m: &Measurements, last_cmd_ma: Fx) -> Fx {
-    m.current_ma.saturating_sub(last_cmd_ma).saturating_abs()
+/// `|sensed - commanded|`, iu.
+fn mismatch_iu(m: &Measurements, last_cmd_iu: Fx) -> Fx {
+    m.current_iu.saturating_sub(last_cmd_iu).saturating_abs()
 }
 
 /// `|sensed - commanded| < tolerance` (the absolute value saturating, as
-/// [`mismatch_ma`]), as a window of the difference: the same test for
+/// [`mismatch_iu`]), as a window of the difference: the same test for
 /// every tolerance (the negated tolerance is derived at validation,
 /// wrapping, so a tolerance of `Fx::MIN` gives an empty window as the
 /// saturated absolute value does).
 #[inline]
-fn mismatch_within(cfg: &ValidConfig, m: &Measurements, last_cmd_ma: Fx) -> bool {
+fn mismatch_within(cfg: &ValidConfig, m: &Measurements, last_cmd_iu: Fx) -> bool {
     difference_within(
-        m.current_ma,
-        last_cmd_ma,
-        cfg.config().protection.mismatch_tolerance_ma,
-        cfg.t.neg_mismatch_tolerance_ma,
+        m.current_iu,
+        last_cmd_iu,
+        cfg.config().protection.mismatch_tolerance_iu,
+        cfg.t.neg_mismatch_tolerance_iu,
     )
 }
 
@@ -717,7 +717,7 @@ fn record_trips(
     log: &mut FaultLog,
     cfg: &ValidConfig,
     m: &Measurements,
-    last_cmd_ma: Fx,
+    last_cmd_iu: Fx,
     tripped: u32,
     tick: u32,
 ) {
@@ -726,7 +726,7 @@ fn record_trips(
         let i = todo.trailing_zeros();
         todo &= todo - 1;
         if let Some(fault) = Fault::from_index(i as u8) {
-            let (measured, limit) = trip_values(cfg, m, last_cmd_ma, fault);
+            let (measured, limit) = trip_values(cfg, m, last_cmd_iu, fault);
             log.record(FaultRecord {
                 fault,
                 tick,
@@ -739,37 +739,37 @@ fn record_trips(
 
 /// Current-for-power plausibility of one sample: whether the sensed
 /// current is above the warning bound and above the fault bound, and the
-/// fault bound, mA (see [`Plausibility`]). Nothing is implausible while the
+/// fault bound, iu (see [`Plausibility`]). Nothing is implausible while the
 /// temperature sensor is at a rail (its own protection covers that).
 pub(crate) fn plausibility(pl: &Plausibility, m: &Measurements) -> (bool, bool, Fx) {
     if m.sensor_at_rail {
         return (false, false, Fx::MAX);
     }
-    let (threshold_ma, slope) = diode_at(pl, m.temp_degc);
-    let power = m.monitor_mw.max(Fx::ZERO);
+    let (threshold_iu, slope) = diode_at(pl, m.temp_degc);
+    let power = m.monitor_ou.max(Fx::ZERO);
     // (Validation keeps every slope positive; a zero one reads as infinite.)
-    let need_ma = threshold_ma.saturating_add(power.checked_div(slope).unwrap_or(Fx::MAX));
+    let need_iu = threshold_iu.saturating_add(power.checked_div(slope).unwrap_or(Fx::MAX));
     let bound = |margin: Fx| {
-        need_ma
-            .saturating_add(need_ma.saturating_mul(margin))
-            .saturating_add(pl.allowance_ma)
+        need_iu
+            .saturating_add(need_iu.saturating_mul(margin))
+            .saturating_add(pl.allowance_iu)
     };
     let fault_max = bound(pl.fault_margin);
     (
-        m.current_ma > bound(pl.warning_margin),
-        m.current_ma > fault_max,
+        m.current_iu > bound(pl.warning_margin),
+        m.current_iu > fault_max,
         fault_max,
     )
 }
 
-/// The healthy diode's threshold (mA) and slope (mW/mA) at `degc`: linear
+/// The healthy diode's threshold (iu) and slope (ou/iu) at `degc`: linear
 /// between the points, held at the end points outside them.
 fn diode_at(pl: &Plausibility, degc: Fx) -> (Fx, Fx) {
     let (Some(first), Some(last)) = (pl.points.first(), pl.points.last()) else {
         return (Fx::ZERO, Fx::MAX);
     };
     if degc <= first.degc {
-        return (first.threshold_ma, first.slope_mw_per_ma);
+        return (first.threshold_iu, first.slope_ou_per_iu);
     }
     for w in pl.points.windows(2) {
         if let [a, b] = w {
@@ -790,13 +790,13 @@ fn diode_at(pl: &Plausibility, degc: Fx) -> (Fx, Fx) {
                     ))
                 };
                 return (
-                    lerp(a.threshold_ma, b.threshold_ma),
-                    lerp(a.slope_mw_per_ma, b.slope_mw_per_ma),
+                    lerp(a.threshold_iu, b.threshold_iu),
+                    lerp(a.slope_ou_per_iu, b.slope_ou_per_iu),
                 );
             }
         }
     }
-    (last.threshold_ma, last.slope_mw_per_ma)
+    (last.threshold_iu, last.slope_ou_per_iu)
 }
 
 impl Protections {
@@ -825,9 +825,9 @@ impl Protections {
         slow.plausibility.is_some_and(|(warn, _, _)| warn)
     }
 
-    /// Evaluate every protection on one sample. `last_cmd_ma` is the current
+    /// Evaluate every protection on one sample. `last_cmd_iu` is the current
     /// the source was commanded during the tick that produced the sample
-    /// (zero when it was disabled); `light_expected_ma` the command at or
+    /// (zero when it was disabled); `light_expected_iu` the command at or
     /// above which the monitor must see light (see
     /// [`crate::controller`]: the configured monitor-loss drive, or a lower
     /// ceiling in force while regulating); `direct` the conditions read
@@ -846,8 +846,8 @@ impl Protections {
         m: &Measurements,
         direct: u32,
         tick: u32,
-        last_cmd_ma: Fx,
-        light_expected_ma: impl Fn() -> Fx,
+        last_cmd_iu: Fx,
+        light_expected_iu: impl Fn() -> Fx,
         state: State,
         active: FaultSet,
         log: &mut FaultLog,
@@ -859,8 +859,8 @@ impl Protections {
             p: &c.protection,
             m,
             direct,
-            last_cmd_ma,
-            light_expected_ma,
+            last_cmd_iu,
+            light_expected_iu,
         };
         let calm = quiet(&ctx);
         if calm && self.busy == 0 {
@@ -874,7 +874,7 @@ impl Protections {
         let may_trip = armed(state) & !active.bits();
         let tripped = self.walk(cfg.t.weight, &cfg.t.trip_at, present) & may_trip;
         if tripped != 0 {
-            record_trips(log, cfg, m, last_cmd_ma, tripped, tick);
+            record_trips(log, cfg, m, last_cmd_iu, tripped, tick);
         }
         Verdict {
             // (Both masks hold faults' bits only.)
@@ -969,15 +969,15 @@ mod tests {
         use crate::config::DiodePoint;
         let pt = |t: i32, th: i32, sl: f64| DiodePoint {
             degc: Fx::from_num(t),
-            threshold_ma: Fx::from_num(th),
-            slope_mw_per_ma: Fx::from_num(sl),
+            threshold_iu: Fx::from_num(th),
+            slope_ou_per_iu: Fx::from_num(sl),
         };
         let pl = Plausibility {
             points: heapless::Vec::from_slice(&[pt(0, 20, 1.0), pt(40, 40, 0.5), pt(80, 80, 0.25)])
                 .unwrap(),
             warning_margin: Fx::from_num(0.25),
             fault_margin: Fx::from_num(0.5),
-            allowance_ma: Fx::ONE,
+            allowance_iu: Fx::ONE,
             debounce: 1,
         };
         let at = |t: i32| diode_at(&pl, Fx::from_num(t));
@@ -993,8 +993,8 @@ mod tests {
         // the warning bound is 50 × 1.25 + 1 = 63.5 mA, the fault bound
         // 50 × 1.5 + 1 = 76 mA; each is the last plausible current.
         let m = |ma: Fx| Measurements {
-            monitor_mw: Fx::from_num(15),
-            current_ma: ma,
+            monitor_ou: Fx::from_num(15),
+            current_iu: ma,
             temp_degc: Fx::from_num(20),
             ..Measurements::default()
         };
@@ -1051,8 +1051,8 @@ mod tests {
     fn reference_mask(
         cfg: &ValidConfig,
         m: &Measurements,
-        last_cmd_ma: Fx,
-        light_expected_ma: Fx,
+        last_cmd_iu: Fx,
+        light_expected_iu: Fx,
     ) -> u32 {
         let c = cfg.config();
         let p = &c.protection;
@@ -1064,12 +1064,12 @@ mod tests {
             Rail::Low => (at_low, at_high),
         };
         let flag = |on: bool, fault: Fault| if on { fault.bit() } else { 0 };
-        flag(m.current_ma >= p.overcurrent_ma, Fault::Overcurrent)
-            | flag(m.monitor_mw >= p.runaway_mw, Fault::MonitorRunaway)
+        flag(m.current_iu >= p.overcurrent_iu, Fault::Overcurrent)
+            | flag(m.monitor_ou >= p.runaway_ou, Fault::MonitorRunaway)
             | flag(
-                last_cmd_ma >= light_expected_ma
-                    && last_cmd_ma > Fx::ZERO
-                    && m.monitor_mw <= p.monitor_loss_floor_mw,
+                last_cmd_iu >= light_expected_iu
+                    && last_cmd_iu > Fx::ZERO
+                    && m.monitor_ou <= p.monitor_loss_floor_ou,
                 Fault::MonitorLoss,
             )
             | flag(open, Fault::SensorOpen)
@@ -1079,10 +1079,10 @@ mod tests {
                 Fault::OverTemperature,
             )
             | flag(!m.interlock_closed, Fault::InterlockOpen)
-            | flag(m.supply_mv <= p.supply_min_mv, Fault::SupplyUnder)
-            | flag(m.supply_mv >= p.supply_max_mv, Fault::SupplyOver)
+            | flag(m.supply_vu <= p.supply_min_vu, Fault::SupplyUnder)
+            | flag(m.supply_vu >= p.supply_max_vu, Fault::SupplyOver)
             | flag(
-                mismatch_ma(m, last_cmd_ma) >= p.mismatch_tolerance_ma,
+                mismatch_iu(m, last_cmd_iu) >= p.mismatch_tolerance_iu,
                 Fault::DriveMismatch,
             )
             | flag(
@@ -1100,9 +1100,9 @@ mod tests {
         let c = cfg.config();
         let m = Measurements {
             temp_degc: c.derating.cutoff_degc,
-            current_ma: Fx::from_num(10),
-            monitor_mw: Fx::from_num(1),
-            supply_mv: (c.protection.supply_min_mv + c.protection.supply_max_mv) / 2,
+            current_iu: Fx::from_num(10),
+            monitor_ou: Fx::from_num(1),
+            supply_vu: (c.protection.supply_min_vu + c.protection.supply_max_vu) / 2,
             interlock_closed: true,
             external_fault: true,
             ..Measurements::default()
@@ -1114,8 +1114,8 @@ mod tests {
                 p: &c.protection,
                 m: &m,
                 direct,
-                last_cmd_ma: m.current_ma,
-                light_expected_ma: || Fx::MAX,
+                last_cmd_iu: m.current_iu,
+                light_expected_iu: || Fx::MAX,
             })
         };
         let ext = Fault::ExternalFault.bit();
@@ -1129,7 +1129,7 @@ mod tests {
         let ctx = Ctx {
             m: &cooler,
             direct: ext,
-            ..Ctx::plain(&cfg, &m, m.current_ma)
+            ..Ctx::plain(&cfg, &m, m.current_iu)
         };
         assert_eq!(present_mask(&ctx), ext);
     }
@@ -1173,15 +1173,15 @@ mod tests {
                     Measurements::from_sample(&cfg, &sample, 0, Fx::ZERO, &mut window);
                 let choice = rng.next();
                 let (monitor_near, current_near, supply_near) = (
-                    [p.runaway_mw, p.monitor_loss_floor_mw][choice as usize % 2],
-                    [p.overcurrent_ma, last_cmd][(choice >> 1) as usize % 2],
-                    [p.supply_min_mv, p.supply_max_mv][(choice >> 2) as usize % 2],
+                    [p.runaway_ou, p.monitor_loss_floor_ou][choice as usize % 2],
+                    [p.overcurrent_iu, last_cmd][(choice >> 1) as usize % 2],
+                    [p.supply_min_vu, p.supply_max_vu][(choice >> 2) as usize % 2],
                 );
                 let m = Measurements {
-                    monitor_mw: rng.fx_near(monitor_near),
-                    current_ma: rng.fx_near(current_near),
+                    monitor_ou: rng.fx_near(monitor_near),
+                    current_iu: rng.fx_near(current_near),
                     temp_degc: rng.fx_near(c.derating.cutoff_degc),
-                    supply_mv: rng.fx_near(supply_near),
+                    supply_vu: rng.fx_near(supply_near),
                     interlock_closed: !rng.next().is_multiple_of(16),
                     missed_ticks: match rng.next() % 8 {
                         0 => u32::MAX - rng.next() % 4,
@@ -1193,7 +1193,7 @@ mod tests {
                 // Half the time the command matches the sensed current, so
                 // that no mismatch hides the other comparisons from `quiet`.
                 let last_cmd = if rng.next().is_multiple_of(2) {
-                    m.current_ma
+                    m.current_iu
                 } else {
                     last_cmd
                 };
@@ -1205,8 +1205,8 @@ mod tests {
                     p: &cfg.config().protection,
                     m: &m,
                     direct: rails,
-                    last_cmd_ma: last_cmd,
-                    light_expected_ma: || light,
+                    last_cmd_iu: last_cmd,
+                    light_expected_iu: || light,
                 };
                 let got = present_mask(&ctx);
                 assert_eq!(got, want, "{m:?} {last_cmd} {light}");

@@ -12,10 +12,10 @@ pub enum Request {
     Enable,
     /// Stop emission with the soft-stop ramp. Always accepted.
     Disable,
-    /// Optical power setpoint for APC, mW.
-    SetPowerMw(Fx),
-    /// Current setpoint for ACC, mA.
-    SetCurrentMa(Fx),
+    /// Optical power setpoint for APC, ou.
+    SetPower(Fx),
+    /// Current setpoint for ACC, iu.
+    SetCurrent(Fx),
     /// Choose APC or ACC; the transfer is bumpless.
     SetMode(Mode),
     /// Leave Latched for Off, if no fault condition is still present.

@@ -1,16 +1,24 @@
-//! Fixed-point number types and the conversions between counts and
-//! engineering units: of an ADC channel ([`AdcCal::to_units`],
-//! [`AdcCal::counts_for`]) and of the current DAC ([`DacCal::code`]), plus
-//! the core's private rate and time helpers.
+//! Fixed-point number types, the board's units ([`Units`]) and the
+//! conversions between counts and those units: of an ADC channel
+//! ([`AdcCal::to_units`], [`AdcCal::counts_for`]) and of the current DAC
+//! ([`DacCal::code`]), plus the core's private rate and time helpers.
 //!
-//! Engineering values are [`Fx`] (`I16F16`: ±32 767 with a resolution of
-//! 1/65 536) and carry their unit in the field name: `_ma` milliampere,
-//! `_mw` milliwatt, `_mv` millivolt, `_degc` degree Celsius. Calibration gains
-//! per ADC count need finer resolution and are [`Gain`] (`I8F24`).
+//! Every value the core computes with is an [`Fx`] (`I16F16`: ±32 767 with
+//! a resolution of 1/65 536) in one of the board's units, and the field name
+//! says which: `_iu` the board's current unit, `_ou` its optical-power unit,
+//! `_vu` its voltage unit, `_degc` degree Celsius. Each unit is a power of
+//! ten of the ampere, watt or volt, chosen per board ([`Units`]; the
+//! simulator's board-file loader picks them from the file), so that one core
+//! serves a 1 mA VCSEL driver (current unit 10 µA) and a 150 A bar driver
+//! (current unit 10 mA) with the same arithmetic: engineering units exist
+//! only at the configuration boundary. Calibration gains per ADC count need
+//! finer resolution and are [`Gain`] (`I8F24`). The choice and its measured
+//! range and resolution are in `docs/architecture.md` (numeric range).
 
 use crate::config::{dac_code_clamped, AdcCal, DacCal};
 
-/// The core's engineering value: a signed 16.16 fixed-point number.
+/// The core's number: a signed 16.16 fixed-point value in one of the
+/// board's units.
 pub type Fx = fixed::types::I16F16;
 
 /// A fine-resolution gain (signed 8.24 fixed point): units per ADC count,
@@ -47,13 +55,60 @@ impl AdcCal {
 }
 
 impl DacCal {
-    /// The DAC code for a drive current in mA: `ma × codes_per_ma +
+    /// The DAC code for a drive current in iu: `ma × codes_per_iu +
     /// offset_codes`, rounded to the nearest code and held within
     /// `[0, max_code]`. The conversion the core applies to every drive it
     /// returns.
     #[inline]
     pub fn code(&self, ma: Fx) -> u16 {
         dac_code_clamped(self, ma)
+    }
+}
+
+/// The board's units: the current unit is `10^current_exp` A, the optical
+/// power unit `10^power_exp` W and the voltage unit `10^voltage_exp` V.
+/// The core never converts with them (its arithmetic is the same in any
+/// unit); they say what its numbers mean. A configuration names them in
+/// its calibration (each channel's `unit_exp`, [`crate::Config::units`]),
+/// they enter its fingerprint, and validation keeps them in
+/// [`Units::MIN_EXP`] ..= [`Units::MAX_EXP`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(deny_unknown_fields))]
+pub struct Units {
+    /// Decade of the current unit: -3 is the milliampere, -5 10 µA.
+    pub current_exp: i8,
+    /// Decade of the optical power unit: -3 is the milliwatt.
+    pub power_exp: i8,
+    /// Decade of the voltage unit: -3 is the millivolt.
+    pub voltage_exp: i8,
+}
+
+impl Units {
+    /// Milliampere, milliwatt and millivolt.
+    pub const MILLI: Units = Units {
+        current_exp: -3,
+        power_exp: -3,
+        voltage_exp: -3,
+    };
+    /// Smallest decade accepted (10^-9: nanoampere, nanowatt, nanovolt).
+    pub const MIN_EXP: i8 = -9;
+    /// Largest decade accepted (10^0: ampere, watt, volt).
+    pub const MAX_EXP: i8 = 0;
+
+    /// Whether every decade lies in [`Units::MIN_EXP`] ..= [`Units::MAX_EXP`].
+    pub const fn is_valid(&self) -> bool {
+        const fn ok(e: i8) -> bool {
+            e >= Units::MIN_EXP && e <= Units::MAX_EXP
+        }
+        ok(self.current_exp) && ok(self.power_exp) && ok(self.voltage_exp)
+    }
+}
+
+impl Default for Units {
+    fn default() -> Self {
+        Units::MILLI
     }
 }
 
@@ -171,6 +226,7 @@ mod tests {
             offset_counts,
             units_per_count: Gain::from_bits(gain_bits),
             full_scale_counts,
+            unit_exp: -3,
         }
     }
 
@@ -213,7 +269,7 @@ mod tests {
             codes_bits in 1i32..(200 << 16),
             offset in -100i32..100,
         ) {
-            let d = DacCal { codes_per_ma: Fx::from_bits(codes_bits), offset_codes: offset, max_code: 4095 };
+            let d = DacCal { codes_per_iu: Fx::from_bits(codes_bits), offset_codes: offset, max_code: 4095, unit_exp: -3 };
             let exact = i64::from(ma_bits) * i64::from(codes_bits);
             let want = (((exact + (1 << 31)) >> 32) + i64::from(offset)).clamp(0, 4095) as u16;
             proptest::prop_assert_eq!(d.code(Fx::from_bits(ma_bits)), want);

@@ -5,7 +5,7 @@
 
 use diodestat_core::{
     example, AdcCal, Channel, Config, ConfigError, DiodePoint, Fault, ForwardVoltage, Fx, Gain,
-    Plausibility, RampKind,
+    Plausibility, RampKind, Units,
 };
 use fixed::types::I40F24;
 use std::collections::BTreeSet;
@@ -40,6 +40,7 @@ fn full_scale(cal: &AdcCal) -> Fx {
 /// compile until it is listed here (and then must be covered below).
 fn variant(e: &ConfigError) -> &'static str {
     match e {
+        E::UnitOutOfRange { .. } => "UnitOutOfRange",
         E::TickRateZero => "TickRateZero",
         E::TickRateTooHigh { .. } => "TickRateTooHigh",
         E::AbsoluteLimitNotPositive { .. } => "AbsoluteLimitNotPositive",
@@ -83,7 +84,7 @@ fn variant(e: &ConfigError) -> &'static str {
     }
 }
 
-const VARIANTS: usize = 40;
+const VARIANTS: usize = 41;
 
 /// A forward-voltage channel: 1 mV per count, open at 3 000 mV, short at
 /// 500 mV, from 1 mA.
@@ -93,10 +94,11 @@ fn forward() -> ForwardVoltage {
             offset_counts: 0,
             units_per_count: Gain::ONE,
             full_scale_counts: 4095,
+            unit_exp: -3,
         },
-        open_mv: Fx::from_num(3000),
-        short_mv: Fx::from_num(500),
-        min_drive_ma: Fx::ONE,
+        open_vu: Fx::from_num(3000),
+        short_vu: Fx::from_num(500),
+        min_drive_iu: Fx::ONE,
         debounce: 3,
     }
 }
@@ -105,14 +107,14 @@ fn forward() -> ForwardVoltage {
 fn plausibility() -> Plausibility {
     let pt = |t: i32, th: i32| DiodePoint {
         degc: Fx::from_num(t),
-        threshold_ma: Fx::from_num(th),
-        slope_mw_per_ma: Fx::from_num(0.9),
+        threshold_iu: Fx::from_num(th),
+        slope_ou_per_iu: Fx::from_num(0.9),
     };
     Plausibility {
         points: heapless::Vec::from_slice(&[pt(0, 20), pt(70, 35)]).unwrap(),
         warning_margin: Fx::from_num(0.1),
         fault_margin: Fx::from_num(0.2),
-        allowance_ma: Fx::ONE,
+        allowance_iu: Fx::ONE,
         debounce: 100,
     }
 }
@@ -131,6 +133,63 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         v.push((what, got, want));
     };
 
+    for e in [Units::MIN_EXP - 1, Units::MAX_EXP + 1] {
+        case(
+            "monitor unit beyond the decades",
+            refused(|c| c.calibration.monitor.unit_exp = e),
+            E::UnitOutOfRange {
+                channel: Channel::Monitor,
+                unit_exp: e,
+            },
+        );
+        case(
+            "supply unit beyond the decades",
+            refused(|c| c.calibration.supply.unit_exp = e),
+            E::UnitOutOfRange {
+                channel: Channel::Supply,
+                unit_exp: e,
+            },
+        );
+    }
+    case(
+        "current sense unit beyond the decades",
+        refused(|c| {
+            c.calibration.current_sense.unit_exp = -10;
+            c.calibration.dac.unit_exp = -10;
+        }),
+        E::UnitOutOfRange {
+            channel: Channel::CurrentSense,
+            unit_exp: -10,
+        },
+    );
+    case(
+        "DAC unit not the current sense's",
+        refused(|c| c.calibration.dac.unit_exp = -4),
+        E::UnitOutOfRange {
+            channel: Channel::Dac,
+            unit_exp: -4,
+        },
+    );
+    case(
+        "forward-voltage unit not the supply's",
+        refused(|c| {
+            let mut f = forward();
+            f.cal.unit_exp = -2;
+            c.forward_voltage = Some(f);
+        }),
+        E::UnitOutOfRange {
+            channel: Channel::ForwardVoltage,
+            unit_exp: -2,
+        },
+    );
+    // The ends of the decades are accepted, and name the units.
+    for e in [Units::MIN_EXP, Units::MAX_EXP] {
+        accepted(|c| {
+            c.calibration.current_sense.unit_exp = e;
+            c.calibration.dac.unit_exp = e;
+        });
+    }
+    assert_eq!(example::config().units(), Units::MILLI);
     case("tick 0", refused(|c| c.tick_hz = 0), E::TickRateZero);
     case(
         "tick above 1 MHz",
@@ -140,50 +199,50 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     for a in [Fx::ZERO, -Fx::ONE] {
         case(
             "absolute limit",
-            refused(|c| c.current.absolute_max_ma = a),
-            E::AbsoluteLimitNotPositive { absolute_max_ma: a },
+            refused(|c| c.current.absolute_max_iu = a),
+            E::AbsoluteLimitNotPositive { absolute_max_iu: a },
         );
     }
     for x in [Fx::ZERO, -Fx::DELTA] {
         case(
             "ceiling",
-            refused(|c| c.current.ceiling_ma = x),
-            E::CeilingNotPositive { ceiling_ma: x },
+            refused(|c| c.current.ceiling_iu = x),
+            E::CeilingNotPositive { ceiling_iu: x },
         );
     }
-    let above = cur.absolute_max_ma + Fx::DELTA;
+    let above = cur.absolute_max_iu + Fx::DELTA;
     case(
         "ceiling above absolute",
-        refused(|c| c.current.ceiling_ma = above),
+        refused(|c| c.current.ceiling_iu = above),
         E::CeilingAboveAbsolute {
-            ceiling_ma: above,
-            absolute_max_ma: cur.absolute_max_ma,
+            ceiling_iu: above,
+            absolute_max_iu: cur.absolute_max_iu,
         },
     );
     case(
         "overcurrent at the ceiling",
-        refused(|c| c.protection.overcurrent_ma = cur.ceiling_ma),
+        refused(|c| c.protection.overcurrent_iu = cur.ceiling_iu),
         E::OvercurrentNotAboveCeiling {
-            overcurrent_ma: cur.ceiling_ma,
-            ceiling_ma: cur.ceiling_ma,
+            overcurrent_iu: cur.ceiling_iu,
+            ceiling_iu: cur.ceiling_iu,
         },
     );
     case(
         "overcurrent above absolute",
-        refused(|c| c.protection.overcurrent_ma = above),
+        refused(|c| c.protection.overcurrent_iu = above),
         E::OvercurrentAboveAbsolute {
-            overcurrent_ma: above,
-            absolute_max_ma: cur.absolute_max_ma,
+            overcurrent_iu: above,
+            absolute_max_iu: cur.absolute_max_iu,
         },
     );
 
     // Ramps: each kind, zero, negative, and one LSB under the resolution.
     type Setter = fn(&mut Config, Fx);
     let kinds: [(RampKind, Setter); 4] = [
-        (RampKind::SoftStart, |c, x| c.ramp.soft_start_ma_per_ms = x),
-        (RampKind::SoftStop, |c, x| c.ramp.soft_stop_ma_per_ms = x),
-        (RampKind::Setpoint, |c, x| c.ramp.setpoint_mw_per_ms = x),
-        (RampKind::Slew, |c, x| c.apc.slew_ma_per_ms = x),
+        (RampKind::SoftStart, |c, x| c.ramp.soft_start_iu_per_ms = x),
+        (RampKind::SoftStop, |c, x| c.ramp.soft_stop_iu_per_ms = x),
+        (RampKind::Setpoint, |c, x| c.ramp.setpoint_ou_per_ms = x),
+        (RampKind::Slew, |c, x| c.apc.slew_iu_per_ms = x),
     ];
     // The smallest rate that is at least one LSB per tick.
     let smallest = Fx::from_bits(hz.div_ceil(1000) as i32);
@@ -222,50 +281,50 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         );
     }
     for (min, max) in [
-        (Fx::ZERO, pw.max_setpoint_mw),
-        (-Fx::ONE, pw.max_setpoint_mw),
-        (pw.max_setpoint_mw + Fx::DELTA, pw.max_setpoint_mw),
+        (Fx::ZERO, pw.max_setpoint_ou),
+        (-Fx::ONE, pw.max_setpoint_ou),
+        (pw.max_setpoint_ou + Fx::DELTA, pw.max_setpoint_ou),
     ] {
         case(
             "power range",
-            refused(|c| c.power.min_setpoint_mw = min),
+            refused(|c| c.power.min_setpoint_ou = min),
             E::PowerRangeInvalid {
-                min_setpoint_mw: min,
-                max_setpoint_mw: max,
+                min_setpoint_ou: min,
+                max_setpoint_ou: max,
             },
         );
     }
     case(
         "runaway at the top setpoint",
-        refused(|c| c.protection.runaway_mw = pw.max_setpoint_mw),
+        refused(|c| c.protection.runaway_ou = pw.max_setpoint_ou),
         E::RunawayNotAboveSetpointRange {
-            runaway_mw: pw.max_setpoint_mw,
-            max_setpoint_mw: pw.max_setpoint_mw,
+            runaway_ou: pw.max_setpoint_ou,
+            max_setpoint_ou: pw.max_setpoint_ou,
         },
     );
     case(
         "monitor-loss floor negative",
-        refused(|c| c.protection.monitor_loss_floor_mw = -Fx::DELTA),
+        refused(|c| c.protection.monitor_loss_floor_ou = -Fx::DELTA),
         E::MonitorLossFloorNegative {
-            floor_mw: -Fx::DELTA,
+            floor_ou: -Fx::DELTA,
         },
     );
-    let lowest = pw.min_setpoint_mw * r.handover_fraction;
+    let lowest = pw.min_setpoint_ou * r.handover_fraction;
     case(
         "monitor-loss floor at the lowest hand-over",
-        refused(|c| c.protection.monitor_loss_floor_mw = lowest),
+        refused(|c| c.protection.monitor_loss_floor_ou = lowest),
         E::MonitorLossFloorNotBelowSetpoints {
-            floor_mw: lowest,
-            lowest_handover_mw: lowest,
+            floor_ou: lowest,
+            lowest_handover_ou: lowest,
         },
     );
-    for x in [Fx::ZERO, cur.ceiling_ma + Fx::DELTA] {
+    for x in [Fx::ZERO, cur.ceiling_iu + Fx::DELTA] {
         case(
             "monitor-loss drive",
-            refused(|c| c.protection.monitor_loss_drive_ma = x),
+            refused(|c| c.protection.monitor_loss_drive_iu = x),
             E::MonitorLossDriveOutOfRange {
-                drive_ma: x,
-                ceiling_ma: cur.ceiling_ma,
+                drive_iu: x,
+                ceiling_iu: cur.ceiling_iu,
             },
         );
     }
@@ -277,13 +336,13 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
             cutoff_degc: d.derating.cutoff_degc,
         },
     );
-    for x in [-Fx::DELTA, cur.ceiling_ma + Fx::DELTA] {
+    for x in [-Fx::DELTA, cur.ceiling_iu + Fx::DELTA] {
         case(
             "derating floor",
-            refused(|c| c.derating.floor_ma = x),
+            refused(|c| c.derating.floor_iu = x),
             E::DeratingFloorOutOfRange {
-                floor_ma: x,
-                ceiling_ma: cur.ceiling_ma,
+                floor_iu: x,
+                ceiling_iu: cur.ceiling_iu,
             },
         );
     }
@@ -377,8 +436,8 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     for x in [Fx::ZERO, -Fx::ONE] {
         case(
             "mismatch tolerance",
-            refused(|c| c.protection.mismatch_tolerance_ma = x),
-            E::MismatchToleranceNotPositive { tolerance_ma: x },
+            refused(|c| c.protection.mismatch_tolerance_iu = x),
+            E::MismatchToleranceNotPositive { tolerance_iu: x },
         );
     }
 
@@ -386,7 +445,7 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     for x in [Fx::ZERO, -Fx::ONE] {
         case(
             "kp",
-            refused(|c| c.apc.kp_ma_per_mw = x),
+            refused(|c| c.apc.kp_iu_per_ou = x),
             E::GainNotPositive {
                 proportional: true,
                 gain: x,
@@ -395,30 +454,30 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     }
     case(
         "ki negative",
-        refused(|c| c.apc.ki_ma_per_mw_ms = -Fx::DELTA),
+        refused(|c| c.apc.ki_iu_per_ou_ms = -Fx::DELTA),
         E::GainNotPositive {
             proportional: false,
             gain: -Fx::DELTA,
         },
     );
-    let kp_fits = Fx::MAX / p.runaway_mw;
+    let kp_fits = Fx::MAX / p.runaway_ou;
     let kp_over = kp_fits + Fx::DELTA;
-    assert!(kp_over.checked_mul(p.runaway_mw).is_none());
+    assert!(kp_over.checked_mul(p.runaway_ou).is_none());
     case(
         "kp × runaway overflows",
-        refused(|c| c.apc.kp_ma_per_mw = kp_over),
+        refused(|c| c.apc.kp_iu_per_ou = kp_over),
         E::ProportionalGainOverflow {
-            kp_ma_per_mw: kp_over,
-            runaway_mw: p.runaway_mw,
+            kp_iu_per_ou: kp_over,
+            runaway_ou: p.runaway_ou,
         },
     );
     // ki per tick must stay below 128 (the range of the 8.24 Gain).
     let ki_over = Fx::from_num(128 * hz / 1000);
     case(
         "ki per tick too large",
-        refused(|c| c.apc.ki_ma_per_mw_ms = ki_over),
+        refused(|c| c.apc.ki_iu_per_ou_ms = ki_over),
         E::IntegralGainOutOfRange {
-            ki_ma_per_mw_ms: ki_over,
+            ki_iu_per_ou_ms: ki_over,
             tick_hz: hz,
         },
     );
@@ -427,10 +486,10 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         "ki per tick rounds to zero",
         refused(|c| {
             c.tick_hz = 1_000_000;
-            c.apc.ki_ma_per_mw_ms = Fx::DELTA;
+            c.apc.ki_iu_per_ou_ms = Fx::DELTA;
         }),
         E::IntegralGainOutOfRange {
-            ki_ma_per_mw_ms: Fx::DELTA,
+            ki_iu_per_ou_ms: Fx::DELTA,
             tick_hz: 1_000_000,
         },
     );
@@ -465,7 +524,7 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     for g in [Fx::ZERO, -Fx::ONE] {
         case(
             "dac gain",
-            refused(|c| c.calibration.dac.codes_per_ma = g),
+            refused(|c| c.calibration.dac.codes_per_iu = g),
             E::CalibrationGainNotPositive {
                 channel: Channel::Dac,
             },
@@ -487,7 +546,7 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         "ceiling beyond the DAC",
         refused(|c| c.calibration.dac.max_code = code as u16 - 1),
         E::CeilingNotRepresentable {
-            ceiling_ma: cur.ceiling_ma,
+            ceiling_iu: cur.ceiling_iu,
             code,
             max_code: code as u16 - 1,
         },
@@ -495,10 +554,10 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     let mon_fs = full_scale(&cal.monitor);
     case(
         "runaway beyond the monitor",
-        refused(|c| c.protection.runaway_mw = mon_fs + Fx::DELTA),
+        refused(|c| c.protection.runaway_ou = mon_fs + Fx::DELTA),
         E::RunawayBeyondMonitorRange {
-            runaway_mw: mon_fs + Fx::DELTA,
-            full_scale_mw: mon_fs,
+            runaway_ou: mon_fs + Fx::DELTA,
+            full_scale_ou: mon_fs,
         },
     );
     // The shortest current-sense range that still reads the trip, minus one count.
@@ -506,7 +565,7 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         .find(|n| {
             let mut a = cal.current_sense;
             a.full_scale_counts = *n;
-            *n > 0 && full_scale(&a) >= p.overcurrent_ma
+            *n > 0 && full_scale(&a) >= p.overcurrent_iu
         })
         .unwrap();
     let mut short = cal.current_sense;
@@ -515,26 +574,26 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         "overcurrent beyond the sense",
         refused(|c| c.calibration.current_sense.full_scale_counts = n_ok - 1),
         E::OvercurrentBeyondSenseRange {
-            overcurrent_ma: p.overcurrent_ma,
-            full_scale_ma: full_scale(&short),
+            overcurrent_iu: p.overcurrent_iu,
+            full_scale_iu: full_scale(&short),
         },
     );
     let sup_fs = full_scale(&cal.supply);
     for (min, max) in [
-        (p.supply_max_mv, p.supply_max_mv),
-        (-Fx::DELTA, p.supply_max_mv),
-        (p.supply_min_mv, sup_fs + Fx::DELTA),
+        (p.supply_max_vu, p.supply_max_vu),
+        (-Fx::DELTA, p.supply_max_vu),
+        (p.supply_min_vu, sup_fs + Fx::DELTA),
     ] {
         case(
             "supply window",
             refused(|c| {
-                c.protection.supply_min_mv = min;
-                c.protection.supply_max_mv = max;
+                c.protection.supply_min_vu = min;
+                c.protection.supply_max_vu = max;
             }),
             E::SupplyWindowInvalid {
-                supply_min_mv: min,
-                supply_max_mv: max,
-                full_scale_mv: sup_fs,
+                supply_min_vu: min,
+                supply_max_vu: max,
+                full_scale_vu: sup_fs,
             },
         );
     }
@@ -593,38 +652,38 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     // The forward-voltage channel.
     let fv = forward();
     for (short, open) in [
-        (-Fx::ONE, fv.open_mv),
-        (fv.open_mv, fv.open_mv),
-        (fv.short_mv, Fx::from_num(4096)),
+        (-Fx::ONE, fv.open_vu),
+        (fv.open_vu, fv.open_vu),
+        (fv.short_vu, Fx::from_num(4096)),
     ] {
         case(
             "forward-voltage limits",
             refused(|c| {
                 c.forward_voltage = Some(ForwardVoltage {
-                    short_mv: short,
-                    open_mv: open,
+                    short_vu: short,
+                    open_vu: open,
                     ..forward()
                 })
             }),
             E::ForwardVoltageLimitsInvalid {
-                short_mv: short,
-                open_mv: open,
-                full_scale_mv: Fx::from_num(4095),
+                short_vu: short,
+                open_vu: open,
+                full_scale_vu: Fx::from_num(4095),
             },
         );
     }
-    for x in [Fx::ZERO, cur.ceiling_ma + Fx::DELTA] {
+    for x in [Fx::ZERO, cur.ceiling_iu + Fx::DELTA] {
         case(
             "forward-voltage drive",
             refused(|c| {
                 c.forward_voltage = Some(ForwardVoltage {
-                    min_drive_ma: x,
+                    min_drive_iu: x,
                     ..forward()
                 })
             }),
             E::ForwardDriveOutOfRange {
-                min_drive_ma: x,
-                ceiling_ma: cur.ceiling_ma,
+                min_drive_iu: x,
+                ceiling_iu: cur.ceiling_iu,
             },
         );
     }
@@ -674,7 +733,7 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         "plausibility slope zero",
         refused(|c| {
             let mut pl = plausibility();
-            pl.points[1].slope_mw_per_ma = Fx::ZERO;
+            pl.points[1].slope_ou_per_iu = Fx::ZERO;
             c.plausibility = Some(pl);
         }),
         E::PlausibilityPointInvalid { index: 1 },
@@ -683,23 +742,23 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
         "plausibility threshold negative",
         refused(|c| {
             let mut pl = plausibility();
-            pl.points[0].threshold_ma = -Fx::DELTA;
+            pl.points[0].threshold_iu = -Fx::DELTA;
             c.plausibility = Some(pl);
         }),
         E::PlausibilityPointInvalid { index: 0 },
     );
     let pl = plausibility();
     for (w, f, a) in [
-        (-Fx::DELTA, pl.fault_margin, pl.allowance_ma),
+        (-Fx::DELTA, pl.fault_margin, pl.allowance_iu),
         (
             pl.fault_margin + Fx::DELTA,
             pl.fault_margin,
-            pl.allowance_ma,
+            pl.allowance_iu,
         ),
         (
             pl.warning_margin,
             Fx::from_num(4) + Fx::DELTA,
-            pl.allowance_ma,
+            pl.allowance_iu,
         ),
         (pl.warning_margin, pl.fault_margin, -Fx::DELTA),
     ] {
@@ -709,14 +768,14 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
                 c.plausibility = Some(Plausibility {
                     warning_margin: w,
                     fault_margin: f,
-                    allowance_ma: a,
+                    allowance_iu: a,
                     ..plausibility()
                 })
             }),
             E::PlausibilityMarginsInvalid {
                 warning_margin: w,
                 fault_margin: f,
-                allowance_ma: a,
+                allowance_iu: a,
             },
         );
     }
@@ -754,10 +813,10 @@ fn cases() -> Vec<(&'static str, ConfigError, ConfigError)> {
     v
 }
 
-/// `round(ceiling × codes_per_ma) + offset`, halves rounding up, in i128.
+/// `round(ceiling × codes_per_iu) + offset`, halves rounding up, in i128.
 fn ceiling_code(c: &Config) -> i32 {
-    let prod = i128::from(c.current.ceiling_ma.to_bits())
-        * i128::from(c.calibration.dac.codes_per_ma.to_bits());
+    let prod = i128::from(c.current.ceiling_iu.to_bits())
+        * i128::from(c.calibration.dac.codes_per_iu.to_bits());
     (((prod + (1 << 31)) >> 32) + i128::from(c.calibration.dac.offset_codes)) as i32
 }
 
@@ -797,40 +856,40 @@ fn values_just_inside_each_boundary_are_accepted() {
     let d = example::config();
     let hz = d.tick_hz;
     accepted(|c| c.tick_hz = 1_000_000);
-    accepted(|c| c.protection.overcurrent_ma = d.current.ceiling_ma + Fx::DELTA);
-    accepted(|c| c.protection.overcurrent_ma = d.current.absolute_max_ma);
+    accepted(|c| c.protection.overcurrent_iu = d.current.ceiling_iu + Fx::DELTA);
+    accepted(|c| c.protection.overcurrent_iu = d.current.absolute_max_iu);
     let smallest = Fx::from_bits(hz.div_ceil(1000) as i32);
     accepted(|c| {
-        c.ramp.soft_start_ma_per_ms = smallest;
-        c.ramp.soft_stop_ma_per_ms = smallest;
-        c.ramp.setpoint_mw_per_ms = smallest;
-        c.apc.slew_ma_per_ms = smallest;
+        c.ramp.soft_start_iu_per_ms = smallest;
+        c.ramp.soft_stop_iu_per_ms = smallest;
+        c.ramp.setpoint_ou_per_ms = smallest;
+        c.apc.slew_iu_per_ms = smallest;
     });
     accepted(|c| c.ramp.emission_delay_ms = 0);
     accepted(|c| c.ramp.emission_delay_ms = (u64::from(u32::MAX) * 1000 / u64::from(hz)) as u32);
     accepted(|c| c.ramp.handover_fraction = Fx::ONE);
-    accepted(|c| c.power.min_setpoint_mw = d.power.max_setpoint_mw);
-    accepted(|c| c.protection.runaway_mw = d.power.max_setpoint_mw + Fx::DELTA);
-    accepted(|c| c.protection.monitor_loss_floor_mw = Fx::ZERO);
-    let lowest = d.power.min_setpoint_mw * d.ramp.handover_fraction;
-    accepted(|c| c.protection.monitor_loss_floor_mw = lowest - Fx::DELTA);
-    accepted(|c| c.protection.monitor_loss_drive_ma = d.current.ceiling_ma);
-    accepted(|c| c.protection.monitor_loss_drive_ma = Fx::DELTA);
+    accepted(|c| c.power.min_setpoint_ou = d.power.max_setpoint_ou);
+    accepted(|c| c.protection.runaway_ou = d.power.max_setpoint_ou + Fx::DELTA);
+    accepted(|c| c.protection.monitor_loss_floor_ou = Fx::ZERO);
+    let lowest = d.power.min_setpoint_ou * d.ramp.handover_fraction;
+    accepted(|c| c.protection.monitor_loss_floor_ou = lowest - Fx::DELTA);
+    accepted(|c| c.protection.monitor_loss_drive_iu = d.current.ceiling_iu);
+    accepted(|c| c.protection.monitor_loss_drive_iu = Fx::DELTA);
     accepted(|c| c.derating.knee_degc = d.derating.cutoff_degc - Fx::DELTA);
-    accepted(|c| c.derating.floor_ma = Fx::ZERO);
-    accepted(|c| c.derating.floor_ma = d.current.ceiling_ma);
+    accepted(|c| c.derating.floor_iu = Fx::ZERO);
+    accepted(|c| c.derating.floor_iu = d.current.ceiling_iu);
     accepted(|c| c.protection.missed_tick_limit = u16::MAX);
-    accepted(|c| c.protection.mismatch_tolerance_ma = Fx::DELTA);
-    accepted(|c| c.apc.ki_ma_per_mw_ms = Fx::ZERO);
-    accepted(|c| c.apc.kp_ma_per_mw = Fx::MAX / d.protection.runaway_mw);
-    accepted(|c| c.apc.ki_ma_per_mw_ms = Fx::from_num(128 * hz / 1000) - Fx::DELTA);
+    accepted(|c| c.protection.mismatch_tolerance_iu = Fx::DELTA);
+    accepted(|c| c.apc.ki_iu_per_ou_ms = Fx::ZERO);
+    accepted(|c| c.apc.kp_iu_per_ou = Fx::MAX / d.protection.runaway_ou);
+    accepted(|c| c.apc.ki_iu_per_ou_ms = Fx::from_num(128 * hz / 1000) - Fx::DELTA);
     accepted(|c| c.calibration.monitor.offset_counts = 0);
     accepted(|c| c.calibration.dac.max_code = ceiling_code(&d) as u16);
     let mon_fs = full_scale(&d.calibration.monitor);
-    accepted(|c| c.protection.runaway_mw = mon_fs);
+    accepted(|c| c.protection.runaway_ou = mon_fs);
     let sup_fs = full_scale(&d.calibration.supply);
-    accepted(|c| c.protection.supply_max_mv = sup_fs);
-    accepted(|c| c.protection.supply_min_mv = Fx::ZERO);
+    accepted(|c| c.protection.supply_max_vu = sup_fs);
+    accepted(|c| c.protection.supply_min_vu = Fx::ZERO);
     let tc = &d.calibration.temperature;
     let last = tc.table.len() - 1;
     accepted(|c| c.calibration.temperature.low_fault_counts = tc.table[0].counts - 1);
@@ -851,15 +910,15 @@ fn values_just_inside_each_boundary_are_accepted() {
     accepted(|c| c.protection.intermittent_weight = 1);
     accepted(|c| {
         c.forward_voltage = Some(ForwardVoltage {
-            short_mv: Fx::ZERO,
-            open_mv: Fx::from_num(4095),
-            min_drive_ma: c.current.ceiling_ma,
+            short_vu: Fx::ZERO,
+            open_vu: Fx::from_num(4095),
+            min_drive_iu: c.current.ceiling_iu,
             ..forward()
         });
         c.plausibility = Some(Plausibility {
             warning_margin: Fx::from_num(4),
             fault_margin: Fx::from_num(4),
-            allowance_ma: Fx::ZERO,
+            allowance_iu: Fx::ZERO,
             ..plausibility()
         });
     });
@@ -888,28 +947,28 @@ fn per_tick_quantities_are_derived_from_the_rates() {
     let per_tick =
         |x: Fx| Fx::from_bits((i64::from(x.to_bits()) * 1000 / i64::from(d.tick_hz)) as i32);
     assert_eq!(
-        v.soft_start_ma_per_tick(),
-        per_tick(d.ramp.soft_start_ma_per_ms)
+        v.soft_start_iu_per_tick(),
+        per_tick(d.ramp.soft_start_iu_per_ms)
     );
     assert_eq!(
-        v.soft_stop_ma_per_tick(),
-        per_tick(d.ramp.soft_stop_ma_per_ms)
+        v.soft_stop_iu_per_tick(),
+        per_tick(d.ramp.soft_stop_iu_per_ms)
     );
     assert_eq!(
-        v.setpoint_mw_per_tick(),
-        per_tick(d.ramp.setpoint_mw_per_ms)
+        v.setpoint_ou_per_tick(),
+        per_tick(d.ramp.setpoint_ou_per_ms)
     );
-    assert_eq!(v.slew_ma_per_tick(), per_tick(d.apc.slew_ma_per_ms));
+    assert_eq!(v.slew_iu_per_tick(), per_tick(d.apc.slew_iu_per_ms));
     assert_eq!(
         v.emission_delay_ticks(),
         (u64::from(d.ramp.emission_delay_ms) * u64::from(d.tick_hz)).div_ceil(1000) as u32
     );
-    assert_eq!(v.kp(), d.apc.kp_ma_per_mw);
+    assert_eq!(v.kp(), d.apc.kp_iu_per_ou);
     // ki per tick = ki × 1000 / tick_hz, within one Gain LSB.
-    let want = I40F24::from_num(d.apc.ki_ma_per_mw_ms) * 1000 / i64::from(d.tick_hz);
+    let want = I40F24::from_num(d.apc.ki_iu_per_ou_ms) * 1000 / i64::from(d.tick_hz);
     let got = I40F24::from_num(v.ki_per_tick());
     assert!((got - want).abs() <= I40F24::DELTA, "{got} vs {want}");
-    assert_eq!(v.dac_code(d.current.ceiling_ma), ceiling_code(&d) as u16);
+    assert_eq!(v.dac_code(d.current.ceiling_iu), ceiling_code(&d) as u16);
     assert_eq!(v.dac_code(Fx::MAX), d.calibration.dac.max_code, "clamped");
     assert_eq!(v.dac_code(-Fx::ONE), 0, "clamped");
 }

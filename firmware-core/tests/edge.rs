@@ -157,8 +157,7 @@ fn zero_delay() -> ValidConfig {
 fn acc_controller(cfg: &ValidConfig) -> Controller {
     let mut ctl = Controller::new(cfg.clone());
     ctl.request(Request::SetMode(Mode::Acc)).unwrap();
-    ctl.request(Request::SetCurrentMa(Fx::from_num(20)))
-        .unwrap();
+    ctl.request(Request::SetCurrent(Fx::from_num(20))).unwrap();
     ctl
 }
 
@@ -354,7 +353,7 @@ fn off_drives_enable_low_before_zeroing_the_dac() {
 #[test]
 fn emission_writes_the_dac_before_enable_and_a_trip_drops_enable_before_the_dac() {
     let cfg = zero_delay();
-    let ss = cfg.soft_start_ma_per_tick();
+    let ss = cfg.soft_start_iu_per_tick();
     let c1 = cfg.dac_code(ss);
     let c2 = cfg.dac_code(ss * 2);
     assert!(c1 > 0 && c2 > c1);
@@ -413,7 +412,7 @@ fn emission_writes_the_dac_before_enable_and_a_trip_drops_enable_before_the_dac(
 #[test]
 fn the_external_fault_input_passes_through_the_edge_and_latches() {
     let cfg = zero_delay();
-    let c1 = cfg.dac_code(cfg.soft_start_ma_per_tick());
+    let c1 = cfg.dac_code(cfg.soft_start_iu_per_tick());
     let mut en = en_after_start(&[
         PinT::set(Level::Low),
         PinT::set(Level::High),
@@ -449,7 +448,7 @@ fn the_external_fault_input_passes_through_the_edge_and_latches() {
 #[test]
 fn closed_low_interlock_reads_the_low_level_as_closed() {
     let cfg = zero_delay();
-    let c1 = cfg.dac_code(cfg.soft_start_ma_per_tick());
+    let c1 = cfg.dac_code(cfg.soft_start_iu_per_tick());
     let mut en = en_after_start(&[
         PinT::set(Level::Low),
         PinT::set(Level::High),
@@ -488,7 +487,7 @@ fn read_error() -> MockError {
 #[test]
 fn an_interlock_read_error_is_returned_latched_and_counts_as_open() {
     let cfg = zero_delay();
-    let c1 = cfg.dac_code(cfg.soft_start_ma_per_tick());
+    let c1 = cfg.dac_code(cfg.soft_start_iu_per_tick());
     // Off with a failing read: reported, latched as interlock-pin, enable
     // refused. Cleared, then emission, then a failing read while emitting:
     // latched in that tick, enable low, DAC zero.
@@ -560,7 +559,7 @@ fn failed_dac_write(
 ) -> (FailedDac, Pwm, Pin, Pin) {
     let cfg = zero_delay();
     let max = cfg.config().calibration.dac.max_code;
-    let ss = cfg.soft_start_ma_per_tick();
+    let ss = cfg.soft_start_iu_per_tick();
     let (c1, c2) = (cfg.dac_code(ss), cfg.dac_code(ss * 2));
     let mut pwm_ex = Vec::new();
     pwm_ex.extend(pwm_write(0, max)); // construction
@@ -694,7 +693,7 @@ fn a_failed_dac_write_is_latched_at_once_and_holds_enable_low_until_reset() {
 /// The first soft-start code of [`zero_delay`].
 fn f_c1() -> u16 {
     let cfg = zero_delay();
-    cfg.dac_code(cfg.soft_start_ma_per_tick())
+    cfg.dac_code(cfg.soft_start_iu_per_tick())
 }
 
 #[test]
@@ -731,7 +730,7 @@ fn a_dac_and_an_enable_pin_on_a_failed_bus_are_both_reported_and_latched() {
 #[test]
 fn a_failed_enable_rise_is_latched_and_the_edge_goes_back_to_low_and_zero() {
     let cfg = zero_delay();
-    let c1 = cfg.dac_code(cfg.soft_start_ma_per_tick());
+    let c1 = cfg.dac_code(cfg.soft_start_iu_per_tick());
     let log = Log::default();
     let mut en = en_after_start(&[
         PinT::set(Level::Low),
@@ -894,7 +893,7 @@ mod random_failures {
                 let mut counts = adc(&cfg, t as u32);
                 let (en_high, code) = (hw.borrow().en_high, hw.borrow().code);
                 if en_high {
-                    counts.current = counts_for(&cal, dac_ma(&cfg, code));
+                    counts.current = counts_for(&cal, dac_iu(&cfg, code));
                 }
                 let mut pin_refused = false;
                 match board.tick(counts) {

@@ -36,7 +36,7 @@ struct LimitCase {
     fault: Fault,
     cfg: ValidConfig,
     /// ACC current the controller regulates at while the case runs.
-    acc_ma: Fx,
+    acc_iu: Fx,
     /// Puts the reading exactly at the limit.
     at: Box<dyn Fn(&mut Sample)>,
     /// Puts the reading one LSB short of the limit.
@@ -48,7 +48,7 @@ struct LimitCase {
 fn check_limit(case: &LimitCase) {
     let f = case.fault;
     let n = u32::from(debounce(&case.cfg, f));
-    let rig = || Rig::regulating_acc(case.cfg.clone(), case.acc_ma);
+    let rig = || Rig::regulating_acc(case.cfg.clone(), case.acc_iu);
 
     // One LSB short of the limit, for well over the debounce: no condition.
     let mut r = rig();
@@ -107,15 +107,15 @@ fn check_limit(case: &LimitCase) {
 fn overcurrent_case(cfg: ValidConfig) -> LimitCase {
     // A wide mismatch tolerance keeps the drive-mismatch check out of it.
     let mut c = cfg.config().clone();
-    c.protection.mismatch_tolerance_ma = fx(45.0);
+    c.protection.mismatch_tolerance_iu = fx(45.0);
     let cfg = c.validate().unwrap();
-    let limit = cfg.config().protection.overcurrent_ma;
-    let at = lowest_at_or_above(|c| cfg.current_ma(c), limit, FS);
+    let limit = cfg.config().protection.overcurrent_iu;
+    let at = lowest_at_or_above(|c| cfg.current_iu(c), limit, FS);
     LimitCase {
         fault: Fault::Overcurrent,
-        measured: cfg.current_ma(at),
+        measured: cfg.current_iu(at),
         limit,
-        acc_ma: fx(15.0),
+        acc_iu: fx(15.0),
         at: Box::new(move |s| s.current_counts = at),
         short: Box::new(move |s| s.current_counts = at - 1),
         cfg,
@@ -123,13 +123,13 @@ fn overcurrent_case(cfg: ValidConfig) -> LimitCase {
 }
 
 fn runaway_case(cfg: ValidConfig) -> LimitCase {
-    let limit = cfg.config().protection.runaway_mw;
-    let at = lowest_at_or_above(|c| cfg.monitor_mw(c), limit, FS);
+    let limit = cfg.config().protection.runaway_ou;
+    let at = lowest_at_or_above(|c| cfg.monitor_ou(c), limit, FS);
     LimitCase {
         fault: Fault::MonitorRunaway,
-        measured: cfg.monitor_mw(at),
+        measured: cfg.monitor_ou(at),
         limit,
-        acc_ma: fx(15.0),
+        acc_iu: fx(15.0),
         at: Box::new(move |s| s.monitor_counts = at),
         short: Box::new(move |s| s.monitor_counts = at - 1),
         cfg,
@@ -141,7 +141,7 @@ fn interlock_case(cfg: ValidConfig) -> LimitCase {
         fault: Fault::InterlockOpen,
         measured: Fx::ZERO,
         limit: Fx::ONE,
-        acc_ma: fx(15.0),
+        acc_iu: fx(15.0),
         at: Box::new(|s| s.interlock_closed = false),
         short: Box::new(|s| s.interlock_closed = true),
         cfg,
@@ -170,12 +170,12 @@ fn interlock_open() {
 fn monitor_loss_at_the_monitor_floor() {
     let cfg = demo();
     let p = cfg.config().protection;
-    let at = highest_at_or_below(|c| cfg.monitor_mw(c), p.monitor_loss_floor_mw, FS);
+    let at = highest_at_or_below(|c| cfg.monitor_ou(c), p.monitor_loss_floor_ou, FS);
     check_limit(&LimitCase {
         fault: Fault::MonitorLoss,
-        measured: cfg.monitor_mw(at),
-        limit: p.monitor_loss_floor_mw,
-        acc_ma: p.monitor_loss_drive_ma + fx(3.0),
+        measured: cfg.monitor_ou(at),
+        limit: p.monitor_loss_floor_ou,
+        acc_iu: p.monitor_loss_drive_iu + fx(3.0),
         at: Box::new(move |s| s.monitor_counts = at),
         short: Box::new(move |s| s.monitor_counts = at + 1),
         cfg,
@@ -188,7 +188,7 @@ fn monitor_loss_applies_from_its_drive_level() {
     let p = cfg.config().protection;
     let n = u32::from(p.monitor_loss_debounce);
     // At the drive level: trips after the debounce.
-    let mut r = Rig::regulating_acc(cfg.clone(), p.monitor_loss_drive_ma);
+    let mut r = Rig::regulating_acc(cfg.clone(), p.monitor_loss_drive_iu);
     for _ in 1..n {
         assert!(r.step_with(|s| s.monitor_counts = 0).enable);
     }
@@ -196,7 +196,7 @@ fn monitor_loss_applies_from_its_drive_level() {
     assert!(!d.enable);
     assert!(d.status.faults.contains(Fault::MonitorLoss));
     // One LSB below the drive level: never.
-    let mut r = Rig::regulating_acc(cfg, p.monitor_loss_drive_ma - Fx::DELTA);
+    let mut r = Rig::regulating_acc(cfg, p.monitor_loss_drive_iu - Fx::DELTA);
     for _ in 0..n * 10 {
         assert!(r.step_with(|s| s.monitor_counts = 0).enable);
         assert!(!r.ctl.conditions().contains(Fault::MonitorLoss));
@@ -215,8 +215,8 @@ fn monitor_loss_on_a_derated_ceiling_below_its_drive_level() {
     let mut r = Rig::regulating_apc(cfg.clone(), fx(5.0), 200);
     r.s.temp_counts = hot;
     r.run(200);
-    let ceiling = r.ctl.ceiling_ma();
-    assert!(ceiling < p.monitor_loss_drive_ma, "{ceiling} mA");
+    let ceiling = r.ctl.ceiling_iu();
+    assert!(ceiling < p.monitor_loss_drive_iu, "{ceiling} mA");
     assert_eq!(r.ctl.state(), State::Regulating);
     r.monitor_override = Some(0);
     let n = r
@@ -224,14 +224,14 @@ fn monitor_loss_on_a_derated_ceiling_below_its_drive_level() {
         .expect("monitor loss latches on the derated ceiling");
     assert!(r.ctl.faults().contains(Fault::MonitorLoss));
     // It took the wind-up to the ceiling plus the debounce, no more.
-    let wind_up = ((ceiling - fx(5.0)) / cfg.slew_ma_per_tick()).to_num::<u32>() + 2;
+    let wind_up = ((ceiling - fx(5.0)) / cfg.slew_iu_per_tick()).to_num::<u32>() + 2;
     assert!(
         n <= wind_up + u32::from(p.monitor_loss_debounce) + 50,
         "{n} ticks"
     );
     // In ACC on the same derated ceiling a dark monitor is no fault: the
     // configured drive level alone applies.
-    let mut r = Rig::regulating_acc(cfg, c.current.ceiling_ma);
+    let mut r = Rig::regulating_acc(cfg, c.current.ceiling_iu);
     r.s.temp_counts = hot;
     r.monitor_override = Some(0);
     for _ in 0..10 * u32::from(p.monitor_loss_debounce) {
@@ -257,7 +257,7 @@ fn sensor_open_and_short_at_the_rails_for_both_polarities() {
                 fault,
                 measured: Fx::from_num(at),
                 limit: Fx::from_num(at),
-                acc_ma: fx(15.0),
+                acc_iu: fx(15.0),
                 at: Box::new(move |s| s.temp_counts = at),
                 short: Box::new(move |s| s.temp_counts = short),
                 cfg: cfg.clone(),
@@ -280,7 +280,7 @@ fn over_temperature_at_the_cutoff() {
         fault: Fault::OverTemperature,
         measured: cfg.counts_to_degc(at),
         limit: cutoff,
-        acc_ma: fx(15.0),
+        acc_iu: fx(15.0),
         at: Box::new(move |s| s.temp_counts = at),
         short: Box::new(move |s| s.temp_counts = short),
         cfg,
@@ -291,22 +291,22 @@ fn over_temperature_at_the_cutoff() {
 fn supply_under_and_over_at_the_window_edges() {
     let cfg = demo();
     let p = cfg.config().protection;
-    let under = highest_at_or_below(|c| cfg.supply_mv(c), p.supply_min_mv, FS);
-    let over = lowest_at_or_above(|c| cfg.supply_mv(c), p.supply_max_mv, FS);
+    let under = highest_at_or_below(|c| cfg.supply_vu(c), p.supply_min_vu, FS);
+    let over = lowest_at_or_above(|c| cfg.supply_vu(c), p.supply_max_vu, FS);
     check_limit(&LimitCase {
         fault: Fault::SupplyUnder,
-        measured: cfg.supply_mv(under),
-        limit: p.supply_min_mv,
-        acc_ma: fx(15.0),
+        measured: cfg.supply_vu(under),
+        limit: p.supply_min_vu,
+        acc_iu: fx(15.0),
         at: Box::new(move |s| s.supply_counts = under),
         short: Box::new(move |s| s.supply_counts = under + 1),
         cfg: cfg.clone(),
     });
     check_limit(&LimitCase {
         fault: Fault::SupplyOver,
-        measured: cfg.supply_mv(over),
-        limit: p.supply_max_mv,
-        acc_ma: fx(15.0),
+        measured: cfg.supply_vu(over),
+        limit: p.supply_max_vu,
+        acc_iu: fx(15.0),
         at: Box::new(move |s| s.supply_counts = over),
         short: Box::new(move |s| s.supply_counts = over - 1),
         cfg,
@@ -316,24 +316,24 @@ fn supply_under_and_over_at_the_window_edges() {
 #[test]
 fn drive_mismatch_above_and_below_the_command() {
     let cfg = demo();
-    let tol = cfg.config().protection.mismatch_tolerance_ma;
+    let tol = cfg.config().protection.mismatch_tolerance_iu;
     let cmd = fx(15.0);
-    let high = lowest_at_or_above(|c| cfg.current_ma(c) - cmd, tol, FS);
-    let low = highest_at_or_below(|c| cfg.current_ma(c) - cmd, -tol, FS);
+    let high = lowest_at_or_above(|c| cfg.current_iu(c) - cmd, tol, FS);
+    let low = highest_at_or_below(|c| cfg.current_iu(c) - cmd, -tol, FS);
     check_limit(&LimitCase {
         fault: Fault::DriveMismatch,
-        measured: cfg.current_ma(high) - cmd,
+        measured: cfg.current_iu(high) - cmd,
         limit: tol,
-        acc_ma: cmd,
+        acc_iu: cmd,
         at: Box::new(move |s| s.current_counts = high),
         short: Box::new(move |s| s.current_counts = high - 1),
         cfg: cfg.clone(),
     });
     check_limit(&LimitCase {
         fault: Fault::DriveMismatch,
-        measured: cmd - cfg.current_ma(low),
+        measured: cmd - cfg.current_iu(low),
         limit: tol,
-        acc_ma: cmd,
+        acc_iu: cmd,
         at: Box::new(move |s| s.current_counts = low),
         short: Box::new(move |s| s.current_counts = low + 1),
         cfg,
@@ -377,7 +377,7 @@ fn the_tick_index_wraps_without_a_missed_tick() {
     r.step();
     r.step();
     r.req(Request::SetMode(Mode::Acc));
-    r.req(Request::SetCurrentMa(fx(20.0)));
+    r.req(Request::SetCurrent(fx(20.0)));
     r.req(Request::Enable);
     for _ in 0..600 {
         r.step();
@@ -429,9 +429,9 @@ fn documented_armed(f: Fault, s: In) -> bool {
 fn matrix_cfg() -> ValidConfig {
     demo_with(|c| {
         c.ramp.emission_delay_ms = 100;
-        c.ramp.soft_start_ma_per_ms = fx(0.2);
-        c.ramp.soft_stop_ma_per_ms = fx(0.2);
-        c.protection.monitor_loss_drive_ma = Fx::ONE;
+        c.ramp.soft_start_iu_per_ms = fx(0.2);
+        c.ramp.soft_stop_iu_per_ms = fx(0.2);
+        c.protection.monitor_loss_drive_iu = Fx::ONE;
         c.forward_voltage = Some(forward_demo());
         c.plausibility = Some(plausibility_demo());
     })
@@ -445,10 +445,11 @@ fn forward_demo() -> diodestat_core::ForwardVoltage {
             offset_counts: 0,
             units_per_count: diodestat_core::Gain::ONE,
             full_scale_counts: FS,
+            unit_exp: -3,
         },
-        open_mv: fx(3000.0),
-        short_mv: fx(500.0),
-        min_drive_ma: Fx::ONE,
+        open_vu: fx(3000.0),
+        short_vu: fx(500.0),
+        min_drive_iu: Fx::ONE,
         debounce: 3,
     }
 }
@@ -461,14 +462,14 @@ fn forward_demo() -> diodestat_core::ForwardVoltage {
 fn plausibility_demo() -> diodestat_core::Plausibility {
     let pt = |t: f64| diodestat_core::DiodePoint {
         degc: fx(t),
-        threshold_ma: fx(0.5),
-        slope_mw_per_ma: fx(0.55),
+        threshold_iu: fx(0.5),
+        slope_ou_per_iu: fx(0.55),
     };
     diodestat_core::Plausibility {
         points: heapless::Vec::from_slice(&[pt(-20.0), pt(100.0)]).unwrap(),
         warning_margin: fx(0.05),
         fault_margin: fx(0.1),
-        allowance_ma: fx(0.2),
+        allowance_iu: fx(0.2),
         debounce: 200,
     }
 }
@@ -483,14 +484,14 @@ fn rig_in(state: In, pre_latch: Fault) -> Rig {
         return r;
     }
     r.req(Request::SetMode(Mode::Acc));
-    r.req(Request::SetCurrentMa(fx(10.0)));
+    r.req(Request::SetCurrent(fx(10.0)));
     r.req(Request::Enable);
     r.run(10);
     if state == In::Arming {
         assert_eq!(r.ctl.state(), State::Arming);
         return r;
     }
-    r.run_until(100_000, |c, _| c.drive_ma() >= fx(2.0))
+    r.run_until(100_000, |c, _| c.drive_iu() >= fx(2.0))
         .unwrap();
     if state == In::Ramping {
         assert_eq!(r.ctl.state(), State::Ramping);
@@ -525,16 +526,16 @@ fn inject(r: &Rig, f: Fault) -> impl Fn(&mut Sample) {
     let over_temp = (tc.low_fault_counts + 1..tc.high_fault_counts)
         .find(|k| cfg.counts_to_degc(*k) >= c.derating.cutoff_degc)
         .expect("a reading at the cut-off");
-    let oc = lowest_at_or_above(|k| cfg.current_ma(k), p.overcurrent_ma, FS);
-    let ra = lowest_at_or_above(|k| cfg.monitor_mw(k), p.runaway_mw, FS);
+    let oc = lowest_at_or_above(|k| cfg.current_iu(k), p.overcurrent_iu, FS);
+    let ra = lowest_at_or_above(|k| cfg.monitor_ou(k), p.runaway_ou, FS);
     let mismatch = counts_for(
         &c.calibration.current_sense,
-        r.ctl.drive_ma() + p.mismatch_tolerance_ma + Fx::ONE,
+        r.ctl.drive_iu() + p.mismatch_tolerance_iu + Fx::ONE,
     );
     let limit = u32::from(p.missed_tick_limit);
     // Implausible: 2 mA more than commanded (inside the mismatch
     // tolerance) for 0.5 mW (above the monitor-loss floor).
-    let plaus_cur = counts_for(&c.calibration.current_sense, r.ctl.drive_ma() + fx(2.0));
+    let plaus_cur = counts_for(&c.calibration.current_sense, r.ctl.drive_iu() + fx(2.0));
     let plaus_mon = counts_for(&c.calibration.monitor, fx(0.5));
     move |s: &mut Sample| match f {
         Fault::Overcurrent => s.current_counts = oc,
@@ -638,8 +639,8 @@ fn all_records(r: &Rig) -> Vec<FaultRecord> {
 fn fault_log_keeps_the_first_apart_and_a_bounded_ring_of_later_ones() {
     let cfg = demo();
     let p = cfg.config().protection;
-    let oc = lowest_at_or_above(|k| cfg.current_ma(k), p.overcurrent_ma, FS);
-    let ra = lowest_at_or_above(|k| cfg.monitor_mw(k), p.runaway_mw, FS);
+    let oc = lowest_at_or_above(|k| cfg.current_iu(k), p.overcurrent_iu, FS);
+    let ra = lowest_at_or_above(|k| cfg.monitor_ou(k), p.runaway_ou, FS);
     let mut r = Rig::new(cfg.clone());
     let cycles = FAULT_RING_LEN + 4;
     let mut expected = Vec::new();
@@ -655,15 +656,15 @@ fn fault_log_keeps_the_first_apart_and_a_bounded_ring_of_later_ones() {
             FaultRecord {
                 fault: Fault::Overcurrent,
                 tick: r.s.tick,
-                measured: cfg.current_ma(oc),
-                limit: p.overcurrent_ma,
+                measured: cfg.current_iu(oc),
+                limit: p.overcurrent_iu,
             }
         } else {
             FaultRecord {
                 fault: Fault::MonitorRunaway,
                 tick: r.s.tick,
-                measured: cfg.monitor_mw(ra),
-                limit: p.runaway_mw,
+                measured: cfg.monitor_ou(ra),
+                limit: p.runaway_ou,
             }
         });
         r.step();
@@ -682,8 +683,8 @@ fn fault_log_keeps_the_first_apart_and_a_bounded_ring_of_later_ones() {
 fn simultaneous_trips_are_logged_in_bit_order_with_the_same_tick() {
     let cfg = demo();
     let p = cfg.config().protection;
-    let oc = lowest_at_or_above(|k| cfg.current_ma(k), p.overcurrent_ma, FS);
-    let ra = lowest_at_or_above(|k| cfg.monitor_mw(k), p.runaway_mw, FS);
+    let oc = lowest_at_or_above(|k| cfg.current_iu(k), p.overcurrent_iu, FS);
+    let ra = lowest_at_or_above(|k| cfg.monitor_ou(k), p.runaway_ou, FS);
     let mut r = Rig::new(cfg);
     let d = r.step_with(|s| {
         s.monitor_counts = ra;
@@ -703,7 +704,7 @@ fn simultaneous_trips_are_logged_in_bit_order_with_the_same_tick() {
 fn an_active_fault_is_logged_once_and_a_later_fast_fault_is_added() {
     let cfg = demo();
     let p = cfg.config().protection;
-    let ra = lowest_at_or_above(|k| cfg.monitor_mw(k), p.runaway_mw, FS);
+    let ra = lowest_at_or_above(|k| cfg.monitor_ou(k), p.runaway_ou, FS);
     let mut r = Rig::regulating_acc(cfg, fx(15.0));
     let d = r.step_with(|s| s.interlock_closed = false);
     assert_eq!(d.status.state, State::Latched);
@@ -736,7 +737,7 @@ fn an_active_fault_is_logged_once_and_a_later_fast_fault_is_added() {
 /// one LSB.
 fn curve(cfg: &ValidConfig, t: Fx) -> Fx {
     let c = cfg.config();
-    let (top, floor) = (c.current.ceiling_ma, c.derating.floor_ma);
+    let (top, floor) = (c.current.ceiling_iu, c.derating.floor_iu);
     let (knee, cut) = (c.derating.knee_degc, c.derating.cutoff_degc);
     if t <= knee {
         return top;
@@ -754,30 +755,30 @@ fn curve(cfg: &ValidConfig, t: Fx) -> Fx {
 fn derated_ceiling_is_full_below_the_knee_linear_and_the_floor_from_the_cutoff() {
     let cfg = demo();
     let d = cfg.config().derating;
-    let top = cfg.config().current.ceiling_ma;
+    let top = cfg.config().current.ceiling_iu;
     let mut prev = top;
     let mut t = d.knee_degc - fx(10.0);
     while t <= d.cutoff_degc + fx(10.0) {
-        let got = cfg.derated_ceiling_ma(t);
+        let got = cfg.derated_ceiling_iu(t);
         let want = curve(&cfg, t);
         assert!((got - want).abs() <= Fx::DELTA, "{t} degC: {got} vs {want}");
         assert!(got <= prev, "non-increasing");
-        assert!(got >= d.floor_ma && got <= top);
+        assert!(got >= d.floor_iu && got <= top);
         prev = got;
         t += fx(0.125);
     }
-    assert_eq!(cfg.derated_ceiling_ma(d.knee_degc), top);
-    assert_eq!(cfg.derated_ceiling_ma(d.cutoff_degc), d.floor_ma);
+    assert_eq!(cfg.derated_ceiling_iu(d.knee_degc), top);
+    assert_eq!(cfg.derated_ceiling_iu(d.cutoff_degc), d.floor_iu);
     let mid = (d.knee_degc + d.cutoff_degc) / 2;
-    let half = (top + d.floor_ma) / 2;
-    assert!((cfg.derated_ceiling_ma(mid) - half).abs() <= Fx::DELTA);
+    let half = (top + d.floor_iu) / 2;
+    assert!((cfg.derated_ceiling_iu(mid) - half).abs() <= Fx::DELTA);
 }
 
 #[test]
 fn the_controller_applies_the_derated_ceiling_in_the_same_tick() {
     let cfg = demo();
     let c = cfg.config().clone();
-    let top = c.current.ceiling_ma;
+    let top = c.current.ceiling_iu;
     let tc = c.calibration.temperature.clone();
     let knee_counts = temp_counts_for(&cfg, c.derating.knee_degc);
     assert_eq!(cfg.counts_to_degc(knee_counts), c.derating.knee_degc);
@@ -800,9 +801,9 @@ fn the_controller_applies_the_derated_ceiling_in_the_same_tick() {
         let mut r = Rig::regulating_acc(cfg.clone(), top);
         r.run(100);
         let d = r.step_with(|s| s.temp_counts = counts);
-        assert!((r.ctl.ceiling_ma() - want).abs() <= Fx::DELTA, "{t} degC");
-        assert!(r.ctl.drive_ma() <= r.ctl.ceiling_ma());
-        assert!((r.ctl.drive_ma() - want).abs() <= Fx::DELTA, "{t} degC");
+        assert!((r.ctl.ceiling_iu() - want).abs() <= Fx::DELTA, "{t} degC");
+        assert!(r.ctl.drive_iu() <= r.ctl.ceiling_iu());
+        assert!((r.ctl.drive_iu() - want).abs() <= Fx::DELTA, "{t} degC");
         assert!(d.dac_code <= cfg.dac_code(want));
         assert_eq!(d.status.warnings.derating, t > c.derating.knee_degc, "{t}");
         assert!(!d.status.warnings.sensor_suspect);
@@ -810,7 +811,7 @@ fn the_controller_applies_the_derated_ceiling_in_the_same_tick() {
         for _ in 2..c.protection.over_temp_debounce {
             let d = r.step();
             assert!(d.enable, "{t} degC");
-            assert!((r.ctl.drive_ma() - want).abs() <= Fx::DELTA);
+            assert!((r.ctl.drive_iu() - want).abs() <= Fx::DELTA);
         }
     }
 }
@@ -819,7 +820,7 @@ fn the_controller_applies_the_derated_ceiling_in_the_same_tick() {
 fn a_sensor_at_a_rail_holds_the_ceiling_at_the_floor_until_it_trips() {
     let cfg = demo();
     let c = cfg.config().clone();
-    let floor = c.derating.floor_ma;
+    let floor = c.derating.floor_iu;
     let tc = c.calibration.temperature.clone();
     let n = c.protection.sensor_debounce;
     for (counts, fault) in [
@@ -832,14 +833,14 @@ fn a_sensor_at_a_rail_holds_the_ceiling_at_the_floor_until_it_trips() {
             let mut r = if apc {
                 Rig::regulating_apc(cfg.clone(), fx(20.0), 1_000)
             } else {
-                Rig::regulating_acc(cfg.clone(), c.current.ceiling_ma)
+                Rig::regulating_acc(cfg.clone(), c.current.ceiling_iu)
             };
-            assert!(r.ctl.drive_ma() > floor);
+            assert!(r.ctl.drive_iu() > floor);
             for _ in 1..n {
                 let d = r.step_with(|s| s.temp_counts = counts);
                 assert!(d.enable);
-                assert_eq!(r.ctl.ceiling_ma(), floor, "{counts} counts");
-                assert!(r.ctl.drive_ma() <= floor);
+                assert_eq!(r.ctl.ceiling_iu(), floor, "{counts} counts");
+                assert!(r.ctl.drive_iu() <= floor);
                 assert!(d.dac_code <= cfg.dac_code(floor));
                 assert!(d.status.warnings.sensor_suspect);
                 assert!(!d.status.warnings.derating);
@@ -880,26 +881,26 @@ fn the_derated_ceiling_also_bounds_the_soft_stop_and_the_soft_start() {
     let cfg = demo();
     let c = cfg.config().clone();
     let hot = temp_counts_for(&cfg, c.derating.cutoff_degc);
-    let floor = c.derating.floor_ma;
+    let floor = c.derating.floor_iu;
     // Soft stop from the full ceiling: a hot sample pulls the drive under
     // the floor in that tick.
-    let mut r = Rig::regulating_acc(cfg.clone(), c.current.ceiling_ma);
+    let mut r = Rig::regulating_acc(cfg.clone(), c.current.ceiling_iu);
     r.req(Request::Disable);
     r.run(3);
     assert_eq!(r.ctl.state(), State::Stopping);
-    assert!(r.ctl.drive_ma() > floor);
+    assert!(r.ctl.drive_iu() > floor);
     let d = r.step_with(|s| s.temp_counts = hot);
-    assert!(r.ctl.drive_ma() <= floor);
+    assert!(r.ctl.drive_iu() <= floor);
     assert!(d.dac_code <= cfg.dac_code(floor));
     // Soft start towards the full ceiling, hot: it stops at the floor.
     let mut r = Rig::new(cfg.clone());
     r.req(Request::SetMode(Mode::Acc));
-    r.req(Request::SetCurrentMa(c.current.ceiling_ma));
+    r.req(Request::SetCurrent(c.current.ceiling_iu));
     r.req(Request::Enable);
     r.s.temp_counts = hot;
     for _ in 1..c.protection.over_temp_debounce {
         let d = r.step();
-        assert!(r.ctl.drive_ma() <= floor);
+        assert!(r.ctl.drive_iu() <= floor);
         assert!(d.dac_code <= cfg.dac_code(floor));
     }
 }

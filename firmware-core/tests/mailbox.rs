@@ -13,7 +13,7 @@ fn two_threads_pass_every_message_once_in_order() {
     let producer = thread::spawn(|| {
         let mut full = 0u64;
         for k in 0..N {
-            let mut msg = Request::SetCurrentMa(Fx::from_bits(k));
+            let mut msg = Request::SetCurrent(Fx::from_bits(k));
             loop {
                 match BOX.push(msg) {
                     Ok(()) => break,
@@ -31,7 +31,7 @@ fn two_threads_pass_every_message_once_in_order() {
         let mut next = 0;
         while next < N {
             match BOX.pop() {
-                Some(Request::SetCurrentMa(v)) => {
+                Some(Request::SetCurrent(v)) => {
                     assert_eq!(v.to_bits(), next, "out of order or lost");
                     next += 1;
                 }
@@ -65,7 +65,7 @@ mod model {
             for op in ops {
                 match op {
                     Some(v) => {
-                        let r = Request::SetPowerMw(Fx::from_bits(v));
+                        let r = Request::SetPower(Fx::from_bits(v));
                         let model = if q.len() < 3 { q.push_back(r); Ok(()) } else { Err(Full(r)) };
                         prop_assert_eq!(m.push(r), model);
                     }

@@ -53,7 +53,7 @@ fn a_reset_in_the_latched_state_comes_back_latched() {
         ..Rig::new(demo())
     };
     r2.req(Request::SetMode(Mode::Acc));
-    r2.req(Request::SetCurrentMa(Fx::from_num(30)));
+    r2.req(Request::SetCurrent(Fx::from_num(30)));
     r2.req(Request::Enable);
     r2.run(200);
     r2.step_with(|s| s.interlock_closed = false);
@@ -148,8 +148,8 @@ fn any_request_but_clear() -> impl Strategy<Value = Request> {
     prop_oneof![
         Just(Request::Enable),
         Just(Request::Disable),
-        any::<i32>().prop_map(|b| Request::SetPowerMw(Fx::from_bits(b))),
-        any::<i32>().prop_map(|b| Request::SetCurrentMa(Fx::from_bits(b))),
+        any::<i32>().prop_map(|b| Request::SetPower(Fx::from_bits(b))),
+        any::<i32>().prop_map(|b| Request::SetCurrent(Fx::from_bits(b))),
         Just(Request::SetMode(Mode::Apc)),
         Just(Request::SetMode(Mode::Acc)),
     ]

@@ -3,7 +3,7 @@
 //! plant with random disturbances of every channel:
 //! - the DAC code never exceeds `dac_code(min(configured ceiling, derated
 //!   ceiling))` for the temperature of that very sample, and
-//!   `drive_ma() <= ceiling_ma()`;
+//!   `drive_iu() <= ceiling_iu()`;
 //! - enable is low (and the DAC code zero) in Off, Arming and Latched;
 //! - Latched is left only by an accepted ClearFaults, and only to Off;
 //! - `step` and `request` never panic.
@@ -47,9 +47,9 @@ fn arb_request() -> impl Strategy<Value = Option<Request>> {
         1 => Just(Some(Request::Disable)),
         2 => Just(Some(Request::ClearFaults)),
         1 => (-5i32 * 65_536..40 * 65_536)
-            .prop_map(|b| Some(Request::SetPowerMw(Fx::from_bits(b)))),
+            .prop_map(|b| Some(Request::SetPower(Fx::from_bits(b)))),
         1 => (-5i32 * 65_536..70 * 65_536)
-            .prop_map(|b| Some(Request::SetCurrentMa(Fx::from_bits(b)))),
+            .prop_map(|b| Some(Request::SetCurrent(Fx::from_bits(b)))),
         1 => prop_oneof![Just(Mode::Apc), Just(Mode::Acc)]
             .prop_map(|m| Some(Request::SetMode(m))),
     ]
@@ -61,11 +61,11 @@ fn static_ceiling(cfg: &ValidConfig, s: &Sample) -> Fx {
     let c = cfg.config();
     let tc = &c.calibration.temperature;
     let derated = if s.temp_counts <= tc.low_fault_counts || s.temp_counts >= tc.high_fault_counts {
-        c.derating.floor_ma
+        c.derating.floor_iu
     } else {
-        cfg.derated_ceiling_ma(cfg.counts_to_degc(s.temp_counts))
+        cfg.derated_ceiling_iu(cfg.counts_to_degc(s.temp_counts))
     };
-    derated.min(c.current.ceiling_ma)
+    derated.min(c.current.ceiling_iu)
 }
 
 fn run(cfg: ValidConfig, steps: &[(Option<Request>, Poke)]) -> Result<(), TestCaseError> {
@@ -125,12 +125,12 @@ fn run(cfg: ValidConfig, steps: &[(Option<Request>, Poke)]) -> Result<(), TestCa
             ceiling,
             cfg.dac_code(ceiling)
         );
-        prop_assert!(r.ctl.ceiling_ma() <= ceiling, "{}: ceiling in force", i);
-        prop_assert!(r.ctl.drive_ma() <= r.ctl.ceiling_ma(), "{}: drive", i);
-        prop_assert!(r.ctl.drive_ma() >= Fx::ZERO);
+        prop_assert!(r.ctl.ceiling_iu() <= ceiling, "{}: ceiling in force", i);
+        prop_assert!(r.ctl.drive_iu() <= r.ctl.ceiling_iu(), "{}: drive", i);
+        prop_assert!(r.ctl.drive_iu() >= Fx::ZERO);
         prop_assert_eq!(d.enable, st.is_emitting());
         if d.enable {
-            prop_assert_eq!(d.dac_code, cfg.dac_code(r.ctl.drive_ma()));
+            prop_assert_eq!(d.dac_code, cfg.dac_code(r.ctl.drive_iu()));
         } else {
             prop_assert_eq!(d.dac_code, 0);
         }
@@ -168,19 +168,19 @@ fn arb_config() -> impl Strategy<Value = Config> {
                 let mut c = example::config();
                 let tenth = |v: i32| Fx::from_num(v) / 10;
                 c.tick_hz = hz;
-                c.current.ceiling_ma = Fx::from_num(ceil);
+                c.current.ceiling_iu = Fx::from_num(ceil);
                 c.ramp.emission_delay_ms = delay;
                 c.ramp.handover_fraction = Fx::from_num(ho) / 100;
-                c.ramp.soft_start_ma_per_ms = tenth(ss);
-                c.ramp.soft_stop_ma_per_ms = tenth(st);
-                c.ramp.setpoint_mw_per_ms = tenth(sp);
-                c.apc.slew_ma_per_ms = tenth(sl);
-                c.apc.kp_ma_per_mw = Fx::from_num(kp) / 100;
-                c.apc.ki_ma_per_mw_ms = tenth(ki);
+                c.ramp.soft_start_iu_per_ms = tenth(ss);
+                c.ramp.soft_stop_iu_per_ms = tenth(st);
+                c.ramp.setpoint_ou_per_ms = tenth(sp);
+                c.apc.slew_iu_per_ms = tenth(sl);
+                c.apc.kp_iu_per_ou = Fx::from_num(kp) / 100;
+                c.apc.ki_iu_per_ou_ms = tenth(ki);
                 c.derating.knee_degc = Fx::from_num(knee);
                 c.derating.cutoff_degc = Fx::from_num(knee + span);
-                c.derating.floor_ma = c.current.ceiling_ma * Fx::from_num(fl) / 100;
-                c.protection.monitor_loss_drive_ma = c.current.ceiling_ma * Fx::from_num(0.9);
+                c.derating.floor_iu = c.current.ceiling_iu * Fx::from_num(fl) / 100;
+                c.protection.monitor_loss_drive_iu = c.current.ceiling_iu * Fx::from_num(0.9);
                 c.protection.overcurrent_debounce = deb[0];
                 c.protection.runaway_debounce = deb[1];
                 c.protection.monitor_loss_debounce = deb[2];
@@ -190,7 +190,7 @@ fn arb_config() -> impl Strategy<Value = Config> {
                 c.protection.supply_debounce = deb[6];
                 c.protection.mismatch_debounce = deb[7];
                 c.protection.missed_tick_limit = mt;
-                c.protection.mismatch_tolerance_ma = Fx::from_num(tol);
+                c.protection.mismatch_tolerance_iu = Fx::from_num(tol);
                 c
             },
         )
@@ -239,7 +239,7 @@ proptest! {
                              forward_counts: None, external_fault: false };
             let d = ctl.step(&s);
             prop_assert!(d.dac_code <= cfg.dac_code(static_ceiling(&cfg, &s)));
-            prop_assert!(ctl.drive_ma() <= ctl.ceiling_ma());
+            prop_assert!(ctl.drive_iu() <= ctl.ceiling_iu());
             if before == State::Latched {
                 prop_assert_eq!(d.status.state, State::Latched);
                 prop_assert!(!d.enable);

@@ -106,7 +106,7 @@ fn emission_does_not_start_while_a_condition_is_present() {
     let delay = cfg.emission_delay_ticks();
     let mut r = Rig::new(cfg);
     r.req(Request::SetMode(diodestat_core::Mode::Acc));
-    r.req(Request::SetCurrentMa(fx(30.0)));
+    r.req(Request::SetCurrent(fx(30.0)));
     r.req(Request::Enable);
     // The delay runs out with the reading present from its last tick on.
     for _ in 0..delay.saturating_sub(1) {
@@ -278,15 +278,15 @@ fn a_degrading_monitor_warns_then_trips_the_plausibility_check() {
     use diodestat_core::{DiodePoint, Plausibility};
     let pt = |t: f64| DiodePoint {
         degc: fx(t),
-        threshold_ma: fx(25.0),
-        slope_mw_per_ma: fx(0.9),
+        threshold_iu: fx(25.0),
+        slope_ou_per_iu: fx(0.9),
     };
     let cfg = demo_with(|c| {
         c.plausibility = Some(Plausibility {
             points: heapless::Vec::from_slice(&[pt(-20.0), pt(100.0)]).unwrap(),
             warning_margin: fx(0.1),
             fault_margin: fx(0.2),
-            allowance_ma: fx(0.5),
+            allowance_iu: fx(0.5),
             debounce: 20,
         })
     });
@@ -297,13 +297,13 @@ fn a_degrading_monitor_warns_then_trips_the_plausibility_check() {
     for k in 0..40_000u32 {
         // The monitor loses 1/40 000 of its responsivity per tick.
         let factor = 1.0 - f64::from(k) / 40_000.0;
-        let seen = r.plant.power_mw().to_num::<f64>() * factor;
+        let seen = r.plant.power_ou().to_num::<f64>() * factor;
         let d = r.step_with(|s| s.monitor_counts = counts_for(&mon, fx(seen)));
         if d.status.warnings.end_of_life && warned.is_none() {
             warned = Some(k);
         }
         if d.status.faults.contains(Fault::PowerImplausible) {
-            tripped = Some((k, r.plant.power_mw()));
+            tripped = Some((k, r.plant.power_ou()));
             break;
         }
     }
@@ -333,10 +333,11 @@ fn forward_voltage_open_and_short_at_their_limits() {
                 offset_counts: 100,
                 units_per_count: Gain::from_num(2),
                 full_scale_counts: 4095,
+                unit_exp: -3,
             },
-            open_mv: fx(3000.0),
-            short_mv: fx(500.0),
-            min_drive_ma: fx(1.0),
+            open_vu: fx(3000.0),
+            short_vu: fx(500.0),
+            min_drive_iu: fx(1.0),
             debounce: 3,
         })
     });
@@ -373,7 +374,7 @@ fn forward_voltage_open_and_short_at_their_limits() {
                 limit: fx(mv),
             })
         );
-        assert_eq!(r.ctl.measurements().forward_mv, fx(mv));
+        assert_eq!(r.ctl.measurements().forward_vu, fx(mv));
     }
 }
 
@@ -441,15 +442,15 @@ fn plausible_demo(n: u16) -> diodestat_core::ValidConfig {
     use diodestat_core::{DiodePoint, Plausibility};
     let pt = |t: f64| DiodePoint {
         degc: fx(t),
-        threshold_ma: fx(25.0),
-        slope_mw_per_ma: fx(0.9),
+        threshold_iu: fx(25.0),
+        slope_ou_per_iu: fx(0.9),
     };
     demo_with(|c| {
         c.plausibility = Some(Plausibility {
             points: heapless::Vec::from_slice(&[pt(-20.0), pt(100.0)]).unwrap(),
             warning_margin: fx(0.1),
             fault_margin: fx(0.2),
-            allowance_ma: fx(0.5),
+            allowance_iu: fx(0.5),
             debounce: n,
         })
     })

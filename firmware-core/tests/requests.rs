@@ -19,7 +19,7 @@ fn rigs() -> Vec<(State, Rig)> {
     arming.run(3);
     let mut ramping = Rig::new(demo());
     ramping.req(Request::SetMode(Mode::Acc));
-    ramping.req(Request::SetCurrentMa(fx(40.0)));
+    ramping.req(Request::SetCurrent(fx(40.0)));
     ramping.req(Request::Enable);
     ramping
         .run_until(10_000, |c, _| c.state() == State::Ramping)
@@ -176,9 +176,9 @@ fn clear_faults_is_refused_while_any_condition_is_present() {
 fn power_setpoint_range_is_the_configured_one() {
     let mut r = Rig::new(demo());
     let p = r.cfg().config().power;
-    let (min, max) = (p.min_setpoint_mw, p.max_setpoint_mw);
+    let (min, max) = (p.min_setpoint_ou, p.max_setpoint_ou);
     assert_eq!(
-        r.ctl.power_target_mw(),
+        r.ctl.power_target_ou(),
         min,
         "starts at the lowest setpoint"
     );
@@ -190,52 +190,48 @@ fn power_setpoint_range_is_the_configured_one() {
         Fx::MAX,
     ] {
         assert_eq!(
-            r.ctl.request(Request::SetPowerMw(bad)),
+            r.ctl.request(Request::SetPower(bad)),
             Err(Rejection::OutOfRange {
                 requested: bad,
                 min,
                 max
             })
         );
-        assert_eq!(r.ctl.power_target_mw(), min, "a refusal changes nothing");
+        assert_eq!(r.ctl.power_target_ou(), min, "a refusal changes nothing");
     }
     for good in [min, max, (min + max) / 2] {
-        assert_eq!(r.ctl.request(Request::SetPowerMw(good)), Ok(()));
-        assert_eq!(r.ctl.power_target_mw(), good);
+        assert_eq!(r.ctl.request(Request::SetPower(good)), Ok(()));
+        assert_eq!(r.ctl.power_target_ou(), good);
     }
 }
 
 #[test]
 fn current_setpoint_range_is_zero_to_the_ceiling() {
     let mut r = Rig::new(demo());
-    let max = r.cfg().config().current.ceiling_ma;
+    let max = r.cfg().config().current.ceiling_iu;
     for bad in [-Fx::DELTA, max + Fx::DELTA, Fx::MIN] {
         assert_eq!(
-            r.ctl.request(Request::SetCurrentMa(bad)),
+            r.ctl.request(Request::SetCurrent(bad)),
             Err(Rejection::OutOfRange {
                 requested: bad,
                 min: Fx::ZERO,
                 max
             })
         );
-        assert_eq!(r.ctl.current_target_ma(), Fx::ZERO);
+        assert_eq!(r.ctl.current_target_iu(), Fx::ZERO);
     }
     for good in [Fx::ZERO, max, max / 3] {
-        assert_eq!(r.ctl.request(Request::SetCurrentMa(good)), Ok(()));
-        assert_eq!(r.ctl.current_target_ma(), good);
+        assert_eq!(r.ctl.request(Request::SetCurrent(good)), Ok(()));
+        assert_eq!(r.ctl.current_target_iu(), good);
     }
 }
 
 #[test]
 fn setpoints_are_accepted_in_every_state() {
     for (st, mut r) in rigs() {
+        assert_eq!(r.ctl.request(Request::SetPower(fx(7.0))), Ok(()), "{st:?}");
         assert_eq!(
-            r.ctl.request(Request::SetPowerMw(fx(7.0))),
-            Ok(()),
-            "{st:?}"
-        );
-        assert_eq!(
-            r.ctl.request(Request::SetCurrentMa(fx(7.0))),
+            r.ctl.request(Request::SetCurrent(fx(7.0))),
             Ok(()),
             "{st:?}"
         );
@@ -272,10 +268,10 @@ fn a_mode_request_takes_effect_at_the_next_tick() {
 fn a_setpoint_request_takes_effect_at_the_next_tick() {
     let mut r = Rig::regulating_acc(demo(), fx(10.0));
     r.run(1_000);
-    r.req(Request::SetCurrentMa(fx(20.0)));
-    assert_eq!(r.ctl.drive_ma(), fx(10.0));
+    r.req(Request::SetCurrent(fx(20.0)));
+    assert_eq!(r.ctl.drive_iu(), fx(10.0));
     r.step();
-    assert!(r.ctl.drive_ma() > fx(10.0));
+    assert!(r.ctl.drive_iu() > fx(10.0));
 }
 
 #[test]

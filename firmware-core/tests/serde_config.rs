@@ -22,15 +22,15 @@ fn a_configuration_reads_back_equal_with_its_fingerprint() {
 fn values_are_their_raw_bits_and_unknown_keys_are_refused() {
     let c = example::config();
     let mut v: serde_json::Value = serde_json::to_value(&c).unwrap();
-    let kp = c.apc.kp_ma_per_mw.to_bits();
-    assert_eq!(v["apc"]["kp_ma_per_mw"]["bits"], kp);
-    v["apc"]["kp_ma_per_mw"]["bits"] = (kp + 1).into();
+    let kp = c.apc.kp_iu_per_ou.to_bits();
+    assert_eq!(v["apc"]["kp_iu_per_ou"]["bits"], kp);
+    v["apc"]["kp_iu_per_ou"]["bits"] = (kp + 1).into();
     let edited: Config = serde_json::from_value(v.clone()).unwrap();
     assert_eq!(
-        edited.apc.kp_ma_per_mw,
-        c.apc.kp_ma_per_mw + Fx::from_bits(1)
+        edited.apc.kp_iu_per_ou,
+        c.apc.kp_iu_per_ou + Fx::from_bits(1)
     );
-    v["apc"]["kp_ma_per_mv"] = 1.into();
+    v["apc"]["kp_ma_per_vu"] = 1.into();
     let e = serde_json::from_value::<Config>(v).unwrap_err().to_string();
-    assert!(e.contains("kp_ma_per_mv"), "{e}");
+    assert!(e.contains("kp_ma_per_vu"), "{e}");
 }

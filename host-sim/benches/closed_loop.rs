@@ -17,7 +17,7 @@ const AMBIENT_C: f64 = 25.0;
 /// The requests of the benchmark scenario at their ticks.
 fn requests(ctl: &mut Controller, tick: u32) {
     let r = match tick {
-        0 => Request::SetPowerMw(Fx::saturating_from_num(SETPOINT_MW)),
+        0 => Request::SetPower(Fx::saturating_from_num(SETPOINT_MW)),
         2 => Request::Enable,
         _ => return,
     };
@@ -100,6 +100,7 @@ fn bench(c: &mut Criterion) {
         seed: 1,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1000,
+        aging_speedup: 1.0,
         events: vec![
             Event {
                 at_ms: 0.0,
@@ -181,6 +182,26 @@ fn bench(c: &mut Criterion) {
                 acc += d.step_quasi_static_reference(t.i_a, t.tj_k).p_front_w;
             }
             acc
+        })
+    });
+    g.bench_function("diode_aging", |b| {
+        let dt = 1.0 / 20_000.0;
+        b.iter(|| {
+            let mut d = base.diode.clone();
+            for t in &ticks {
+                d.age_over(t.i_a, t.tj_k, dt);
+            }
+            d.age_hours()
+        })
+    });
+    g.bench_function("diode_aging_reference", |b| {
+        let dt = 1.0 / 20_000.0;
+        b.iter(|| {
+            let mut d = base.diode.clone();
+            for t in &ticks {
+                d.age_over_reference(t.i_a, t.tj_k, dt);
+            }
+            d.age_hours()
         })
     });
     g.bench_function("thermal", |b| {

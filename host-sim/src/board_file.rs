@@ -18,7 +18,7 @@ use diodestat_core::{
     AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, DiodePoint, Plausibility,
     PowerRange, Protection, Rail, Ramps, TempCal, DIODE_POINTS,
 };
-use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, ValidConfig};
+use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, Units, ValidConfig};
 use serde::{Deserialize, Deserializer};
 
 use crate::calibration;
@@ -29,6 +29,7 @@ use crate::locate::{locate, plain_message, Place, Seg};
 use crate::module_file;
 use crate::plant::DemoModule;
 use crate::sim::DacLatency;
+use crate::units::{self, Scale};
 
 /// Longest board name, characters.
 pub const MAX_NAME_CHARS: usize = 64;
@@ -74,6 +75,26 @@ impl<'de> Deserialize<'de> for FxValue {
             )));
         }
         Ok(FxValue(Fx::from_num(v)))
+    }
+}
+
+/// An engineering value (a current in mA, a power in mW, a voltage in mV
+/// or a ratio of them), read from a TOML number: non-finite numbers are
+/// refused where they stand in the file. It meets the core's range only
+/// when converted into the board's units ([`to_config`]), which refuses a
+/// value those units cannot hold, naming its key.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct EngValue(pub f64);
+
+impl<'de> Deserialize<'de> for EngValue {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let v = f64::deserialize(d)?;
+        if !v.is_finite() {
+            return Err(serde::de::Error::custom(format!(
+                "{v} is not a finite number"
+            )));
+        }
+        Ok(EngValue(v))
     }
 }
 
@@ -248,7 +269,7 @@ pub struct PlausibilitySection {
     /// Fault margin, fraction.
     pub fault_margin: FxValue,
     /// Absolute allowance, mA.
-    pub allowance_ma: FxValue,
+    pub allowance_ma: EngValue,
     /// Fault debounce, ticks.
     pub debounce_ticks: u16,
 }
@@ -271,9 +292,9 @@ pub struct LoopCheckSection {
 #[serde(deny_unknown_fields)]
 pub struct CurrentSection {
     /// Diode absolute maximum, mA.
-    pub absolute_max_ma: FxValue,
+    pub absolute_max_ma: EngValue,
     /// Operating ceiling, mA.
-    pub ceiling_ma: FxValue,
+    pub ceiling_ma: EngValue,
 }
 
 /// `[power]`.
@@ -281,9 +302,9 @@ pub struct CurrentSection {
 #[serde(deny_unknown_fields)]
 pub struct PowerSection {
     /// Lowest APC setpoint, mW.
-    pub min_setpoint_mw: FxValue,
+    pub min_setpoint_mw: EngValue,
     /// Highest APC setpoint, mW.
-    pub max_setpoint_mw: FxValue,
+    pub max_setpoint_mw: EngValue,
 }
 
 /// `[ramp]`.
@@ -293,13 +314,13 @@ pub struct RampSection {
     /// Enable-to-current delay, ms.
     pub emission_delay_ms: u32,
     /// Soft-start rate, mA/ms.
-    pub soft_start_ma_per_ms: FxValue,
+    pub soft_start_ma_per_ms: EngValue,
     /// Soft-stop rate, mA/ms.
-    pub soft_stop_ma_per_ms: FxValue,
+    pub soft_stop_ma_per_ms: EngValue,
     /// Fraction of the setpoint where soft start hands over to APC.
     pub handover_fraction: FxValue,
     /// Setpoint ramp, mW/ms.
-    pub setpoint_mw_per_ms: FxValue,
+    pub setpoint_mw_per_ms: EngValue,
 }
 
 /// `[apc]`.
@@ -307,11 +328,11 @@ pub struct RampSection {
 #[serde(deny_unknown_fields)]
 pub struct ApcSection {
     /// Proportional gain, mA/mW.
-    pub kp_ma_per_mw: FxValue,
+    pub kp_ma_per_mw: EngValue,
     /// Integral gain, mA/(mW·ms).
-    pub ki_ma_per_mw_ms: FxValue,
+    pub ki_ma_per_mw_ms: EngValue,
     /// Output slew limit, mA/ms.
-    pub slew_ma_per_ms: FxValue,
+    pub slew_ma_per_ms: EngValue,
 }
 
 /// `[derating]`.
@@ -323,7 +344,7 @@ pub struct DeratingSection {
     /// Cut-off (and over-temperature trip), degC.
     pub cutoff_degc: FxValue,
     /// Ceiling at the cut-off, mA.
-    pub floor_ma: FxValue,
+    pub floor_ma: EngValue,
 }
 
 /// `[protection]`.
@@ -331,17 +352,17 @@ pub struct DeratingSection {
 #[serde(deny_unknown_fields)]
 pub struct ProtectionSection {
     /// Overcurrent trip, mA.
-    pub overcurrent_ma: FxValue,
+    pub overcurrent_ma: EngValue,
     /// Overcurrent debounce, ticks.
     pub overcurrent_debounce_ticks: u16,
     /// Monitor runaway trip, mW.
-    pub runaway_mw: FxValue,
+    pub runaway_mw: EngValue,
     /// Runaway debounce, ticks.
     pub runaway_debounce_ticks: u16,
     /// Monitor reading meaning "no light", mW.
-    pub monitor_loss_floor_mw: FxValue,
+    pub monitor_loss_floor_mw: EngValue,
     /// Drive at or above which monitor loss is checked, mA.
-    pub monitor_loss_drive_ma: FxValue,
+    pub monitor_loss_drive_ma: EngValue,
     /// Monitor-loss debounce, ticks.
     pub monitor_loss_debounce_ticks: u16,
     /// Sensor open/short debounce, ticks.
@@ -351,13 +372,13 @@ pub struct ProtectionSection {
     /// Interlock debounce, ticks.
     pub interlock_debounce_ticks: u16,
     /// Supply window low end, mV.
-    pub supply_min_mv: FxValue,
+    pub supply_min_mv: EngValue,
     /// Supply window high end, mV.
-    pub supply_max_mv: FxValue,
+    pub supply_max_mv: EngValue,
     /// Supply debounce, ticks.
     pub supply_debounce_ticks: u16,
     /// Allowed sensed-versus-commanded difference, mA.
-    pub mismatch_tolerance_ma: FxValue,
+    pub mismatch_tolerance_ma: EngValue,
     /// Mismatch debounce, ticks.
     pub mismatch_debounce_ticks: u16,
     /// Missing ticks that trip.
@@ -414,7 +435,7 @@ pub struct MonitorCal {
     /// Reading at zero light, counts.
     pub offset_counts: i32,
     /// Front-facet mW per count.
-    pub mw_per_count: GainValue,
+    pub mw_per_count: EngValue,
     /// Highest ADC count.
     pub full_scale_counts: u16,
 }
@@ -426,7 +447,7 @@ pub struct CurrentSenseCal {
     /// Reading at zero current, counts.
     pub offset_counts: i32,
     /// mA per count.
-    pub ma_per_count: GainValue,
+    pub ma_per_count: EngValue,
     /// Highest ADC count.
     pub full_scale_counts: u16,
 }
@@ -438,7 +459,7 @@ pub struct SupplyCal {
     /// Reading at zero volts, counts.
     pub offset_counts: i32,
     /// Supply mV per count (divider included).
-    pub mv_per_count: GainValue,
+    pub mv_per_count: EngValue,
     /// Highest ADC count.
     pub full_scale_counts: u16,
 }
@@ -448,7 +469,7 @@ pub struct SupplyCal {
 #[serde(deny_unknown_fields)]
 pub struct DacSection {
     /// Codes per mA.
-    pub codes_per_ma: FxValue,
+    pub codes_per_ma: EngValue,
     /// Code at zero current.
     pub offset_codes: i32,
     /// Highest code.
@@ -780,60 +801,208 @@ fn invalid(key: &str, why: impl Into<String>) -> KeyError {
     (key.to_string(), why.into())
 }
 
-/// Build the core configuration a parsed file describes for `module`.
+/// Convert a file's engineering values into the board's units, refusing
+/// (with the key and the accepted range) a value the units cannot hold.
+struct Conv {
+    units: Units,
+}
+
+impl Conv {
+    fn fx(key: &str, v: f64, per: f64, unit: &str) -> Result<Fx, KeyError> {
+        let max = Fx::MAX.to_num::<f64>() * per;
+        let x = v / per;
+        if !(x.is_finite() && x.abs() <= Fx::MAX.to_num::<f64>()) {
+            return Err(invalid(
+                key,
+                format!(
+                    "{v} {unit} does not fit the board's units: accepted -{max} ..= {max} {unit} \
+                     (the core counts in steps of {} {unit}; see docs/board-config.md, units)",
+                    per * Fx::DELTA.to_num::<f64>()
+                ),
+            ));
+        }
+        Ok(Fx::from_num(x))
+    }
+    fn iu(&self, key: &str, ma: EngValue) -> Result<Fx, KeyError> {
+        Self::fx(key, ma.0, self.units.ma_per_iu(), "mA")
+    }
+    fn ou(&self, key: &str, mw: EngValue) -> Result<Fx, KeyError> {
+        Self::fx(key, mw.0, self.units.mw_per_ou(), "mW")
+    }
+    fn vu(&self, key: &str, mv: EngValue) -> Result<Fx, KeyError> {
+        Self::fx(key, mv.0, self.units.mv_per_vu(), "mV")
+    }
+    fn iu_per_ou(&self, key: &str, v: EngValue, unit: &str) -> Result<Fx, KeyError> {
+        Self::fx(
+            key,
+            v.0,
+            self.units.ma_per_iu() / self.units.mw_per_ou(),
+            unit,
+        )
+    }
+    fn gain(key: &str, v: EngValue, per: f64, unit: &str) -> Result<Gain, KeyError> {
+        let x = v.0 / per;
+        if !(x.is_finite() && x.abs() <= Gain::MAX.to_num::<f64>()) {
+            let max = Gain::MAX.to_num::<f64>() * per;
+            return Err(invalid(
+                key,
+                format!("{} {unit} does not fit the core's calibration gain: accepted -{max} ..= {max} {unit}", v.0),
+            ));
+        }
+        Ok(Gain::from_num(x))
+    }
+}
+
+/// The board's units for a parsed file: each quantity's decade from the
+/// largest value of it the file names and its channel's full scale
+/// ([`units::choose_decade`]).
+pub fn board_units(f: &BoardFile, module: &DemoModule) -> Result<Units, KeyError> {
+    let fs = calibration::full_scales(module);
+    let p = &f.protection;
+    let c = &f.calibration;
+    let source_ma = match &c.dac {
+        Some(d) if d.codes_per_ma.0 > 0.0 => f64::from(d.max_code) / d.codes_per_ma.0,
+        _ => fs.source_ma,
+    };
+    let sense_ma = c.current_sense.as_ref().map_or(fs.sense_ma, |s| {
+        f64::from(s.full_scale_counts) * s.ma_per_count.0
+    });
+    let monitor_mw = c.monitor.as_ref().map_or(fs.monitor_mw, |s| {
+        f64::from(s.full_scale_counts) * s.mw_per_count.0
+    });
+    let supply_mv = c.supply.as_ref().map_or(fs.supply_mv, |s| {
+        f64::from(s.full_scale_counts) * s.mv_per_count.0
+    });
+    let largest = |vals: &[f64]| vals.iter().fold(0f64, |m, v| m.max(v.abs()));
+    let current = largest(&[
+        f.current.absolute_max_ma.0,
+        f.current.ceiling_ma.0,
+        p.overcurrent_ma.0,
+        p.monitor_loss_drive_ma.0,
+        f.derating.floor_ma.0,
+        source_ma,
+        sense_ma,
+    ]);
+    let power = largest(&[f.power.max_setpoint_mw.0, p.runaway_mw.0, monitor_mw]);
+    let voltage = largest(&[
+        p.supply_min_mv.0,
+        p.supply_max_mv.0,
+        supply_mv,
+        module.supply_v * 1100.0,
+    ]);
+    let pick = |key: &str, largest: f64, full_scale: f64, unit: &str| {
+        units::choose_decade(largest, full_scale).ok_or_else(|| {
+            invalid(
+                key,
+                format!(
+                    "no unit from 1e{} to 1e{} {unit} holds the largest value, {largest} m{unit}, \
+                     within {} units while the full scale, {full_scale} m{unit}, is at least {} units",
+                    Units::MIN_EXP,
+                    Units::MAX_EXP,
+                    units::MAX_UNITS,
+                    units::MIN_FULL_SCALE_UNITS
+                ),
+            )
+        })
+    };
+    Ok(Units {
+        current_exp: pick(
+            "current.absolute_max_ma",
+            current,
+            source_ma.min(current),
+            "A",
+        )?,
+        power_exp: pick(
+            "power.max_setpoint_mw",
+            power,
+            monitor_mw.min(power).max(f.power.max_setpoint_mw.0),
+            "W",
+        )?,
+        voltage_exp: pick(
+            "protection.supply_max_mv",
+            voltage,
+            supply_mv.min(voltage),
+            "V",
+        )?,
+    })
+}
+
+/// Build the core configuration a parsed file describes for `module`, in
+/// the board's units ([`board_units`]).
 pub fn to_config(f: &BoardFile, module: &DemoModule, base_dir: &Path) -> Result<Config, KeyError> {
+    let units = board_units(f, module)?;
+    to_config_in(f, module, base_dir, units)
+}
+
+/// [`to_config`] in the given units (the loader's own choice is
+/// [`board_units`]): a value those units cannot hold is refused with its
+/// key and the accepted range.
+pub fn to_config_in(
+    f: &BoardFile,
+    module: &DemoModule,
+    base_dir: &Path,
+    units: Units,
+) -> Result<Config, KeyError> {
+    let u = Conv { units };
     let p = &f.protection;
     let mut cfg = Config {
         tick_hz: f.tick_hz,
         current: CurrentLimits {
-            absolute_max_ma: f.current.absolute_max_ma.0,
-            ceiling_ma: f.current.ceiling_ma.0,
+            absolute_max_iu: u.iu("current.absolute_max_ma", f.current.absolute_max_ma)?,
+            ceiling_iu: u.iu("current.ceiling_ma", f.current.ceiling_ma)?,
         },
         power: PowerRange {
-            min_setpoint_mw: f.power.min_setpoint_mw.0,
-            max_setpoint_mw: f.power.max_setpoint_mw.0,
+            min_setpoint_ou: u.ou("power.min_setpoint_mw", f.power.min_setpoint_mw)?,
+            max_setpoint_ou: u.ou("power.max_setpoint_mw", f.power.max_setpoint_mw)?,
         },
         ramp: Ramps {
             emission_delay_ms: f.ramp.emission_delay_ms,
-            soft_start_ma_per_ms: f.ramp.soft_start_ma_per_ms.0,
-            soft_stop_ma_per_ms: f.ramp.soft_stop_ma_per_ms.0,
+            soft_start_iu_per_ms: u.iu("ramp.soft_start_ma_per_ms", f.ramp.soft_start_ma_per_ms)?,
+            soft_stop_iu_per_ms: u.iu("ramp.soft_stop_ma_per_ms", f.ramp.soft_stop_ma_per_ms)?,
             handover_fraction: f.ramp.handover_fraction.0,
-            setpoint_mw_per_ms: f.ramp.setpoint_mw_per_ms.0,
+            setpoint_ou_per_ms: u.ou("ramp.setpoint_mw_per_ms", f.ramp.setpoint_mw_per_ms)?,
         },
         apc: ApcGains {
-            kp_ma_per_mw: f.apc.kp_ma_per_mw.0,
-            ki_ma_per_mw_ms: f.apc.ki_ma_per_mw_ms.0,
-            slew_ma_per_ms: f.apc.slew_ma_per_ms.0,
+            kp_iu_per_ou: u.iu_per_ou("apc.kp_ma_per_mw", f.apc.kp_ma_per_mw, "mA/mW")?,
+            ki_iu_per_ou_ms: u.iu_per_ou(
+                "apc.ki_ma_per_mw_ms",
+                f.apc.ki_ma_per_mw_ms,
+                "mA/(mW ms)",
+            )?,
+            slew_iu_per_ms: u.iu("apc.slew_ma_per_ms", f.apc.slew_ma_per_ms)?,
         },
         derating: Derating {
             knee_degc: f.derating.knee_degc.0,
             cutoff_degc: f.derating.cutoff_degc.0,
-            floor_ma: f.derating.floor_ma.0,
+            floor_iu: u.iu("derating.floor_ma", f.derating.floor_ma)?,
         },
         protection: Protection {
-            overcurrent_ma: p.overcurrent_ma.0,
+            overcurrent_iu: u.iu("protection.overcurrent_ma", p.overcurrent_ma)?,
             overcurrent_debounce: p.overcurrent_debounce_ticks,
-            runaway_mw: p.runaway_mw.0,
+            runaway_ou: u.ou("protection.runaway_mw", p.runaway_mw)?,
             runaway_debounce: p.runaway_debounce_ticks,
-            monitor_loss_floor_mw: p.monitor_loss_floor_mw.0,
-            monitor_loss_drive_ma: p.monitor_loss_drive_ma.0,
+            monitor_loss_floor_ou: u
+                .ou("protection.monitor_loss_floor_mw", p.monitor_loss_floor_mw)?,
+            monitor_loss_drive_iu: u
+                .iu("protection.monitor_loss_drive_ma", p.monitor_loss_drive_ma)?,
             monitor_loss_debounce: p.monitor_loss_debounce_ticks,
             sensor_debounce: p.sensor_debounce_ticks,
             over_temp_debounce: p.over_temp_debounce_ticks,
             interlock_debounce: p.interlock_debounce_ticks,
-            supply_min_mv: p.supply_min_mv.0,
-            supply_max_mv: p.supply_max_mv.0,
+            supply_min_vu: u.vu("protection.supply_min_mv", p.supply_min_mv)?,
+            supply_max_vu: u.vu("protection.supply_max_mv", p.supply_max_mv)?,
             supply_debounce: p.supply_debounce_ticks,
-            mismatch_tolerance_ma: p.mismatch_tolerance_ma.0,
+            mismatch_tolerance_iu: u
+                .iu("protection.mismatch_tolerance_ma", p.mismatch_tolerance_ma)?,
             mismatch_debounce: p.mismatch_debounce_ticks,
             missed_tick_limit: p.missed_tick_limit,
             external_debounce: p.external_debounce_ticks,
             intermittent_weight: p.intermittent_weight,
         },
-        calibration: calibration(&f.calibration, module)?,
+        calibration: calibration(&f.calibration, module, &u)?,
         forward_voltage: None,
         plausibility: match &f.plausibility {
-            Some(pl) => Some(plausibility(pl, module)?),
+            Some(pl) => Some(plausibility(pl, module, &u)?),
             None => None,
         },
     };
@@ -843,7 +1012,11 @@ pub fn to_config(f: &BoardFile, module: &DemoModule, base_dir: &Path) -> Result<
 
 /// The plausibility check of a `[plausibility]` section: the module's
 /// threshold and slope at each point's junction temperature.
-fn plausibility(pl: &PlausibilitySection, module: &DemoModule) -> Result<Plausibility, KeyError> {
+fn plausibility(
+    pl: &PlausibilitySection,
+    module: &DemoModule,
+    u: &Conv,
+) -> Result<Plausibility, KeyError> {
     let diode = crate::plant::Diode::new(module.diode.clone())
         .map_err(|e| invalid("module", e.to_string()))?;
     if pl.points_degc.is_empty() || pl.points_degc.len() > DIODE_POINTS {
@@ -858,13 +1031,17 @@ fn plausibility(pl: &PlausibilitySection, module: &DemoModule) -> Result<Plausib
             format!("must be >= 0 K, not {}", pl.junction_rise_k),
         ));
     }
+    let units = u.units;
     let mut points = heapless::Vec::new();
     for &t in &pl.points_degc {
         let tj_k = crate::plant::c_to_k(t + pl.junction_rise_k);
         let pt = DiodePoint {
             degc: Fx::saturating_from_num(t),
-            threshold_ma: Fx::saturating_from_num(diode.threshold_current_a(tj_k) * 1e3),
-            slope_mw_per_ma: Fx::saturating_from_num(diode.slope_w_per_a(tj_k)),
+            threshold_iu: units.iu(diode.threshold_current_a(tj_k) * 1e3),
+            // W/A is mW/mA.
+            slope_ou_per_iu: Fx::saturating_from_num(
+                diode.slope_w_per_a(tj_k) * units.ma_per_iu() / units.mw_per_ou(),
+            ),
         };
         // Cannot fail: the length was checked above.
         let _ = points.push(pt);
@@ -873,14 +1050,18 @@ fn plausibility(pl: &PlausibilitySection, module: &DemoModule) -> Result<Plausib
         points,
         warning_margin: pl.warning_margin.0,
         fault_margin: pl.fault_margin.0,
-        allowance_ma: pl.allowance_ma.0,
+        allowance_iu: u.iu("plausibility.allowance_ma", pl.allowance_ma)?,
         debounce: pl.debounce_ticks,
     })
 }
 
-fn calibration(c: &CalibrationSection, module: &DemoModule) -> Result<Calibration, KeyError> {
+fn calibration(
+    c: &CalibrationSection,
+    module: &DemoModule,
+    u: &Conv,
+) -> Result<Calibration, KeyError> {
     let derived = match c.from {
-        CalibrationSource::Module => Some(module_calibration(module)),
+        CalibrationSource::Module => Some(module_calibration(module, u.units)),
         CalibrationSource::Explicit => None,
     };
     let need = |key: &str| {
@@ -889,11 +1070,18 @@ fn calibration(c: &CalibrationSection, module: &DemoModule) -> Result<Calibratio
             "missing: with from = \"explicit\" every channel (monitor, current_sense, supply, dac) is given",
         )
     };
+    let units = u.units;
     let monitor = match (&c.monitor, &derived) {
         (Some(m), _) => AdcCal {
             offset_counts: m.offset_counts,
-            units_per_count: m.mw_per_count.0,
+            units_per_count: Conv::gain(
+                "calibration.monitor.mw_per_count",
+                m.mw_per_count,
+                units.mw_per_ou(),
+                "mW",
+            )?,
             full_scale_counts: m.full_scale_counts,
+            unit_exp: units.power_exp,
         },
         (None, Some(d)) => d.monitor,
         (None, None) => return Err(need("monitor")),
@@ -901,8 +1089,14 @@ fn calibration(c: &CalibrationSection, module: &DemoModule) -> Result<Calibratio
     let current_sense = match (&c.current_sense, &derived) {
         (Some(m), _) => AdcCal {
             offset_counts: m.offset_counts,
-            units_per_count: m.ma_per_count.0,
+            units_per_count: Conv::gain(
+                "calibration.current_sense.ma_per_count",
+                m.ma_per_count,
+                units.ma_per_iu(),
+                "mA",
+            )?,
             full_scale_counts: m.full_scale_counts,
+            unit_exp: units.current_exp,
         },
         (None, Some(d)) => d.current_sense,
         (None, None) => return Err(need("current_sense")),
@@ -910,17 +1104,29 @@ fn calibration(c: &CalibrationSection, module: &DemoModule) -> Result<Calibratio
     let supply = match (&c.supply, &derived) {
         (Some(m), _) => AdcCal {
             offset_counts: m.offset_counts,
-            units_per_count: m.mv_per_count.0,
+            units_per_count: Conv::gain(
+                "calibration.supply.mv_per_count",
+                m.mv_per_count,
+                units.mv_per_vu(),
+                "mV",
+            )?,
             full_scale_counts: m.full_scale_counts,
+            unit_exp: units.voltage_exp,
         },
         (None, Some(d)) => d.supply,
         (None, None) => return Err(need("supply")),
     };
     let dac = match (&c.dac, &derived) {
         (Some(m), _) => DacCal {
-            codes_per_ma: m.codes_per_ma.0,
+            codes_per_iu: Conv::fx(
+                "calibration.dac.codes_per_ma",
+                m.codes_per_ma.0,
+                1.0 / units.ma_per_iu(),
+                "codes/mA",
+            )?,
             offset_codes: m.offset_codes,
             max_code: m.max_code,
+            unit_exp: units.current_exp,
         },
         (None, Some(d)) => d.dac,
         (None, None) => return Err(need("dac")),
@@ -942,8 +1148,8 @@ fn calibration(c: &CalibrationSection, module: &DemoModule) -> Result<Calibratio
 
 /// The module's nominal factory calibration (the ADC and DAC channels of
 /// [`calibration::calibrate`]).
-fn module_calibration(module: &DemoModule) -> Calibration {
-    calibration::calibrate(diodestat_core::example::config(), module).calibration
+fn module_calibration(module: &DemoModule, units: Units) -> Calibration {
+    calibration::calibrate_in(diodestat_core::example::config(), module, units).calibration
 }
 
 fn temperature(
@@ -1135,11 +1341,19 @@ pub fn parse_table_csv(text: &str, path: &Path) -> Result<Vec<TempPoint>, String
     Ok(out)
 }
 
-/// A value of the core's fixed-point types in the file's units, as text.
+/// A value of the core's fixed-point types, as text.
 fn num(v: Fx) -> String {
-    let x = v.to_num::<f64>();
+    num_f64(v.to_num::<f64>())
+}
+
+/// An engineering value as text, to 1e-4 or four significant digits.
+fn num_f64(x: f64) -> String {
     let r = (x * 1e4).round() / 1e4;
-    format!("{r}")
+    if r == 0.0 && x != 0.0 {
+        format!("{x:.4e}")
+    } else {
+        format!("{r}")
+    }
 }
 
 /// The board-file key a [`ConfigError`] is about and what that key must
@@ -1148,12 +1362,16 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
     use diodestat_core::{Channel, RampKind};
     use ConfigError as E;
     let k = |s: &str| s.to_string();
+    let u = c.units();
+    let ma = |v: Fx| num_f64(u.ma(v));
+    let mw = |v: Fx| num_f64(u.mw(v));
+    let mv = |v: Fx| num_f64(u.mv(v));
     let tick_ms = f64::from(c.tick_hz) / 1e3;
     let ramp_key = |w: RampKind| match w {
-        RampKind::SoftStart => ("ramp.soft_start_ma_per_ms", "mA/ms"),
-        RampKind::SoftStop => ("ramp.soft_stop_ma_per_ms", "mA/ms"),
-        RampKind::Setpoint => ("ramp.setpoint_mw_per_ms", "mW/ms"),
-        RampKind::Slew => ("apc.slew_ma_per_ms", "mA/ms"),
+        RampKind::SoftStart => ("ramp.soft_start_ma_per_ms", "mA/ms", u.ma_per_iu()),
+        RampKind::SoftStop => ("ramp.soft_stop_ma_per_ms", "mA/ms", u.ma_per_iu()),
+        RampKind::Setpoint => ("ramp.setpoint_mw_per_ms", "mW/ms", u.mw_per_ou()),
+        RampKind::Slew => ("apc.slew_ma_per_ms", "mA/ms", u.ma_per_iu()),
     };
     let channel = |ch: Channel| match ch {
         Channel::Monitor => ("monitor", "mw_per_count"),
@@ -1165,45 +1383,59 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
     let max_fx = Fx::MAX.to_num::<f64>();
     let res = Fx::DELTA.to_num::<f64>();
     match *e {
+        // The loader picks the units itself and gives every channel its
+        // quantity's unit; a hand-built `Config` may not.
+        E::UnitOutOfRange { channel: ch, .. } => {
+            let (sec, _) = channel(ch);
+            (
+                format!("calibration.{sec}"),
+                format!(
+                    "the channel's unit must be a decade 1e{} ..= 1e{} of its SI unit, the same as its quantity's other channels",
+                    Units::MIN_EXP,
+                    Units::MAX_EXP
+                ),
+            )
+        }
         E::TickRateZero | E::TickRateTooHigh { .. } => {
             (k("tick_hz"), "must be 1 ..= 1000000 Hz".into())
         }
         E::AbsoluteLimitNotPositive { .. } => (k("current.absolute_max_ma"), "must be above 0 mA".into()),
         E::CeilingNotPositive { .. } => (k("current.ceiling_ma"), "must be above 0 mA".into()),
-        E::CeilingAboveAbsolute { absolute_max_ma, .. } => (
+        E::CeilingAboveAbsolute { absolute_max_iu, .. } => (
             k("current.ceiling_ma"),
-            format!("must not exceed current.absolute_max_ma = {} mA", num(absolute_max_ma)),
+            format!("must not exceed current.absolute_max_ma = {} mA", ma(absolute_max_iu)),
         ),
-        E::OvercurrentNotAboveCeiling { ceiling_ma, .. } => (
+        E::OvercurrentNotAboveCeiling { ceiling_iu, .. } => (
             k("protection.overcurrent_ma"),
             format!(
                 "must be above current.ceiling_ma = {} mA (at or below it the trip fires in normal use)",
-                num(ceiling_ma)
+                ma(ceiling_iu)
             ),
         ),
-        E::OvercurrentAboveAbsolute { absolute_max_ma, .. } => (
+        E::OvercurrentAboveAbsolute { absolute_max_iu, .. } => (
             k("protection.overcurrent_ma"),
-            format!("must not exceed current.absolute_max_ma = {} mA", num(absolute_max_ma)),
+            format!("must not exceed current.absolute_max_ma = {} mA", ma(absolute_max_iu)),
         ),
         E::RampRateNotPositive { which, .. } => {
-            let (key, unit) = ramp_key(which);
+            let (key, unit, _) = ramp_key(which);
             (k(key), format!("must be above 0 {unit}"))
         }
         E::RampRateBelowResolution { which, per_ms, tick_hz } => {
-            let (key, unit) = ramp_key(which);
+            let (key, unit, scale) = ramp_key(which);
             let per_tick = per_ms.to_num::<f64>() / tick_ms;
             let why = if per_tick >= max_fx {
                 let per = unit.trim_end_matches("/ms");
                 format!(
-                    "is {per_tick:.0} {per} per tick at tick_hz = {tick_hz}, beyond the {} {per} per tick the core holds; \
+                    "is {} {per} per tick at tick_hz = {tick_hz}, beyond the {} {per} per tick the core holds; \
                      at most {} {unit} at this tick rate",
-                    max_fx.floor(),
-                    (max_fx * tick_ms).floor()
+                    num_f64((per_tick * scale).round()),
+                    num_f64(max_fx.floor() * scale),
+                    num_f64((max_fx * tick_ms).floor() * scale)
                 )
             } else {
                 format!(
                     "rounds to zero per tick at tick_hz = {tick_hz}; at least {:.6} {unit} at this tick rate",
-                    res * tick_ms
+                    res * tick_ms * scale
                 )
             };
             (k(key), why)
@@ -1219,38 +1451,38 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         E::HandoverFractionOutOfRange { .. } => {
             (k("ramp.handover_fraction"), "must be in (0, 1]".into())
         }
-        E::PowerRangeInvalid { max_setpoint_mw, .. } => (
+        E::PowerRangeInvalid { max_setpoint_ou, .. } => (
             k("power.min_setpoint_mw"),
             format!(
                 "must be above 0 mW and not above power.max_setpoint_mw = {} mW",
-                num(max_setpoint_mw)
+                mw(max_setpoint_ou)
             ),
         ),
-        E::RunawayNotAboveSetpointRange { max_setpoint_mw, .. } => (
+        E::RunawayNotAboveSetpointRange { max_setpoint_ou, .. } => (
             k("protection.runaway_mw"),
-            format!("must be above power.max_setpoint_mw = {} mW", num(max_setpoint_mw)),
+            format!("must be above power.max_setpoint_mw = {} mW", mw(max_setpoint_ou)),
         ),
-        E::MonitorLossFloorNotBelowSetpoints { lowest_handover_mw, .. } => (
+        E::MonitorLossFloorNotBelowSetpoints { lowest_handover_ou, .. } => (
             k("protection.monitor_loss_floor_mw"),
             format!(
                 "must be below the lowest hand-over level ramp.handover_fraction x power.min_setpoint_mw = {} mW",
-                num(lowest_handover_mw)
+                mw(lowest_handover_ou)
             ),
         ),
         E::MonitorLossFloorNegative { .. } => {
             (k("protection.monitor_loss_floor_mw"), "must be 0 mW or more".into())
         }
-        E::MonitorLossDriveOutOfRange { ceiling_ma, .. } => (
+        E::MonitorLossDriveOutOfRange { ceiling_iu, .. } => (
             k("protection.monitor_loss_drive_ma"),
-            format!("must be in (0, current.ceiling_ma = {}] mA", num(ceiling_ma)),
+            format!("must be in (0, current.ceiling_ma = {}] mA", ma(ceiling_iu)),
         ),
         E::DeratingKneeNotBelowCutoff { cutoff_degc, .. } => (
             k("derating.knee_degc"),
             format!("must be below derating.cutoff_degc = {} degC", num(cutoff_degc)),
         ),
-        E::DeratingFloorOutOfRange { ceiling_ma, .. } => (
+        E::DeratingFloorOutOfRange { ceiling_iu, .. } => (
             k("derating.floor_ma"),
-            format!("must be in 0 ..= current.ceiling_ma = {} mA", num(ceiling_ma)),
+            format!("must be in 0 ..= current.ceiling_ma = {} mA", ma(ceiling_iu)),
         ),
         E::TempTableTooShort { len } => (
             k(table_key(f)),
@@ -1304,16 +1536,16 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
                 num(needed_degc)
             ),
         ),
-        E::ForwardVoltageLimitsInvalid { full_scale_mv, .. } => (
+        E::ForwardVoltageLimitsInvalid { full_scale_vu, .. } => (
             k("forward_voltage.open_mv"),
             format!(
                 "forward_voltage needs 0 <= short_mv < open_mv <= {} mV (the channel's full scale)",
-                num(full_scale_mv)
+                mv(full_scale_vu)
             ),
         ),
-        E::ForwardDriveOutOfRange { ceiling_ma, .. } => (
+        E::ForwardDriveOutOfRange { ceiling_iu, .. } => (
             k("forward_voltage.min_drive_ma"),
-            format!("must be in (0, current.ceiling_ma = {}] mA", num(ceiling_ma)),
+            format!("must be in (0, current.ceiling_ma = {}] mA", ma(ceiling_iu)),
         ),
         E::PlausibilityPointInvalid { index } => (
             k("plausibility.points_degc"),
@@ -1333,21 +1565,22 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         E::GainNotPositive { proportional: false, .. } => {
             (k("apc.ki_ma_per_mw_ms"), "must be 0 mA/(mW ms) or more".into())
         }
-        E::ProportionalGainOverflow { runaway_mw, .. } => (
+        E::ProportionalGainOverflow { runaway_ou, .. } => (
             k("apc.kp_ma_per_mw"),
             format!(
-                "times protection.runaway_mw = {} mW must stay below {max_fx:.0} mA; at most {:.4} mA/mW",
-                num(runaway_mw),
-                max_fx / runaway_mw.to_num::<f64>().max(res)
+                "times protection.runaway_mw = {} mW must stay below {} mA (the core's range in the board's current unit); at most {:.4e} mA/mW",
+                mw(runaway_ou),
+                num_f64(max_fx * u.ma_per_iu()),
+                max_fx / runaway_ou.to_num::<f64>().max(res) * u.ma_per_iu() / u.mw_per_ou()
             ),
         ),
         E::IntegralGainOutOfRange { tick_hz, .. } => (
             k("apc.ki_ma_per_mw_ms"),
             format!(
                 "per tick at tick_hz = {tick_hz} it rounds to zero or overflows the core's per-tick gain; \
-                 accepted about {:.3e} ..= {:.4} mA/(mW ms) at this tick rate",
-                diodestat_core::Gain::DELTA.to_num::<f64>() * tick_ms,
-                diodestat_core::Gain::MAX.to_num::<f64>() * tick_ms
+                 accepted about {:.3e} ..= {:.4e} mA/(mW ms) at this tick rate",
+                diodestat_core::Gain::DELTA.to_num::<f64>() * tick_ms * u.ma_per_iu() / u.mw_per_ou(),
+                diodestat_core::Gain::MAX.to_num::<f64>() * tick_ms * u.ma_per_iu() / u.mw_per_ou()
             ),
         ),
         E::CalibrationGainNotPositive { channel: ch } => {
@@ -1368,26 +1601,26 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
             k("current.ceiling_ma"),
             format!("needs DAC code {code}, above calibration.dac.max_code = {max_code}"),
         ),
-        E::RunawayBeyondMonitorRange { full_scale_mw, .. } => (
+        E::RunawayBeyondMonitorRange { full_scale_ou, .. } => (
             k("protection.runaway_mw"),
             format!(
                 "must not exceed what the monitor channel reads at full scale, {} mW",
-                num(full_scale_mw)
+                mw(full_scale_ou)
             ),
         ),
-        E::OvercurrentBeyondSenseRange { full_scale_ma, .. } => (
+        E::OvercurrentBeyondSenseRange { full_scale_iu, .. } => (
             k("protection.overcurrent_ma"),
             format!(
                 "must not exceed what the current sense reads at full scale, {} mA",
-                num(full_scale_ma)
+                ma(full_scale_iu)
             ),
         ),
-        E::SupplyWindowInvalid { supply_max_mv, full_scale_mv, .. } => (
+        E::SupplyWindowInvalid { supply_max_vu, full_scale_vu, .. } => (
             k("protection.supply_min_mv"),
             format!(
                 "the window supply_min_mv ..= supply_max_mv = {} mV must be non-empty and within the supply channel's full scale {} mV",
-                num(supply_max_mv),
-                num(full_scale_mv)
+                mv(supply_max_vu),
+                mv(full_scale_vu)
             ),
         ),
         E::MismatchToleranceNotPositive { .. } => {
@@ -1552,9 +1785,24 @@ table_points = 25
     }
 
     #[test]
-    fn value_beyond_fixed_point_range_is_refused_where_it_stands() {
-        let e = err(&MINIMAL.replace("absolute_max_ma = 60", "absolute_max_ma = 40000"));
+    fn value_beyond_the_boards_units_is_refused_where_it_stands() {
+        // The current unit is the milliampere here (a 60 mA source): a
+        // tolerance of 1e9 mA does not fit.
+        let e = err(&MINIMAL.replace("mismatch_tolerance_ma = 5", "mismatch_tolerance_ma = 1e9"));
+        assert!(e.contains("line 39"), "{e}");
+        assert!(e.contains("protection.mismatch_tolerance_ma"), "{e}");
+        assert!(
+            e.contains("1000000000 mA does not fit the board's units: accepted -32767.99998474121 ..= 32767.99998474121 mA"),
+            "{e}"
+        );
+        // No decade holds 1e12 mA beside a 60 mA source.
+        let e = err(&MINIMAL.replace("absolute_max_ma = 60", "absolute_max_ma = 1e12"));
         assert!(e.contains("line 6"), "{e}");
+        assert!(e.contains("current.absolute_max_ma"), "{e}");
+        assert!(e.contains("no unit from 1e-9 to 1e0 A holds"), "{e}");
+        // A temperature still meets the core's range where it stands.
+        let e = err(&MINIMAL.replace("knee_degc = 45", "knee_degc = 40000"));
+        assert!(e.contains("line 22"), "{e}");
         assert!(e.contains("fixed-point range"), "{e}");
     }
 
@@ -1681,7 +1929,7 @@ table_points = 25
             "[calibration]\nfrom = \"module\"\n[calibration.dac]\ncodes_per_ma = 60\noffset_codes = 5\nmax_code = 4095",
         );
         let b = parse_board(&text, Path::new("dir")).unwrap();
-        assert_eq!(b.config.calibration.dac.codes_per_ma, Fx::from_num(60));
+        assert_eq!(b.config.calibration.dac.codes_per_iu, Fx::from_num(60));
         assert_eq!(b.config.calibration.dac.offset_codes, 5);
         let derived = parse_board(MINIMAL, Path::new("dir")).unwrap();
         assert_eq!(

@@ -7,6 +7,8 @@ use std::fmt::Write as _;
 
 use diodestat_core::{AdcCal, Config, Fx, ValidConfig};
 
+use crate::units::Scale;
+
 /// The generated source as lines of code, each with the engineering value
 /// and unit of what it sets (empty where the line sets nothing).
 #[derive(Default)]
@@ -72,6 +74,15 @@ fn fx_field(l: &mut Lines, indent: &str, name: &str, v: Fx, unit: &str) {
     );
 }
 
+/// A `Fx` field in the board's units: raw bits, annotated with the
+/// engineering value (`v × per`) in `unit`.
+fn eng_field(l: &mut Lines, indent: &str, name: &str, v: Fx, per: f64, unit: &str) {
+    l.note(
+        format!("{indent}{name}: Fx::from_bits({}),", v.to_bits()),
+        format!("{} {unit}", eng(v.to_num::<f64>() * per)),
+    );
+}
+
 /// A debounce count, annotated with its duration at the tick rate.
 fn ticks_field(l: &mut Lines, indent: &str, name: &str, n: u16, tick_hz: u32) {
     let ms = f64::from(n) * 1e3 / f64::from(tick_hz.max(1));
@@ -81,7 +92,7 @@ fn ticks_field(l: &mut Lines, indent: &str, name: &str, n: u16, tick_hz: u32) {
     );
 }
 
-fn adc(l: &mut Lines, name: &str, c: &AdcCal, unit: &str) {
+fn adc(l: &mut Lines, name: &str, c: &AdcCal, per: f64, unit: &str, si: &str) {
     let i = "                ";
     l.code(format!("            {name}: AdcCal {{"));
     l.note(
@@ -93,7 +104,10 @@ fn adc(l: &mut Lines, name: &str, c: &AdcCal, unit: &str) {
             "{i}units_per_count: Gain::from_bits({}),",
             c.units_per_count.to_bits()
         ),
-        format!("{} {unit} per count", c.units_per_count),
+        format!(
+            "{} {unit} per count",
+            eng(c.units_per_count.to_num::<f64>() * per)
+        ),
     );
     l.note(
         format!("{i}full_scale_counts: {},", c.full_scale_counts),
@@ -103,10 +117,20 @@ fn adc(l: &mut Lines, name: &str, c: &AdcCal, unit: &str) {
             eng(
                 (f64::from(c.full_scale_counts) - f64::from(c.offset_counts))
                     * c.units_per_count.to_num::<f64>()
+                    * per
             )
         ),
     );
+    l.note(
+        format!("{i}unit_exp: {},", c.unit_exp),
+        format!("reads in units of {} {si}", decade(c.unit_exp)),
+    );
     l.code("            },");
+}
+
+/// `10^e` as text.
+fn decade(e: i8) -> String {
+    eng(10f64.powi(i32::from(e)))
 }
 
 /// The `config()` body.
@@ -115,42 +139,63 @@ fn body(c: &Config) -> Lines {
     let t = &c.calibration.temperature;
     let mut l = Lines::default();
     let (i2, i3) = ("        ", "            ");
+    let u = c.units();
+    let (ma, mw, mv) = (u.ma_per_iu(), u.mw_per_ou(), u.mv_per_vu());
+    let decade = |e: i8| eng(10f64.powi(i32::from(e)));
     l.code("    Config {");
+
     l.note(
         format!("{i2}tick_hz: {hz},"),
         format!("{hz} Hz = {} us per tick", eng(1e6 / f64::from(hz.max(1)))),
     );
     l.code(format!("{i2}current: CurrentLimits {{"));
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "absolute_max_ma",
-        c.current.absolute_max_ma,
+        "absolute_max_iu",
+        c.current.absolute_max_iu,
+        ma,
         "mA",
     );
-    fx_field(&mut l, i3, "ceiling_ma", c.current.ceiling_ma, "mA");
+    eng_field(&mut l, i3, "ceiling_iu", c.current.ceiling_iu, ma, "mA");
     l.code(format!("{i2}}},"));
     l.code(format!("{i2}power: PowerRange {{"));
-    fx_field(&mut l, i3, "min_setpoint_mw", c.power.min_setpoint_mw, "mW");
-    fx_field(&mut l, i3, "max_setpoint_mw", c.power.max_setpoint_mw, "mW");
+    eng_field(
+        &mut l,
+        i3,
+        "min_setpoint_ou",
+        c.power.min_setpoint_ou,
+        mw,
+        "mW",
+    );
+    eng_field(
+        &mut l,
+        i3,
+        "max_setpoint_ou",
+        c.power.max_setpoint_ou,
+        mw,
+        "mW",
+    );
     l.code(format!("{i2}}},"));
     l.code(format!("{i2}ramp: Ramps {{"));
     l.note(
         format!("{i3}emission_delay_ms: {},", r.emission_delay_ms),
         format!("{} ms", r.emission_delay_ms),
     );
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "soft_start_ma_per_ms",
-        r.soft_start_ma_per_ms,
+        "soft_start_iu_per_ms",
+        r.soft_start_iu_per_ms,
+        ma,
         "mA/ms",
     );
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "soft_stop_ma_per_ms",
-        r.soft_stop_ma_per_ms,
+        "soft_stop_iu_per_ms",
+        r.soft_stop_iu_per_ms,
+        ma,
         "mA/ms",
     );
     fx_field(
@@ -160,32 +205,48 @@ fn body(c: &Config) -> Lines {
         r.handover_fraction,
         "of the setpoint",
     );
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "setpoint_mw_per_ms",
-        r.setpoint_mw_per_ms,
+        "setpoint_ou_per_ms",
+        r.setpoint_ou_per_ms,
+        mw,
         "mW/ms",
     );
     l.code(format!("{i2}}},"));
     l.code(format!("{i2}apc: ApcGains {{"));
-    fx_field(&mut l, i3, "kp_ma_per_mw", c.apc.kp_ma_per_mw, "mA/mW");
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "ki_ma_per_mw_ms",
-        c.apc.ki_ma_per_mw_ms,
+        "kp_iu_per_ou",
+        c.apc.kp_iu_per_ou,
+        ma / mw,
+        "mA/mW",
+    );
+    eng_field(
+        &mut l,
+        i3,
+        "ki_iu_per_ou_ms",
+        c.apc.ki_iu_per_ou_ms,
+        ma / mw,
         "mA/(mW*ms)",
     );
-    fx_field(&mut l, i3, "slew_ma_per_ms", c.apc.slew_ma_per_ms, "mA/ms");
+    eng_field(
+        &mut l,
+        i3,
+        "slew_iu_per_ms",
+        c.apc.slew_iu_per_ms,
+        ma,
+        "mA/ms",
+    );
     l.code(format!("{i2}}},"));
     l.code(format!("{i2}derating: Derating {{"));
     fx_field(&mut l, i3, "knee_degc", c.derating.knee_degc, "degC");
     fx_field(&mut l, i3, "cutoff_degc", c.derating.cutoff_degc, "degC");
-    fx_field(&mut l, i3, "floor_ma", c.derating.floor_ma, "mA");
+    eng_field(&mut l, i3, "floor_iu", c.derating.floor_iu, ma, "mA");
     l.code(format!("{i2}}},"));
     l.code(format!("{i2}protection: Protection {{"));
-    fx_field(&mut l, i3, "overcurrent_ma", p.overcurrent_ma, "mA");
+    eng_field(&mut l, i3, "overcurrent_iu", p.overcurrent_iu, ma, "mA");
     ticks_field(
         &mut l,
         i3,
@@ -193,20 +254,22 @@ fn body(c: &Config) -> Lines {
         p.overcurrent_debounce,
         hz,
     );
-    fx_field(&mut l, i3, "runaway_mw", p.runaway_mw, "mW");
+    eng_field(&mut l, i3, "runaway_ou", p.runaway_ou, mw, "mW");
     ticks_field(&mut l, i3, "runaway_debounce", p.runaway_debounce, hz);
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "monitor_loss_floor_mw",
-        p.monitor_loss_floor_mw,
+        "monitor_loss_floor_ou",
+        p.monitor_loss_floor_ou,
+        mw,
         "mW",
     );
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "monitor_loss_drive_ma",
-        p.monitor_loss_drive_ma,
+        "monitor_loss_drive_iu",
+        p.monitor_loss_drive_iu,
+        ma,
         "mA",
     );
     ticks_field(
@@ -219,14 +282,15 @@ fn body(c: &Config) -> Lines {
     ticks_field(&mut l, i3, "sensor_debounce", p.sensor_debounce, hz);
     ticks_field(&mut l, i3, "over_temp_debounce", p.over_temp_debounce, hz);
     ticks_field(&mut l, i3, "interlock_debounce", p.interlock_debounce, hz);
-    fx_field(&mut l, i3, "supply_min_mv", p.supply_min_mv, "mV");
-    fx_field(&mut l, i3, "supply_max_mv", p.supply_max_mv, "mV");
+    eng_field(&mut l, i3, "supply_min_vu", p.supply_min_vu, mv, "mV");
+    eng_field(&mut l, i3, "supply_max_vu", p.supply_max_vu, mv, "mV");
     ticks_field(&mut l, i3, "supply_debounce", p.supply_debounce, hz);
-    fx_field(
+    eng_field(
         &mut l,
         i3,
-        "mismatch_tolerance_ma",
-        p.mismatch_tolerance_ma,
+        "mismatch_tolerance_iu",
+        p.mismatch_tolerance_iu,
+        ma,
         "mA",
     );
     ticks_field(&mut l, i3, "mismatch_debounce", p.mismatch_debounce, hz);
@@ -248,23 +312,43 @@ fn body(c: &Config) -> Lines {
         &mut l,
         "monitor",
         &c.calibration.monitor,
+        mw,
         "mW (front facet)",
+        "W",
     );
-    adc(&mut l, "current_sense", &c.calibration.current_sense, "mA");
-    adc(&mut l, "supply", &c.calibration.supply, "mV");
+    adc(
+        &mut l,
+        "current_sense",
+        &c.calibration.current_sense,
+        ma,
+        "mA",
+        "A",
+    );
+    adc(&mut l, "supply", &c.calibration.supply, mv, "mV", "V");
     let d = &c.calibration.dac;
     let i4 = "                ";
     l.code(format!("{i3}dac: DacCal {{"));
-    fx_field(&mut l, i4, "codes_per_ma", d.codes_per_ma, "codes per mA");
+    eng_field(
+        &mut l,
+        i4,
+        "codes_per_iu",
+        d.codes_per_iu,
+        1.0 / ma,
+        "codes per mA",
+    );
     l.note(
         format!("{i4}offset_codes: {},", d.offset_codes),
         format!("{} codes at 0 mA", d.offset_codes),
     );
     let max_ma =
-        (f64::from(d.max_code) - f64::from(d.offset_codes)) / d.codes_per_ma.to_num::<f64>();
+        (f64::from(d.max_code) - f64::from(d.offset_codes)) / u.codes_per_ma(d.codes_per_iu);
     l.note(
         format!("{i4}max_code: {},", d.max_code),
         format!("{} codes = {} mA", d.max_code, eng(max_ma)),
+    );
+    l.note(
+        format!("{i4}unit_exp: {},", d.unit_exp),
+        format!("codes per {} A", decade(d.unit_exp)),
     );
     l.code(format!("{i3}}},"));
     l.code(format!("{i3}temperature: TempCal {{"));
@@ -311,14 +395,16 @@ fn body(c: &Config) -> Lines {
             for p in &pl.points {
                 l.note_above(
                     format!(
-                        "{i4}diodestat_core::DiodePoint {{ degc: Fx::from_bits({}), threshold_ma: Fx::from_bits({}), slope_mw_per_ma: Fx::from_bits({}) }},",
+                        "{i4}diodestat_core::DiodePoint {{ degc: Fx::from_bits({}), threshold_iu: Fx::from_bits({}), slope_ou_per_iu: Fx::from_bits({}) }},",
                         p.degc.to_bits(),
-                        p.threshold_ma.to_bits(),
-                        p.slope_mw_per_ma.to_bits()
+                        p.threshold_iu.to_bits(),
+                        p.slope_ou_per_iu.to_bits()
                     ),
                     format!(
                         "at {} degC case: threshold {} mA, slope {} mW/mA",
-                        p.degc, p.threshold_ma, p.slope_mw_per_ma
+                        p.degc,
+                        eng(u.ma(p.threshold_iu)),
+                        eng(p.slope_ou_per_iu.to_num::<f64>() * mw / ma)
                     ),
                 );
             }
@@ -338,7 +424,7 @@ fn body(c: &Config) -> Lines {
                 pl.fault_margin,
                 "of the healthy current (fault)",
             );
-            fx_field(&mut l, i3, "allowance_ma", pl.allowance_ma, "mA");
+            eng_field(&mut l, i3, "allowance_iu", pl.allowance_iu, ma, "mA");
             ticks_field(&mut l, i3, "debounce", pl.debounce, hz);
             l.code(format!("{i2}}}),"));
         }
@@ -394,8 +480,9 @@ pub fn rust_module(name: &str, v: &ValidConfig) -> String {
     let fingerprint = v.fingerprint();
     format!(
         "//! Board configuration `{name}`, generated by `diodestat export`; regenerate instead of editing.\n\
-         //! Values are raw fixed-point bits (`Fx` I16F16, `Gain` I8F24); the comment on each line gives\n\
-         //! the engineering value and unit they stand for.\n\n\
+         //! Values are raw fixed-point bits (`Fx` I16F16, `Gain` I8F24) in the board's units (each\n\
+         //! channel's `unit_exp`: `_iu` current, `_ou` optical power, `_vu` voltage); the comment on each line gives the\n\
+         //! engineering value and unit they stand for.\n\n\
          use diodestat_core::{{AdcCal, ApcGains, Calibration, Config, CurrentLimits, DacCal, Derating, Fingerprint, Fx, Gain, PowerRange, Protection, Rail, Ramps, TempCal, TempPoint}};\n\n\
          /// `config().validate()?.fingerprint()` as the simulator computed it: the board computes it\n\
          /// again at start and reports both (a hand-edited constant below makes them differ).\n\
@@ -433,7 +520,7 @@ mod tests {
         assert!(rust_module("other", &v).contains(&line));
         // Another configuration, another fingerprint in the file.
         let mut c = v.config().clone();
-        c.apc.ki_ma_per_mw_ms += Fx::from_bits(1);
+        c.apc.ki_iu_per_ou_ms += Fx::from_bits(1);
         assert!(!rust_module("t", &c.validate().unwrap()).contains(&line));
     }
 
@@ -480,10 +567,11 @@ mod tests {
                 .any(|(a, b)| b == *l && a.trim_start().starts_with("// "));
             assert!(l.contains(" // ") || above, "not annotated: {l}");
         }
-        let kp = c.apc.kp_ma_per_mw;
+        let kp = c.apc.kp_iu_per_ou;
         assert!(src.contains(&format!(
-            "kp_ma_per_mw: Fx::from_bits({}), // {kp} mA/mW",
-            kp.to_bits()
+            "kp_iu_per_ou: Fx::from_bits({}), // {} mA/mW",
+            kp.to_bits(),
+            eng(kp.to_num::<f64>())
         )));
         let d = c.protection.overcurrent_debounce;
         let ms = f64::from(d) * 1e3 / f64::from(c.tick_hz);

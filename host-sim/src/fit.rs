@@ -18,6 +18,7 @@ use serde::Serialize;
 use crate::files::{self, FileError, Staging};
 use crate::module_file::{self, ModuleFile, ModuleFileError};
 use crate::plant::{c_to_k, thermal_voltage_v};
+use crate::safety::SAFETY_CAUTION;
 
 /// Two-sided 95 % interval half-width in standard errors (normal
 /// approximation; the sweeps have tens to hundreds of points).
@@ -878,6 +879,8 @@ pub fn markdown(report: &FitReport, sweeps_name: &str, module_name: &str) -> Str
         "# Fit of {sweeps_name}\n\nMethods in docs/fit.md. Intervals are 95 % (normal \
          approximation). The junction is taken at the case temperature (pulsed or low-duty \
          sweeps). Module written: `{module_name}`.\n\n\
+         > **Caution.** {SAFETY_CAUTION} A fitted module feeds a simulation; it does not \
+         qualify a part.\n\n\
          | case °C | points (fit) | threshold, two-segment (mA) | threshold, d²P/dI² peak (mA) \
          | slope (W/A) | L-I rms residual (mW) | R_s (Ω) | turn-on (V) | ideality | V-I rms (mV) |\n\
          |---|---|---|---|---|---|---|---|---|---|\n"

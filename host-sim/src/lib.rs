@@ -35,3 +35,4 @@ pub mod sim_board;
 pub mod stability;
 pub mod step_response;
 pub mod trace;
+pub mod units;

@@ -11,6 +11,13 @@
 //! the current axis. This is the linear-extrapolation (two-segment) method
 //! of diode characterisation (common practice); the peak of d²P/dI² gives
 //! a slightly different threshold.
+//!
+//! A sweep none of whose points is above the diode's threshold at its own
+//! junction temperature reads no threshold or slope (the spontaneous
+//! emission below threshold is a straight line too); it says instead that
+//! it stays below threshold, and why ([`BelowThreshold`]): its highest
+//! current is below the threshold, or the junction is above the maximum
+//! operating temperature, where the threshold rises steeply.
 
 use crate::plant::{c_to_k, k_to_c, DemoModule, Diode, PlantError};
 
@@ -53,6 +60,53 @@ pub struct LivPoint {
     pub wavelength_nm: f64,
     /// Junction temperature, degC.
     pub tj_c: f64,
+    /// The diode's threshold current at this junction temperature, mA.
+    pub i_th_ma: f64,
+}
+
+/// Why a sweep stays below threshold.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum BelowCause {
+    /// The highest current is below the threshold at the junction
+    /// temperature.
+    Current,
+    /// The junction is above the diode's maximum operating temperature,
+    /// where the threshold rises steeply.
+    AboveMaxOperating {
+        /// The maximum operating temperature, degC.
+        max_operating_c: f64,
+    },
+}
+
+/// A sweep none of whose points lases: its point closest to threshold
+/// (highest ratio of current to threshold) and why.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BelowThreshold {
+    /// Current of that point, mA.
+    pub i_ma: f64,
+    /// Threshold at its junction temperature, mA.
+    pub threshold_ma: f64,
+    /// Its junction temperature, degC.
+    pub tj_c: f64,
+    /// Why the sweep stays below threshold.
+    pub cause: BelowCause,
+}
+
+impl std::fmt::Display for BelowThreshold {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.cause {
+            BelowCause::Current => write!(
+                f,
+                "stays below threshold: {:.1} mA is below the threshold {:.3} mA at junction {:.1} degC",
+                self.i_ma, self.threshold_ma, self.tj_c
+            ),
+            BelowCause::AboveMaxOperating { max_operating_c } => write!(
+                f,
+                "stays below threshold: junction {:.1} degC is above the maximum operating temperature {:.1} degC (threshold there {:.1} mA, current {:.1} mA)",
+                self.tj_c, max_operating_c, self.threshold_ma, self.i_ma
+            ),
+        }
+    }
 }
 
 /// Threshold and slope read from a curve.
@@ -77,9 +131,12 @@ pub struct LivCurve {
     /// the junction has no steady state below [`MAX_RISE_K`] (thermal
     /// runaway).
     pub points: Vec<LivPoint>,
-    /// Threshold and slope read from the points (`None`: the curve never
-    /// lases).
+    /// Threshold and slope read from the points (`None` when the curve
+    /// stays below threshold, or too few points lie between 10 and 40 % of
+    /// its peak).
     pub fit: Option<LivFit>,
+    /// Set when no point is above threshold: the sweep stays below it.
+    pub below: Option<BelowThreshold>,
 }
 
 /// Largest junction rise above the case a self-heated sweep solves for, K.
@@ -168,13 +225,40 @@ pub fn sweep(
             v_f_v: o.v_f_v,
             wavelength_nm: o.wavelength_m * 1e9,
             tj_c: k_to_c(t_k),
+            i_th_ma: o.i_th_a * 1e3,
         });
     }
-    let fit = fit(&points);
+    let below = below_threshold(&points, module.diode.max_operating_c);
+    let fit = if below.is_none() { fit(&points) } else { None };
     Ok(LivCurve {
         heating,
         points,
         fit,
+        below,
+    })
+}
+
+/// `None` when some point is above its threshold; else the point closest
+/// to it and why the sweep stays below (see the module docs).
+pub fn below_threshold(
+    points: &[LivPoint],
+    max_operating_c: Option<f64>,
+) -> Option<BelowThreshold> {
+    if points.iter().any(|p| p.i_ma > p.i_th_ma) {
+        return None;
+    }
+    let p = points
+        .iter()
+        .max_by(|a, b| (a.i_ma / a.i_th_ma).total_cmp(&(b.i_ma / b.i_th_ma)))?;
+    let cause = match max_operating_c {
+        Some(t) if p.tj_c > t => BelowCause::AboveMaxOperating { max_operating_c: t },
+        _ => BelowCause::Current,
+    };
+    Some(BelowThreshold {
+        i_ma: p.i_ma,
+        threshold_ma: p.i_th_ma,
+        tj_c: p.tj_c,
+        cause,
     })
 }
 
@@ -281,5 +365,80 @@ mod tests {
             Err(LivError::Temperature(_))
         ));
         assert_eq!(sweep(&m, iso, 50.0, 1), Err(LivError::Points(1)));
+    }
+
+    /// A sweep whose highest current stays below the threshold gives no
+    /// threshold or slope: the spontaneous emission below threshold is a
+    /// line too, and the 10-40 % fit read one from it.
+    #[test]
+    fn a_sweep_below_threshold_reads_no_threshold_or_slope() {
+        let m = DemoModule::visible();
+        let d = Diode::new(m.diode.clone()).unwrap();
+        let ith_ma = d.threshold_current_a(c_to_k(25.0)) * 1e3;
+        let c = sweep(
+            &m,
+            Heating::Isothermal { junction_c: 25.0 },
+            0.8 * ith_ma,
+            400,
+        )
+        .unwrap();
+        assert!(c.points.last().unwrap().p_mw > 0.0);
+        assert_eq!(c.fit, None);
+        let b = c.below.unwrap();
+        assert_eq!(b.cause, BelowCause::Current);
+        assert!((b.i_ma / (0.8 * ith_ma) - 1.0).abs() < 1e-12, "{b:?}");
+        assert!((b.threshold_ma / ith_ma - 1.0).abs() < 1e-12, "{b:?}");
+        assert!(b.to_string().contains("is below the threshold"), "{b}");
+        // At 1.2 times the threshold it lases and reads its threshold.
+        let c = sweep(
+            &m,
+            Heating::Isothermal { junction_c: 25.0 },
+            1.2 * ith_ma,
+            400,
+        )
+        .unwrap();
+        assert_eq!(c.below, None);
+        assert!(c.fit.is_some());
+    }
+
+    /// Above the maximum operating temperature the diode does not lase at
+    /// a current that is three times its 25 degC threshold.
+    #[test]
+    fn a_sweep_above_the_maximum_operating_temperature_reads_no_threshold() {
+        let mut m = DemoModule::visible();
+        m.diode.max_operating_c = Some(60.0);
+        let d = Diode::new(m.diode.clone()).unwrap();
+        let ith_ma = d.threshold_current_a(c_to_k(25.0)) * 1e3;
+        let c = sweep(
+            &m,
+            Heating::Isothermal { junction_c: 75.0 },
+            3.0 * ith_ma,
+            400,
+        )
+        .unwrap();
+        assert_eq!(c.fit, None);
+        let b = c.below.unwrap();
+        assert_eq!(
+            b.cause,
+            BelowCause::AboveMaxOperating {
+                max_operating_c: 60.0
+            }
+        );
+        assert!((b.tj_c - 75.0).abs() < 1e-9);
+        assert!(
+            b.to_string()
+                .contains("above the maximum operating temperature 60.0 degC"),
+            "{b}"
+        );
+        // At 55 degC the same sweep lases.
+        let c = sweep(
+            &m,
+            Heating::Isothermal { junction_c: 55.0 },
+            3.0 * ith_ma,
+            400,
+        )
+        .unwrap();
+        assert_eq!(c.below, None);
+        assert!(c.fit.is_some());
     }
 }

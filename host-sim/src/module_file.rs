@@ -33,6 +33,7 @@
 //! and slope, 10 mV for the turn-on voltage); the shipped demo module files
 //! do this, so they reproduce the built-in demo modules exactly.
 
+use crate::plant::DEFAULT_SUPPLY_DIVIDER;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
@@ -43,7 +44,7 @@ use crate::locate::{locate, plain_message, Place, Seg};
 use crate::plant::{
     c_to_k, photon_energy_j, thermal_voltage_v, Adc, AdcParams, DemoModule, DiodeParams,
     DriverParams, GainModel, MonitorParams, PartTolerances, PlantError, SensorChain,
-    SensorChainParams, TempSensor, ThermalParams, Q,
+    SensorChainParams, TempSensor, ThermalParams, AGING_ACTIVATION_EV, AGING_CURRENT_EXPONENT, Q,
 };
 
 /// Relative tolerance of a pinned structure's threshold and slope against
@@ -87,6 +88,11 @@ pub struct ModuleFile {
 pub struct SupplySection {
     /// Nominal supply voltage of the current source, V.
     pub voltage_v: f64,
+    /// Ratio of the divider in front of the supply ADC channel (supply
+    /// volts per ADC volt); default 8 (boards up to about 24 V on a 3.3 V
+    /// ADC).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub divider: Option<f64>,
 }
 
 /// `[diode]`: datasheet-level figures at the reference temperature.
@@ -133,6 +139,20 @@ pub struct DiodeSection {
     /// Aging: relative slope loss per 1000 operating hours.
     #[serde(default)]
     pub slope_loss_per_khour: f64,
+    /// Activation energy of the aging rate, eV (default 0.5).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub aging_activation_ev: Option<f64>,
+    /// Current exponent of the aging rate (default 2).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub aging_current_exponent: Option<f64>,
+    /// Drive current at which the aging rates hold, mA (default: the
+    /// module's `rated_current_ma`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub aging_reference_ma: Option<f64>,
+    /// Junction temperature at which the aging rates hold, degC (default:
+    /// `reference_c`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub aging_reference_c: Option<f64>,
     /// Highest junction temperature at which the diode lases, degC (above
     /// it the threshold rises steeply); none when absent.
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -314,6 +334,12 @@ impl DiodeSection {
             damage_filter_ns: self.damage_filter_ns,
             threshold_rise_per_khour: self.threshold_rise_per_khour,
             slope_loss_per_khour: self.slope_loss_per_khour,
+            aging_activation_ev: self.aging_activation_ev.unwrap_or(AGING_ACTIVATION_EV),
+            aging_current_exponent: self
+                .aging_current_exponent
+                .unwrap_or(AGING_CURRENT_EXPONENT),
+            aging_ref_current_a: self.aging_reference_ma.map(|i| i * 1e-3),
+            aging_ref_c: self.aging_reference_c,
             max_operating_c: self.max_operating_c,
             damage_tc_per_k: self.facet_damage_tc_per_k,
         };
@@ -390,7 +416,11 @@ fn diode_key(e: &PlantError, has_structure: bool) -> KeyError {
         "i_s_activation_ev" => "diode.turn_on_activation_ev".to_string(),
         "damage_tc_per_k" => "diode.facet_damage_tc_per_k".to_string(),
         "damage_power_w" => "diode.facet_damage_mw".to_string(),
+        "aging_ref_current_a" => "diode.aging_reference_ma".to_string(),
+        "aging_ref_c" => "diode.aging_reference_c".to_string(),
         "damage_filter_ns"
+        | "aging_activation_ev"
+        | "aging_current_exponent"
         | "threshold_rise_per_khour"
         | "slope_loss_per_khour"
         | "wavelength_drift_nm_per_k" => format!("diode.{field}"),
@@ -423,7 +453,7 @@ fn sensor_key(p: &SensorChainParams, e: &PlantError) -> KeyError {
     };
     let table = match (&p.sensor, *field) {
         (TempSensor::Ntc(_), "r25_ohm" | "beta_k" | "a" | "b" | "c") => "sensor.sensor.ntc",
-        (TempSensor::Rtd(_), "r0_ohm") => "sensor.sensor.rtd",
+        (TempSensor::Rtd(_), "r0_ohm" | "band_position") => "sensor.sensor.rtd",
         _ => "sensor.front_end",
     };
     (format!("{table}.{field}"), (*reason).to_string())
@@ -456,7 +486,18 @@ impl ModuleFile {
                 "must be a finite number above 0",
             ));
         }
-        let diode = self.diode.params()?;
+        let supply_divider = self.supply.divider.unwrap_or(DEFAULT_SUPPLY_DIVIDER);
+        if !(supply_divider.is_finite() && supply_divider >= 1.0) {
+            return Err(refuse(
+                "supply.divider",
+                "must be a finite ratio of 1 or more",
+            ));
+        }
+        let mut diode = self.diode.params()?;
+        // The aging rates hold at the rated current unless told otherwise.
+        diode.aging_ref_current_a = diode
+            .aging_ref_current_a
+            .or(Some(self.rated_current_ma * 1e-3));
         if self.rated_power_mw >= self.diode.facet_damage_mw {
             return Err(refuse(
                 "rated_power_mw",
@@ -471,6 +512,7 @@ impl ModuleFile {
             rated_current_a: self.rated_current_ma * 1e-3,
             tolerances: self.tolerances,
             supply_v: self.supply.voltage_v,
+            supply_divider,
             diode,
             monitor: self.monitor.clone(),
             driver: self.source.clone(),
@@ -657,6 +699,10 @@ mod tests {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.0,
             slope_loss_per_khour: 0.0,
+            aging_activation_ev: None,
+            aging_current_exponent: None,
+            aging_reference_ma: None,
+            aging_reference_c: None,
             max_operating_c: None,
             facet_damage_tc_per_k: 0.0,
             structure: None,
@@ -732,6 +778,23 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(e.contains("monitor.transimpedance_ohm = 0.0"), "{e}");
+        // The aging law's keys, each refused by its own name.
+        for (key, value, want) in [
+            ("aging_activation_ev", "5.0", "0 ..= 2 eV"),
+            ("aging_current_exponent", "-1.0", "0 ..= 10"),
+            ("aging_reference_ma", "0.0", "> 0"),
+            ("aging_reference_c", "400.0", "-55 ..= 150 degC"),
+        ] {
+            let bad = text.replace(
+                "slope_loss_per_khour = 0.01",
+                &format!("slope_loss_per_khour = 0.01\n{key} = {value}"),
+            );
+            let e = parse_module(&bad, Path::new("m.toml"))
+                .unwrap_err()
+                .to_string();
+            assert!(e.contains(&format!("diode.{key} = {value}")), "{e}");
+            assert!(e.contains(want), "{e}");
+        }
     }
 }
 

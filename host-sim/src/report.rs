@@ -380,7 +380,7 @@ pub fn summary(sc: &Scenario, res: &RunResult, expectations: Vec<Outcome>) -> Su
                 let unit = Fault::ALL
                     .iter()
                     .find(|f| f.name() == *fault)
-                    .map_or("", |f| f.unit());
+                    .map_or("", |f| crate::units::eng_unit(f.unit()));
                 let latency_ms = injected.map(|i| ms(tick - i));
                 faults.push(FaultNote {
                     at_ms: ms(*tick),
@@ -1100,15 +1100,19 @@ pub fn liv_svg(name: &str, curves: &[LivCurve]) -> Result<String, String> {
             .map_err(|x| e(&x))?;
         for (k, c) in curves.iter().enumerate() {
             let col = colors[k % colors.len()];
-            let fit = c.fit.map_or(String::new(), |f| {
-                format!(
-                    ": threshold {:.*} {} (dot), slope {:.3} W/A (dashed)",
-                    if cu.per_base < 1.0 { 3 } else { 2 },
-                    f.threshold_ma * cu.per_base,
-                    cu.name,
-                    f.slope_w_per_a
-                )
-            });
+            let fit = if c.below.is_some() {
+                ": below threshold".to_string()
+            } else {
+                c.fit.map_or(String::new(), |f| {
+                    format!(
+                        ": threshold {:.*} {} (dot), slope {:.3} W/A (dashed)",
+                        if cu.per_base < 1.0 { 3 } else { 2 },
+                        f.threshold_ma * cu.per_base,
+                        cu.name,
+                        f.slope_w_per_a
+                    )
+                })
+            };
             chart
                 .draw_series(LineSeries::new(
                     c.points
@@ -1211,6 +1215,9 @@ mod tests {
             supply_sensed_v: 5.0,
             v_f_v: 2.0,
             wavelength_nm: 650.0,
+            age_h: 0.0,
+            threshold_factor: 1.0,
+            slope_factor: 1.0,
         }
     }
 

@@ -36,6 +36,12 @@ pub struct Scenario {
     /// Write every n-th tick to the trace (1 = every tick).
     #[serde(default = "one")]
     pub trace_every: u32,
+    /// How much faster the diode's aging clock runs than simulated time
+    /// (1, the default: real time; 3.6e6: an hour of aging per simulated
+    /// millisecond), so a run of seconds can show the threshold and slope
+    /// drift of thousands of hours.
+    #[serde(default = "real_time")]
+    pub aging_speedup: f64,
     /// Timed events.
     #[serde(default, rename = "event")]
     pub events: Vec<Event>,
@@ -47,6 +53,14 @@ pub struct Scenario {
 fn one() -> u32 {
     1
 }
+
+fn real_time() -> f64 {
+    1.0
+}
+
+/// Largest `aging_speedup`: 1e10 (a simulated second ages the diode by
+/// about 2.8 million hours).
+pub const MAX_AGING_SPEEDUP: f64 = 1e10;
 
 impl Scenario {
     /// The time of the first event whose `do` is `name`, ms.
@@ -204,7 +218,9 @@ pub enum HwFault {
         /// Resistance factor.
         factor: f64,
     },
-    /// The diode ages by `hours` at once.
+    /// The diode ages by `hours` at its aging reference conditions at once
+    /// (a part aged before the run; the aging during the run follows the
+    /// scenario's `aging_speedup`).
     Aging {
         /// Operating hours.
         hours: f64,
@@ -931,6 +947,13 @@ pub fn parse(text: &str) -> Result<Scenario, ScenarioError> {
     if sc.trace_every == 0 {
         return Err(w.err(&[Seg::Key("trace_every")], "must be at least 1".into()));
     }
+    w.range(
+        &[Seg::Key("aging_speedup")],
+        sc.aging_speedup,
+        0.0,
+        MAX_AGING_SPEEDUP,
+        "",
+    )?;
     for (i, e) in sc.events.iter().enumerate() {
         let ev = [Seg::Key("event"), Seg::Index(i)];
         let at = |k: &'static str| [ev[0], ev[1], Seg::Key(k)];
@@ -1392,6 +1415,16 @@ fault = { kind = "adc-stuck", channel = "monitor", code = 3 }
             assert!(e.contains(&format!("event[1].fault.{key}")), "{e}");
             assert!(e.contains("line 8"), "{e}");
         }
+    }
+
+    #[test]
+    fn aging_speedup_outside_its_range_is_refused() {
+        for bad in ["-1", "nan", "1e11"] {
+            let e = refused(&format!("aging_speedup = {bad}\n"));
+            assert!(e.contains(&format!("aging_speedup = {bad}")), "{e}");
+            assert!(e.contains("10000000000"), "{e}");
+        }
+        assert_eq!(parse(HEAD).unwrap().aging_speedup, 1.0);
     }
 
     #[test]

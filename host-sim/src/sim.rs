@@ -41,6 +41,7 @@
 //! ([`WarningSpan`]) and the optical power over chosen intervals
 //! ([`PowerWindow`], see [`run_watching`]).
 
+use crate::units::Scale;
 use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
 use crate::oscillation::{Found, TickSample, Watch};
@@ -117,6 +118,8 @@ pub struct Plant {
     pub adc_supply: Adc,
     /// Supply voltage, V.
     pub supply_v: f64,
+    /// Divider in front of the supply ADC, supply volts per ADC volt.
+    pub supply_divider: f64,
     /// Interlock closed.
     pub interlock_closed: bool,
     /// Ticks still to be missed.
@@ -129,6 +132,9 @@ pub struct Plant {
     pub monitor_drift_per_s: f64,
     /// The board's external fault input asserted.
     pub external_fault: bool,
+    /// Speed of the diode's aging clock against simulated time (the
+    /// scenario's `aging_speedup`; 1: real time, 0: no aging in the run).
+    pub aging_speedup: f64,
     /// Draws of the intermittent contact (its own stream: the noise of
     /// the other channels is the same with or without it).
     contact_rng: Rng,
@@ -180,11 +186,13 @@ impl Plant {
             adc_current,
             adc_supply,
             supply_v: module.supply_v,
+            supply_divider: module.supply_divider,
             interlock_closed: true,
             missed_left: 0,
             monitor_open_fraction: 0.0,
             monitor_drift_per_s: 0.0,
             external_fault: false,
+            aging_speedup: 1.0,
             contact_rng: Rng::new(seed ^ 0x636f_6e74_6163_7421),
             mon_filt_v: 0.0,
             mon_in_v: 0.0,
@@ -236,9 +244,7 @@ impl Plant {
             monitor_counts: self.adc_monitor.sample(self.mon_filt_v),
             current_counts: self.adc_current.sample(self.driver.sense_voltage(i)),
             temp_counts,
-            supply_counts: self
-                .adc_supply
-                .sample(self.supply_v / crate::calibration::SUPPLY_DIVIDER),
+            supply_counts: self.adc_supply.sample(self.supply_v / self.supply_divider),
             interlock_closed: self.interlock_closed,
             forward_counts: None,
             external_fault: self.external_fault,
@@ -305,6 +311,15 @@ impl Plant {
                 }
             }
         };
+        // Aging over the tick at its drive and junction temperature.
+        if self.aging_speedup > 0.0 {
+            let dt_age = dt * self.aging_speedup;
+            if self.reference {
+                self.diode.age_over_reference(i, tj, dt_age);
+            } else {
+                self.diode.age_over(i, tj, dt_age);
+            }
+        }
         self.p_front_w = out.p_front_w;
         self.wavelength_m = out.wavelength_m;
         self.v_f = out.v_f_v;
@@ -745,6 +760,7 @@ fn run_plant(
     // The core behind its embedded-hal edge, on the board's simulated
     // DAC, enable line and interlock input.
     let mut board = SimBoard::new(cfg);
+    plant.aging_speedup = sc.aging_speedup;
     let mut events: Vec<(u64, usize, &Action)> = sc
         .events
         .iter()
@@ -779,7 +795,9 @@ fn run_plant(
     let mut slot = 0usize;
     let mut applied = Outputs::default();
     let mut last_computed = diodestat_core::Drive::default();
-    let mut watch = Watch::new(tick_hz, to_f(board.ctl().config().slew_ma_per_tick()));
+    let units = board.ctl().config().config().units();
+    let (ma_per_iu, mw_per_ou) = (units.ma_per_iu(), units.mw_per_ou());
+    let mut watch = Watch::new(tick_hz, units.ma(board.ctl().config().slew_iu_per_tick()));
     let trace_every = u64::from(sc.trace_every.max(1));
     for tick in 0..n_ticks {
         // Timed events for this tick.
@@ -792,8 +810,8 @@ fn run_plant(
             let req = match action {
                 Action::Enable => Some(Request::Enable),
                 Action::Disable => Some(Request::Disable),
-                Action::SetPower { mw } => Some(Request::SetPowerMw(fx(*mw))),
-                Action::SetCurrent { ma } => Some(Request::SetCurrentMa(fx(*ma))),
+                Action::SetPower { mw } => Some(Request::SetPower(fx(*mw / mw_per_ou))),
+                Action::SetCurrent { ma } => Some(Request::SetCurrent(fx(*ma / ma_per_iu))),
                 Action::Mode { mode } => Some(Request::SetMode(match mode {
                     ModeName::Apc => Mode::Apc,
                     ModeName::Acc => Mode::Acc,
@@ -884,10 +902,16 @@ fn run_plant(
         let warnings = board.ctl().status().warnings;
         if warnings != last_warnings {
             let (p, d, m) = prev;
-            res.warnings_changed(tick, last_warnings, warnings, (p, to_f(d), m), merge_ticks);
+            res.warnings_changed(
+                tick,
+                last_warnings,
+                warnings,
+                (p, to_f(d) * ma_per_iu, m),
+                merge_ticks,
+            );
             last_warnings = warnings;
         }
-        prev = (p_mw, board.ctl().drive_ma(), board.ctl().mode());
+        prev = (p_mw, board.ctl().drive_iu(), board.ctl().mode());
         if !res.damaged && plant.diode.damaged() {
             res.damaged = true;
             res.happenings.push(Happening::FacetDamage { tick });
@@ -899,12 +923,12 @@ fn run_plant(
                 TickSample {
                     regulating: true,
                     dac_code: last_computed.dac_code,
-                    cmd_ma: to_f(board.ctl().drive_ma()),
-                    ceiling_ma: to_f(board.ctl().ceiling_ma()),
+                    cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
+                    ceiling_ma: to_f(board.ctl().ceiling_iu()) * ma_per_iu,
                     p_mw,
-                    monitor_mw: to_f(board.ctl().measurements().monitor_mw),
+                    monitor_mw: to_f(board.ctl().measurements().monitor_ou) * mw_per_ou,
                     setpoint_mw: (board.ctl().mode() == Mode::Apc)
-                        .then(|| to_f(board.ctl().power_target_mw())),
+                        .then(|| to_f(board.ctl().power_target_ou()) * mw_per_ou),
                 },
             );
         } else {
@@ -922,16 +946,16 @@ fn run_plant(
             res.happenings.push(Happening::Fault {
                 tick,
                 fault: r.fault.name(),
-                measured: to_f(r.measured),
-                limit: to_f(r.limit),
+                measured: units.record(r.fault, r.measured),
+                limit: units.record(r.fault, r.limit),
             });
         }
         // Every tick feeds the plot envelope (only what the plots draw);
         // every `trace_every`-th is recorded whole.
         let m = board.ctl().measurements();
         let i_ma = plant.driver.current_a() * 1e3;
-        let monitor_mw = to_f(m.monitor_mw);
-        let ceiling_ma = to_f(board.ctl().ceiling_ma());
+        let monitor_mw = to_f(m.monitor_ou) * mw_per_ou;
+        let ceiling_ma = to_f(board.ctl().ceiling_iu()) * ma_per_iu;
         let tj_c = k_to_c(plant.thermal.t_junction_k());
         let sensed_c = to_f(m.temp_degc);
         res.envelope.add_values(
@@ -953,16 +977,19 @@ fn run_plant(
                 warnings: status.warnings,
                 p_mw,
                 i_ma,
-                cmd_ma: to_f(board.ctl().drive_ma()),
+                cmd_ma: to_f(board.ctl().drive_iu()) * ma_per_iu,
                 ceiling_ma,
                 monitor_mw,
                 tj_c,
                 sensed_c,
                 ambient_c,
                 supply_v: plant.supply_v,
-                supply_sensed_v: to_f(m.supply_mv) * 1e-3,
+                supply_sensed_v: to_f(m.supply_vu) * units.mv_per_vu() * 1e-3,
                 v_f_v: plant.v_f,
                 wavelength_nm: plant.wavelength_m * 1e9,
+                age_h: plant.diode.age_hours(),
+                threshold_factor: plant.diode.aging_factors().0,
+                slope_factor: plant.diode.aging_factors().1,
             };
             kept.push(row);
             sink.row(&row);
@@ -1014,6 +1041,7 @@ mod tests {
             seed,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
+            aging_speedup: 1.0,
             events: vec![
                 ev(0.0, Action::SetPower { mw: setpoint_mw }),
                 ev(0.1, Action::Enable),
@@ -1064,7 +1092,7 @@ mod tests {
             let (module, cfg) = (board.module, board.valid);
             let dt = 1.0 / f64::from(cfg.config().tick_hz);
             let mut ctl = diodestat_core::Controller::new(cfg);
-            ctl.request(Request::SetPowerMw(fx(mw))).unwrap();
+            ctl.request(Request::SetPower(fx(mw))).unwrap();
             let mut fast = Plant::new(&module, 25.0, 3).unwrap();
             let mut refp = Plant::new_reference(&module, 25.0, 3).unwrap();
             let floor_w = 1e-9 * module.rated_power_w;
@@ -1363,6 +1391,7 @@ mod fault_log_tests {
             seed: 1,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1000,
+            aging_speedup: 1.0,
             events,
             expects: Vec::new(),
         };

@@ -237,7 +237,7 @@ mod tests {
         let mut b = SimBoard::new(c);
         let mut p = Plant::new(&m, 25.0, 1).unwrap();
         b.request(Request::SetMode(Mode::Acc)).unwrap();
-        b.request(Request::SetCurrentMa(Fx::from_num(20))).unwrap();
+        b.request(Request::SetCurrent(Fx::from_num(20))).unwrap();
         let mut out = Outputs::default();
         for t in 0..4000 {
             if t == 1 {

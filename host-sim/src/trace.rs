@@ -54,6 +54,13 @@ pub struct TraceRow {
     pub v_f_v: f64,
     /// Emission wavelength, nm.
     pub wavelength_nm: f64,
+    /// The diode's age: equivalent operating hours at its aging reference
+    /// conditions, h.
+    pub age_h: f64,
+    /// Aging multiplier of the threshold current (1: unaged).
+    pub threshold_factor: f64,
+    /// Aging multiplier of the slope efficiency (1: unaged).
+    pub slope_factor: f64,
 }
 
 /// Sees every row a run records (every `trace_every`-th tick) while the
@@ -101,12 +108,13 @@ pub fn warning_names(w: Warnings) -> String {
 
 /// The header line of `trace.csv`.
 pub const CSV_HEADER: &str = "tick,t_s,state,mode,enable,dac_code,faults,warnings,p_mw,monitor_mw,\
-i_ma,cmd_ma,ceiling_ma,tj_c,sensed_c,ambient_c,supply_v,supply_sensed_v,v_f_v,wavelength_nm";
+i_ma,cmd_ma,ceiling_ma,tj_c,sensed_c,ambient_c,supply_v,supply_sensed_v,v_f_v,wavelength_nm,\
+age_h,threshold_factor,slope_factor";
 
 /// One row of `trace.csv` (no line end).
 pub fn csv_line(r: &TraceRow) -> String {
     format!(
-        "{},{:.7},{},{},{},{},{},{},{:.6},{:.6},{:.6},{:.6},{:.6},{:.4},{:.4},{:.4},{:.4},{:.4},{:.5},{:.4}",
+        "{},{:.7},{},{},{},{},{},{},{:.6},{:.6},{:.6},{:.6},{:.6},{:.4},{:.4},{:.4},{:.4},{:.4},{:.5},{:.4},{:.6e},{:.9},{:.9}",
         r.tick,
         r.t_s,
         r.state.name(),
@@ -129,7 +137,10 @@ pub fn csv_line(r: &TraceRow) -> String {
         r.supply_v,
         r.supply_sensed_v,
         r.v_f_v,
-        r.wavelength_nm
+        r.wavelength_nm,
+        r.age_h,
+        r.threshold_factor,
+        r.slope_factor
     )
 }
 
@@ -402,6 +413,9 @@ mod tests {
             supply_sensed_v: 5.0,
             v_f_v: 2.0,
             wavelength_nm: 650.0,
+            age_h: 0.0,
+            threshold_factor: 1.0,
+            slope_factor: 1.0,
         }
     }
 

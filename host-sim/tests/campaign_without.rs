@@ -10,6 +10,7 @@
 //! current limits, interlocks and eye protection; a campaign is evidence
 //! for a design review, not a classification.
 
+use diodestat_sim::units::Scale;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -65,7 +66,7 @@ fn the_board_is_class_1_near_its_boundary() {
     // The highest setpoint is within the limit with margin (the current
     // ceiling beyond it: the monitor-loss test below).
     let c = b.valid.config();
-    let max_accessible = c.power.max_setpoint_mw.to_num::<f64>() * lines.accessible_fraction;
+    let max_accessible = c.units().mw(c.power.max_setpoint_ou) * lines.accessible_fraction;
     assert!(max_accessible < 0.5 * cw, "{max_accessible}");
 }
 

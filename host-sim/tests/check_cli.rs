@@ -125,7 +125,7 @@ fn a_malformed_expectation_is_refused_before_any_output() {
     ]);
     assert!(!ok, "{text}");
     assert!(
-        text.contains("startup.toml: line 92: [[expect]] `state` = \"lasing\" is not a state"),
+        text.contains("startup.toml: line 97: [[expect]] `state` = \"lasing\" is not a state"),
         "{text}"
     );
     assert!(!out.exists());

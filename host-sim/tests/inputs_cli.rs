@@ -151,6 +151,30 @@ fn ambient_stepping_between_huge_values() {
     );
 }
 
+/// `liv` on a sweep that never lases printed a threshold and slope read
+/// from the spontaneous emission; it now says the sweep stays below
+/// threshold, and why.
+#[test]
+fn liv_below_threshold_prints_no_threshold() {
+    let d = scratch("liv-below");
+    let out = d.join("o");
+    let (ok, text) = diodestat(&[
+        "liv",
+        "visible",
+        "--max-ma",
+        "5",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(ok, "{text}");
+    assert!(!text.contains("slope"), "{text}");
+    assert!(text.contains("stays below threshold"), "{text}");
+    assert!(text.contains("5.0 mA is below the threshold"), "{text}");
+    let svg = std::fs::read_to_string(out.join("liv.svg")).unwrap();
+    assert!(!svg.contains("slope"), "the plot marks a slope");
+    assert!(svg.contains("below threshold"));
+}
+
 #[test]
 fn liv_max_ma_inf_and_other_options_out_of_range() {
     let d = scratch("liv");

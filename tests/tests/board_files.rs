@@ -35,8 +35,8 @@ fn red_board_file_is_the_configuration_the_simulator_used_before() {
     // The board lowers the demo configuration's current ceiling (50 mA
     // gave about 33 mW, above the module's 30 mW rating, at 0 degC) and
     // its largest setpoint; everything else is the demo configuration.
-    before.current.ceiling_ma = Fx::from_num(46);
-    before.power.max_setpoint_mw = Fx::from_num(25);
+    before.current.ceiling_iu = Fx::from_num(46);
+    before.power.max_setpoint_ou = Fx::from_num(25);
     assert_eq!(b.config, before);
     assert_eq!(b.module, DemoModule::visible());
     assert_eq!(b.module_name, "demo-visible-650");
@@ -76,8 +76,8 @@ fn pump_board_limits_fit_the_pump_module() {
     // The ceiling is below the DAC full scale and the hardware clamp above
     // the absolute rating, and the clamp keeps one tick below facet damage.
     let fs_ma = m.driver.dac_vref_v * m.driver.transconductance_a_per_v * 1e3;
-    let abs_ma = c.current.absolute_max_ma.to_num::<f64>();
-    assert!(c.current.ceiling_ma.to_num::<f64>() < fs_ma);
+    let abs_ma = c.current.absolute_max_iu.to_num::<f64>();
+    assert!(c.current.ceiling_iu.to_num::<f64>() < fs_ma);
     assert!(m.driver.fail_high_current_a * 1e3 > abs_ma);
     let diode = diodestat_sim::plant::Diode::new(m.diode.clone()).unwrap();
     let cold = diodestat_sim::plant::c_to_k(0.0);
@@ -88,23 +88,23 @@ fn pump_board_limits_fit_the_pump_module() {
     // The rated power is reachable below the ceiling at 25 degC.
     let t25 = diodestat_sim::plant::c_to_k(25.0);
     let at_ceiling_w = diode
-        .quasi_static(c.current.ceiling_ma.to_num::<f64>() * 1e-3, t25)
+        .quasi_static(c.current.ceiling_iu.to_num::<f64>() * 1e-3, t25)
         .p_front_w;
-    assert!(at_ceiling_w * 1e3 > c.power.max_setpoint_mw.to_num::<f64>());
+    assert!(at_ceiling_w * 1e3 > c.power.max_setpoint_ou.to_num::<f64>());
     // Monitor loss is checked only above the hottest threshold in range.
     let hot = diodestat_sim::plant::c_to_k(c.derating.cutoff_degc.to_num::<f64>() + 20.0);
     assert!(
-        c.protection.monitor_loss_drive_ma.to_num::<f64>() > diode.threshold_current_a(hot) * 1e3
+        c.protection.monitor_loss_drive_iu.to_num::<f64>() > diode.threshold_current_a(hot) * 1e3
     );
     // Every milliampere value is far inside the core's I16F16 range.
-    assert!(c.current.absolute_max_ma < Fx::from_num(16_000));
+    assert!(c.current.absolute_max_iu < Fx::from_num(16_000));
 }
 
 #[test]
 fn both_boards_pass_the_stability_gate_at_their_plant_corners() {
     for dir in ["demo-red-30", "demo-pump-5w"] {
         let b = shipped(dir);
-        let sp = b.config.power.max_setpoint_mw.to_num::<f64>() * 2.0 / 3.0;
+        let sp = b.config.power.max_setpoint_ou.to_num::<f64>() * 2.0 / 3.0;
         let corners = standard_corners(&b.valid, sp);
         let a = analyse_corners(&b.module, &b.valid, &corners, &CornerOptions::default()).unwrap();
         println!("{dir}\n{}", markdown(&a, PASS_PM_DEG, PASS_GM_DB));
@@ -145,7 +145,7 @@ fn every_shipped_scenario_names_a_board_file_that_loads() {
         for e in &sc.events {
             if let Action::SetPower { mw } = e.action {
                 assert!(
-                    mw <= b.config.power.max_setpoint_mw.to_num::<f64>(),
+                    mw <= b.config.power.max_setpoint_ou.to_num::<f64>(),
                     "{p:?}"
                 );
             }

@@ -30,7 +30,7 @@ struct Plant<'a> {
 impl Plant<'_> {
     fn code_for(&self, drive_ma: f64) -> u16 {
         let dac = &self.cfg.config().calibration.dac;
-        let c = (drive_ma * dac.codes_per_ma.to_num::<f64>() + 0.5).floor()
+        let c = (drive_ma * dac.codes_per_iu.to_num::<f64>() + 0.5).floor()
             + f64::from(dac.offset_codes);
         c.clamp(0.0, f64::from(dac.max_code)) as u16
     }
@@ -38,7 +38,7 @@ impl Plant<'_> {
         let dac = &self.cfg.config().calibration.dac;
         self.current_ma = if enable {
             (f64::from(code) - f64::from(dac.offset_codes)).max(0.0)
-                / dac.codes_per_ma.to_num::<f64>()
+                / dac.codes_per_iu.to_num::<f64>()
         } else {
             0.0
         };
@@ -107,20 +107,20 @@ impl Model {
         let hz = f64::from(c.tick_hz);
         let per_tick = |x: Fx| x.to_num::<f64>() * 1000.0 / hz;
         Model {
-            kp: c.apc.kp_ma_per_mw.to_num(),
-            ki: per_tick(c.apc.ki_ma_per_mw_ms),
-            soft_start: per_tick(c.ramp.soft_start_ma_per_ms),
-            soft_stop: per_tick(c.ramp.soft_stop_ma_per_ms),
-            slew: per_tick(c.apc.slew_ma_per_ms),
-            sp_step: per_tick(c.ramp.setpoint_mw_per_ms),
-            ceiling: c.current.ceiling_ma.to_num(),
+            kp: c.apc.kp_iu_per_ou.to_num(),
+            ki: per_tick(c.apc.ki_iu_per_ou_ms),
+            soft_start: per_tick(c.ramp.soft_start_iu_per_ms),
+            soft_stop: per_tick(c.ramp.soft_stop_iu_per_ms),
+            slew: per_tick(c.apc.slew_iu_per_ms),
+            sp_step: per_tick(c.ramp.setpoint_ou_per_ms),
+            ceiling: c.current.ceiling_iu.to_num(),
             fraction: c.ramp.handover_fraction.to_num(),
-            max_sp: c.power.max_setpoint_mw.to_num(),
+            max_sp: c.power.max_setpoint_ou.to_num(),
             delay: (f64::from(c.ramp.emission_delay_ms) * hz / 1000.0).ceil() as u32,
             st: St::Off,
             mode: Mode::Apc,
             req_mode: Mode::Apc,
-            target_mw: c.power.min_setpoint_mw.to_num(),
+            target_mw: c.power.min_setpoint_ou.to_num(),
             target_ma: 0.0,
             drive: 0.0,
             env: 0.0,
@@ -141,8 +141,8 @@ impl Model {
                 St::Ramping | St::Regulating => self.st = St::Stopping,
                 _ => {}
             },
-            Request::SetPowerMw(v) => self.target_mw = v.to_num(),
-            Request::SetCurrentMa(v) => self.target_ma = v.to_num(),
+            Request::SetPower(v) => self.target_mw = v.to_num(),
+            Request::SetCurrent(v) => self.target_ma = v.to_num(),
             Request::SetMode(m) => self.req_mode = m,
             Request::ClearFaults => {}
         }
@@ -249,8 +249,8 @@ const TICKS: u32 = 200_000;
 
 /// The schedule: requests before the step of the given tick.
 fn schedule(t: u32) -> Vec<Request> {
-    let mw = |v: i32| Request::SetPowerMw(Fx::from_num(v));
-    let ma = |v: i32| Request::SetCurrentMa(Fx::from_num(v));
+    let mw = |v: i32| Request::SetPower(Fx::from_num(v));
+    let ma = |v: i32| Request::SetCurrent(Fx::from_num(v));
     match t {
         1 => vec![mw(15), Request::Enable],
         40_000 => vec![mw(25)], // beyond the diode at the ceiling: anti-windup
@@ -292,7 +292,7 @@ fn run(shadow: bool) -> Worst {
     let temp_counts = (0..=4095u16)
         .min_by_key(|k| (cfg.counts_to_degc(*k) - Fx::from_num(25)).abs())
         .unwrap();
-    let mid_mv = (c.protection.supply_min_mv + c.protection.supply_max_mv) / 2;
+    let mid_mv = (c.protection.supply_min_vu + c.protection.supply_max_vu) / 2;
     let healthy = Sample {
         tick: 0,
         monitor_counts: 0,
@@ -328,7 +328,7 @@ fn run(shadow: bool) -> Worst {
         } else {
             model_plant.monitor_counts()
         };
-        let m = model.step(cfg.monitor_mw(model_counts).to_num());
+        let m = model.step(cfg.monitor_ou(model_counts).to_num());
         let model_enable = matches!(model.st, St::Ramping | St::Regulating | St::Stopping);
         model_plant.apply_code(model_plant.code_for(m), model_enable);
         assert!(
@@ -343,7 +343,7 @@ fn run(shadow: bool) -> Worst {
             d.status.faults
         );
         visited.insert(d.status.state.name());
-        let di = (ctl.drive_ma().to_num::<f64>() - m).abs();
+        let di = (ctl.drive_iu().to_num::<f64>() - m).abs();
         let dp = (diode_mw(core_plant.current_ma) - diode_mw(model_plant.current_ma)).abs();
         if di > worst.drive_ma {
             worst.drive_ma = di;

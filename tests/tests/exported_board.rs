@@ -27,6 +27,19 @@ fn generated_constants_are_the_board_file() {
         Path::new(env!("CARGO_MANIFEST_DIR")).join("../boards/g474-driver/src/board_config.rs"),
     )
     .unwrap();
-    let kp = b.config.apc.kp_ma_per_mw;
-    assert!(src.contains(&format!("// {kp} mA/mW")), "{src}");
+    // (The board's current and power units are mA and mW: the value in
+    // mA/mW is the raw value, to six significant digits.)
+    let kp = b.config.apc.kp_iu_per_ou;
+    assert_eq!(b.config.units(), diodestat_core::Units::MILLI);
+    let line = src
+        .lines()
+        .find(|l| l.contains(&format!("kp_iu_per_ou: Fx::from_bits({}),", kp.to_bits())))
+        .unwrap_or_else(|| panic!("{src}"));
+    let shown: f64 = line
+        .split("// ")
+        .nth(1)
+        .and_then(|n| n.strip_suffix(" mA/mW"))
+        .and_then(|n| n.parse().ok())
+        .unwrap_or_else(|| panic!("{line}"));
+    assert!((shown - kp.to_num::<f64>()).abs() < 1e-5, "{line}");
 }

@@ -453,7 +453,7 @@ fn pt100_callendar_van_dusen_iec_60751() {
     // C = -4.183e-12 (C below 0 degC only). Formula values (C): -100 degC
     // 60.2558 ohm, 0 degC 100.0000, 100 degC 138.5055, 200 degC 175.8560;
     // published tables round to 60.26, 100.00, 138.51, 175.86 (P2).
-    let pt = Rtd { r0_ohm: 100.0 };
+    let pt = Rtd::nominal(100.0);
     for (t_c, formula, table) in [
         (-100.0, 60.2558, 60.26),
         (0.0, 100.0, 100.00),

@@ -45,6 +45,7 @@ fn every_shipped_scenario_shows_what_it_expects() {
         "demo-red-30/startup.toml",
         "demo-red-30/modes-and-interlock.toml",
         "demo-pump-5w/startup.toml",
+        "demo-pump-18w/startup.toml",
         "bench-808/startup.toml",
         "demo-vcsel-850/startup.toml",
     ] {
@@ -65,7 +66,7 @@ fn every_shipped_scenario_shows_what_it_expects() {
     }
     // Every scenario in examples/ is found by the suite and has expectations.
     let files = check::collect(&[example("")]).unwrap();
-    assert_eq!(files.len(), 7, "{files:?}");
+    assert_eq!(files.len(), 8, "{files:?}");
     for f in files {
         let sc = diodestat_sim::scenario::parse(&std::fs::read_to_string(&f).unwrap()).unwrap();
         assert!(sc.expects.len() >= 4, "{}", f.display());

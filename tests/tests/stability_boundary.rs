@@ -40,7 +40,7 @@ fn nominal(b: &LoadedBoard, cfg: &ValidConfig, setpoint_mw: f64) -> CornerLoop {
 /// `b`'s configuration with another integral gain, mA/(mW·ms).
 fn with_ki(b: &LoadedBoard, ki_ma_per_mw_ms: f64) -> ValidConfig {
     let mut c = b.config.clone();
-    c.apc.ki_ma_per_mw_ms = Fx::from_num(ki_ma_per_mw_ms);
+    c.apc.ki_iu_per_ou_ms = Fx::from_num(ki_ma_per_mw_ms);
     c.validate().unwrap()
 }
 
@@ -87,6 +87,7 @@ fn run(
         seed: 0,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
+        aging_speedup: 1.0,
         events: vec![
             ev(0.0, Action::SetPower { mw: setpoint_mw }),
             ev(0.5, Action::Enable),
@@ -141,7 +142,7 @@ const SWEEP_STEP: f64 = 0.025;
 fn simulator_onset_of_oscillation_matches_the_linear_boundary() {
     for name in ["demo-red-30", "demo-pump-5w"] {
         let b = board(name);
-        let sp = 2.0 / 3.0 * b.config.power.max_setpoint_mw.to_num::<f64>();
+        let sp = 2.0 / 3.0 * b.config.power.max_setpoint_ou.to_num::<f64>();
         let l = nominal(&b, &b.valid, sp);
         assert!(!l.point.at_ceiling, "{name}: nominal corner regulates");
         let k_lin = linear_boundary(&l.params);
@@ -309,7 +310,7 @@ fn red_board_at_1_khz_oscillates_and_the_summary_says_so() {
         // Bounded by the current ceiling (46 mA) and the slew limit
         // (20 mA per tick at 1 kHz): it swings more than 15 mA, to the
         // ceiling, every few ticks.
-        let ceiling = wide.config.current.ceiling_ma.to_num::<f64>();
+        let ceiling = wide.config.current.ceiling_iu.to_num::<f64>();
         assert!(
             (o.drive_ma.1 - ceiling).abs() < 0.5,
             "reaches the {ceiling} mA ceiling: {f}"

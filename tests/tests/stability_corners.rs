@@ -96,8 +96,8 @@ fn example_gains_pass_the_common_practice_line_at_every_corner() {
 fn aggressive_gains_fail_the_gate() {
     let (m, _) = setup();
     let mut c = calibration::calibrate(example::config(), &m);
-    c.apc.kp_ma_per_mw = Fx::from_num(1.2);
-    c.apc.ki_ma_per_mw_ms = Fx::from_num(12);
+    c.apc.kp_iu_per_ou = Fx::from_num(1.2);
+    c.apc.ki_iu_per_ou_ms = Fx::from_num(12);
     let cfg = c.validate().unwrap();
     let a = analyse_corners(
         &m,
@@ -135,8 +135,8 @@ fn design_over_the_corners_meets_its_margins_in_the_core() {
     assert!(d.target_met);
     // Put the gains into the configuration and analyse again from scratch.
     let mut c = cfg.config().clone();
-    c.apc.kp_ma_per_mw = d.kp;
-    c.apc.ki_ma_per_mw_ms = d.ki_ma_per_mw_ms;
+    c.apc.kp_iu_per_ou = d.kp;
+    c.apc.ki_iu_per_ou_ms = d.ki_ma_per_mw_ms;
     let cfg2 = c.validate().unwrap();
     let a = analyse_corners(&m, &cfg2, &corners, &opts).unwrap();
     println!("{}", markdown(&a, DESIGN_PM_DEG, DESIGN_GM_DB));

@@ -216,8 +216,8 @@ fn designed_gains_are_what_the_core_runs_on() {
     let d = design_pi(&cs, &DesignSpec::new(400.0)).unwrap();
     let mut cfg = example::config();
     assert_eq!(cfg.tick_hz, 20_000);
-    cfg.apc.kp_ma_per_mw = d.kp;
-    cfg.apc.ki_ma_per_mw_ms = d.ki_ma_per_mw_ms;
+    cfg.apc.kp_iu_per_ou = d.kp;
+    cfg.apc.ki_iu_per_ou_ms = d.ki_ma_per_mw_ms;
     let valid = cfg.validate().expect("designed gains validate");
     assert_eq!(valid.kp(), d.kp);
     assert_eq!(valid.ki_per_tick(), d.ki_per_tick);

@@ -273,7 +273,7 @@ async fn main(_spawner: Spawner) {
         let Some((status, drive_ma)) = control::with(|c| {
             (
                 c.board.controller().status(),
-                c.board.controller().drive_ma(),
+                c.board.controller().drive_iu(),
             )
         }) else {
             continue;
@@ -300,7 +300,7 @@ async fn main(_spawner: Spawner) {
         if pressed {
             let req = button_request(status.state);
             if req == Request::Enable {
-                send(&mut pending, Request::SetPowerMw(BUTTON_SETPOINT_MW));
+                send(&mut pending, Request::SetPower(BUTTON_SETPOINT_MW));
             }
             send(&mut pending, req);
         }

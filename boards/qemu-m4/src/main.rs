@@ -72,7 +72,7 @@ fn fingerprint_checks(c: &mut Checks) {
         format_args!("{} on target, {} exported", on_target, exported),
     );
     let mut edited = board_config::config();
-    edited.apc.kp_ma_per_mw += Fx::from_bits(1);
+    edited.apc.kp_iu_per_ou += Fx::from_bits(1);
     let moved = edited.validate().map(|v| v.fingerprint());
     c.check(
         "a constant edited by one LSB changes the fingerprint",

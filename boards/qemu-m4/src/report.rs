@@ -273,7 +273,7 @@ pub fn print_side_costs(sw: &Stopwatch) {
     use diodestat_core::{Fx, LatchRecord, Mailbox, Request};
     let mailbox: Mailbox<Request, 4> = Mailbox::new();
     let pair = side_cost_x10(sw, |i| {
-        let _ = mailbox.push(Request::SetPowerMw(Fx::from_bits(i as i32)));
+        let _ = mailbox.push(Request::SetPower(Fx::from_bits(i as i32)));
         core::hint::black_box(mailbox.pop());
     });
     let rec = LatchRecord::default();

@@ -154,7 +154,7 @@ impl<S: Snapshots> Rig<S> {
             // as a mismatch.
             let _ = self.trace.push(drive.status.state);
         }
-        self.peak_drive_ma = self.peak_drive_ma.max(self.ctl.drive_ma());
+        self.peak_drive_ma = self.peak_drive_ma.max(self.ctl.drive_iu());
         self.peak_dac = self.peak_dac.max(drive.dac_code);
         self.plant.advance(&drive);
         self.tick = self.tick.wrapping_add(1);

@@ -29,7 +29,7 @@ fn window<S: Snapshots>(rig: &mut Rig<S>, ticks: u32) -> ((Fx, Fx), (i32, i32)) 
     let (mut tlo, mut thi) = (i32::MAX, i32::MIN);
     for _ in 0..ticks {
         rig.tick();
-        let m = rig.ctl.measurements().monitor_mw;
+        let m = rig.ctl.measurements().monitor_ou;
         lo = lo.min(m);
         hi = hi.max(m);
         let uw = rig.plant.optical_uw();
@@ -68,7 +68,7 @@ fn check_regulation<S: Snapshots>(
 
 fn check_ceiling<S: Snapshots>(rig: &Rig<S>, c: &mut Checks, name: &str) {
     let cfg = rig.ctl.config();
-    let ceiling = cfg.config().current.ceiling_ma;
+    let ceiling = cfg.config().current.ceiling_iu;
     let max_code = cfg.dac_code(ceiling);
     c.check(
         name,
@@ -95,7 +95,7 @@ pub fn start<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks, setpoint_mw: Fx) ->
     let delay = rig.ctl.config().emission_delay_ticks();
     rig.clear_trace();
     rig.clear_peaks();
-    let ok = rig.ctl.request(Request::SetPowerMw(setpoint_mw)).is_ok()
+    let ok = rig.ctl.request(Request::SetPower(setpoint_mw)).is_ok()
         && rig.ctl.request(Request::Enable).is_ok();
     c.check(
         "enable accepted in off",
@@ -163,7 +163,7 @@ pub fn startup_and_regulation<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
     let sp2 = Fx::from_num(20);
     c.check(
         "setpoint change accepted while regulating",
-        rig.ctl.request(Request::SetPowerMw(sp2)).is_ok(),
+        rig.ctl.request(Request::SetPower(sp2)).is_ok(),
         format_args!("{} mW -> {} mW", sp, sp2),
     );
     let ((_, hi), _) = window(rig, 20 * tpm);
@@ -177,7 +177,7 @@ pub fn startup_and_regulation<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
     c.check(
         "out-of-range setpoint refused",
         matches!(
-            rig.ctl.request(Request::SetPowerMw(Fx::from_num(31))),
+            rig.ctl.request(Request::SetPower(Fx::from_num(31))),
             Err(Rejection::OutOfRange { .. })
         ),
         format_args!("31 mW"),
@@ -361,11 +361,11 @@ pub fn soft_stop<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
     rig.run(5 * tpm);
     rig.clear_trace();
     let _ = rig.ctl.request(Request::Disable);
-    let mut prev = rig.ctl.drive_ma();
+    let mut prev = rig.ctl.drive_iu();
     let mut rising = false;
     let n = rig.run_until(10 * tpm, |r, d| {
-        rising |= r.ctl.drive_ma() > prev;
-        prev = r.ctl.drive_ma();
+        rising |= r.ctl.drive_iu() > prev;
+        prev = r.ctl.drive_iu();
         d.status.state == State::Off
     });
     let (_, d) = rig.last;
@@ -535,7 +535,7 @@ pub fn mailbox_and_reset<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
     let tpm = ticks_per_ms(rig);
     let sp = Fx::from_num(5);
     let pushed =
-        REQUESTS.push(Request::SetPowerMw(sp)).is_ok() && REQUESTS.push(Request::Enable).is_ok();
+        REQUESTS.push(Request::SetPower(sp)).is_ok() && REQUESTS.push(Request::Enable).is_ok();
     let (n, ok) = drain(rig);
     c.check(
         "requests pass through the mailbox",
@@ -543,13 +543,13 @@ pub fn mailbox_and_reset<S: Snapshots>(rig: &mut Rig<S>, c: &mut Checks) {
         format_args!("{} taken, {} accepted, state {:?}", n, ok, rig.ctl.state()),
     );
     let mut filled = 0;
-    while REQUESTS.push(Request::SetPowerMw(sp)).is_ok() {
+    while REQUESTS.push(Request::SetPower(sp)).is_ok() {
         filled += 1;
     }
-    let refused = REQUESTS.push(Request::SetPowerMw(sp));
+    let refused = REQUESTS.push(Request::SetPower(sp));
     c.check(
         "a full mailbox hands the request back",
-        filled == REQUESTS.capacity() && refused == Err(Full(Request::SetPowerMw(sp))),
+        filled == REQUESTS.capacity() && refused == Err(Full(Request::SetPower(sp))),
         format_args!("{} of {} slots filled", filled, REQUESTS.capacity()),
     );
     drain(rig);

@@ -68,10 +68,10 @@ pub fn counts_for(cal: &AdcCal, v: Fx) -> u16 {
 }
 
 /// The current a DAC code makes, per the DAC calibration.
-pub fn dac_ma(cfg: &ValidConfig, code: u16) -> Fx {
+pub fn dac_iu(cfg: &ValidConfig, code: u16) -> Fx {
     let dac = &cfg.config().calibration.dac;
     let above = (i32::from(code) - dac.offset_codes).max(0);
-    Fx::from_num(above) / dac.codes_per_ma
+    Fx::from_num(above) / dac.codes_per_iu
 }
 
 /// Temperature-sensor counts reading closest to `degc` (between the rails).
@@ -87,13 +87,13 @@ pub fn temp_counts_for(cfg: &ValidConfig, degc: Fx) -> u16 {
 pub fn healthy_sample(cfg: &ValidConfig, tick: u32) -> Sample {
     let c = cfg.config();
     let p = &c.protection;
-    let mid_mv = (p.supply_min_mv + p.supply_max_mv) / 2;
+    let mid_vu = (p.supply_min_vu + p.supply_max_vu) / 2;
     Sample {
         tick,
         monitor_counts: counts_for(&c.calibration.monitor, Fx::ZERO),
         current_counts: counts_for(&c.calibration.current_sense, Fx::ZERO),
         temp_counts: temp_counts_for(cfg, Fx::from_num(25)),
-        supply_counts: counts_for(&c.calibration.supply, mid_mv),
+        supply_counts: counts_for(&c.calibration.supply, mid_vu),
         interlock_closed: true,
         forward_counts: None,
         external_fault: false,
@@ -107,32 +107,32 @@ pub fn healthy_sample(cfg: &ValidConfig, tick: u32) -> Sample {
 #[derive(Clone, Copy, Debug)]
 pub struct LinearPlant {
     /// Threshold current, mA.
-    pub threshold_ma: Fx,
+    pub threshold_iu: Fx,
     /// Slope efficiency, mW/mA.
-    pub slope_mw_per_ma: Fx,
+    pub slope_ou_per_iu: Fx,
     /// Current flowing now, mA.
-    pub current_ma: Fx,
+    pub current_iu: Fx,
 }
 
 impl LinearPlant {
     /// Invented demo numbers: 25 mA threshold, 0.9 mW/mA (22.5 mW at 50 mA).
     pub fn demo() -> Self {
         LinearPlant {
-            threshold_ma: Fx::from_num(25),
-            slope_mw_per_ma: Fx::from_num(0.9),
-            current_ma: Fx::ZERO,
+            threshold_iu: Fx::from_num(25),
+            slope_ou_per_iu: Fx::from_num(0.9),
+            current_iu: Fx::ZERO,
         }
     }
 
     /// Optical power now, mW.
-    pub fn power_mw(&self) -> Fx {
-        (self.current_ma - self.threshold_ma).max(Fx::ZERO) * self.slope_mw_per_ma
+    pub fn power_ou(&self) -> Fx {
+        (self.current_iu - self.threshold_iu).max(Fx::ZERO) * self.slope_ou_per_iu
     }
 
     /// Apply a drive: the current source follows the DAC code while enabled.
     pub fn apply(&mut self, cfg: &ValidConfig, d: &Drive) {
-        self.current_ma = if d.enable {
-            dac_ma(cfg, d.dac_code)
+        self.current_iu = if d.enable {
+            dac_iu(cfg, d.dac_code)
         } else {
             Fx::ZERO
         };
@@ -141,8 +141,8 @@ impl LinearPlant {
     /// Write the monitor and current-sense counts of the present state.
     pub fn fill(&self, cfg: &ValidConfig, s: &mut Sample) {
         let cal = &cfg.config().calibration;
-        s.monitor_counts = counts_for(&cal.monitor, self.power_mw());
-        s.current_counts = counts_for(&cal.current_sense, self.current_ma);
+        s.monitor_counts = counts_for(&cal.monitor, self.power_ou());
+        s.current_counts = counts_for(&cal.current_sense, self.current_iu);
     }
 }
 
@@ -185,10 +185,10 @@ impl Rig {
     pub fn regulating_acc(cfg: ValidConfig, ma: Fx) -> Rig {
         let mut r = Rig::new(cfg);
         r.req(Request::SetMode(Mode::Acc));
-        r.req(Request::SetCurrentMa(ma));
+        r.req(Request::SetCurrent(ma));
         r.req(Request::Enable);
         r.run_until(1_000_000, |ctl, _| {
-            ctl.state() == State::Regulating && ctl.drive_ma() == ma
+            ctl.state() == State::Regulating && ctl.drive_iu() == ma
         })
         .expect("reaches the current setpoint");
         r
@@ -198,10 +198,10 @@ impl Rig {
     /// first reads the setpoint.
     pub fn regulating_apc(cfg: ValidConfig, mw: Fx, settle: u32) -> Rig {
         let mut r = Rig::new(cfg);
-        r.req(Request::SetPowerMw(mw));
+        r.req(Request::SetPower(mw));
         r.req(Request::Enable);
         r.run_until(1_000_000, |ctl, _| {
-            ctl.state() == State::Regulating && ctl.power_setpoint_mw() == mw
+            ctl.state() == State::Regulating && ctl.power_setpoint_ou() == mw
         })
         .expect("reaches the power setpoint");
         r.run(settle);

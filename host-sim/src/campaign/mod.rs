@@ -32,6 +32,8 @@ pub mod without;
 pub use outcome::{CaseResult, Detection};
 pub use selection::{Moment, Selection, SelectionError, COLD_C, HOT_C};
 
+use crate::units::Scale;
+
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
@@ -58,6 +60,9 @@ pub struct Corner {
     pub tracking: f64,
     /// Operating hours before the run (aged diode).
     pub aged_hours: f64,
+    /// Where the temperature sensor's error lies in its IEC 60751 class
+    /// band, -1 ..= 1 (0: the nominal curve; only a sensor with a class).
+    pub sensor_band: f64,
 }
 
 fn nominal() -> Corner {
@@ -68,6 +73,7 @@ fn nominal() -> Corner {
         slope: 1.0,
         tracking: 1.0,
         aged_hours: 0.0,
+        sensor_band: 0.0,
     }
 }
 
@@ -96,19 +102,26 @@ pub fn corners(cold_c: f64, hot_c: f64) -> Vec<Corner> {
 }
 
 /// `n` parts drawn from the module's tolerances with `seed` (each factor
-/// uniform in `1 - t ..= 1 + t`), at the nominal corner's 25 degC, named
-/// `part-1` to `part-n`.
+/// uniform in `1 - t ..= 1 + t`; a temperature sensor given by its IEC 60751
+/// class also draws its error uniformly within the class band), at the
+/// nominal corner's 25 degC, named `part-1` to `part-n`.
 pub fn parts(module: &DemoModule, n: u32, seed: u64) -> Vec<Corner> {
     let mut rng = crate::plant::Rng::new(seed);
     let t = module.tolerances;
+    let classed = module.sensor.sensor.rtd_class().is_some();
     (1..=n)
         .map(|i| {
             let mut draw = |tol: f64| 1.0 + tol * (2.0 * rng.uniform() - 1.0);
+            let threshold = draw(t.threshold);
+            let slope = draw(t.slope);
+            let tracking = draw(t.tracking);
+            let sensor_band = if classed { draw(1.0) - 1.0 } else { 0.0 };
             Corner {
                 name: format!("part-{i}"),
-                threshold: draw(t.threshold),
-                slope: draw(t.slope),
-                tracking: draw(t.tracking),
+                threshold,
+                slope,
+                tracking,
+                sensor_band,
                 ..nominal()
             }
         })
@@ -485,8 +498,8 @@ pub fn cases(bench: &Bench<'_>, sel: &Selection) -> Result<CasePlan, SelectionEr
     }
     let c = bench.cfg.config();
     let (min, max) = (
-        c.power.min_setpoint_mw.to_num::<f64>(),
-        c.power.max_setpoint_mw.to_num::<f64>(),
+        c.units().mw(c.power.min_setpoint_ou),
+        c.units().mw(c.power.max_setpoint_ou),
     );
     let setpoints = sel
         .setpoints_mw
@@ -570,7 +583,7 @@ impl Plan {
     /// The plan for a module and its configuration.
     pub fn new(module: &DemoModule, cfg: &ValidConfig) -> Self {
         let c = cfg.config();
-        let max = c.power.max_setpoint_mw.to_num::<f64>();
+        let max = c.units().mw(c.power.max_setpoint_ou);
         Plan {
             setpoint_mw: max * 2.0 / 3.0,
             changed_mw: max / 3.0,
@@ -736,6 +749,7 @@ fn scenario(
             seed: SEED,
             diode_model: DiodeModel::QuasiStatic,
             trace_every: 1,
+            aging_speedup: 1.0,
             events: ev,
             expects: Vec::new(),
         },
@@ -756,7 +770,8 @@ pub fn run_case(
     slow_bound_s: f64,
 ) -> Result<CaseResult, String> {
     let (sc, timing) = scenario(bench, spec, case, corner, slow_bound_s);
-    let module = bench.module.with_spread(corner.threshold, corner.slope);
+    let mut module = bench.module.with_spread(corner.threshold, corner.slope);
+    module.sensor.sensor = module.sensor.sensor.with_band_position(corner.sensor_band);
     let res =
         sim::run(&sc, &module, bench.cfg.clone(), bench.latency).map_err(|e| e.to_string())?;
     let tick_hz = res.tick_hz;

@@ -175,8 +175,8 @@ pub fn switch_off(cfg: &ValidConfig, name: &str) -> Result<Switched, WithoutErro
                     why: "the current-sense range cannot be widened".into(),
                 });
             }
-            c.protection.overcurrent_ma = trip;
-            c.current.absolute_max_ma = c.current.absolute_max_ma.max(trip);
+            c.protection.overcurrent_iu = trip;
+            c.current.absolute_max_iu = c.current.absolute_max_iu.max(trip);
         }
         Fault::MonitorRunaway => {
             let real = full_scale(&c.calibration.monitor);
@@ -188,12 +188,12 @@ pub fn switch_off(cfg: &ValidConfig, name: &str) -> Result<Switched, WithoutErro
                     why: "the monitor range cannot be widened".into(),
                 });
             }
-            c.protection.runaway_mw = trip;
+            c.protection.runaway_ou = trip;
         }
         Fault::DriveMismatch => {
             let sense = full_scale(&c.calibration.current_sense);
-            let limit = c.current.absolute_max_ma.to_num::<f64>();
-            c.protection.mismatch_tolerance_ma = fx(sense + limit + 1.0);
+            let limit = c.current.absolute_max_iu.to_num::<f64>();
+            c.protection.mismatch_tolerance_iu = fx(sense + limit + 1.0);
         }
         Fault::MonitorLoss => {
             c.protection.monitor_loss_debounce = HOLD_TICKS;
@@ -276,7 +276,7 @@ mod tests {
         let mon = full_scale(&c.calibration.monitor);
         let sense = full_scale(&c.calibration.current_sense);
         let s = switch_off(&cfg, "monitor-runaway").unwrap();
-        assert!(s.cfg.config().protection.runaway_mw.to_num::<f64>() > mon);
+        assert!(s.cfg.config().protection.runaway_ou.to_num::<f64>() > mon);
         // Only the trip and the range changed: the calibration gain is the
         // board's, so every reading is the same.
         assert_eq!(
@@ -284,15 +284,15 @@ mod tests {
             c.calibration.monitor.units_per_count
         );
         let s = switch_off(&cfg, "overcurrent").unwrap();
-        assert!(s.cfg.config().protection.overcurrent_ma.to_num::<f64>() > sense);
+        assert!(s.cfg.config().protection.overcurrent_iu.to_num::<f64>() > sense);
         let s = switch_off(&cfg, "drive-mismatch").unwrap();
         assert!(
             s.cfg
                 .config()
                 .protection
-                .mismatch_tolerance_ma
+                .mismatch_tolerance_iu
                 .to_num::<f64>()
-                > sense + c.current.ceiling_ma.to_num::<f64>()
+                > sense + c.current.ceiling_iu.to_num::<f64>()
         );
         assert_ne!(s.cfg.fingerprint(), cfg.fingerprint());
     }

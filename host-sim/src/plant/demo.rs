@@ -6,13 +6,21 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::diode::{DiodeParams, GainModel};
+use super::diode::{DiodeParams, GainModel, AGING_ACTIVATION_EV, AGING_CURRENT_EXPONENT};
 use super::driver::DriverParams;
 use super::monitor::MonitorParams;
 use super::sensors::{
-    AdcParams, FrontEndParams, Ntc, Rtd, SensorChainParams, TempSensor, Topology,
+    AdcParams, FrontEndParams, Ntc, Rtd, RtdClass, SensorChainParams, TempSensor, Topology,
 };
 use super::thermal::ThermalParams;
+
+/// Supply divider of the built-in demo modules and of module files that
+/// give none (supply volts per ADC volt).
+pub const DEFAULT_SUPPLY_DIVIDER: f64 = 8.0;
+
+fn default_supply_divider() -> f64 {
+    DEFAULT_SUPPLY_DIVIDER
+}
 
 /// Everything the simulator needs for one laser module.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -25,6 +33,10 @@ pub struct DemoModule {
     pub rated_current_a: f64,
     /// Nominal driver supply, V.
     pub supply_v: f64,
+    /// Divider in front of the supply ADC channel, supply volts per ADC
+    /// volt.
+    #[serde(default = "default_supply_divider")]
+    pub supply_divider: f64,
     /// Laser diode.
     pub diode: DiodeParams,
     /// Back-facet monitor photodiode.
@@ -88,6 +100,7 @@ impl DemoModule {
             rated_power_w: 0.030,
             rated_current_a: 0.060,
             supply_v: 5.0,
+            supply_divider: DEFAULT_SUPPLY_DIVIDER,
             diode: DiodeParams::demo_visible(),
             monitor: MonitorParams::demo_visible(),
             driver: DriverParams::demo_visible(),
@@ -104,6 +117,7 @@ impl DemoModule {
             rated_power_w: 5.0,
             rated_current_a: 6.5,
             supply_v: 3.3,
+            supply_divider: DEFAULT_SUPPLY_DIVIDER,
             diode: DiodeParams::demo_pump(),
             monitor: MonitorParams::demo_pump(),
             driver: DriverParams::demo_pump(),
@@ -156,6 +170,10 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.01,
             slope_loss_per_khour: 0.005,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            aging_ref_current_a: None,
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -197,6 +215,11 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.02,
             slope_loss_per_khour: 0.01,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            // The aging rates hold at the visible module's rated current.
+            aging_ref_current_a: Some(0.060),
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -238,6 +261,11 @@ impl DiodeParams {
             damage_filter_ns: 100.0,
             threshold_rise_per_khour: 0.005,
             slope_loss_per_khour: 0.003,
+            aging_activation_ev: AGING_ACTIVATION_EV,
+            aging_current_exponent: AGING_CURRENT_EXPONENT,
+            // The aging rates hold at the pump module's rated current.
+            aging_ref_current_a: Some(6.5),
+            aging_ref_c: None,
             max_operating_c: None,
             damage_tc_per_k: 0.0,
         }
@@ -364,7 +392,11 @@ impl SensorChainParams {
     /// 2.2 kohm pull-up, 12-bit ADC.
     pub fn demo_pump() -> Self {
         Self {
-            sensor: TempSensor::Rtd(Rtd { r0_ohm: 1000.0 }),
+            sensor: TempSensor::Rtd(Rtd {
+                r0_ohm: 1000.0,
+                class: Some(RtdClass::B),
+                band_position: 0.0,
+            }),
             front_end: FrontEndParams {
                 topology: Topology::SensorToGround,
                 ref_resistor_ohm: 2200.0,

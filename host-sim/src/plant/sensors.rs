@@ -1,6 +1,7 @@
-//! Temperature sensors (NTC thermistor, platinum RTD), their divider front
-//! end with RC anti-alias filter and a seeded-noise ADC, and a generic ADC
-//! channel for the monitor, current-sense and supply signals.
+//! Temperature sensors (NTC thermistor, platinum RTD with its IEC 60751
+//! tolerance class), their divider front end with RC anti-alias filter and
+//! a seeded-noise ADC, and a generic ADC channel for the monitor,
+//! current-sense and supply signals.
 //!
 //! ADC convention (shared with the firmware tables): an ideal mid-tread
 //! converter, `code = round(V / LSB)` with `LSB = vref / 2^bits`, clamped to
@@ -107,28 +108,116 @@ impl Ntc {
     }
 }
 
-/// Platinum RTD with the IEC 60751 Callendar-Van Dusen coefficients.
+/// Tolerance class of a platinum RTD (IEC 60751:2008, clause 5.1.3,
+/// table 2; from memory): the largest deviation of a sensor's temperature
+/// from the nominal Callendar-Van Dusen curve, a + b |t|:
+///
+/// | class | tolerance, degC |
+/// |---|---|
+/// | AA | 0.1 + 0.0017 \|t\| |
+/// | A | 0.15 + 0.002 \|t\| |
+/// | B | 0.3 + 0.005 \|t\| |
+/// | C | 0.6 + 0.01 \|t\| |
+///
+/// (The standard also bounds each class's validity range by element type,
+/// wire-wound or film; the simulator applies the formula at any
+/// temperature.)
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum RtdClass {
+    /// Class AA.
+    AA,
+    /// Class A.
+    A,
+    /// Class B.
+    B,
+    /// Class C.
+    C,
+}
+
+impl RtdClass {
+    /// Half-width of the class band at `t_c` degC, K.
+    pub fn tolerance_k(self, t_c: f64) -> f64 {
+        let (a, b) = match self {
+            RtdClass::AA => (0.1, 0.0017),
+            RtdClass::A => (0.15, 0.002),
+            RtdClass::B => (0.3, 0.005),
+            RtdClass::C => (0.6, 0.01),
+        };
+        a + b * t_c.abs()
+    }
+}
+
+/// Platinum RTD with the IEC 60751 Callendar-Van Dusen coefficients and,
+/// optionally, its tolerance class and where this part's error lies in it.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Rtd {
     /// Resistance at 0 degC, ohm (100 for Pt100, 1000 for Pt1000).
     pub r0_ohm: f64,
+    /// Tolerance class (IEC 60751); `None`: the nominal curve exactly.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub class: Option<RtdClass>,
+    /// Where this part's error lies in its class band, -1 ..= 1: the sensor
+    /// has the resistance of the nominal curve at t + position x
+    /// tolerance(t). 0 (the default): the nominal curve. Needs `class`.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub band_position: f64,
+}
+
+fn is_zero(v: &f64) -> bool {
+    *v == 0.0
 }
 
 impl Rtd {
-    /// Checks R0 is positive.
+    /// A sensor on the nominal curve with no class.
+    pub fn nominal(r0_ohm: f64) -> Self {
+        Rtd {
+            r0_ohm,
+            class: None,
+            band_position: 0.0,
+        }
+    }
+
+    /// Checks R0 is positive and the band position lies in its class.
     pub fn validate(&self) -> Result<(), PlantError> {
         ensure(
             self.r0_ohm > 0.0 && self.r0_ohm.is_finite(),
             "r0_ohm",
             "must be > 0",
+        )?;
+        ensure(
+            (-1.0..=1.0).contains(&self.band_position),
+            "band_position",
+            "must be in -1 ..= 1",
+        )?;
+        ensure(
+            self.class.is_some() || self.band_position == 0.0,
+            "band_position",
+            "needs a tolerance class (class = \"AA\", \"A\", \"B\" or \"C\")",
         )
     }
 
-    /// Resistance at temperature `t_k`, ohm:
-    /// R0 (1 + A t + B t^2 + C (t - 100) t^3), C term only for t < 0 degC.
+    /// This part's error at `t_k`, K: position x class tolerance (0 without
+    /// a class).
+    #[inline]
+    pub fn error_k(&self, t_k: f64) -> f64 {
+        match self.class {
+            Some(c) => self.band_position * c.tolerance_k(t_k - ZERO_CELSIUS_K),
+            None => 0.0,
+        }
+    }
+
+    /// Resistance of this part at temperature `t_k`, ohm: the nominal
+    /// curve at t_k plus its error ([`Rtd::error_k`]).
     #[inline]
     pub fn resistance_ohm(&self, t_k: f64) -> f64 {
+        self.nominal_resistance_ohm(t_k + self.error_k(t_k))
+    }
+
+    /// Resistance on the nominal curve at `t_k`, ohm:
+    /// R0 (1 + A t + B t^2 + C (t - 100) t^3), C term only for t < 0 degC.
+    #[inline]
+    pub fn nominal_resistance_ohm(&self, t_k: f64) -> f64 {
         let t = t_k - ZERO_CELSIUS_K;
         let mut r = 1.0 + RTD_A * t + RTD_B * t * t;
         if t < 0.0 {
@@ -137,8 +226,9 @@ impl Rtd {
         self.r0_ohm * r
     }
 
-    /// Temperature for resistance `r_ohm`, K: the quadratic root for
-    /// R >= R0, Newton iteration on the full equation below 0 degC.
+    /// Temperature for resistance `r_ohm` on the nominal curve (what a
+    /// reader that knows only the curve concludes), K: the quadratic root
+    /// for R >= R0, Newton iteration on the full equation below 0 degC.
     pub fn temperature_k(&self, r_ohm: f64) -> f64 {
         let rr = r_ohm / self.r0_ohm - 1.0;
         let disc = (RTD_A * RTD_A + 4.0 * RTD_B * rr).max(0.0);
@@ -169,6 +259,38 @@ pub enum TempSensor {
 }
 
 impl TempSensor {
+    /// The same sensor on its nominal curve (an RTD's class error removed):
+    /// what firmware built from the datasheet knows.
+    pub fn nominal(&self) -> TempSensor {
+        match self {
+            TempSensor::Rtd(r) => TempSensor::Rtd(Rtd {
+                band_position: 0.0,
+                ..r.clone()
+            }),
+            other => other.clone(),
+        }
+    }
+
+    /// The same sensor with its error at `position` (-1 ..= 1) of its class
+    /// band; sensors without a class are returned as they are.
+    pub fn with_band_position(&self, position: f64) -> TempSensor {
+        match self {
+            TempSensor::Rtd(r) if r.class.is_some() => TempSensor::Rtd(Rtd {
+                band_position: position,
+                ..r.clone()
+            }),
+            other => other.clone(),
+        }
+    }
+
+    /// The class of an RTD given by one.
+    pub fn rtd_class(&self) -> Option<RtdClass> {
+        match self {
+            TempSensor::Rtd(r) => r.class,
+            TempSensor::Ntc(_) => None,
+        }
+    }
+
     /// Checks the sensor coefficients.
     pub fn validate(&self) -> Result<(), PlantError> {
         match self {
@@ -695,7 +817,7 @@ mod tests {
 
     #[test]
     fn rtd_inverse_round_trip() {
-        let rtd = Rtd { r0_ohm: 100.0 };
+        let rtd = Rtd::nominal(100.0);
         for t_c in [
             -200.0, -100.0, -40.0, -0.5, 0.0, 0.5, 25.0, 200.0, 600.0, 850.0,
         ] {
@@ -748,5 +870,99 @@ mod tests {
         assert!(crate::plant::error::from_toml::<SensorChainParams>(&bad).is_err());
         let bad2 = text.replace("c = 9.9e-8", "c = 9.9e-8\nd = 1.0");
         assert!(crate::plant::error::from_toml::<SensorChainParams>(&bad2).is_err());
+    }
+
+    /// The class tolerances against IEC 60751:2008, clause 5.1.3, table 2
+    /// (from memory): at 0 degC and 100 degC, in degC, and for a Pt100 in
+    /// ohm (the table's ohm column, rounded to 0.01 ohm).
+    #[test]
+    fn iec_60751_class_tolerances_at_0_and_100_degc() {
+        for (class, at0, at100) in [
+            (RtdClass::AA, 0.10, 0.27),
+            (RtdClass::A, 0.15, 0.35),
+            (RtdClass::B, 0.30, 0.80),
+            (RtdClass::C, 0.60, 1.60),
+        ] {
+            assert!((class.tolerance_k(0.0) - at0).abs() < 1e-12, "{class:?}");
+            assert!(
+                (class.tolerance_k(100.0) - at100).abs() < 1e-12,
+                "{class:?}"
+            );
+            assert_eq!(class.tolerance_k(-100.0), class.tolerance_k(100.0));
+        }
+        // Pt100 at the edge of its band, in ohm: A 0.06 / 0.13, B 0.12 / 0.30.
+        for (class, ohm0, ohm100) in [(RtdClass::A, 0.06, 0.13), (RtdClass::B, 0.12, 0.30)] {
+            let nominal = Rtd::nominal(100.0);
+            let edge = Rtd {
+                class: Some(class),
+                band_position: 1.0,
+                ..Rtd::nominal(100.0)
+            };
+            for (t_c, want) in [(0.0, ohm0), (100.0, ohm100)] {
+                let t_k = t_c + ZERO_CELSIUS_K;
+                let dr = edge.resistance_ohm(t_k) - nominal.resistance_ohm(t_k);
+                assert!((dr - want).abs() < 0.005, "{class:?} {t_c}: {dr}");
+            }
+        }
+    }
+
+    /// A classed sensor reads with its error: read back through the nominal
+    /// curve, a part at position p of its band reads t + p tolerance(t),
+    /// never outside the band; the channel's counts move with it.
+    #[test]
+    fn a_classed_sensor_reads_with_its_error_within_the_band() {
+        for class in [RtdClass::AA, RtdClass::A, RtdClass::B, RtdClass::C] {
+            for p in [-1.0, -0.4, 0.0, 0.7, 1.0] {
+                let rtd = Rtd {
+                    class: Some(class),
+                    band_position: p,
+                    ..Rtd::nominal(1000.0)
+                };
+                for t_c in [-40.0, 0.0, 25.0, 100.0, 150.0] {
+                    let t_k = t_c + ZERO_CELSIUS_K;
+                    let read = rtd.temperature_k(rtd.resistance_ohm(t_k)) - t_k;
+                    let tol = class.tolerance_k(t_c);
+                    assert!((read - p * tol).abs() < 1e-9, "{class:?} {p} {t_c}: {read}");
+                    assert!(read.abs() <= tol + 1e-9);
+                }
+            }
+        }
+        let chain = |s: TempSensor| {
+            let mut params = super::super::demo::DemoModule::pump().sensor;
+            params.sensor = s;
+            SensorChain::new(params).unwrap()
+        };
+        let classed = TempSensor::Rtd(Rtd {
+            class: Some(RtdClass::B),
+            band_position: 0.0,
+            ..Rtd::nominal(1000.0)
+        });
+        let t_k = 60.0 + ZERO_CELSIUS_K;
+        let hot = chain(classed.with_band_position(1.0)).ideal_counts(t_k);
+        let nominal = chain(classed.clone()).ideal_counts(t_k);
+        let warmer = chain(classed.clone()).ideal_counts(t_k + RtdClass::B.tolerance_k(60.0));
+        assert!(
+            (hot - warmer).abs() < 1e-9 && hot > nominal + 1.0,
+            "{hot} {nominal}"
+        );
+        assert_eq!(classed.with_band_position(1.0).nominal(), classed);
+    }
+
+    #[test]
+    fn a_band_position_outside_the_band_or_without_a_class_is_refused() {
+        let bad = |class: Option<RtdClass>, p: f64| {
+            Rtd {
+                class,
+                band_position: p,
+                ..Rtd::nominal(100.0)
+            }
+            .validate()
+            .is_err()
+        };
+        assert!(bad(Some(RtdClass::A), 1.5));
+        assert!(bad(Some(RtdClass::A), f64::NAN));
+        assert!(bad(None, 0.5));
+        assert!(!bad(Some(RtdClass::A), -1.0));
+        assert!(!bad(None, 0.0));
     }
 }

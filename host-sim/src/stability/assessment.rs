@@ -19,6 +19,7 @@
 //! ceiling are listed as not regulating; they do not fail (a capability
 //! limit, not a stability one), and their steps are not judged.
 
+use crate::units::Scale;
 use std::fmt;
 use std::path::Path;
 
@@ -66,7 +67,8 @@ impl Default for PassLines {
 /// thirds of the configuration's highest setpoint (our choice: a working
 /// point with headroom below the rated power).
 pub fn default_setpoint_mw(cfg: &ValidConfig) -> f64 {
-    cfg.config().power.max_setpoint_mw.to_num::<f64>() * 2.0 / 3.0
+    let c = cfg.config();
+    c.units().mw(c.power.max_setpoint_ou) * 2.0 / 3.0
 }
 
 /// What a failing corner misses.
@@ -239,9 +241,9 @@ pub fn assess(
         setpoint_mw,
         tick_hz: c.tick_hz,
         gains: (
-            c.apc.kp_ma_per_mw.to_num(),
-            c.apc.ki_ma_per_mw_ms.to_num(),
-            cfg.ki_per_tick().to_num(),
+            c.units().ma_per_mw(c.apc.kp_iu_per_ou),
+            c.units().ma_per_mw(c.apc.ki_iu_per_ou_ms),
+            cfg.ki_per_tick().to_num::<f64>() * c.units().ma_per_iu() / c.units().mw_per_ou(),
         ),
         analyses,
         responses,

@@ -36,6 +36,7 @@
 //! [`DemoModule::with_spread`]. The standard spreads here are demo values,
 //! not device statistics.
 
+use crate::units::Scale;
 use diodestat_core::{Fx, ValidConfig};
 
 use crate::plant::{
@@ -160,7 +161,7 @@ pub fn standard_corners(cfg: &ValidConfig, setpoint_mw: f64) -> Vec<PlantCorner>
         }
         .named("aged"),
         PlantCorner {
-            setpoint_mw: c.power.min_setpoint_mw.to_num(),
+            setpoint_mw: c.units().mw(c.power.min_setpoint_ou),
             ..n.clone()
         }
         .named("low setpoint"),
@@ -344,7 +345,7 @@ impl CornerPlant {
             monitor,
             thermal,
             counts_per_v: full / module.adc.vref_v,
-            mw_per_count: cal.units_per_count.to_num(),
+            mw_per_count: cal.units_per_count.to_num::<f64>() * cfg.config().units().mw_per_ou(),
             mon_offset: f64::from(cal.offset_counts),
         })
     }
@@ -393,14 +394,14 @@ pub fn corner_loop(
     let plant = CornerPlant::new(module, cfg, corner)?;
     let amb = c_to_k(corner.ambient_c);
     let c = cfg.config();
-    let limit_a = c.current.absolute_max_ma.to_num::<f64>() * 1e-3;
+    let limit_a = c.units().ma(c.current.absolute_max_iu) * 1e-3;
     let sp = corner.setpoint_mw;
     // The ceiling in force at current `i` (derated at its case temperature).
     let ceiling_a = |i: f64| {
         let (_, tc) = plant.temperatures(i, amb);
-        cfg.derated_ceiling_ma(Fx::saturating_from_num(k_to_c(tc)))
-            .min(c.current.ceiling_ma)
-            .to_num::<f64>()
+        c.units().ma(cfg
+            .derated_ceiling_iu(Fx::saturating_from_num(k_to_c(tc)))
+            .min(c.current.ceiling_iu))
             * 1e-3
     };
     // Bisection on the current for reading = setpoint, if the absolute
@@ -459,7 +460,7 @@ pub fn corner_loop(
     let dac = &module.driver;
     let fs_ma = dac.dac_vref_v * dac.transconductance_a_per_v * 1e3;
     let max_code = f64::from((1u32 << dac.dac_bits) - 1);
-    let dac_gain = c.calibration.dac.codes_per_ma.to_num::<f64>() * fs_ma / max_code;
+    let dac_gain = c.units().codes_per_ma(c.calibration.dac.codes_per_iu) * fs_ma / max_code;
     let point = OperatingPoint {
         current_ma: i * 1e3,
         required_ma: required.map(|r| r * 1e3),

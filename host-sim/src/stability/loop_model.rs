@@ -45,6 +45,8 @@
 
 use diodestat_core::ValidConfig;
 
+use crate::units::Scale;
+
 use super::margins::{margins, Margins};
 use super::tf::{ContinuousTf, DiscreteTf};
 
@@ -124,12 +126,15 @@ impl LoopParams {
         }
     }
 
-    /// The same corner with the tick rate and gains the core runs on.
+    /// The same corner with the tick rate and gains the core runs on
+    /// (converted from the board's units to mA/mW).
     pub fn with_config_gains(self, cfg: &ValidConfig) -> Self {
+        let u = cfg.config().units();
+        let ma_per_mw = u.ma_per_iu() / u.mw_per_ou();
         LoopParams {
             tick_hz: f64::from(cfg.config().tick_hz),
-            kp_ma_per_mw: cfg.kp().to_num(),
-            ki_per_tick: cfg.ki_per_tick().to_num(),
+            kp_ma_per_mw: cfg.kp().to_num::<f64>() * ma_per_mw,
+            ki_per_tick: cfg.ki_per_tick().to_num::<f64>() * ma_per_mw,
             ..self
         }
     }

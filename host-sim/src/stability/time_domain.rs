@@ -66,6 +66,7 @@
 //! matching linear loop is the very one the margins are taken on
 //! ([`Discretisation::ExactZoh`] with the board's delay).
 
+use crate::units::Scale;
 use diodestat_core::{State, ValidConfig};
 use rayon::prelude::*;
 
@@ -106,9 +107,9 @@ impl StepPlan {
     /// to the ceiling plus 50 ms.
     pub fn for_config(cfg: &ValidConfig) -> Self {
         let c = cfg.config();
-        let ramp = c.ramp.soft_start_ma_per_ms.to_num::<f64>();
+        let ramp = c.units().ma(c.ramp.soft_start_iu_per_ms);
         let soft_ms = if ramp > 0.0 {
-            c.current.ceiling_ma.to_num::<f64>() / ramp
+            c.units().ma(c.current.ceiling_iu) / ramp
         } else {
             0.0
         };
@@ -403,12 +404,13 @@ struct Timeline {
 /// The other level of the steps for `setpoint_mw` (see the module
 /// documentation).
 pub fn other_level_mw(cfg: &ValidConfig, setpoint_mw: f64, step_fraction: f64) -> f64 {
-    let p = &cfg.config().power;
+    let c = cfg.config();
+    let p = &c.power;
     let low = setpoint_mw * (1.0 - step_fraction);
-    if low >= p.min_setpoint_mw.to_num::<f64>() {
+    if low >= c.units().mw(p.min_setpoint_ou) {
         low
     } else {
-        (setpoint_mw * (1.0 + step_fraction)).min(p.max_setpoint_mw.to_num())
+        (setpoint_mw * (1.0 + step_fraction)).min(c.units().mw(p.max_setpoint_ou))
     }
 }
 
@@ -453,6 +455,7 @@ fn scenario(corner: &PlantCorner, plan: &StepPlan, low_mw: f64, seed: u64) -> Sc
         seed,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
+        aging_speedup: 1.0,
         events,
         expects: Vec::new(),
     }
@@ -585,7 +588,10 @@ pub fn corner_response(
         on_ceiling: on_ceiling(&tr[end - tail..end]),
     };
     let dac_step_mw = corner.params.slope_mw_per_ma * corner.params.dac_gain
-        / cfg.config().calibration.dac.codes_per_ma.to_num::<f64>();
+        / cfg
+            .config()
+            .units()
+            .codes_per_ma(cfg.config().calibration.dac.codes_per_iu);
     let q = &quiet.trace;
     let oscillation = [
         (tl.away, "at setpoint"),
@@ -715,6 +721,7 @@ pub fn small_step_agreement(
         seed: 0,
         diode_model: DiodeModel::QuasiStatic,
         trace_every: 1,
+        aging_speedup: 1.0,
         events,
         expects: Vec::new(),
     };
@@ -741,7 +748,7 @@ pub fn small_step_agreement(
     // The core moves its setpoint toward the request by a configured
     // amount per tick: the linear input is that ramp, the response the
     // sum of the step responses of its increments.
-    let rate = cfg.setpoint_mw_per_tick().to_num::<f64>();
+    let rate = cfg.config().units().mw(cfg.setpoint_ou_per_tick());
     let mut inc = Vec::new();
     let mut sp = 0.0;
     while sp < step_mw && inc.len() < ticks {

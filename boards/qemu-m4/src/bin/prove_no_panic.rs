@@ -160,8 +160,8 @@ fn request(kind: u32, value: u32) -> Request {
     match kind {
         1 => Request::Enable,
         2 => Request::Disable,
-        3 => Request::SetPowerMw(v),
-        4 => Request::SetCurrentMa(v),
+        3 => Request::SetPower(v),
+        4 => Request::SetCurrent(v),
         5 => Request::SetMode(if value & 1 != 0 { Mode::Acc } else { Mode::Apc }),
         _ => Request::ClearFaults,
     }

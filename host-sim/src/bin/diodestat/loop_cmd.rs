@@ -4,6 +4,7 @@
 //! (every shipped board against the pass lines, non-zero exit on any
 //! finding). Method: `docs/stability.md`.
 
+use diodestat_sim::units::Scale;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
@@ -62,10 +63,8 @@ fn overshoot_limit(b: &LoadedBoard, cli: Option<f64>) -> f64 {
 /// the board's setpoint range), else the default.
 fn corner_setpoint(b: &LoadedBoard, setpoint_mw: Option<f64>) -> Result<f64, String> {
     let p = &b.config.power;
-    let (lo, hi) = (
-        p.min_setpoint_mw.to_num::<f64>(),
-        p.max_setpoint_mw.to_num::<f64>(),
-    );
+    let u = b.config.units();
+    let (lo, hi) = (u.mw(p.min_setpoint_ou), u.mw(p.max_setpoint_ou));
     match setpoint_mw {
         Some(v) if !(v >= lo && v <= hi) => Err(format!(
             "--setpoint-mw {v}: outside board {}'s setpoint range {lo} ..= {hi} mW (power.min_setpoint_mw ..= power.max_setpoint_mw in {})",
@@ -385,6 +384,7 @@ pub fn gate(
         "pass lines: PM >= {PASS_PM_DEG} deg, GM >= {PASS_GM_DB} dB (common practice), overshoot \
          within each board's limit, no limit cycle, no fault latched"
     );
+    println!("CAUTION: {SAFETY_CAUTION}");
     if failures.is_empty() {
         println!("loop gate passed: {} board configurations", boards.len());
         Ok(())
@@ -470,6 +470,13 @@ pub fn with_gains(text: &str, kp: Fx, ki: Fx) -> Result<String, String> {
     Ok(doc.to_string())
 }
 
+/// A gain in mA/mW (or mA/(mW ms)) in the board's current units per power
+/// unit, as the board-file loader converts it.
+fn gain_in_units(b: &LoadedBoard, g: Fx) -> Fx {
+    let u = b.config.units();
+    Fx::from_num(g.to_num::<f64>() / (u.ma_per_iu() / u.mw_per_ou()))
+}
+
 /// Write the gains into the board file at `path` in place (atomically),
 /// and check that the file reads back with exactly these gains.
 fn write_gains(path: &Path, kp: Fx, ki: Fx) -> Result<(), String> {
@@ -477,12 +484,14 @@ fn write_gains(path: &Path, kp: Fx, ki: Fx) -> Result<(), String> {
     let new = with_gains(&text, kp, ki).map_err(|e| format!("{}: {e}", path.display()))?;
     files::write_atomic(path, new.as_bytes()).map_err(|e| e.to_string())?;
     let b = load_board(path).map_err(|e| e.to_string())?;
-    if (b.config.apc.kp_ma_per_mw, b.config.apc.ki_ma_per_mw_ms) != (kp, ki) {
+    let u = b.config.units();
+    let want = (gain_in_units(&b, kp), gain_in_units(&b, ki));
+    if (b.config.apc.kp_iu_per_ou, b.config.apc.ki_iu_per_ou_ms) != want {
         return Err(format!(
-            "{}: the gains read back as {} and {}, not {kp} and {ki}",
+            "{}: the gains read back as {} and {} mA/mW, not {kp} and {ki}",
             path.display(),
-            b.config.apc.kp_ma_per_mw,
-            b.config.apc.ki_ma_per_mw_ms
+            u.ma_per_mw(b.config.apc.kp_iu_per_ou),
+            u.ma_per_mw(b.config.apc.ki_iu_per_ou_ms)
         ));
     }
     Ok(())
@@ -575,8 +584,8 @@ pub fn tune(
     );
     // The margins table and the time domain with the proposed gains.
     let mut cfg = b.config.clone();
-    cfg.apc.kp_ma_per_mw = d.kp;
-    cfg.apc.ki_ma_per_mw_ms = d.ki_ma_per_mw_ms;
+    cfg.apc.kp_iu_per_ou = gain_in_units(&b, d.kp);
+    cfg.apc.ki_iu_per_ou_ms = gain_in_units(&b, d.ki_ma_per_mw_ms);
     let valid = cfg
         .validate()
         .map_err(|e| format!("the proposed gains are refused by the configuration check: {e}"))?;
@@ -731,7 +740,7 @@ mod tests {
         write_gains(&dst, kp, ki).unwrap();
         let b = load_board(&dst).unwrap();
         assert_eq!(
-            (b.config.apc.kp_ma_per_mw, b.config.apc.ki_ma_per_mw_ms),
+            (b.config.apc.kp_iu_per_ou, b.config.apc.ki_iu_per_ou_ms),
             (kp, ki)
         );
         let comments = |t: &str| -> Vec<String> {

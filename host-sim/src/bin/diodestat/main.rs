@@ -409,12 +409,17 @@ fn liv(
     stage.commit().map_err(|e| e.to_string())?;
     for c in &curves {
         let last = c.points.last();
-        let fit = c.fit.map_or("does not lase".to_string(), |f| {
-            format!(
+        let fit = match (c.below, c.fit) {
+            (Some(b), _) => b.to_string(),
+            (None, Some(f)) => format!(
                 "threshold {:.3} mA, slope {:.4} W/A (line through 10-40 % of the peak)",
                 f.threshold_ma, f.slope_w_per_a
-            )
-        });
+            ),
+            (None, None) => {
+                "lases, but too few points lie between 10 and 40 % of the peak to read a threshold"
+                    .to_string()
+            }
+        };
         println!(
             "{}: {fit}; at {:.1} mA {:.3} mW, junction {:.1} degC{}",
             c.heating.label(),
@@ -433,6 +438,7 @@ fn liv(
         out.join("liv.csv").display(),
         out.join("liv.svg").display()
     );
+    println!("CAUTION: {}", diodestat_sim::safety::SAFETY_CAUTION);
     Ok(())
 }
 
@@ -509,7 +515,7 @@ fn campaign_verdict(
     );
     for r in &bad {
         println!(
-            "UNSAFE: {} {} {} {} mW: {}",
+            "UNSAFE: {} {} {} {:.4} mW: {}",
             r.fault,
             r.moment.name(),
             r.corner,

@@ -94,7 +94,9 @@ mod varshni;
 
 pub use gain::GainSi;
 pub use model::DiodeDerived;
-pub use params::{DiodeParams, GainModel, CUTOFF_EFOLD_K};
+pub use params::{
+    DiodeParams, GainModel, AGING_ACTIVATION_EV, AGING_CURRENT_EXPONENT, CUTOFF_EFOLD_K,
+};
 pub use rate_equations::RateCoefficients;
 pub use rodas4::{integrate_rodas4, DynamicStats, Tolerance};
 pub use state::{Diode, DiodeOutput};

@@ -115,6 +115,12 @@ pub(super) struct Model {
     pub(super) damage_tau: f64,
     pub(super) rise: f64,
     pub(super) loss: f64,
+    /// Aging law: Ea / k_B (K), the current exponent, 1 / I_ref (1/A; 0
+    /// when the rates do not depend on the current) and 1 / T_ref (1/K).
+    pub(super) aging_ea_over_k: f64,
+    pub(super) aging_n: f64,
+    pub(super) aging_inv_i_ref: f64,
+    pub(super) aging_inv_t_ref: f64,
     pub(super) n_scale: f64,
     pub(super) s_scale: f64,
     pub(super) inv_n_scale: f64,
@@ -269,6 +275,10 @@ impl Model {
             damage_tau: p.damage_filter_ns * 1e-9,
             rise: p.threshold_rise_per_khour,
             loss: p.slope_loss_per_khour,
+            aging_ea_over_k: p.aging_activation_ev * Q / K_B,
+            aging_n: p.aging_current_exponent,
+            aging_inv_i_ref: p.aging_ref_current_a.map_or(0.0, |i| 1.0 / i),
+            aging_inv_t_ref: 1.0 / (p.aging_ref_c.unwrap_or(p.t_ref_c) + ZERO_CELSIUS_K),
             n_scale: n_th,
             s_scale: gamma * tau_p * r_th,
             inv_n_scale: 1.0 / n_th,

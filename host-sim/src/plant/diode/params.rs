@@ -89,10 +89,30 @@ pub struct DiodeParams {
     /// front power is low-pass filtered with it before the comparison
     /// (0 = instantaneous).
     pub damage_filter_ns: f64,
-    /// Aging: relative threshold rise per 1000 operating hours.
+    /// Aging: relative threshold rise per 1000 operating hours at the
+    /// aging reference conditions (`aging_ref_current_a`, `aging_ref_c`).
     pub threshold_rise_per_khour: f64,
-    /// Aging: relative slope-efficiency loss per 1000 operating hours.
+    /// Aging: relative slope-efficiency loss per 1000 operating hours at
+    /// the aging reference conditions.
     pub slope_loss_per_khour: f64,
+    /// Activation energy Ea of the aging rate, eV: the rate scales with
+    /// exp(-Ea / (k_B T_j)) (see `aging.rs`). Default
+    /// [`AGING_ACTIVATION_EV`].
+    #[serde(default = "default_aging_activation_ev")]
+    pub aging_activation_ev: f64,
+    /// Current exponent n of the aging rate: the rate scales with I^n.
+    /// Default [`AGING_CURRENT_EXPONENT`].
+    #[serde(default = "default_aging_current_exponent")]
+    pub aging_current_exponent: f64,
+    /// Drive current at which the per-1000-hour rates hold, A. `None`: the
+    /// rates do not depend on the current (any current above zero ages at
+    /// them, scaled by temperature only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub aging_ref_current_a: Option<f64>,
+    /// Junction temperature at which the per-1000-hour rates hold, degC.
+    /// `None`: `t_ref_c`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub aging_ref_c: Option<f64>,
     /// Highest junction temperature at which the diode lases, degC: above
     /// it the threshold rises e-fold every [`CUTOFF_EFOLD_K`] on top of T0,
     /// so lasing stops within a few kelvin. `None`: T0 holds at any
@@ -105,6 +125,24 @@ pub struct DiodeParams {
     /// 0.05 ..= 2 times `damage_power_w`. 0 (the default): no dependence.
     #[serde(default)]
     pub damage_tc_per_k: f64,
+}
+
+/// Default activation energy of the aging rate, eV: 0.5 eV, the value
+/// quoted for gradual degradation of GaAs-based (808 nm class) lasers;
+/// published figures of laser diodes span about 0.3 to 0.9 eV (from
+/// memory; M. Fukuda, *Reliability and Degradation of Semiconductor Lasers
+/// and LEDs*, Artech House 1991). Give the part's own figure.
+pub const AGING_ACTIVATION_EV: f64 = 0.5;
+/// Default current exponent of the aging rate: 2, within the 1.5 to 3
+/// usually found for laser diodes (from memory, same source).
+pub const AGING_CURRENT_EXPONENT: f64 = 2.0;
+
+fn default_aging_activation_ev() -> f64 {
+    AGING_ACTIVATION_EV
+}
+
+fn default_aging_current_exponent() -> f64 {
+    AGING_CURRENT_EXPONENT
 }
 
 /// Kelvin per e-fold of the threshold above the maximum operating
@@ -231,6 +269,26 @@ impl DiodeParams {
             "slope_loss_per_khour",
             "must be >= 0",
         )?;
+        ensure(
+            nonneg(self.aging_activation_ev) && self.aging_activation_ev <= 2.0,
+            "aging_activation_ev",
+            "must be in 0 ..= 2 eV",
+        )?;
+        ensure(
+            nonneg(self.aging_current_exponent) && self.aging_current_exponent <= 10.0,
+            "aging_current_exponent",
+            "must be in 0 ..= 10",
+        )?;
+        if let Some(i) = self.aging_ref_current_a {
+            ensure(pos(i), "aging_ref_current_a", "must be > 0")?;
+        }
+        if let Some(c) = self.aging_ref_c {
+            ensure(
+                c.is_finite() && (-55.0..=150.0).contains(&c),
+                "aging_ref_c",
+                "must be in -55 ..= 150 degC",
+            )?;
+        }
         Ok(())
     }
 }

@@ -59,10 +59,13 @@ pub struct Diode {
 /// The slowly varying transcendental terms of [`Diode::step_quasi_static`].
 #[derive(Clone, Copy, Debug, Default)]
 pub(super) struct NearTerms {
-    t0: ExpNear,
-    t1: ExpNear,
-    ratio: LnNear,
-    vf: ExpNear,
+    pub(super) t0: ExpNear,
+    pub(super) t1: ExpNear,
+    pub(super) ratio: LnNear,
+    pub(super) vf: ExpNear,
+    /// ln(I / I_ref) and the acceleration factor of the aging law.
+    pub(super) aging_ln: LnNear,
+    pub(super) aging_exp: ExpNear,
 }
 
 impl Diode {
