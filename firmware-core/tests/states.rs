@@ -613,9 +613,9 @@ fn apc_to_acc_leaves_the_power_loop_as_it_was() {
     let cfg = demo();
     let mon = cfg.config().calibration.monitor;
     let mut r = Rig::regulating_apc(cfg, fx(12.0), 1_000);
-    let (sp, integ) = (r.ctl.power_setpoint_mw(), r.ctl.integrator_ma());
+    let (sp, integ) = (r.ctl.power_setpoint_ou(), r.ctl.integrator_iu());
     assert_eq!(sp, fx(12.0));
-    r.req(Request::SetCurrentMa(r.ctl.drive_ma()));
+    r.req(Request::SetCurrent(r.ctl.drive_iu()));
     r.req(Request::SetMode(Mode::Acc));
     let dim = counts_for(&mon, fx(5.0));
     let d = r.step_with(|s| s.monitor_counts = dim);
@@ -623,8 +623,8 @@ fn apc_to_acc_leaves_the_power_loop_as_it_was() {
         (d.status.mode, d.status.state),
         (Mode::Acc, State::Regulating)
     );
-    assert_eq!(r.ctl.power_setpoint_mw(), sp);
-    assert_eq!(r.ctl.integrator_ma(), integ);
+    assert_eq!(r.ctl.power_setpoint_ou(), sp);
+    assert_eq!(r.ctl.integrator_iu(), integ);
 }
 
 /// In ACC the at-ceiling warning says whether the current setpoint is
@@ -632,7 +632,7 @@ fn apc_to_acc_leaves_the_power_loop_as_it_was() {
 #[test]
 fn acc_warns_at_the_ceiling_and_not_below_it() {
     let cfg = demo();
-    let top = cfg.config().current.ceiling_ma;
+    let top = cfg.config().current.ceiling_iu;
     let mut r = Rig::regulating_acc(cfg.clone(), fx(40.0));
     let d = r.run(10);
     assert!(
@@ -641,6 +641,6 @@ fn acc_warns_at_the_ceiling_and_not_below_it() {
     );
     let mut r = Rig::regulating_acc(cfg, top);
     let d = r.run(10);
-    assert_eq!(r.ctl.drive_ma(), top);
+    assert_eq!(r.ctl.drive_iu(), top);
     assert!(d.status.warnings.at_ceiling, "on the {top} mA ceiling");
 }
