@@ -603,3 +603,44 @@ fn regulation_holds_the_setpoint_across_the_range() {
         assert!(r.ctl.faults().is_empty());
     }
 }
+
+/// APC -> ACC needs nothing from the power loop: the switch leaves its
+/// ramped setpoint and its integrator as they were, whatever the monitor
+/// reads on that tick (only a switch to APC while regulating starts the
+/// loop afresh, from the measured power and the present drive).
+#[test]
+fn apc_to_acc_leaves_the_power_loop_as_it_was() {
+    let cfg = demo();
+    let mon = cfg.config().calibration.monitor;
+    let mut r = Rig::regulating_apc(cfg, fx(12.0), 1_000);
+    let (sp, integ) = (r.ctl.power_setpoint_ou(), r.ctl.integrator_iu());
+    assert_eq!(sp, fx(12.0));
+    r.req(Request::SetCurrent(r.ctl.drive_iu()));
+    r.req(Request::SetMode(Mode::Acc));
+    let dim = counts_for(&mon, fx(5.0));
+    let d = r.step_with(|s| s.monitor_counts = dim);
+    assert_eq!(
+        (d.status.mode, d.status.state),
+        (Mode::Acc, State::Regulating)
+    );
+    assert_eq!(r.ctl.power_setpoint_ou(), sp);
+    assert_eq!(r.ctl.integrator_iu(), integ);
+}
+
+/// In ACC the at-ceiling warning says whether the current setpoint is
+/// held on the ceiling in force: off below it, on at it.
+#[test]
+fn acc_warns_at_the_ceiling_and_not_below_it() {
+    let cfg = demo();
+    let top = cfg.config().current.ceiling_iu;
+    let mut r = Rig::regulating_acc(cfg.clone(), fx(40.0));
+    let d = r.run(10);
+    assert!(
+        !d.status.warnings.at_ceiling,
+        "40 mA under a {top} mA ceiling"
+    );
+    let mut r = Rig::regulating_acc(cfg, top);
+    let d = r.run(10);
+    assert_eq!(r.ctl.drive_iu(), top);
+    assert!(d.status.warnings.at_ceiling, "on the {top} mA ceiling");
+}
