@@ -96,8 +96,10 @@ mod tests {
     use super::super::params::DiodeParams;
     use super::*;
 
-    /// Worst differences between the fast quasi-static step and the
-    /// straightforward one: relative N, front power relative to
+    /// "Reference" here is the straightforward solution of the same rate
+    /// equations (no published value: `common practice` of checking a fast
+    /// path against the plain one). Worst differences between the fast
+    /// quasi-static step and the straightforward one: relative N, front power relative to
     /// max(P, 1e-6 of the damage power), forward voltage in volts; and how
     /// many steps above threshold started from an anchor.
     fn fast_vs_reference(p: DiodeParams, seed: u64, age_at: usize) -> (f64, f64, f64, usize) {

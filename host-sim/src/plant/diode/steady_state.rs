@@ -276,6 +276,10 @@ mod tests {
     use super::super::params::DiodeParams;
     use super::*;
 
+    /// The in-plane laser of Coldren, Corzine and Mashanovitch, *Diode
+    /// Lasers and Photonic Integrated Circuits*, 2nd ed. (Wiley 2012)
+    /// (`from memory`, see `DiodeParams::textbook_in_plane`). The checks
+    /// below compare the solver with a bisection to machine precision.
     fn textbook() -> DiodeParams {
         DiodeParams::textbook_in_plane()
     }
