@@ -11,8 +11,12 @@
 
 use core::fmt::Write as _;
 
-use crate::config::{ApcGains, CurrentLimits, Derating, PowerRange, Protection, Ramps};
-use crate::units::{Fx, Units};
+use crate::config::{
+    AdcCal, ApcGains, CurrentLimits, DacCal, Derating, DiodePoint, Plausibility, PowerRange,
+    Protection, Ramps, DIODE_POINTS,
+};
+use crate::temp_table::TempPoint;
+use crate::units::{Fx, Gain, Units};
 
 /// An exact decimal as written in a file: `mantissa × 10^exp`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -175,6 +179,8 @@ pub enum Quantity {
     CurrentPerPower,
     /// A temperature in degC or a fraction: in the core's range as written.
     Plain,
+    /// DAC codes per current: `codes_per_ma` or `codes_per_a`.
+    PerCurrent,
 }
 
 /// A value as written: its key, the decimal, what it measures and whether
@@ -204,6 +210,7 @@ impl Written {
                 return i32::from(u.power_exp) - i32::from(u.current_exp);
             }
             Quantity::Plain => return 0,
+            Quantity::PerCurrent => return i32::from(u.current_exp) - if self.si { 0 } else { -3 },
         };
         file - board
     }
@@ -216,6 +223,20 @@ impl Written {
             .ok_or(FormError::DoesNotFit {
                 written: *self,
                 shift: self.shift(u),
+                gain: false,
+            })
+    }
+
+    /// The value in the board's units as a calibration gain per count
+    /// ([`Gain`]), or the refusal naming the key.
+    pub fn to_gain(&self, u: Units) -> Result<Gain, FormError> {
+        self.value
+            .to_bits(self.shift(u), 24)
+            .map(Gain::from_bits)
+            .ok_or(FormError::DoesNotFit {
+                written: *self,
+                shift: self.shift(u),
+                gain: true,
             })
     }
 
@@ -224,6 +245,7 @@ impl Written {
     pub fn milli(&self) -> Decimal {
         let up = match self.quantity {
             Quantity::Current | Quantity::Power | Quantity::Voltage if self.si => 3,
+            Quantity::PerCurrent if self.si => -3,
             _ => 0,
         };
         Decimal::new(self.value.mantissa, self.value.exp.saturating_add(up))
@@ -254,6 +276,9 @@ pub enum FormError {
         written: Written,
         /// The power of ten from the key's unit to the board's unit.
         shift: i32,
+        /// The value is a calibration gain per count ([`Gain`]), not an
+        /// [`Fx`].
+        gain: bool,
     },
 }
 
@@ -588,6 +613,277 @@ impl ProtectionForm {
     }
 }
 
+/// `[calibration.monitor]`: the monitor photodiode channel ([`AdcCal`],
+/// in the board's power unit).
+#[derive(Clone, Debug, PartialEq, Eq, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MonitorForm {
+    /// Reading at zero light, counts.
+    pub offset_counts: i32,
+    /// Front-facet mW per count.
+    pub mw_per_count: Option<Decimal>,
+    /// Front-facet W per count.
+    pub w_per_count: Option<Decimal>,
+    /// Highest ADC count.
+    pub full_scale_counts: u16,
+}
+
+either!(MonitorForm, "calibration.monitor":
+    per_count: mw_per_count | w_per_count, Power;
+);
+
+/// `[calibration.current_sense]`: the current-sense channel ([`AdcCal`],
+/// in the board's current unit).
+#[derive(Clone, Debug, PartialEq, Eq, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CurrentSenseForm {
+    /// Reading at zero current, counts.
+    pub offset_counts: i32,
+    /// mA per count.
+    pub ma_per_count: Option<Decimal>,
+    /// A per count.
+    pub a_per_count: Option<Decimal>,
+    /// Highest ADC count.
+    pub full_scale_counts: u16,
+}
+
+either!(CurrentSenseForm, "calibration.current_sense":
+    per_count: ma_per_count | a_per_count, Current;
+);
+
+/// `[calibration.supply]`: the supply channel ([`AdcCal`], in the board's
+/// voltage unit).
+#[derive(Clone, Debug, PartialEq, Eq, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SupplyForm {
+    /// Reading at zero volts, counts.
+    pub offset_counts: i32,
+    /// Supply mV per count (divider included).
+    pub mv_per_count: Option<Decimal>,
+    /// Supply V per count (divider included).
+    pub v_per_count: Option<Decimal>,
+    /// Highest ADC count.
+    pub full_scale_counts: u16,
+}
+
+either!(SupplyForm, "calibration.supply":
+    per_count: mv_per_count | v_per_count, Voltage;
+);
+
+/// An ADC channel in the unit of its quantity.
+fn adc(
+    offset_counts: i32,
+    per_count: Result<Written, FormError>,
+    full_scale_counts: u16,
+    u: Units,
+) -> Result<AdcCal, FormError> {
+    let per_count = per_count?;
+    Ok(AdcCal {
+        offset_counts,
+        units_per_count: per_count.to_gain(u)?,
+        full_scale_counts,
+        unit_exp: match per_count.quantity {
+            Quantity::Power => u.power_exp,
+            Quantity::Voltage => u.voltage_exp,
+            _ => u.current_exp,
+        },
+    })
+}
+
+impl MonitorForm {
+    /// The channel in the board's units.
+    pub fn to_section(&self, u: Units) -> Result<AdcCal, FormError> {
+        adc(
+            self.offset_counts,
+            self.per_count(),
+            self.full_scale_counts,
+            u,
+        )
+    }
+}
+
+impl CurrentSenseForm {
+    /// The channel in the board's units.
+    pub fn to_section(&self, u: Units) -> Result<AdcCal, FormError> {
+        adc(
+            self.offset_counts,
+            self.per_count(),
+            self.full_scale_counts,
+            u,
+        )
+    }
+}
+
+impl SupplyForm {
+    /// The channel in the board's units.
+    pub fn to_section(&self, u: Units) -> Result<AdcCal, FormError> {
+        adc(
+            self.offset_counts,
+            self.per_count(),
+            self.full_scale_counts,
+            u,
+        )
+    }
+}
+
+/// `[calibration.dac]`: the current-source DAC ([`DacCal`], per the board's
+/// current unit).
+#[derive(Clone, Debug, PartialEq, Eq, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DacForm {
+    /// Codes per mA.
+    pub codes_per_ma: Option<Decimal>,
+    /// Codes per A.
+    pub codes_per_a: Option<Decimal>,
+    /// Code at zero current.
+    pub offset_codes: i32,
+    /// Highest code.
+    pub max_code: u16,
+}
+
+either!(DacForm, "calibration.dac":
+    codes_per: codes_per_ma | codes_per_a, PerCurrent;
+);
+
+impl DacForm {
+    /// The DAC in the board's units.
+    pub fn to_section(&self, u: Units) -> Result<DacCal, FormError> {
+        Ok(DacCal {
+            codes_per_iu: self.codes_per()?.to_fx(u)?,
+            offset_codes: self.offset_codes,
+            max_code: self.max_code,
+            unit_exp: u.current_exp,
+        })
+    }
+}
+
+/// One point of a temperature table as written: `{ counts, degc }`
+/// ([`TempPoint`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TempPointForm {
+    /// ADC counts.
+    pub counts: u16,
+    /// Temperature, degC.
+    pub degc: Decimal,
+}
+
+impl TempPointForm {
+    /// The point; `key` names the table in a refusal.
+    pub fn to_point(&self, key: &'static str) -> Result<TempPoint, FormError> {
+        Ok(TempPoint {
+            counts: self.counts,
+            degc: plain(key, self.degc).to_fx(Units::MILLI)?,
+        })
+    }
+}
+
+/// The case temperatures of `[plausibility]`, degC: 1 to [`DIODE_POINTS`].
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct PointsDegc(pub heapless::Vec<Decimal, DIODE_POINTS>);
+
+impl Default for PointsDegc {
+    /// -20, 0, 20, 40, 60 and 80 degC.
+    fn default() -> Self {
+        let mut v = heapless::Vec::new();
+        for t in [-20, 0, 20, 40, 60, 80] {
+            // Cannot fail: six of DIODE_POINTS (8).
+            let _ = v.push(Decimal::new(t, 0));
+        }
+        PointsDegc(v)
+    }
+}
+
+impl<'de> serde::Deserialize<'de> for PointsDegc {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> serde::de::Visitor<'de> for V {
+            type Value = PointsDegc;
+            fn expecting(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+                write!(f, "1 to {DIODE_POINTS} temperatures")
+            }
+            fn visit_seq<A: serde::de::SeqAccess<'de>>(
+                self,
+                mut seq: A,
+            ) -> Result<PointsDegc, A::Error> {
+                let mut v = heapless::Vec::new();
+                while let Some(t) = seq.next_element::<Decimal>()? {
+                    v.push(t).map_err(|_| {
+                        serde::de::Error::custom(format_args!(
+                            "holds 1 to {DIODE_POINTS} temperatures"
+                        ))
+                    })?;
+                }
+                if v.is_empty() {
+                    return Err(serde::de::Error::custom(format_args!(
+                        "holds 1 to {DIODE_POINTS} temperatures"
+                    )));
+                }
+                Ok(PointsDegc(v))
+            }
+        }
+        d.deserialize_seq(V)
+    }
+}
+
+/// `[plausibility]`: current-for-power plausibility ([`Plausibility`]). The
+/// healthy diode's threshold and slope at each case temperature come from
+/// the host (the simulator's diode model of the module, at the junction
+/// `junction_rise_k` above the case), the margins from the file.
+#[derive(Clone, Debug, PartialEq, Eq, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PlausibilityForm {
+    /// How far the junction sits above the case at full drive, K (for the
+    /// host's diode model).
+    pub junction_rise_k: Decimal,
+    /// Case temperatures of the points, degC, rising.
+    #[serde(default)]
+    pub points_degc: PointsDegc,
+    /// Warning margin ("end of life approaching"), fraction.
+    pub warning_margin: Decimal,
+    /// Fault margin, fraction.
+    pub fault_margin: Decimal,
+    /// Absolute allowance, mA.
+    pub allowance_ma: Option<Decimal>,
+    /// Absolute allowance, A.
+    pub allowance_a: Option<Decimal>,
+    /// Fault debounce, ticks.
+    pub debounce_ticks: u16,
+}
+
+either!(PlausibilityForm, "plausibility":
+    allowance: allowance_ma | allowance_a, Current;
+);
+
+impl PlausibilityForm {
+    /// The case temperature of each point, degC, or the refusal naming
+    /// `plausibility.points_degc`.
+    pub fn points_degc(&self) -> Result<heapless::Vec<Fx, DIODE_POINTS>, FormError> {
+        let mut out = heapless::Vec::new();
+        for &t in &self.points_degc.0 {
+            // Cannot fail: as many as the form holds.
+            let _ = out.push(plain("plausibility.points_degc", t).to_fx(Units::MILLI)?);
+        }
+        Ok(out)
+    }
+
+    /// The section in the board's units, with the healthy diode's `points`
+    /// (one per [`PlausibilityForm::points_degc`], from the host's model).
+    pub fn to_section(
+        &self,
+        u: Units,
+        points: heapless::Vec<DiodePoint, DIODE_POINTS>,
+    ) -> Result<Plausibility, FormError> {
+        Ok(Plausibility {
+            points,
+            warning_margin: plain("plausibility.warning_margin", self.warning_margin).to_fx(u)?,
+            fault_margin: plain("plausibility.fault_margin", self.fault_margin).to_fx(u)?,
+            allowance_iu: self.allowance()?.to_fx(u)?,
+            debounce: self.debounce_ticks,
+        })
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -644,5 +940,23 @@ mod tests {
         assert_eq!(a.to_fx(u), Ok(Fx::from_num(2400)));
         let ma = pick(Some(Decimal::new(60, 0)), None, k, Quantity::Current).unwrap();
         assert_eq!(ma.to_fx(Units::MILLI), Ok(Fx::from_num(60)));
+        // 68.25 codes per mA is 682.5 codes per 10 mA unit, and 68 250
+        // codes per A is the same.
+        let k = (
+            "calibration.dac.codes_per_ma",
+            "calibration.dac.codes_per_a",
+        );
+        let ma = pick(Some(Decimal::new(6825, -2)), None, k, Quantity::PerCurrent).unwrap();
+        let a = pick(None, Some(Decimal::new(68250, 0)), k, Quantity::PerCurrent).unwrap();
+        assert_eq!(ma.to_fx(u), Ok(Fx::from_num(682.5)));
+        assert_eq!(a.to_fx(u), Ok(Fx::from_num(682.5)));
+        assert_eq!(a.milli(), Decimal::new(68250, -3));
+        // A gain per count: 0.02 mA per count = 0.002 units of 10 mA.
+        let k = (
+            "calibration.current_sense.ma_per_count",
+            "calibration.current_sense.a_per_count",
+        );
+        let g = pick(Some(Decimal::new(2, -2)), None, k, Quantity::Current).unwrap();
+        assert_eq!(g.to_gain(u), Ok(Gain::from_num(0.002)));
     }
 }

@@ -113,8 +113,9 @@ pub use fault::{Cursor, Entry, Fault, FaultLog, FaultRecord, FaultSet, Unread, F
 pub use fingerprint::Fingerprint;
 #[cfg(feature = "serde")]
 pub use form::{
-    ApcForm, CurrentForm, Decimal, DeratingForm, FormError, PowerForm, ProtectionForm, Quantity,
-    RampForm, Written,
+    ApcForm, CurrentForm, CurrentSenseForm, DacForm, Decimal, DeratingForm, FormError, MonitorForm,
+    PlausibilityForm, PointsDegc, PowerForm, ProtectionForm, Quantity, RampForm, SupplyForm,
+    TempPointForm, Written,
 };
 pub use io::{Drive, Mode, Sample, State, Status, Warnings};
 pub use mailbox::{Full, Mailbox, Packed, MESSAGE_WORDS};

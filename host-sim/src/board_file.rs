@@ -15,9 +15,9 @@ use std::path::{Path, PathBuf};
 
 use diodestat_core::TEMP_TABLE_LEN;
 use diodestat_core::{
-    AdcCal, ApcForm, Calibration, CurrentForm, DacCal, Decimal, DeratingForm, DiodePoint,
-    FormError, Plausibility, PowerForm, ProtectionForm, Quantity, Rail, RampForm, TempCal, Written,
-    DIODE_POINTS,
+    ApcForm, Calibration, CurrentForm, CurrentSenseForm, DacForm, Decimal, DeratingForm,
+    DiodePoint, FormError, MonitorForm, Plausibility, PlausibilityForm, PowerForm, ProtectionForm,
+    Quantity, Rail, RampForm, SupplyForm, TempCal, TempPointForm, Written,
 };
 use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, Units, ValidConfig};
 use serde::{Deserialize, Deserializer};
@@ -56,65 +56,6 @@ pub fn name_is_plain(name: &str) -> bool {
 fn place_of(text: &str, key: &str) -> Option<Box<Place>> {
     let segs: Vec<Seg<'_>> = key.split('.').map(Seg::Key).collect();
     locate(text, &segs).map(Box::new)
-}
-
-/// An engineering value in the core's `Fx` range, read from a TOML number.
-/// Out-of-range or non-finite numbers are refused where they stand in the
-/// file (line and column).
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct FxValue(pub Fx);
-
-impl<'de> Deserialize<'de> for FxValue {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let v = f64::deserialize(d)?;
-        // Round to nearest the way the core's literals do.
-        if !v.is_finite() || v < Fx::MIN.to_num::<f64>() || v > Fx::MAX.to_num::<f64>() {
-            return Err(serde::de::Error::custom(format!(
-                "{v} is outside the core's fixed-point range {} ..= {}",
-                Fx::MIN,
-                Fx::MAX
-            )));
-        }
-        Ok(FxValue(Fx::from_num(v)))
-    }
-}
-
-/// An engineering value (a current in mA, a power in mW, a voltage in mV
-/// or a ratio of them), read from a TOML number: non-finite numbers are
-/// refused where they stand in the file. It meets the core's range only
-/// when converted into the board's units ([`to_config`]), which refuses a
-/// value those units cannot hold, naming its key.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct EngValue(pub f64);
-
-impl<'de> Deserialize<'de> for EngValue {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let v = f64::deserialize(d)?;
-        if !v.is_finite() {
-            return Err(serde::de::Error::custom(format!(
-                "{v} is not a finite number"
-            )));
-        }
-        Ok(EngValue(v))
-    }
-}
-
-/// A calibration gain per ADC count in the core's `Gain` range.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct GainValue(pub Gain);
-
-impl<'de> Deserialize<'de> for GainValue {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let v = f64::deserialize(d)?;
-        if !v.is_finite() || v < Gain::MIN.to_num::<f64>() || v > Gain::MAX.to_num::<f64>() {
-            return Err(serde::de::Error::custom(format!(
-                "{v} is outside the core's calibration gain range {} ..= {}",
-                Gain::MIN,
-                Gain::MAX
-            )));
-        }
-        Ok(GainValue(Gain::from_num(v)))
-    }
 }
 
 /// A drive latency in whole ticks, refused where it stands in the file when
@@ -170,7 +111,7 @@ pub struct BoardFile {
     pub loop_check: Option<LoopCheckSection>,
     /// Current-for-power plausibility (optional).
     #[serde(default)]
-    pub plausibility: Option<PlausibilitySection>,
+    pub plausibility: Option<PlausibilityForm>,
     /// The campaign's pass lines: intended laser class, accessible
     /// fraction, source type and rating allowances (host only; not part
     /// of the exported configuration or its hash).
@@ -254,31 +195,6 @@ fn laser_safety(s: &LaserSafetySection, module: &DemoModule) -> Result<PassLines
     .map_err(|e| invalid("laser_safety.intended_class", e.to_string()))
 }
 
-/// `[plausibility]`: the healthy diode's threshold and slope over case
-/// temperature, taken from the module's diode model at the junction
-/// temperature `case + junction_rise_k`, and the margins.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct PlausibilitySection {
-    /// How far the junction sits above the case at full drive, K.
-    pub junction_rise_k: f64,
-    /// Case temperatures of the points, degC, rising (at most 8).
-    #[serde(default = "default_points")]
-    pub points_degc: Vec<f64>,
-    /// Warning margin ("end of life approaching"), fraction.
-    pub warning_margin: FxValue,
-    /// Fault margin, fraction.
-    pub fault_margin: FxValue,
-    /// Absolute allowance, mA.
-    pub allowance_ma: EngValue,
-    /// Fault debounce, ticks.
-    pub debounce_ticks: u16,
-}
-
-fn default_points() -> Vec<f64> {
-    vec![-20.0, 0.0, 20.0, 40.0, 60.0, 80.0]
-}
-
 /// `[loop_check]`.
 #[derive(Clone, Debug, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -305,62 +221,14 @@ pub enum CalibrationSource {
 pub struct CalibrationSection {
     /// `module` or `explicit`.
     pub from: CalibrationSource,
-    /// Monitor channel.
-    pub monitor: Option<MonitorCal>,
-    /// Current-sense channel.
-    pub current_sense: Option<CurrentSenseCal>,
-    /// Supply channel.
-    pub supply: Option<SupplyCal>,
-    /// Current-source DAC.
-    pub dac: Option<DacSection>,
-}
-
-/// `[calibration.monitor]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct MonitorCal {
-    /// Reading at zero light, counts.
-    pub offset_counts: i32,
-    /// Front-facet mW per count.
-    pub mw_per_count: EngValue,
-    /// Highest ADC count.
-    pub full_scale_counts: u16,
-}
-
-/// `[calibration.current_sense]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct CurrentSenseCal {
-    /// Reading at zero current, counts.
-    pub offset_counts: i32,
-    /// mA per count.
-    pub ma_per_count: EngValue,
-    /// Highest ADC count.
-    pub full_scale_counts: u16,
-}
-
-/// `[calibration.supply]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct SupplyCal {
-    /// Reading at zero volts, counts.
-    pub offset_counts: i32,
-    /// Supply mV per count (divider included).
-    pub mv_per_count: EngValue,
-    /// Highest ADC count.
-    pub full_scale_counts: u16,
-}
-
-/// `[calibration.dac]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct DacSection {
-    /// Codes per mA.
-    pub codes_per_ma: EngValue,
-    /// Code at zero current.
-    pub offset_codes: i32,
-    /// Highest code.
-    pub max_code: u16,
+    /// Monitor channel (the core's file form).
+    pub monitor: Option<MonitorForm>,
+    /// Current-sense channel (the core's file form).
+    pub current_sense: Option<CurrentSenseForm>,
+    /// Supply channel (the core's file form).
+    pub supply: Option<SupplyForm>,
+    /// Current-source DAC (the core's file form).
+    pub dac: Option<DacForm>,
 }
 
 /// Where the temperature table comes from.
@@ -383,16 +251,6 @@ pub enum RailName {
     Low,
 }
 
-/// One table point.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct TablePoint {
-    /// ADC counts.
-    pub counts: u16,
-    /// Temperature, degC.
-    pub degc: FxValue,
-}
-
 /// `[temperature]`.
 #[derive(Clone, Debug, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -406,7 +264,7 @@ pub struct TemperatureSection {
     /// Sensor: number of points (at most the core's table length).
     pub table_points: Option<usize>,
     /// Explicit: the points, counts strictly increasing.
-    pub table: Option<Vec<TablePoint>>,
+    pub table: Option<Vec<TempPointForm>>,
     /// Explicit: a CSV file `counts,degc` (header line), relative to the board file.
     pub table_csv: Option<String>,
     /// Counts at or below this are a sensor fault (sensor: default 1 % of full scale).
@@ -689,44 +547,6 @@ fn invalid(key: &str, why: impl Into<String>) -> KeyError {
     (key.to_string(), why.into())
 }
 
-/// Convert a file's engineering values into the board's units, refusing
-/// (with the key and the accepted range) a value the units cannot hold.
-struct Conv {
-    units: Units,
-}
-
-impl Conv {
-    fn fx(key: &str, v: f64, per: f64, unit: &str) -> Result<Fx, KeyError> {
-        let max = Fx::MAX.to_num::<f64>() * per;
-        let x = v / per;
-        if !(x.is_finite() && x.abs() <= Fx::MAX.to_num::<f64>()) {
-            return Err(invalid(
-                key,
-                format!(
-                    "{v} {unit} does not fit the board's units: accepted -{max} ..= {max} {unit} \
-                     (the core counts in steps of {} {unit}; see docs/board-config.md, units)",
-                    per * Fx::DELTA.to_num::<f64>()
-                ),
-            ));
-        }
-        Ok(Fx::from_num(x))
-    }
-    fn iu(&self, key: &str, ma: EngValue) -> Result<Fx, KeyError> {
-        Self::fx(key, ma.0, self.units.ma_per_iu(), "mA")
-    }
-    fn gain(key: &str, v: EngValue, per: f64, unit: &str) -> Result<Gain, KeyError> {
-        let x = v.0 / per;
-        if !(x.is_finite() && x.abs() <= Gain::MAX.to_num::<f64>()) {
-            let max = Gain::MAX.to_num::<f64>() * per;
-            return Err(invalid(
-                key,
-                format!("{} {unit} does not fit the core's calibration gain: accepted -{max} ..= {max} {unit}", v.0),
-            ));
-        }
-        Ok(Gain::from_num(x))
-    }
-}
-
 /// A decimal as the `f64` nearest to it.
 fn decimal_f64(d: Decimal) -> f64 {
     format!("{}e{}", d.mantissa, d.exp)
@@ -760,6 +580,8 @@ fn unit_text(w: &Written) -> String {
             .into();
         }
         (Quantity::Plain, _) => "",
+        (Quantity::PerCurrent, false) => "codes/mA",
+        (Quantity::PerCurrent, true) => "codes/A",
     };
     if w.key.ends_with("_per_ms") {
         format!("{base}/ms")
@@ -778,7 +600,11 @@ fn form_error(e: FormError) -> KeyError {
         FormError::Both { milli, si } => {
             invalid(si, format!("give one of `{milli}` and `{si}`, not both"))
         }
-        FormError::DoesNotFit { written, shift } => {
+        FormError::DoesNotFit {
+            written,
+            shift,
+            gain,
+        } => {
             let v = decimal_f64(written.value);
             if written.quantity == Quantity::Plain {
                 return invalid(
@@ -792,6 +618,13 @@ fn form_error(e: FormError) -> KeyError {
             }
             let unit = unit_text(&written);
             let per = 10f64.powi(-shift);
+            if gain {
+                let max = Gain::MAX.to_num::<f64>() * per;
+                return invalid(
+                    written.key,
+                    format!("{v} {unit} does not fit the core's calibration gain: accepted -{max} ..= {max} {unit}"),
+                );
+            }
             let max = Fx::MAX.to_num::<f64>() * per;
             invalid(
                 written.key,
@@ -841,18 +674,27 @@ pub fn board_units(f: &BoardFile, module: &DemoModule) -> Result<Units, KeyError
     let p = &f.protection;
     let c = &f.calibration;
     let source_ma = match &c.dac {
-        Some(d) if d.codes_per_ma.0 > 0.0 => f64::from(d.max_code) / d.codes_per_ma.0,
-        _ => fs.source_ma,
+        Some(d) => match milli(d.codes_per())? {
+            codes_per_ma if codes_per_ma > 0.0 => f64::from(d.max_code) / codes_per_ma,
+            _ => fs.source_ma,
+        },
+        None => fs.source_ma,
     };
-    let sense_ma = c.current_sense.as_ref().map_or(fs.sense_ma, |s| {
-        f64::from(s.full_scale_counts) * s.ma_per_count.0
-    });
-    let monitor_mw = c.monitor.as_ref().map_or(fs.monitor_mw, |s| {
-        f64::from(s.full_scale_counts) * s.mw_per_count.0
-    });
-    let supply_mv = c.supply.as_ref().map_or(fs.supply_mv, |s| {
-        f64::from(s.full_scale_counts) * s.mv_per_count.0
-    });
+    let full_scale = |counts: u16, per_count: Result<Written, FormError>| {
+        milli(per_count).map(|v| f64::from(counts) * v)
+    };
+    let sense_ma = match &c.current_sense {
+        Some(s) => full_scale(s.full_scale_counts, s.per_count())?,
+        None => fs.sense_ma,
+    };
+    let monitor_mw = match &c.monitor {
+        Some(s) => full_scale(s.full_scale_counts, s.per_count())?,
+        None => fs.monitor_mw,
+    };
+    let supply_mv = match &c.supply {
+        Some(s) => full_scale(s.full_scale_counts, s.per_count())?,
+        None => fs.supply_mv,
+    };
     let largest = |vals: &[f64]| vals.iter().fold(0f64, |m, v| m.max(v.abs()));
     let max_setpoint_mw = milli(f.power.max_setpoint())?;
     let current = largest(&[
@@ -920,7 +762,6 @@ pub fn to_config_in(
     base_dir: &Path,
     units: Units,
 ) -> Result<Config, KeyError> {
-    let u = Conv { units };
     let mut cfg = Config {
         tick_hz: f.tick_hz,
         current: f.current.to_section(units).map_err(form_error)?,
@@ -929,10 +770,10 @@ pub fn to_config_in(
         apc: f.apc.to_section(units).map_err(form_error)?,
         derating: f.derating.to_section(units).map_err(form_error)?,
         protection: f.protection.to_section(units).map_err(form_error)?,
-        calibration: calibration(&f.calibration, module, &u)?,
+        calibration: calibration(&f.calibration, module, units)?,
         forward_voltage: None,
         plausibility: match &f.plausibility {
-            Some(pl) => Some(plausibility(pl, module, &u)?),
+            Some(pl) => Some(plausibility(pl, module, units)?),
             None => None,
         },
     };
@@ -943,55 +784,43 @@ pub fn to_config_in(
 /// The plausibility check of a `[plausibility]` section: the module's
 /// threshold and slope at each point's junction temperature.
 fn plausibility(
-    pl: &PlausibilitySection,
+    pl: &PlausibilityForm,
     module: &DemoModule,
-    u: &Conv,
+    units: Units,
 ) -> Result<Plausibility, KeyError> {
     let diode = crate::plant::Diode::new(module.diode.clone())
         .map_err(|e| invalid("module", e.to_string()))?;
-    if pl.points_degc.is_empty() || pl.points_degc.len() > DIODE_POINTS {
-        return Err(invalid(
-            "plausibility.points_degc",
-            format!("holds 1 to {DIODE_POINTS} temperatures"),
-        ));
-    }
-    if !pl.junction_rise_k.is_finite() || pl.junction_rise_k < 0.0 {
+    let rise_k = decimal_f64(pl.junction_rise_k);
+    if !rise_k.is_finite() || rise_k < 0.0 {
         return Err(invalid(
             "plausibility.junction_rise_k",
-            format!("must be >= 0 K, not {}", pl.junction_rise_k),
+            format!("must be >= 0 K, not {rise_k}"),
         ));
     }
-    let units = u.units;
     let mut points = heapless::Vec::new();
-    for &t in &pl.points_degc {
-        let tj_k = crate::plant::c_to_k(t + pl.junction_rise_k);
+    for degc in pl.points_degc().map_err(form_error)? {
+        let tj_k = crate::plant::c_to_k(degc.to_num::<f64>() + rise_k);
         let pt = DiodePoint {
-            degc: Fx::saturating_from_num(t),
+            degc,
             threshold_iu: units.iu(diode.threshold_current_a(tj_k) * 1e3),
             // W/A is mW/mA.
             slope_ou_per_iu: Fx::saturating_from_num(
                 diode.slope_w_per_a(tj_k) * units.ma_per_iu() / units.mw_per_ou(),
             ),
         };
-        // Cannot fail: the length was checked above.
+        // Cannot fail: one per point of the form, at most DIODE_POINTS.
         let _ = points.push(pt);
     }
-    Ok(Plausibility {
-        points,
-        warning_margin: pl.warning_margin.0,
-        fault_margin: pl.fault_margin.0,
-        allowance_iu: u.iu("plausibility.allowance_ma", pl.allowance_ma)?,
-        debounce: pl.debounce_ticks,
-    })
+    pl.to_section(units, points).map_err(form_error)
 }
 
 fn calibration(
     c: &CalibrationSection,
     module: &DemoModule,
-    u: &Conv,
+    units: Units,
 ) -> Result<Calibration, KeyError> {
     let derived = match c.from {
-        CalibrationSource::Module => Some(module_calibration(module, u.units)),
+        CalibrationSource::Module => Some(module_calibration(module, units)),
         CalibrationSource::Explicit => None,
     };
     let need = |key: &str| {
@@ -1000,64 +829,23 @@ fn calibration(
             "missing: with from = \"explicit\" every channel (monitor, current_sense, supply, dac) is given",
         )
     };
-    let units = u.units;
     let monitor = match (&c.monitor, &derived) {
-        (Some(m), _) => AdcCal {
-            offset_counts: m.offset_counts,
-            units_per_count: Conv::gain(
-                "calibration.monitor.mw_per_count",
-                m.mw_per_count,
-                units.mw_per_ou(),
-                "mW",
-            )?,
-            full_scale_counts: m.full_scale_counts,
-            unit_exp: units.power_exp,
-        },
+        (Some(m), _) => m.to_section(units).map_err(form_error)?,
         (None, Some(d)) => d.monitor,
         (None, None) => return Err(need("monitor")),
     };
     let current_sense = match (&c.current_sense, &derived) {
-        (Some(m), _) => AdcCal {
-            offset_counts: m.offset_counts,
-            units_per_count: Conv::gain(
-                "calibration.current_sense.ma_per_count",
-                m.ma_per_count,
-                units.ma_per_iu(),
-                "mA",
-            )?,
-            full_scale_counts: m.full_scale_counts,
-            unit_exp: units.current_exp,
-        },
+        (Some(m), _) => m.to_section(units).map_err(form_error)?,
         (None, Some(d)) => d.current_sense,
         (None, None) => return Err(need("current_sense")),
     };
     let supply = match (&c.supply, &derived) {
-        (Some(m), _) => AdcCal {
-            offset_counts: m.offset_counts,
-            units_per_count: Conv::gain(
-                "calibration.supply.mv_per_count",
-                m.mv_per_count,
-                units.mv_per_vu(),
-                "mV",
-            )?,
-            full_scale_counts: m.full_scale_counts,
-            unit_exp: units.voltage_exp,
-        },
+        (Some(m), _) => m.to_section(units).map_err(form_error)?,
         (None, Some(d)) => d.supply,
         (None, None) => return Err(need("supply")),
     };
     let dac = match (&c.dac, &derived) {
-        (Some(m), _) => DacCal {
-            codes_per_iu: Conv::fx(
-                "calibration.dac.codes_per_ma",
-                m.codes_per_ma.0,
-                1.0 / units.ma_per_iu(),
-                "codes/mA",
-            )?,
-            offset_codes: m.offset_codes,
-            max_code: m.max_code,
-            unit_exp: units.current_exp,
-        },
+        (Some(m), _) => m.to_section(units).map_err(form_error)?,
         (None, Some(d)) => d.dac,
         (None, None) => return Err(need("dac")),
     };
@@ -1168,11 +956,14 @@ fn temperature(
             let points: Vec<TempPoint> = match (&t.table, &t.table_csv) {
                 (Some(tab), None) => tab
                     .iter()
-                    .map(|p| TempPoint {
-                        counts: p.counts,
-                        degc: p.degc.0,
+                    .enumerate()
+                    .map(|(i, p)| {
+                        p.to_point("temperature.table").map_err(|e| {
+                            let (key, why) = form_error(e);
+                            (key, format!("point {}: degc {why}", i + 1))
+                        })
                     })
-                    .collect(),
+                    .collect::<Result<_, _>>()?,
                 (None, Some(csv)) => read_table_csv(&base_dir.join(csv))
                     .map_err(|why| invalid(&key("table_csv"), why))?,
                 (Some(_), Some(_)) => {
@@ -1751,6 +1542,68 @@ table_points = 25
         let b = parse_board(MINIMAL, Path::new("dir")).unwrap();
         assert_eq!(a.config, b.config);
         assert_eq!(a.valid.fingerprint(), b.valid.fingerprint());
+    }
+
+    #[test]
+    fn calibration_and_plausibility_keys_in_either_unit() {
+        let cal = |dac: &str, sense: &str, allowance: &str| {
+            MINIMAL.replace(
+                "[calibration]\nfrom = \"module\"",
+                &format!("[calibration]\nfrom = \"module\"\n[calibration.dac]\n{dac}\noffset_codes = 5\nmax_code = 4095\n[calibration.current_sense]\noffset_counts = 0\n{sense}\nfull_scale_counts = 4095"),
+            ) + &format!("[plausibility]\njunction_rise_k = 5\nwarning_margin = 0.1\nfault_margin = 0.2\n{allowance}\ndebounce_ticks = 20\n")
+        };
+        let milli = cal(
+            "codes_per_ma = 60",
+            "ma_per_count = 0.02",
+            "allowance_ma = 2",
+        );
+        let si = cal(
+            "codes_per_a = 60000",
+            "a_per_count = 0.00002",
+            "allowance_a = 0.002",
+        );
+        let a = parse_board(&milli, Path::new("dir")).unwrap_or_else(|e| panic!("{e}"));
+        let b = parse_board(&si, Path::new("dir")).unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(a.config, b.config);
+        assert_eq!(a.config.calibration.dac.codes_per_iu, Fx::from_num(60));
+        assert_eq!(a.config.plausibility.as_ref().unwrap().points.len(), 6);
+        // A gain per count beyond the core's calibration gain.
+        let e = err(&cal(
+            "codes_per_ma = 60",
+            "ma_per_count = 300",
+            "allowance_ma = 2",
+        )
+        .replace(
+            "ma_per_count = 300\nfull_scale_counts = 4095",
+            "ma_per_count = 300\nfull_scale_counts = 100",
+        ));
+        assert!(
+            e.contains("calibration.current_sense.ma_per_count = 300: 300 mA does not fit the core's calibration gain: accepted -127.99999994039536 ..= 127.99999994039536 mA"),
+            "{e}"
+        );
+        // Nine plausibility temperatures.
+        let e = err(&format!(
+            "{}points_degc = [1, 2, 3, 4, 5, 6, 7, 8, 9]\n",
+            cal(
+                "codes_per_ma = 60",
+                "ma_per_count = 0.02",
+                "allowance_ma = 2"
+            )
+        ));
+        assert!(e.contains("holds 1 to 8 temperatures"), "{e}");
+        assert!(e.contains("points_degc"), "{e}");
+    }
+
+    #[test]
+    fn a_table_temperature_beyond_the_cores_range_names_its_point() {
+        let table = "[temperature]\nfrom = \"explicit\"\nlow_fault_counts = 40\nhigh_fault_counts = 4055\nopen_rail = \"high\"\ntable = [\n  { counts = 1000, degc = 90 },\n  { counts = 2048, degc = 40000 },\n]\n";
+        let base = MINIMAL.split("[temperature]").next().unwrap().to_string();
+        let e = err(&format!("{base}{table}"));
+        assert!(
+            e.contains("temperature.table = [")
+                && e.contains("point 2: degc 40000 is outside the core's fixed-point range"),
+            "{e}"
+        );
     }
 
     #[test]
