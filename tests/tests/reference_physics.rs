@@ -168,7 +168,12 @@ fn quasi_static_li_reproduces_threshold_and_slope() {
     // Analytic threshold I_th = q V R(N_th) / eta_i and slope
     // eta_d h nu / q (both facets) against the L-I line through 2 I_th and
     // 4 I_th of the exact steady state, which also carries gain compression
-    // and spontaneous emission. Tolerance 1 % (brief); achieved < 0.3 %.
+    // and spontaneous emission. Source of both formulas and of the set:
+    // Coldren, Corzine, Mashanovitch, Diode Lasers and Photonic Integrated
+    // Circuits, 2nd ed., Wiley 2012, ch. 2 (threshold current and
+    // differential efficiency above threshold) (P2); the quoted 1.060 mA and
+    // 0.912 W/A are computed from that set (C, references.md). Tolerance 1 %
+    // (brief); achieved < 0.3 %.
     let p = textbook();
     let d = Diode::new(p.clone()).unwrap();
     let fig = p.derived();
@@ -199,7 +204,10 @@ fn quasi_static_li_reproduces_threshold_and_slope() {
 #[test]
 fn dynamic_steady_state_reproduces_threshold_and_slope() {
     // Same check with the rate equations integrated from N = S = 0 to
-    // steady state (RODAS4, rtol 1e-6). Tolerance 1 % (brief).
+    // steady state (RODAS4, rtol 1e-6). Source as above: Coldren, Corzine,
+    // Mashanovitch, 2nd ed., Wiley 2012, ch. 2 (formulas) and ch. 5 (the
+    // rate equations integrated here) (P2); 1.060 mA and 0.912 W/A computed
+    // from the set (C). Tolerance 1 % (brief).
     let p = textbook();
     let fig = p.derived();
     let t = c_to_k(p.t_ref_c);
@@ -525,8 +533,11 @@ fn ntc_beta_and_steinhart_hart_values() {
 #[test]
 fn thermal_ladder_steady_state() {
     // A resistor ladder in steady state: T_j = T_amb + P (R_jc + R_ch + R_ha)
-    // (Ohm's law for heat flow), reached by integration at a realistic step,
-    // in one huge step, and with the heatsink fault factor.
+    // (thermal resistances in series, the thermal circuit of Incropera,
+    // DeWitt, Bergman, Lavine, Fundamentals of Heat and Mass Transfer, 6th
+    // ed., Wiley 2007, sect. 3.1.2-3.1.3, `from memory`), reached by
+    // integration at a realistic step, in one huge step, and with the
+    // heatsink fault factor.
     for tp in [ThermalParams::demo_visible(), ThermalParams::demo_pump()] {
         let (p, t_amb) = (1.7, c_to_k(31.0));
         let want = t_amb + p * tp.r_total_k_per_w();
