@@ -167,3 +167,37 @@ fn every_loop_command_has_help() {
         assert!(ok && text.contains("Usage: diodestat"), "{cmd}: {text}");
     }
 }
+
+/// `loop-report` on a board whose verdict is FAIL writes its report and
+/// exits non-zero (it exited 0), naming the failing board; on a passing
+/// board it exits 0.
+#[test]
+fn report_exits_non_zero_when_a_verdict_is_fail() {
+    let out = std::env::temp_dir().join(format!("diodestat-loop-report-{}", std::process::id()));
+    let (ok, text) = diodestat(&[
+        "loop-report",
+        "tests/fixtures/excessive-ki/board.toml",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(!ok, "{text}");
+    assert!(text.contains("verdict: FAIL"), "{text}");
+    assert!(
+        text.contains("error: loop report: 1 of 1 board configurations FAIL: excessive-ki"),
+        "{text}"
+    );
+    let json: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(out.join("excessive-ki").join("report.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(json["verdict"], "fail");
+    let (ok, text) = diodestat(&[
+        "loop-report",
+        "examples/demo-pump-5w/board.toml",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(ok, "{text}");
+    assert!(text.contains("verdict: pass"), "{text}");
+    let _ = std::fs::remove_dir_all(&out);
+}

@@ -301,7 +301,9 @@ fn summary(a: &Assessment) -> String {
     s
 }
 
-/// `loop-report`: the report and Bode plots of each board under `out`.
+/// `loop-report`: the report and Bode plots of each board under `out`;
+/// `Err` (a non-zero exit) naming the boards whose verdict is FAIL, after
+/// every board's report is written.
 pub fn report(
     boards: &[PathBuf],
     out: &Path,
@@ -314,6 +316,7 @@ pub fn report(
         boards.to_vec()
     };
     let bar = progress::bar(boards.len() as u64, "boards");
+    let mut failed = Vec::new();
     for b in load_all(&boards, Some(out))? {
         let path = &b.path;
         let t0 = Instant::now();
@@ -339,10 +342,22 @@ pub fn report(
         );
         // Printed with the bar out of the way.
         bar.suspend(|| println!("{text}"));
+        if n > 0 {
+            failed.push(b.name.clone());
+        }
     }
     bar.finish_and_clear();
     println!("CAUTION: {SAFETY_CAUTION}");
-    Ok(())
+    if failed.is_empty() {
+        Ok(())
+    } else {
+        Err(format!(
+            "loop report: {} of {} board configurations FAIL: {} (findings in each report)",
+            failed.len(),
+            boards.len(),
+            failed.join(", ")
+        ))
+    }
 }
 
 /// `loop-gate`: every board against the pass lines; `Err` lists every
