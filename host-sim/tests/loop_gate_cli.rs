@@ -2,26 +2,9 @@
 //! fails the excessive-integral-gain fixture with a non-zero exit and a
 //! message naming the configuration, the corner and the figure.
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+mod common;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
-fn diodestat(args: &[&str]) -> (bool, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_diodestat"))
-        .args(args)
-        .current_dir(root())
-        .output()
-        .unwrap();
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    (out.status.success(), text)
-}
+use common::{board_text_for_copy, diodestat, root};
 
 #[test]
 fn gate_fails_the_excessive_integral_gain_fixture() {
@@ -40,7 +23,7 @@ fn gate_fails_the_excessive_integral_gain_fixture() {
         "{text}"
     );
     assert!(
-        text.contains("FAIL board excessive-ki, corner cold: gain margin -0.1 dB is below 6 dB"),
+        text.contains("FAIL board excessive-ki, corner cold: gain margin -0.0 dB is below 6 dB"),
         "{text}"
     );
     assert!(text.contains("limit cycle at"), "{text}");
@@ -77,15 +60,6 @@ fn gate_passes_the_shipped_boards() {
         }
         assert!(md.contains(json["worst_corner"].as_str().unwrap()));
     }
-}
-
-/// A shipped board file's text for a copy outside `examples/`: its module
-/// file named by absolute path (the copy has no `../modules` beside it).
-fn board_text_for_copy(board: &Path) -> String {
-    let modules = root().join("examples/modules");
-    std::fs::read_to_string(board)
-        .unwrap()
-        .replace("\"../modules/", &format!("\"{}/", modules.display()))
 }
 
 /// `loop-tune --write` puts the proposed gains into a copy of a shipped
@@ -166,4 +140,60 @@ fn every_loop_command_has_help() {
         let (ok, text) = diodestat(&[cmd, "--help"]);
         assert!(ok && text.contains("Usage: diodestat"), "{cmd}: {text}");
     }
+}
+
+/// `loop-report` on a board whose verdict is FAIL writes its report and
+/// exits non-zero (it exited 0), naming the failing board; on a passing
+/// board it exits 0.
+#[test]
+fn report_exits_non_zero_when_a_verdict_is_fail() {
+    let out = std::env::temp_dir().join(format!("diodestat-loop-report-{}", std::process::id()));
+    let (ok, text) = diodestat(&[
+        "loop-report",
+        "tests/fixtures/excessive-ki/board.toml",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(!ok, "{text}");
+    assert!(text.contains("verdict: FAIL"), "{text}");
+    assert!(
+        text.contains("error: loop report: 1 of 1 board configurations FAIL: excessive-ki"),
+        "{text}"
+    );
+    let json: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(out.join("excessive-ki").join("report.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(json["verdict"], "fail");
+    let (ok, text) = diodestat(&[
+        "loop-report",
+        "examples/demo-pump-5w/board.toml",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(ok, "{text}");
+    assert!(text.contains("verdict: pass"), "{text}");
+    let _ = std::fs::remove_dir_all(&out);
+}
+
+/// A 1.2 Hz crossover is far too slow for the 40 ms step windows of the
+/// time-domain check: the steps end 19 % short of the setpoint. loop-tune
+/// said "longest settling 27.45 ms" (measured against where the window
+/// ended, not the setpoint); it now says the steps did not settle within
+/// the window and gives the error at its end instead.
+#[test]
+fn tune_does_not_claim_a_settling_time_for_steps_that_did_not_settle() {
+    let (ok, text) = diodestat(&[
+        "loop-tune",
+        "examples/demo-pump-5w/board.toml",
+        "--crossover-hz",
+        "1.2",
+    ]);
+    assert!(ok, "{text}");
+    assert!(text.contains("crossover 1.2 Hz"), "{text}");
+    assert!(!text.contains("longest settling"), "{text}");
+    assert!(
+        text.contains("did not settle within the 40 ms step window"),
+        "{text}"
+    );
 }
