@@ -1,13 +1,16 @@
-//! The file form of the configuration's controller sections (feature
-//! `serde`): `[current]`, `[power]`, `[ramp]`, `[apc]`, `[derating]` and
-//! `[protection]` of a board file as the core reads them, with their keys in
-//! engineering units, each in the milli unit or the SI unit
-//! (`absolute_max_ma` or `absolute_max_a`, `_mw` or `_w`, `_mv` or `_v`:
-//! exactly one of the two), values exact decimals ([`Decimal`]). Each
-//! section converts into its [`crate::Config`] section in the board's
-//! [`Units`] (`to_section`), refusing a value those units cannot hold with
-//! its key ([`FormError`]). Integer arithmetic only: a TOML float is read
-//! by its shortest decimal digits.
+//! The file form of the configuration (feature `serde`): the sections of
+//! a board file the core owns (`[current]`, `[power]`, `[ramp]`, `[apc]`,
+//! `[derating]`, `[protection]`, the `[calibration.*]` channels,
+//! `[plausibility]` and the points of a given temperature table) as the core
+//! reads them, with their keys in engineering units, each current, power
+//! and voltage in the milli unit or the SI unit (`absolute_max_ma` or
+//! `absolute_max_a`, `_mw` or `_w`, `_mv` or `_v`: exactly one of the two),
+//! values exact decimals ([`Decimal`]). Each section converts into its
+//! [`crate::Config`] section in the board's [`Units`] (`to_section`),
+//! refusing a value those units cannot hold with its key ([`FormError`]).
+//! Integer arithmetic only: a TOML float is read by its shortest decimal
+//! digits (`core::fmt`), and rounded to the core's fixed point to nearest,
+//! ties to even.
 
 use core::fmt::Write as _;
 

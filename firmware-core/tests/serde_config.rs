@@ -34,3 +34,25 @@ fn values_are_their_raw_bits_and_unknown_keys_are_refused() {
     let e = serde_json::from_value::<Config>(v).unwrap_err().to_string();
     assert!(e.contains("kp_ma_per_vu"), "{e}");
 }
+
+#[test]
+fn a_section_reads_in_either_unit_into_the_same_values() {
+    use diodestat_core::{CurrentForm, FormError, Units};
+    let read = |json: &str| serde_json::from_str::<CurrentForm>(json).unwrap();
+    // Floats are read by their decimal digits: 0.06 A is 60 mA exactly.
+    let milli = read(r#"{"absolute_max_ma": 60, "ceiling_ma": 50}"#);
+    let si = read(r#"{"absolute_max_a": 0.06, "ceiling_a": 0.05}"#);
+    let u = Units::MILLI;
+    assert_eq!(milli.to_section(u), si.to_section(u));
+    assert_eq!(si.to_section(u).unwrap().ceiling_iu, Fx::from_num(50));
+    let both = read(r#"{"absolute_max_ma": 60, "absolute_max_a": 0.06, "ceiling_ma": 50}"#);
+    assert_eq!(
+        both.to_section(u),
+        Err(FormError::Both {
+            milli: "current.absolute_max_ma",
+            si: "current.absolute_max_a"
+        })
+    );
+    let e = serde_json::from_str::<CurrentForm>(r#"{"ceiling_mA": 5}"#).unwrap_err();
+    assert!(e.to_string().contains("ceiling_mA"), "{e}");
+}
