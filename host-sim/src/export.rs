@@ -341,6 +341,10 @@ enum Quantity {
 struct Ctx {
     units: Units,
     tick_hz: u32,
+    /// The tables met so far, written as constants before `config()`
+    /// (an array in read-only data costs the firmware less flash than
+    /// code that builds it): name, element type, length and rows.
+    tables: std::cell::RefCell<Vec<(String, &'static str, usize, Lines)>>,
 }
 
 impl Ctx {
@@ -649,24 +653,33 @@ fn write_value(
             ),
         },
         Node::Seq(items) => {
-            l.code(format!("{head}heapless::Vec::from_slice(&["));
-            let item_pad = " ".repeat(indent + 4);
+            let ty = match items.first() {
+                Some(Node::Struct { name, .. }) => *name,
+                _ => {
+                    l.code(format!("{head}heapless::Vec::new(){tail}"));
+                    return;
+                }
+            };
+            // `TempCal.table` becomes `TEMP_CAL_TABLE`.
+            let mut name = String::new();
+            for ch in parent.chars() {
+                if ch.is_ascii_uppercase() && !name.is_empty() {
+                    name.push('_');
+                }
+                name.push(ch.to_ascii_uppercase());
+            }
+            name = format!("{name}_{}", field.to_ascii_uppercase());
+            let mut rows = Lines::default();
             for item in items {
                 write_value(
-                    l,
-                    &item_pad,
-                    ",",
-                    field,
-                    item,
-                    siblings,
-                    parent,
-                    channel,
-                    c,
-                    indent + 4,
+                    &mut rows, "    ", ",", field, item, siblings, parent, channel, c, 4,
                 );
             }
-            l.code(format!("{pad}])"));
-            l.code(format!("{pad}.unwrap_or_default(){tail}"));
+            l.note(
+                format!("{head}heapless::Vec::from_slice(&{name}).unwrap_or_default(){tail}"),
+                format!("see {name}"),
+            );
+            c.tables.borrow_mut().push((name, ty, items.len(), rows));
         }
         _ => {}
     }
@@ -699,10 +712,24 @@ fn body(c: &Config) -> Result<(String, BTreeSet<&'static str>), ExportError> {
     let ctx = Ctx {
         units: c.units(),
         tick_hz: c.tick_hz,
+        tables: Default::default(),
     };
     let mut l = Lines::default();
     write_value(&mut l, "    ", "", "config", &t, &[], "", None, &ctx, 4);
-    Ok((l.annotated(), used))
+    let mut out = String::new();
+    for (name, ty, n, rows) in ctx.tables.borrow().iter() {
+        let _ = write!(
+            out,
+            "/// `{name}`: a table of the configuration, in `config()`.\npub const {name}: [{ty}; {n}] = [\n{}];\n\n",
+            rows.annotated()
+        );
+    }
+    let _ = write!(
+        out,
+        "/// The board configuration (validate it at start-up).\npub fn config() -> Config {{\n{}}}\n",
+        l.annotated()
+    );
+    Ok((out, used))
 }
 
 /// The whole generated file: every value annotated with its engineering
@@ -718,7 +745,10 @@ pub fn rust_module(name: &str, v: &ValidConfig) -> String {
         // a test serializes every shipped board); the board crate would
         // refuse to build with the reason.
         Err(e) => (
-            format!("    compile_error!(\"{}\")\n", comment_text(&e.to_string())),
+            format!(
+                "pub fn config() -> Config {{\n    compile_error!(\"{}\")\n}}\n",
+                comment_text(&e.to_string())
+            ),
             BTreeSet::new(),
         ),
     };
@@ -734,8 +764,7 @@ pub fn rust_module(name: &str, v: &ValidConfig) -> String {
          /// `config().validate()?.fingerprint()` as the simulator computed it: the board computes it\n\
          /// again at start and reports both (a hand-edited constant below makes them differ).\n\
          pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0x{fingerprint});\n\n\
-         /// The board configuration (validate it at start-up).\n\
-         pub fn config() -> Config {{\n{body}}}\n"
+         {body}"
     )
 }
 #[cfg(test)]

@@ -12,6 +12,110 @@ use diodestat_core::{
 /// again at start and reports both (a hand-edited constant below makes them differ).
 pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0xb6a19bb4702292a4);
 
+/// `TEMP_CAL_TABLE`: a table of the configuration, in `config()`.
+pub const TEMP_CAL_TABLE: [TempPoint; 25] = [
+    TempPoint {
+        counts: 381,                  // 381 counts
+        degc: Fx::from_bits(6550303), // 99.94969 degC
+    },
+    TempPoint {
+        counts: 425,                  // 425 counts
+        degc: Fx::from_bits(6227484), // 95.02386 degC
+    },
+    TempPoint {
+        counts: 476,                  // 476 counts
+        degc: Fx::from_bits(5897434), // 89.9877 degC
+    },
+    TempPoint {
+        counts: 533,                  // 533 counts
+        degc: Fx::from_bits(5572171), // 85.02458 degC
+    },
+    TempPoint {
+        counts: 598,                  // 598 counts
+        degc: Fx::from_bits(5244776), // 80.02893 degC
+    },
+    TempPoint {
+        counts: 672,                  // 672 counts
+        degc: Fx::from_bits(4915646), // 75.0068 degC
+    },
+    TempPoint {
+        counts: 755,                  // 755 counts
+        degc: Fx::from_bits(4589009), // 70.02272 degC
+    },
+    TempPoint {
+        counts: 849,                  // 849 counts
+        degc: Fx::from_bits(4260763), // 65.01408 degC
+    },
+    TempPoint {
+        counts: 955,                  // 955 counts
+        degc: Fx::from_bits(3931277), // 59.98653 degC
+    },
+    TempPoint {
+        counts: 1073,                 // 1073 counts
+        degc: Fx::from_bits(3603192), // 54.98035 degC
+    },
+    TempPoint {
+        counts: 1203,                 // 1203 counts
+        degc: Fx::from_bits(3277689), // 50.01357 degC
+    },
+    TempPoint {
+        counts: 1348,                 // 1348 counts
+        degc: Fx::from_bits(2948326), // 44.98788 degC
+    },
+    TempPoint {
+        counts: 1505,                 // 1505 counts
+        degc: Fx::from_bits(2621868), // 40.00653 degC
+    },
+    TempPoint {
+        counts: 1675,                 // 1675 counts
+        degc: Fx::from_bits(2294637), // 35.01338 degC
+    },
+    TempPoint {
+        counts: 1857,                 // 1857 counts
+        degc: Fx::from_bits(1966236), // 30.00238 degC
+    },
+    TempPoint {
+        counts: 2048,                 // 2048 counts
+        degc: Fx::from_bits(1638400), // 25 degC
+    },
+    TempPoint {
+        counts: 2245,                 // 2245 counts
+        degc: Fx::from_bits(1311351), // 20.00963 degC
+    },
+    TempPoint {
+        counts: 2446,                // 2446 counts
+        degc: Fx::from_bits(982633), // 14.99379 degC
+    },
+    TempPoint {
+        counts: 2645,                // 2645 counts
+        degc: Fx::from_bits(655581), // 10.00337 degC
+    },
+    TempPoint {
+        counts: 2839,                // 2839 counts
+        degc: Fx::from_bits(328306), // 5.00955 degC
+    },
+    TempPoint {
+        counts: 3024,             // 3024 counts
+        degc: Fx::from_bits(757), // 0.01155 degC
+    },
+    TempPoint {
+        counts: 3197,                 // 3197 counts
+        degc: Fx::from_bits(-328203), // -5.00798 degC
+    },
+    TempPoint {
+        counts: 3354,                 // 3354 counts
+        degc: Fx::from_bits(-656367), // -10.01537 degC
+    },
+    TempPoint {
+        counts: 3493,                 // 3493 counts
+        degc: Fx::from_bits(-983055), // -15.00023 degC
+    },
+    TempPoint {
+        counts: 3614,                  // 3614 counts
+        degc: Fx::from_bits(-1310017), // -19.98927 degC
+    },
+];
+
 /// The board configuration (validate it at start-up).
 pub fn config() -> Config {
     Config {
@@ -87,112 +191,10 @@ pub fn config() -> Config {
                 unit_exp: -3,                         // codes per 0.001 A
             },
             temperature: TempCal {
-                table: heapless::Vec::from_slice(&[
-                    TempPoint {
-                        counts: 381,                  // 381 counts
-                        degc: Fx::from_bits(6550303), // 99.94969 degC
-                    },
-                    TempPoint {
-                        counts: 425,                  // 425 counts
-                        degc: Fx::from_bits(6227484), // 95.02386 degC
-                    },
-                    TempPoint {
-                        counts: 476,                  // 476 counts
-                        degc: Fx::from_bits(5897434), // 89.9877 degC
-                    },
-                    TempPoint {
-                        counts: 533,                  // 533 counts
-                        degc: Fx::from_bits(5572171), // 85.02458 degC
-                    },
-                    TempPoint {
-                        counts: 598,                  // 598 counts
-                        degc: Fx::from_bits(5244776), // 80.02893 degC
-                    },
-                    TempPoint {
-                        counts: 672,                  // 672 counts
-                        degc: Fx::from_bits(4915646), // 75.0068 degC
-                    },
-                    TempPoint {
-                        counts: 755,                  // 755 counts
-                        degc: Fx::from_bits(4589009), // 70.02272 degC
-                    },
-                    TempPoint {
-                        counts: 849,                  // 849 counts
-                        degc: Fx::from_bits(4260763), // 65.01408 degC
-                    },
-                    TempPoint {
-                        counts: 955,                  // 955 counts
-                        degc: Fx::from_bits(3931277), // 59.98653 degC
-                    },
-                    TempPoint {
-                        counts: 1073,                 // 1073 counts
-                        degc: Fx::from_bits(3603192), // 54.98035 degC
-                    },
-                    TempPoint {
-                        counts: 1203,                 // 1203 counts
-                        degc: Fx::from_bits(3277689), // 50.01357 degC
-                    },
-                    TempPoint {
-                        counts: 1348,                 // 1348 counts
-                        degc: Fx::from_bits(2948326), // 44.98788 degC
-                    },
-                    TempPoint {
-                        counts: 1505,                 // 1505 counts
-                        degc: Fx::from_bits(2621868), // 40.00653 degC
-                    },
-                    TempPoint {
-                        counts: 1675,                 // 1675 counts
-                        degc: Fx::from_bits(2294637), // 35.01338 degC
-                    },
-                    TempPoint {
-                        counts: 1857,                 // 1857 counts
-                        degc: Fx::from_bits(1966236), // 30.00238 degC
-                    },
-                    TempPoint {
-                        counts: 2048,                 // 2048 counts
-                        degc: Fx::from_bits(1638400), // 25 degC
-                    },
-                    TempPoint {
-                        counts: 2245,                 // 2245 counts
-                        degc: Fx::from_bits(1311351), // 20.00963 degC
-                    },
-                    TempPoint {
-                        counts: 2446,                // 2446 counts
-                        degc: Fx::from_bits(982633), // 14.99379 degC
-                    },
-                    TempPoint {
-                        counts: 2645,                // 2645 counts
-                        degc: Fx::from_bits(655581), // 10.00337 degC
-                    },
-                    TempPoint {
-                        counts: 2839,                // 2839 counts
-                        degc: Fx::from_bits(328306), // 5.00955 degC
-                    },
-                    TempPoint {
-                        counts: 3024,             // 3024 counts
-                        degc: Fx::from_bits(757), // 0.01155 degC
-                    },
-                    TempPoint {
-                        counts: 3197,                 // 3197 counts
-                        degc: Fx::from_bits(-328203), // -5.00798 degC
-                    },
-                    TempPoint {
-                        counts: 3354,                 // 3354 counts
-                        degc: Fx::from_bits(-656367), // -10.01537 degC
-                    },
-                    TempPoint {
-                        counts: 3493,                 // 3493 counts
-                        degc: Fx::from_bits(-983055), // -15.00023 degC
-                    },
-                    TempPoint {
-                        counts: 3614,                  // 3614 counts
-                        degc: Fx::from_bits(-1310017), // -19.98927 degC
-                    },
-                ])
-                .unwrap_or_default(),
+                table: heapless::Vec::from_slice(&TEMP_CAL_TABLE).unwrap_or_default(), // see TEMP_CAL_TABLE
                 low_fault_counts: 41, // 41 counts and below: sensor at its low rail
                 high_fault_counts: 4054, // 4054 counts and above: sensor at its high rail
-                open_rail: Rail::High, // rail high
+                open_rail: Rail::High, // open rail: high
             },
         },
         forward_voltage: None, // no forward voltage
