@@ -62,7 +62,9 @@ impl Decimal {
         let Some(den) = 10i128.checked_pow(k.unsigned_abs()) else {
             return Some(0);
         };
-        if num.abs() > limit.checked_mul(den)? {
+        // Refused when strictly beyond the largest step, as `|x| <= MAX`.
+        let (whole, part) = (num.abs() / den, num.abs() % den);
+        if whole > limit || (whole == limit && part != 0) {
             return None;
         }
         let q = num.div_euclid(den);
@@ -901,6 +903,16 @@ mod tests {
         assert_eq!(d(32768, 0).to_bits(0, 16), None);
         assert_eq!(d(-32767, 0).to_bits(0, 16), Some(-32767 << 16));
         assert_eq!(d(1, -300).to_bits(0, 16), Some(0));
+        // Tiny values round to zero at every scale of the divisor.
+        for e in [-10, -20, -30, -37, -38, -39] {
+            assert_eq!(d(1, e).to_bits(0, 16), Some(0), "1e{e}");
+            assert_eq!(d(i64::MAX, e - 25).to_bits(0, 24), Some(0), "1e{e}");
+        }
+        // Below the largest value (32767 + 65535/65536 = 32767.99998474...)
+        // it rounds to it; above it, however little, it is refused.
+        assert_eq!(d(32_767_999_984, -6).to_bits(0, 16), Some(i32::MAX));
+        assert_eq!(d(32_767_999_985, -6).to_bits(0, 16), None);
+        assert_eq!(d(-32_767_999_985, -6).to_bits(0, 16), None);
         assert_eq!(d(1, 300).to_bits(0, 16), None);
         // 2^-17 = 0.00000762939453125, a tie between 0 and 1 bit: 0.
         assert_eq!(d(762_939_453_125, -17).to_bits(0, 16), Some(0));
