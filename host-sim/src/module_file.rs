@@ -832,11 +832,9 @@ mod tests {
         }
         // The NTC's R25 and B tolerances: read on an NTC module, refused
         // out of range, and refused on a module with a platinum RTD.
+        assert!(text.contains("ntc_r25 = 0.01\nntc_beta = 0.01"));
         let m = parse_module(
-            &text.replace(
-                "tracking = 0.10",
-                "tracking = 0.10\nntc_r25 = 0.01\nntc_beta = 0.005",
-            ),
+            &text.replace("ntc_beta = 0.01", "ntc_beta = 0.005"),
             Path::new("m.toml"),
         )
         .unwrap();
@@ -845,7 +843,7 @@ mod tests {
             (0.01, 0.005)
         );
         let e = parse_module(
-            &text.replace("tracking = 0.10", "tracking = 0.10\nntc_beta = 1.2"),
+            &text.replace("ntc_beta = 0.01", "ntc_beta = 1.2"),
             Path::new("m.toml"),
         )
         .unwrap_err()
