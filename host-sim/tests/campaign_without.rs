@@ -10,17 +10,14 @@
 //! current limits, interlocks and eye protection; a campaign is evidence
 //! for a design review, not a classification.
 
+mod common;
+
+use common::{diodestat, root};
 use diodestat_sim::units::Scale;
-use std::path::{Path, PathBuf};
-use std::process::Command;
 
 use diodestat_core::ValidConfig;
 use diodestat_sim::board_file::{load_board, LoadedBoard};
 use diodestat_sim::campaign::{self, needs, report, without, Bench, CaseResult, Selection};
-
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
 
 const BOARD: &str = "examples/demo-vcsel-850/board.toml";
 
@@ -171,20 +168,6 @@ fn needs_names_monitor_loss_for_the_open_monitor_and_refuses_other_campaigns() {
         needs::needs(&[recs[0].clone(), other]),
         Err(needs::NeedsError::Mismatch(2, "selection"))
     ));
-}
-
-fn diodestat(args: &[&str]) -> (bool, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_diodestat"))
-        .args(args)
-        .current_dir(root())
-        .output()
-        .unwrap();
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    (out.status.success(), text)
 }
 
 #[test]

@@ -3,22 +3,16 @@
 //! writes it into `fit.md`, and a campaign with an unsafe case prints the
 //! case (its setpoint rounded as in the report) and the caution.
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+mod common;
+
+use common::{diodestat_output, root};
+use std::path::PathBuf;
 
 use diodestat_sim::safety::SAFETY_CAUTION;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
 /// Runs `diodestat` in the repository root; its success and its stdout.
 fn diodestat(args: &[&str]) -> (bool, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_diodestat"))
-        .args(args)
-        .current_dir(root())
-        .output()
-        .unwrap();
+    let out = diodestat_output(args);
     (
         out.status.success(),
         String::from_utf8_lossy(&out.stdout).into_owned(),

@@ -2,35 +2,10 @@
 //! exit status, printed verdicts with what was measured, the summary files
 //! and the JUnit report.
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+mod common;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
-fn diodestat(args: &[&str]) -> (bool, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_diodestat"))
-        .args(args)
-        .current_dir(root())
-        .output()
-        .unwrap();
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    (out.status.success(), text)
-}
-
-/// A shipped board file's text for a copy outside `examples/`: its module
-/// file named by absolute path (the copy has no `../modules` beside it).
-fn board_text_for_copy(board: &Path) -> String {
-    let modules = root().join("examples/modules");
-    std::fs::read_to_string(board)
-        .unwrap()
-        .replace("\"../modules/", &format!("\"{}/", modules.display()))
-}
+use common::{board_text_for_copy, diodestat, root};
+use std::path::PathBuf;
 
 /// A scratch folder (under the target folder) with the demo red board and
 /// its start-up scenario, plus `extra` appended to the scenario.
@@ -100,7 +75,7 @@ fn run_exits_non_zero_when_an_expectation_fails() {
         "{text}"
     );
     assert!(
-        text.contains("measured peak 20.3202 mW at 100.350 ms"),
+        text.contains("measured peak 20.3215 mW at 100.350 ms"),
         "{text}"
     );
     assert!(text.contains("error: 1 of 9 expectations failed"), "{text}");

@@ -3,24 +3,10 @@
 //! refused before the run, naming its file, line, column, key or option,
 //! value and the accepted range; outputs are replaced whole or not at all.
 
+mod common;
+
+use common::{board_text_for_copy, root};
 use std::path::{Path, PathBuf};
-use std::process::Command;
-
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("..")
-        .canonicalize()
-        .unwrap()
-}
-
-/// A shipped board file's text for a copy outside `examples/`: its module
-/// file named by absolute path (the copy has no `../modules` beside it).
-fn board_text_for_copy(board: &Path) -> String {
-    let modules = root().join("examples/modules");
-    std::fs::read_to_string(board)
-        .unwrap()
-        .replace("\"../modules/", &format!("\"{}/", modules.display()))
-}
 
 fn red_board() -> String {
     root()
@@ -29,19 +15,11 @@ fn red_board() -> String {
         .to_string()
 }
 
+/// [`common::diodestat`], which must not panic on any of these inputs.
 fn diodestat(args: &[&str]) -> (bool, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_diodestat"))
-        .args(args)
-        .current_dir(root())
-        .output()
-        .unwrap();
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let (ok, text) = common::diodestat(args);
     assert!(!text.contains("panicked"), "{text}");
-    (out.status.success(), text)
+    (ok, text)
 }
 
 fn scratch(tag: &str) -> PathBuf {

@@ -21,6 +21,7 @@ import sys
 import time
 
 import numpy as np
+import scipy
 from scipy.integrate import solve_ivp
 
 Q = 1.602176634e-19  # elementary charge, C (CODATA 2018, exact)
@@ -120,6 +121,8 @@ def main():
         "nfev": int(sol.nfev),
         "njev": int(sol.njev),
         "elapsed_s": elapsed,
+        "scipy_version": scipy.__version__,
+        "numpy_version": np.__version__,
     }
     with open(sys.argv[2], "w", encoding="utf-8") as f:
         json.dump(result, f)

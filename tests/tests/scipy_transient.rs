@@ -7,6 +7,14 @@
 //! the first relaxation spike (peak power and its time), the steady state,
 //! and the whole power trajectory. Skipped with a message when SciPy is not
 //! installed (CI installs it).
+//!
+//! Reference: the SciPy values are computed when the test runs, by the
+//! SciPy the machine has (CI installs the newest); the script reports its
+//! SciPy and NumPy versions, the test prints them and refuses a SciPy
+//! older than 1.4 (the first with `solve_ivp`'s analytic-Jacobian Radau as
+//! used here; `from memory`). The tolerances below were set against SciPy
+//! 1.17.1 with NumPy 2.4.6 on Python 3.11.7, the versions of the last
+//! recorded run.
 
 use diodestat_sim::plant::{c_to_k, Diode, DiodeParams};
 use diodestat_tests::{python_has, run_script};
@@ -71,6 +79,19 @@ fn turn_on_transient_matches_scipy_radau() {
         &serde_json::to_string(&problem).unwrap(),
     ))
     .unwrap();
+    let scipy_version = result["scipy_version"].as_str().unwrap();
+    println!(
+        "reference: SciPy {scipy_version}, NumPy {} (scipy.integrate.solve_ivp, Radau)",
+        result["numpy_version"].as_str().unwrap()
+    );
+    let mut v = scipy_version
+        .split('.')
+        .map(|x| x.parse::<u32>().unwrap_or(0));
+    let (major, minor) = (v.next().unwrap_or(0), v.next().unwrap_or(0));
+    assert!(
+        (major, minor) >= (1, 4),
+        "SciPy {scipy_version} is older than 1.4"
+    );
     let p_py: Vec<f64> = result["p_front_w"]
         .as_array()
         .unwrap()

@@ -71,6 +71,7 @@
 //! - `params.rs`: the parameters as written ([`DiodeParams`], [`GainModel`]) and their checks;
 //! - `gain.rs`: the gain model in SI ([`GainSi`]);
 //! - `varshni.rs`: band gap against temperature ([`Varshni`]);
+//! - `voltage.rs`: the temperature law of the forward voltage's saturation current;
 //! - `model.rs`: SI constants, the temperature and aging map, analytic figures ([`DiodeDerived`]);
 //! - `rodas4.rs`: the general stiff solver ([`integrate_rodas4`]);
 //! - `steady_state.rs`: the exact steady state and the anchored Halley step;
@@ -91,6 +92,7 @@ mod rodas4;
 mod state;
 mod steady_state;
 mod varshni;
+mod voltage;
 
 pub use gain::GainSi;
 pub use model::DiodeDerived;

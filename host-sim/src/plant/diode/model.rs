@@ -9,6 +9,7 @@ use crate::plant::constants::{C, H, K_B, Q, ZERO_CELSIUS_K};
 
 use super::gain::GainSi;
 use super::params::{DiodeParams, GainModel, CUTOFF_EFOLD_K};
+use super::voltage::JunctionLaw;
 
 /// Analytic figures of a parameter set at T_ref, unaged (SI units).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -99,7 +100,6 @@ pub(super) struct Model {
     pub(super) eta_i: f64,
     pub(super) eta_opt: f64,
     pub(super) t_ref_k: f64,
-    pub(super) inv_t_ref: f64,
     pub(super) inv_t0: f64,
     pub(super) inv_t1: f64,
     pub(super) t_max_k: f64,
@@ -108,7 +108,8 @@ pub(super) struct Model {
     pub(super) n_vt_per_k: f64,
     pub(super) i_s: f64,
     pub(super) inv_i_s: f64,
-    pub(super) act_k: f64,
+    /// The temperature law of I_s ([`super::voltage`]).
+    pub(super) junction: JunctionLaw,
     pub(super) r_s: f64,
     pub(super) damage_w: f64,
     pub(super) damage_tc: f64,
@@ -257,7 +258,6 @@ impl Model {
             eta_i: p.eta_i,
             eta_opt: alpha_m / (alpha_i + alpha_m),
             t_ref_k,
-            inv_t_ref: 1.0 / t_ref_k,
             inv_t0: 1.0 / p.t0_k,
             inv_t1: 1.0 / p.t1_k,
             t_max_k: p
@@ -268,7 +268,7 @@ impl Model {
             n_vt_per_k: p.ideality * K_B / Q,
             i_s: p.i_s_a,
             inv_i_s: 1.0 / p.i_s_a,
-            act_k: p.i_s_activation_ev * Q / (p.ideality * K_B),
+            junction: JunctionLaw::new(p),
             r_s: p.r_s_ohm,
             damage_w: p.damage_power_w,
             damage_tc: p.damage_tc_per_k,

@@ -145,7 +145,7 @@ impl Diode {
         let m = &self.m;
         let i = i_a.max(0.0);
         let ratio = i * m.inv_i_s;
-        let x = m.act_k * (1.0 / t_k - m.inv_t_ref);
+        let x = m.junction.log_shift(t_k);
         let l = self.near.ratio.ln(ratio) + x;
         let ln_term = if l > 35.0 {
             l
@@ -182,14 +182,14 @@ impl Diode {
         self.m.lambda_ref + self.m.drift * (t_k - self.m.t_ref_k)
     }
 
-    /// Forward voltage V_f = n k T / q ln(1 + I / I_s(T)) + I R_s, V
-    /// (negative currents are treated as zero).
+    /// Forward voltage V_f = n k T / q ln(1 + I / I_s(T)) + I R_s, V, with
+    /// I_s(T) by [`super::voltage`] (negative currents are treated as zero).
     #[inline]
     pub fn forward_voltage(&self, i_a: f64, t_k: f64) -> f64 {
         let m = &self.m;
         let i = i_a.max(0.0);
         let ratio = i / m.i_s;
-        let x = m.act_k * (1.0 / t_k - 1.0 / m.t_ref_k);
+        let x = m.junction.log_shift(t_k);
         // ln(1 + r e^x) = ln r + x + ln1p(e^-x / r); the last term is below
         // 1e-15 once ln r + x > 35, so the exponential is skipped there.
         let l = ratio.ln() + x;
