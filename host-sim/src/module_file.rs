@@ -861,6 +861,14 @@ mod tests {
         .to_string();
         assert!(e.contains("tolerances.ntc_r25 = 0.01"), "{e}");
         assert!(e.contains("platinum RTD"), "{e}");
+        // One part's deviation, written in the sensor's table, by its key.
+        let e = parse_module(
+            &text.replace("beta_k = 3380.0", "beta_k = 3380.0\nr25_deviation = -1.5"),
+            Path::new("m.toml"),
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("sensor.sensor.ntc.r25_deviation = -1.5"), "{e}");
         // The aging law's keys, each refused by its own name.
         for (key, value, want) in [
             ("aging_activation_ev", "5.0", "0 ..= 2 eV"),

@@ -139,7 +139,7 @@ impl Ntc {
     }
 
     /// Checks the coefficients describe a decreasing R(T) and the part's
-    /// deviations are relative ones above -100 %.
+    /// deviations lie between -1 and 1.
     pub fn validate(&self) -> Result<(), PlantError> {
         let (r25_dev, beta_dev) = self.deviations();
         ensure(
