@@ -982,8 +982,9 @@ mod tests {
     /// firmware's table does), reads the temperature the B-parameter
     /// equation R = R25 exp(B (1/T - 1/298.15 K)) predicts for it:
     /// 1/T_read = 1/T + ln(1 + x)/B (the equation solved for T at the
-    /// part's resistance; the equation as in the NTC reference check of
-    /// tests/tests/reference_physics.rs, a secondary copy, from memory);
+    /// part's resistance; the B-parameter equation as NTC datasheets and
+    /// application notes give it, seen in secondary copies only: from
+    /// memory);
     /// at 25 degC, R25 +1 % and B 3380 K that is 0.2617 K cold. The same
     /// part through the divider and the ADC's noise-free transfer.
     #[test]
