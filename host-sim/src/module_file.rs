@@ -832,11 +832,9 @@ mod tests {
         }
         // The NTC's R25 and B tolerances: read on an NTC module, refused
         // out of range, and refused on a module with a platinum RTD.
+        assert!(text.contains("ntc_r25 = 0.01\nntc_beta = 0.01"));
         let m = parse_module(
-            &text.replace(
-                "tracking = 0.10",
-                "tracking = 0.10\nntc_r25 = 0.01\nntc_beta = 0.005",
-            ),
+            &text.replace("ntc_beta = 0.01", "ntc_beta = 0.005"),
             Path::new("m.toml"),
         )
         .unwrap();
@@ -845,7 +843,7 @@ mod tests {
             (0.01, 0.005)
         );
         let e = parse_module(
-            &text.replace("tracking = 0.10", "tracking = 0.10\nntc_beta = 1.2"),
+            &text.replace("ntc_beta = 0.01", "ntc_beta = 1.2"),
             Path::new("m.toml"),
         )
         .unwrap_err()
@@ -863,6 +861,14 @@ mod tests {
         .to_string();
         assert!(e.contains("tolerances.ntc_r25 = 0.01"), "{e}");
         assert!(e.contains("platinum RTD"), "{e}");
+        // One part's deviation, written in the sensor's table, by its key.
+        let e = parse_module(
+            &text.replace("beta_k = 3380.0", "beta_k = 3380.0\nr25_deviation = -1.5"),
+            Path::new("m.toml"),
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("sensor.sensor.ntc.r25_deviation = -1.5"), "{e}");
         // The aging law's keys, each refused by its own name.
         for (key, value, want) in [
             ("aging_activation_ev", "5.0", "0 ..= 2 eV"),

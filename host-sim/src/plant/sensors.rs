@@ -139,7 +139,7 @@ impl Ntc {
     }
 
     /// Checks the coefficients describe a decreasing R(T) and the part's
-    /// deviations are relative ones above -100 %.
+    /// deviations lie between -1 and 1.
     pub fn validate(&self) -> Result<(), PlantError> {
         let (r25_dev, beta_dev) = self.deviations();
         ensure(
@@ -982,8 +982,9 @@ mod tests {
     /// firmware's table does), reads the temperature the B-parameter
     /// equation R = R25 exp(B (1/T - 1/298.15 K)) predicts for it:
     /// 1/T_read = 1/T + ln(1 + x)/B (the equation solved for T at the
-    /// part's resistance; the equation as in the NTC reference check of
-    /// tests/tests/reference_physics.rs, a secondary copy, from memory);
+    /// part's resistance; the B-parameter equation as NTC datasheets and
+    /// application notes give it, seen in secondary copies only: from
+    /// memory);
     /// at 25 degC, R25 +1 % and B 3380 K that is 0.2617 K cold. The same
     /// part through the divider and the ADC's noise-free transfer.
     #[test]
