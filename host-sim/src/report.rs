@@ -1353,15 +1353,15 @@ mod summary_tests {
     use crate::scenario::parse;
 
     /// The demo red board at 50 degC ambient: the derated ceiling holds the
-    /// power far below the 25 mW asked for; a 40 mW request is refused (the
-    /// board's highest setpoint is 30 mW).
+    /// power far below the 18 mW asked for (the board's highest setpoint,
+    /// held at 25 degC); a 40 mW request is refused.
     fn hot_run() -> (Scenario, RunResult) {
         let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
             .join("../examples/demo-red-30/board.toml");
         let b = load_board(&path).unwrap();
         let sc = parse(
             "name = \"hot\"\nboard = \"board.toml\"\nduration_ms = 60\nambient_c = 50\nseed = 3\n\
-             [[event]]\nat_ms = 0.5\ndo = \"set-power\"\nmw = 25\n\
+             [[event]]\nat_ms = 0.5\ndo = \"set-power\"\nmw = 18\n\
              [[event]]\nat_ms = 1\ndo = \"enable\"\n\
              [[event]]\nat_ms = 30\ndo = \"set-power\"\nmw = 40\n",
         )
@@ -1411,7 +1411,7 @@ mod summary_tests {
         let u = &s.unreached[0];
         assert!(u.from_ms < 10.0 && u.to_ms.is_none(), "{u:?}");
         let t = u.target.as_ref().unwrap();
-        assert_eq!((t.setpoint, t.unit), (25.0, "mW"));
+        assert_eq!((t.setpoint, t.unit), (18.0, "mW"));
         // The power reached is what the plant gave at the end.
         let last = res.trace.last().unwrap().p_mw;
         assert!(
@@ -1419,7 +1419,7 @@ mod summary_tests {
             "{} vs {last}",
             t.reached
         );
-        assert_eq!(t.shortfall, Some(25.0 - t.reached));
+        assert_eq!(t.shortfall, Some(18.0 - t.reached));
         assert!(t.reached < 20.0, "{t:?}");
         // The ceiling it sits on is the derated one, below the 50 mA ceiling.
         assert!(u.ceiling_ma < 48.0, "{}", u.ceiling_ma);
@@ -1434,9 +1434,9 @@ mod summary_tests {
         );
         assert!(
             text.contains(&format!(
-                "{:.3} mW ({:.1} %) short of the 25 mW setpoint",
-                25.0 - t.reached,
-                4.0 * (25.0 - t.reached)
+                "{:.3} mW ({:.1} %) short of the 18 mW setpoint",
+                18.0 - t.reached,
+                100.0 * (18.0 - t.reached) / 18.0
             )),
             "{text}"
         );
