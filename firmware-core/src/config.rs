@@ -258,6 +258,7 @@ pub struct AdcCal {
     /// Reading at zero input, counts.
     pub offset_counts: i32,
     /// Engineering units per count (ou, iu or vu per count).
+    #[cfg_attr(feature = "serde", serde(with = "gain_bits"))]
     pub units_per_count: Gain,
     /// Highest count the ADC returns (for example 4095 for 12 bits).
     pub full_scale_counts: u16,
@@ -267,6 +268,27 @@ pub struct AdcCal {
     /// ([`Config::units`]) and sits in the struct's padding, so the
     /// configuration is no larger for it.
     pub unit_exp: i8,
+}
+
+/// The serde form of a [`Gain`] field: its raw bits as `{ bits }`, the
+/// same shape as an [`Fx`], under the struct name `Gain` (an [`Fx`] goes
+/// under `FixedI32`), so a serializer can tell the two apart (the
+/// simulator's export writes `Gain::from_bits` for it). Every `Gain` field
+/// of the configuration carries `#[serde(with = "gain_bits")]`.
+#[cfg(feature = "serde")]
+mod gain_bits {
+    use super::Gain;
+    use serde::ser::SerializeStruct;
+
+    pub fn serialize<S: serde::Serializer>(g: &Gain, s: S) -> Result<S::Ok, S::Error> {
+        let mut st = s.serialize_struct("Gain", 1)?;
+        st.serialize_field("bits", &g.to_bits())?;
+        st.end()
+    }
+
+    pub fn deserialize<'de, D: serde::Deserializer<'de>>(d: D) -> Result<Gain, D::Error> {
+        <Gain as serde::Deserialize>::deserialize(d)
+    }
 }
 
 /// The DAC that sets the current source: `code = drive_iu × codes_per_iu + offset_codes`.

@@ -87,6 +87,8 @@ mod edge;
 pub mod example;
 mod fault;
 mod fingerprint;
+#[cfg(feature = "serde")]
+mod form;
 mod io;
 mod mailbox;
 mod persist;
@@ -109,6 +111,11 @@ pub use edge::{
 };
 pub use fault::{Cursor, Entry, Fault, FaultLog, FaultRecord, FaultSet, Unread, FAULT_RING_LEN};
 pub use fingerprint::Fingerprint;
+#[cfg(feature = "serde")]
+pub use form::{
+    ApcForm, CurrentForm, Decimal, DeratingForm, FormError, PowerForm, ProtectionForm, Quantity,
+    RampForm, Written,
+};
 pub use io::{Drive, Mode, Sample, State, Status, Warnings};
 pub use mailbox::{Full, Mailbox, Packed, MESSAGE_WORDS};
 pub use persist::{crc32, LatchRecord, RestoreError, LATCH_RECORD_LEN};

@@ -15,8 +15,9 @@ use std::path::{Path, PathBuf};
 
 use diodestat_core::TEMP_TABLE_LEN;
 use diodestat_core::{
-    AdcCal, ApcGains, Calibration, CurrentLimits, DacCal, Derating, DiodePoint, Plausibility,
-    PowerRange, Protection, Rail, Ramps, TempCal, DIODE_POINTS,
+    AdcCal, ApcForm, Calibration, CurrentForm, DacCal, Decimal, DeratingForm, DiodePoint,
+    FormError, Plausibility, PowerForm, ProtectionForm, Quantity, Rail, RampForm, TempCal, Written,
+    DIODE_POINTS,
 };
 use diodestat_core::{Config, ConfigError, Fx, Gain, TempPoint, Units, ValidConfig};
 use serde::{Deserialize, Deserializer};
@@ -147,18 +148,18 @@ pub struct BoardFile {
     /// hash). Default 1.
     #[serde(default)]
     pub dac_latency_ticks: Option<LatencyValue>,
-    /// Drive-current limits.
-    pub current: CurrentSection,
-    /// Accepted power setpoints.
-    pub power: PowerSection,
-    /// Ramps and the emission delay.
-    pub ramp: RampSection,
-    /// Power-loop gains and slew.
-    pub apc: ApcSection,
-    /// Temperature derating.
-    pub derating: DeratingSection,
-    /// Protection limits and debounces.
-    pub protection: ProtectionSection,
+    /// Drive-current limits (the core's file form).
+    pub current: CurrentForm,
+    /// Accepted power setpoints (the core's file form).
+    pub power: PowerForm,
+    /// Ramps and the emission delay (the core's file form).
+    pub ramp: RampForm,
+    /// Power-loop gains and slew (the core's file form).
+    pub apc: ApcForm,
+    /// Temperature derating (the core's file form).
+    pub derating: DeratingForm,
+    /// Protection limits and debounces (the core's file form).
+    pub protection: ProtectionForm,
     /// ADC and DAC calibration.
     pub calibration: CalibrationSection,
     /// Temperature table and sensor fault rails.
@@ -285,120 +286,6 @@ pub struct LoopCheckSection {
     /// Largest overshoot of the optical power after a setpoint step, % of
     /// the step, that `loop-gate` accepts.
     pub max_overshoot_pct: f64,
-}
-
-/// `[current]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct CurrentSection {
-    /// Diode absolute maximum, mA.
-    pub absolute_max_ma: EngValue,
-    /// Operating ceiling, mA.
-    pub ceiling_ma: EngValue,
-}
-
-/// `[power]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct PowerSection {
-    /// Lowest APC setpoint, mW.
-    pub min_setpoint_mw: EngValue,
-    /// Highest APC setpoint, mW.
-    pub max_setpoint_mw: EngValue,
-}
-
-/// `[ramp]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct RampSection {
-    /// Enable-to-current delay, ms.
-    pub emission_delay_ms: u32,
-    /// Soft-start rate, mA/ms.
-    pub soft_start_ma_per_ms: EngValue,
-    /// Soft-stop rate, mA/ms.
-    pub soft_stop_ma_per_ms: EngValue,
-    /// Fraction of the setpoint where soft start hands over to APC.
-    pub handover_fraction: FxValue,
-    /// Setpoint ramp, mW/ms.
-    pub setpoint_mw_per_ms: EngValue,
-}
-
-/// `[apc]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ApcSection {
-    /// Proportional gain, mA/mW.
-    pub kp_ma_per_mw: EngValue,
-    /// Integral gain, mA/(mW·ms).
-    pub ki_ma_per_mw_ms: EngValue,
-    /// Output slew limit, mA/ms.
-    pub slew_ma_per_ms: EngValue,
-}
-
-/// `[derating]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct DeratingSection {
-    /// Knee, degC.
-    pub knee_degc: FxValue,
-    /// Cut-off (and over-temperature trip), degC.
-    pub cutoff_degc: FxValue,
-    /// Ceiling at the cut-off, mA.
-    pub floor_ma: EngValue,
-}
-
-/// `[protection]`.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ProtectionSection {
-    /// Overcurrent trip, mA.
-    pub overcurrent_ma: EngValue,
-    /// Overcurrent debounce, ticks.
-    pub overcurrent_debounce_ticks: u16,
-    /// Monitor runaway trip, mW.
-    pub runaway_mw: EngValue,
-    /// Runaway debounce, ticks.
-    pub runaway_debounce_ticks: u16,
-    /// Monitor reading meaning "no light", mW.
-    pub monitor_loss_floor_mw: EngValue,
-    /// Drive at or above which monitor loss is checked, mA.
-    pub monitor_loss_drive_ma: EngValue,
-    /// Monitor-loss debounce, ticks.
-    pub monitor_loss_debounce_ticks: u16,
-    /// Sensor open/short debounce, ticks.
-    pub sensor_debounce_ticks: u16,
-    /// Over-temperature debounce, ticks.
-    pub over_temp_debounce_ticks: u16,
-    /// Interlock debounce, ticks.
-    pub interlock_debounce_ticks: u16,
-    /// Supply window low end, mV.
-    pub supply_min_mv: EngValue,
-    /// Supply window high end, mV.
-    pub supply_max_mv: EngValue,
-    /// Supply debounce, ticks.
-    pub supply_debounce_ticks: u16,
-    /// Allowed sensed-versus-commanded difference, mA.
-    pub mismatch_tolerance_ma: EngValue,
-    /// Mismatch debounce, ticks.
-    pub mismatch_debounce_ticks: u16,
-    /// Missing ticks that trip.
-    pub missed_tick_limit: u16,
-    /// External fault input debounce, ticks (default 1).
-    #[serde(default = "one")]
-    pub external_debounce_ticks: u16,
-    /// Weight of a tick with a condition present in the leaky debounce
-    /// (default 3: a condition present in more than a quarter of the ticks
-    /// trips; see `docs/safety.md`).
-    #[serde(default = "default_weight")]
-    pub intermittent_weight: u16,
-}
-
-fn one() -> u16 {
-    1
-}
-
-fn default_weight() -> u16 {
-    3
 }
 
 /// Where the calibration comes from.
@@ -732,6 +619,7 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
     let config = to_config(&file, &module, base_dir).map_err(|(key, why)| invalid_at(key, why))?;
     let valid = config.clone().validate().map_err(|source| {
         let (key, why) = refusal(&source, &config, &file);
+        let key = written_key(text, &key);
         let place = place_of(text, &key).or_else(|| {
             key.starts_with("calibration.")
                 .then(|| place_of(text, "calibration.from"))
@@ -826,20 +714,6 @@ impl Conv {
     fn iu(&self, key: &str, ma: EngValue) -> Result<Fx, KeyError> {
         Self::fx(key, ma.0, self.units.ma_per_iu(), "mA")
     }
-    fn ou(&self, key: &str, mw: EngValue) -> Result<Fx, KeyError> {
-        Self::fx(key, mw.0, self.units.mw_per_ou(), "mW")
-    }
-    fn vu(&self, key: &str, mv: EngValue) -> Result<Fx, KeyError> {
-        Self::fx(key, mv.0, self.units.mv_per_vu(), "mV")
-    }
-    fn iu_per_ou(&self, key: &str, v: EngValue, unit: &str) -> Result<Fx, KeyError> {
-        Self::fx(
-            key,
-            v.0,
-            self.units.ma_per_iu() / self.units.mw_per_ou(),
-            unit,
-        )
-    }
     fn gain(key: &str, v: EngValue, per: f64, unit: &str) -> Result<Gain, KeyError> {
         let x = v.0 / per;
         if !(x.is_finite() && x.abs() <= Gain::MAX.to_num::<f64>()) {
@@ -850,6 +724,112 @@ impl Conv {
             ));
         }
         Ok(Gain::from_num(x))
+    }
+}
+
+/// A decimal as the `f64` nearest to it.
+fn decimal_f64(d: Decimal) -> f64 {
+    format!("{}e{}", d.mantissa, d.exp)
+        .parse()
+        .unwrap_or(f64::NAN)
+}
+
+/// A value of the core's file form in milli units (mA, mW, mV), for the
+/// choice of the board's units.
+fn milli(w: Result<Written, FormError>) -> Result<f64, KeyError> {
+    w.map(|w| decimal_f64(w.milli())).map_err(form_error)
+}
+
+/// The unit a key of the core's file form names, as text.
+fn unit_text(w: &Written) -> String {
+    let base = match (w.quantity, w.si) {
+        (Quantity::Current, false) => "mA",
+        (Quantity::Current, true) => "A",
+        (Quantity::Power, false) => "mW",
+        (Quantity::Power, true) => "W",
+        (Quantity::Voltage, false) => "mV",
+        (Quantity::Voltage, true) => "V",
+        (Quantity::CurrentPerPower, si) => {
+            let per_ms = w.key.ends_with("_ms");
+            return match (si, per_ms) {
+                (false, false) => "mA/mW",
+                (false, true) => "mA/(mW ms)",
+                (true, false) => "A/W",
+                (true, true) => "A/(W ms)",
+            }
+            .into();
+        }
+        (Quantity::Plain, _) => "",
+    };
+    if w.key.ends_with("_per_ms") {
+        format!("{base}/ms")
+    } else {
+        base.into()
+    }
+}
+
+/// The key and message of a refusal of the core's file form.
+fn form_error(e: FormError) -> KeyError {
+    match e {
+        FormError::Missing { milli, si } => invalid(
+            milli,
+            format!("missing: give `{milli}` or, in the SI unit, `{si}`"),
+        ),
+        FormError::Both { milli, si } => {
+            invalid(si, format!("give one of `{milli}` and `{si}`, not both"))
+        }
+        FormError::DoesNotFit { written, shift } => {
+            let v = decimal_f64(written.value);
+            if written.quantity == Quantity::Plain {
+                return invalid(
+                    written.key,
+                    format!(
+                        "{v} is outside the core's fixed-point range {} ..= {}",
+                        Fx::MIN,
+                        Fx::MAX
+                    ),
+                );
+            }
+            let unit = unit_text(&written);
+            let per = 10f64.powi(-shift);
+            let max = Fx::MAX.to_num::<f64>() * per;
+            invalid(
+                written.key,
+                format!(
+                    "{v} {unit} does not fit the board's units: accepted -{max} ..= {max} {unit} \
+                     (the core counts in steps of {} {unit}; see docs/board-config.md, units)",
+                    per * Fx::DELTA.to_num::<f64>()
+                ),
+            )
+        }
+    }
+}
+
+/// The key of a value as the file writes it: `key` itself, or its twin in
+/// the other unit (`current.ceiling_ma` and `current.ceiling_a`) when only
+/// that one is written.
+fn written_key(text: &str, key: &str) -> String {
+    if place_of(text, key).is_some() {
+        return key.to_string();
+    }
+    let (section, name) = key.rsplit_once('.').unwrap_or(("", key));
+    let twin: Vec<&str> = name
+        .split('_')
+        .map(|t| match t {
+            "ma" => "a",
+            "mw" => "w",
+            "mv" => "v",
+            "a" => "ma",
+            "w" => "mw",
+            "v" => "mv",
+            t => t,
+        })
+        .collect();
+    let twin = format!("{section}.{}", twin.join("_"));
+    if place_of(text, &twin).is_some() {
+        twin
+    } else {
+        key.to_string()
     }
 }
 
@@ -874,19 +854,20 @@ pub fn board_units(f: &BoardFile, module: &DemoModule) -> Result<Units, KeyError
         f64::from(s.full_scale_counts) * s.mv_per_count.0
     });
     let largest = |vals: &[f64]| vals.iter().fold(0f64, |m, v| m.max(v.abs()));
+    let max_setpoint_mw = milli(f.power.max_setpoint())?;
     let current = largest(&[
-        f.current.absolute_max_ma.0,
-        f.current.ceiling_ma.0,
-        p.overcurrent_ma.0,
-        p.monitor_loss_drive_ma.0,
-        f.derating.floor_ma.0,
+        milli(f.current.absolute_max())?,
+        milli(f.current.ceiling())?,
+        milli(p.overcurrent())?,
+        milli(p.monitor_loss_drive())?,
+        milli(f.derating.floor())?,
         source_ma,
         sense_ma,
     ]);
-    let power = largest(&[f.power.max_setpoint_mw.0, p.runaway_mw.0, monitor_mw]);
+    let power = largest(&[max_setpoint_mw, milli(p.runaway())?, monitor_mw]);
     let voltage = largest(&[
-        p.supply_min_mv.0,
-        p.supply_max_mv.0,
+        milli(p.supply_min())?,
+        milli(p.supply_max())?,
         supply_mv,
         module.supply_v * 1100.0,
     ]);
@@ -905,25 +886,21 @@ pub fn board_units(f: &BoardFile, module: &DemoModule) -> Result<Units, KeyError
             )
         })
     };
+    let key = |w: Result<Written, FormError>| w.map_or("", |w| w.key);
     Ok(Units {
         current_exp: pick(
-            "current.absolute_max_ma",
+            key(f.current.absolute_max()),
             current,
             source_ma.min(current),
             "A",
         )?,
         power_exp: pick(
-            "power.max_setpoint_mw",
+            key(f.power.max_setpoint()),
             power,
-            monitor_mw.min(power).max(f.power.max_setpoint_mw.0),
+            monitor_mw.min(power).max(max_setpoint_mw),
             "W",
         )?,
-        voltage_exp: pick(
-            "protection.supply_max_mv",
-            voltage,
-            supply_mv.min(voltage),
-            "V",
-        )?,
+        voltage_exp: pick(key(p.supply_max()), voltage, supply_mv.min(voltage), "V")?,
     })
 }
 
@@ -944,61 +921,14 @@ pub fn to_config_in(
     units: Units,
 ) -> Result<Config, KeyError> {
     let u = Conv { units };
-    let p = &f.protection;
     let mut cfg = Config {
         tick_hz: f.tick_hz,
-        current: CurrentLimits {
-            absolute_max_iu: u.iu("current.absolute_max_ma", f.current.absolute_max_ma)?,
-            ceiling_iu: u.iu("current.ceiling_ma", f.current.ceiling_ma)?,
-        },
-        power: PowerRange {
-            min_setpoint_ou: u.ou("power.min_setpoint_mw", f.power.min_setpoint_mw)?,
-            max_setpoint_ou: u.ou("power.max_setpoint_mw", f.power.max_setpoint_mw)?,
-        },
-        ramp: Ramps {
-            emission_delay_ms: f.ramp.emission_delay_ms,
-            soft_start_iu_per_ms: u.iu("ramp.soft_start_ma_per_ms", f.ramp.soft_start_ma_per_ms)?,
-            soft_stop_iu_per_ms: u.iu("ramp.soft_stop_ma_per_ms", f.ramp.soft_stop_ma_per_ms)?,
-            handover_fraction: f.ramp.handover_fraction.0,
-            setpoint_ou_per_ms: u.ou("ramp.setpoint_mw_per_ms", f.ramp.setpoint_mw_per_ms)?,
-        },
-        apc: ApcGains {
-            kp_iu_per_ou: u.iu_per_ou("apc.kp_ma_per_mw", f.apc.kp_ma_per_mw, "mA/mW")?,
-            ki_iu_per_ou_ms: u.iu_per_ou(
-                "apc.ki_ma_per_mw_ms",
-                f.apc.ki_ma_per_mw_ms,
-                "mA/(mW ms)",
-            )?,
-            slew_iu_per_ms: u.iu("apc.slew_ma_per_ms", f.apc.slew_ma_per_ms)?,
-        },
-        derating: Derating {
-            knee_degc: f.derating.knee_degc.0,
-            cutoff_degc: f.derating.cutoff_degc.0,
-            floor_iu: u.iu("derating.floor_ma", f.derating.floor_ma)?,
-        },
-        protection: Protection {
-            overcurrent_iu: u.iu("protection.overcurrent_ma", p.overcurrent_ma)?,
-            overcurrent_debounce: p.overcurrent_debounce_ticks,
-            runaway_ou: u.ou("protection.runaway_mw", p.runaway_mw)?,
-            runaway_debounce: p.runaway_debounce_ticks,
-            monitor_loss_floor_ou: u
-                .ou("protection.monitor_loss_floor_mw", p.monitor_loss_floor_mw)?,
-            monitor_loss_drive_iu: u
-                .iu("protection.monitor_loss_drive_ma", p.monitor_loss_drive_ma)?,
-            monitor_loss_debounce: p.monitor_loss_debounce_ticks,
-            sensor_debounce: p.sensor_debounce_ticks,
-            over_temp_debounce: p.over_temp_debounce_ticks,
-            interlock_debounce: p.interlock_debounce_ticks,
-            supply_min_vu: u.vu("protection.supply_min_mv", p.supply_min_mv)?,
-            supply_max_vu: u.vu("protection.supply_max_mv", p.supply_max_mv)?,
-            supply_debounce: p.supply_debounce_ticks,
-            mismatch_tolerance_iu: u
-                .iu("protection.mismatch_tolerance_ma", p.mismatch_tolerance_ma)?,
-            mismatch_debounce: p.mismatch_debounce_ticks,
-            missed_tick_limit: p.missed_tick_limit,
-            external_debounce: p.external_debounce_ticks,
-            intermittent_weight: p.intermittent_weight,
-        },
+        current: f.current.to_section(units).map_err(form_error)?,
+        power: f.power.to_section(units).map_err(form_error)?,
+        ramp: f.ramp.to_section(units).map_err(form_error)?,
+        apc: f.apc.to_section(units).map_err(form_error)?,
+        derating: f.derating.to_section(units).map_err(form_error)?,
+        protection: f.protection.to_section(units).map_err(form_error)?,
         calibration: calibration(&f.calibration, module, &u)?,
         forward_voltage: None,
         plausibility: match &f.plausibility {
@@ -1804,6 +1734,47 @@ table_points = 25
         let e = err(&MINIMAL.replace("knee_degc = 45", "knee_degc = 40000"));
         assert!(e.contains("line 22"), "{e}");
         assert!(e.contains("fixed-point range"), "{e}");
+    }
+
+    #[test]
+    fn si_unit_keys_give_the_same_configuration() {
+        let si = MINIMAL
+            .replace("absolute_max_ma = 60", "absolute_max_a = 0.06")
+            .replace("max_setpoint_mw = 30", "max_setpoint_w = 0.03")
+            .replace("soft_start_ma_per_ms = 10", "soft_start_a_per_ms = 0.01")
+            .replace("kp_ma_per_mw = 0.3", "kp_a_per_w = 0.3")
+            .replace("ki_ma_per_mw_ms = 3", "ki_a_per_w_ms = 3")
+            .replace("floor_ma = 20", "floor_a = 0.02")
+            .replace("supply_min_mv = 4500", "supply_min_v = 4.5")
+            .replace("supply_max_mv = 5500", "supply_max_v = 5.5");
+        let a = parse_board(&si, Path::new("dir")).unwrap();
+        let b = parse_board(MINIMAL, Path::new("dir")).unwrap();
+        assert_eq!(a.config, b.config);
+        assert_eq!(a.valid.fingerprint(), b.valid.fingerprint());
+    }
+
+    #[test]
+    fn exactly_one_of_the_two_unit_keys() {
+        let e = err(&MINIMAL.replace("ceiling_ma = 50", "ceiling_ma = 50\nceiling_a = 0.05"));
+        assert!(e.contains("line 8"), "{e}");
+        assert!(
+            e.contains("current.ceiling_a = 0.05: give one of `current.ceiling_ma` and `current.ceiling_a`, not both"),
+            "{e}"
+        );
+        let e = err(&MINIMAL.replace("ceiling_ma = 50\n", ""));
+        assert!(
+            e.contains("current.ceiling_ma: missing: give `current.ceiling_ma` or, in the SI unit, `current.ceiling_a`"),
+            "{e}"
+        );
+        // A refusal of the core names the key as written.
+        let e = err(&MINIMAL.replace("overcurrent_ma = 55", "overcurrent_a = 0.045"));
+        assert!(e.contains("line 26, column 17: protection.overcurrent_a = 0.045: must be above current.ceiling_ma = 50 mA"), "{e}");
+        // A value beyond the units, in the key's unit.
+        let e = err(&MINIMAL.replace("mismatch_tolerance_ma = 5", "mismatch_tolerance_a = 1e6"));
+        assert!(
+            e.contains("protection.mismatch_tolerance_a = 1e6: 1000000 A does not fit the board's units: accepted -32.76799998474121 ..= 32.76799998474121 A"),
+            "{e}"
+        );
     }
 
     #[test]

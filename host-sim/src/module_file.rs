@@ -452,7 +452,10 @@ fn sensor_key(p: &SensorChainParams, e: &PlantError) -> KeyError {
         return refuse("sensor", e.to_string());
     };
     let table = match (&p.sensor, *field) {
-        (TempSensor::Ntc(_), "r25_ohm" | "beta_k" | "a" | "b" | "c") => "sensor.sensor.ntc",
+        (
+            TempSensor::Ntc(_),
+            "r25_ohm" | "beta_k" | "a" | "b" | "c" | "r25_deviation" | "beta_deviation",
+        ) => "sensor.sensor.ntc",
         (TempSensor::Rtd(_), "r0_ohm" | "band_position") => "sensor.sensor.rtd",
         _ => "sensor.front_end",
     };
@@ -478,9 +481,25 @@ impl ModuleFile {
             ("tolerances.t0", self.tolerances.t0),
             ("tolerances.sense_gain", self.tolerances.sense_gain),
             ("tolerances.dac_gain", self.tolerances.dac_gain),
+            ("tolerances.ntc_r25", self.tolerances.ntc_r25),
+            ("tolerances.ntc_beta", self.tolerances.ntc_beta),
         ] {
             if !(v.is_finite() && (0.0..1.0).contains(&v)) {
                 return Err(refuse(key, "must be a relative half-width in 0 ..< 1"));
+            }
+        }
+        if let TempSensor::Rtd(_) = self.sensor.sensor {
+            for (key, v) in [
+                ("tolerances.ntc_r25", self.tolerances.ntc_r25),
+                ("tolerances.ntc_beta", self.tolerances.ntc_beta),
+            ] {
+                if v != 0.0 {
+                    return Err(refuse(
+                        key,
+                        "applies to an NTC sensor; this module's sensor is a platinum RTD, \
+                         whose tolerance is its IEC 60751 class (sensor.sensor.rtd class)",
+                    ));
+                }
             }
         }
         for (key, v) in [
@@ -811,6 +830,39 @@ mod tests {
                 .to_string();
             assert!(e.contains(key), "{e}");
         }
+        // The NTC's R25 and B tolerances: read on an NTC module, refused
+        // out of range, and refused on a module with a platinum RTD.
+        let m = parse_module(
+            &text.replace(
+                "tracking = 0.10",
+                "tracking = 0.10\nntc_r25 = 0.01\nntc_beta = 0.005",
+            ),
+            Path::new("m.toml"),
+        )
+        .unwrap();
+        assert_eq!(
+            (m.module.tolerances.ntc_r25, m.module.tolerances.ntc_beta),
+            (0.01, 0.005)
+        );
+        let e = parse_module(
+            &text.replace("tracking = 0.10", "tracking = 0.10\nntc_beta = 1.2"),
+            Path::new("m.toml"),
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("tolerances.ntc_beta = 1.2"), "{e}");
+        let pump = std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/modules/demo-pump-976.toml"),
+        )
+        .unwrap();
+        let e = parse_module(
+            &pump.replace("tracking = 0.10", "tracking = 0.10\nntc_r25 = 0.01"),
+            Path::new("m.toml"),
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("tolerances.ntc_r25 = 0.01"), "{e}");
+        assert!(e.contains("platinum RTD"), "{e}");
         // The aging law's keys, each refused by its own name.
         for (key, value, want) in [
             ("aging_activation_ev", "5.0", "0 ..= 2 eV"),

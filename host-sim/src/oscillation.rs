@@ -410,16 +410,9 @@ pub fn periodicity_up_to(xs: &[f64], max_lag: usize) -> Option<(usize, f64)> {
     if n < 8 || r0 <= 1e-24 {
         return None;
     }
-    let r = |k: usize| {
-        d[..n - k]
-            .iter()
-            .zip(&d[k..])
-            .map(|(a, b)| a * b)
-            .sum::<f64>()
-            / (n - k) as f64
-            / r0
-    };
     let max_lag = max_lag.min(n / 3);
+    let sums = lag_sums(&d, max_lag);
+    let r = |k: usize| sums[k] / (n - k) as f64 / r0;
     let first_neg = (1..=max_lag).find(|&k| r(k) < 0.0)?;
     let rs: Vec<f64> = (first_neg..=max_lag).map(r).collect();
     let top = rs.iter().copied().fold(f64::MIN, f64::max);
@@ -434,6 +427,54 @@ pub fn periodicity_up_to(xs: &[f64], max_lag: usize) -> Option<(usize, f64)> {
             && (i == 0 || rs[i - 1] <= rs[i])
     })?;
     Some((first_neg + i, rs[i]))
+}
+
+/// `sums[k]` = the sum over i < n - k of `d[i] d[i + k]`, for the lags k
+/// in `1..=max_lag` (`max_lag` at most a third of the length; `sums[0]`
+/// is left 0), each added up in the order of i from -0.0 as
+/// `Iterator::sum` does, so every sum is the very value of that sum. Four
+/// lags share one pass over the data (one load of `d[i]` for four
+/// products), each in its own accumulator; the last few terms of the
+/// shorter lags follow in order.
+fn lag_sums(d: &[f64], max_lag: usize) -> Vec<f64> {
+    let n = d.len();
+    let mut sums = vec![0.0; max_lag + 1];
+    let mut k = 1;
+    while k + 3 <= max_lag {
+        // The range every one of the four lags covers.
+        let m = n - k - 3;
+        let a = &d[..m];
+        let (b0, b1, b2, b3) = (
+            &d[k..k + m],
+            &d[k + 1..k + 1 + m],
+            &d[k + 2..k + 2 + m],
+            &d[k + 3..k + 3 + m],
+        );
+        let mut s = [-0.0f64; 4];
+        for i in 0..m {
+            let x = a[i];
+            s[0] += x * b0[i];
+            s[1] += x * b1[i];
+            s[2] += x * b2[i];
+            s[3] += x * b3[i];
+        }
+        for (j, sj) in s.iter_mut().enumerate().take(3) {
+            let lag = k + j;
+            for i in m..n - lag {
+                *sj += d[i] * d[i + lag];
+            }
+        }
+        sums[k..k + 4].copy_from_slice(&s);
+        k += 4;
+    }
+    for (lag, sum) in sums.iter_mut().enumerate().skip(k) {
+        *sum = d[..n - lag]
+            .iter()
+            .zip(&d[lag..])
+            .map(|(a, b)| a * b)
+            .sum::<f64>();
+    }
+    sums
 }
 
 /// `xs` minus its least-squares straight line.
@@ -460,6 +501,27 @@ pub fn detrend(xs: &[f64]) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The batched lag sums are, bit for bit, the plain sums of products.
+    #[test]
+    fn lag_sums_are_the_plain_sums() {
+        let mut r = crate::plant::Rng::new(5);
+        for n in [8usize, 9, 13, 24, 100, 511, 512] {
+            let d: Vec<f64> = (0..n).map(|_| r.normal() * 1e3 + r.uniform()).collect();
+            for max_lag in [2, 3, 4, 5, 7, 8, 64].map(|m: usize| m.min(n / 3)) {
+                let sums = lag_sums(&d, max_lag);
+                assert_eq!(sums.len(), max_lag + 1);
+                for k in 1..=max_lag {
+                    let plain = d[..n - k]
+                        .iter()
+                        .zip(&d[k..])
+                        .map(|(a, b)| a * b)
+                        .sum::<f64>();
+                    assert_eq!(sums[k].to_bits(), plain.to_bits(), "n {n} lag {k}");
+                }
+            }
+        }
+    }
 
     fn tick(code: u16, p_mw: f64) -> TickSample {
         TickSample {

@@ -842,6 +842,9 @@ struct Runner {
     last_computed: diodestat_core::Drive,
     watch: Watch,
     trace_every: u64,
+    /// The next tick recorded whole (a multiple of `trace_every`; the
+    /// ticks run one by one, so a comparison replaces a division).
+    next_trace_tick: u64,
     n_ticks: u64,
     dt: f64,
     tick_hz: u32,
@@ -911,6 +914,7 @@ impl Runner {
             last_computed: diodestat_core::Drive::default(),
             watch,
             trace_every: u64::from(sc.trace_every.max(1)),
+            next_trace_tick: 0,
             n_ticks,
             dt,
             tick_hz,
@@ -1134,7 +1138,8 @@ impl Runner {
                     p_mw, monitor_mw, i_ma, ceiling_ma, tj_c, sensed_c, ambient_c,
                 ],
             );
-            if tick.is_multiple_of(self.trace_every) {
+            if tick == self.next_trace_tick {
+                self.next_trace_tick += self.trace_every;
                 let status = ctl.status();
                 let row = TraceRow {
                     tick,

@@ -338,10 +338,12 @@ impl Default for Envelope {
 impl Envelope {
     /// For a run of `n_ticks` ticks.
     pub fn new(n_ticks: u64) -> Self {
+        let ticks_per_bin = n_ticks.div_ceil(ENVELOPE_BINS as u64).max(1);
         Envelope {
-            ticks_per_bin: n_ticks.div_ceil(ENVELOPE_BINS as u64).max(1),
+            ticks_per_bin,
             next_bin_tick: 0,
-            bins: Vec::new(),
+            // Every bin the run will fill, allocated once.
+            bins: Vec::with_capacity(n_ticks.div_ceil(ticks_per_bin) as usize),
         }
     }
 
@@ -356,7 +358,13 @@ impl Envelope {
     #[inline]
     pub fn add_values(&mut self, tick: u64, v: [f64; Channel::N]) {
         if tick >= self.next_bin_tick && self.bins.len() < ENVELOPE_BINS {
-            self.next_bin_tick = (tick / self.ticks_per_bin + 1) * self.ticks_per_bin;
+            // `next_bin_tick` is a multiple of the bin width: the tick
+            // right on it (a run's ticks come one by one) needs no division.
+            self.next_bin_tick = if tick == self.next_bin_tick {
+                tick + self.ticks_per_bin
+            } else {
+                (tick / self.ticks_per_bin + 1) * self.ticks_per_bin
+            };
             self.bins.push(Bin {
                 first_tick: tick,
                 last_tick: tick,
@@ -490,6 +498,26 @@ mod tests {
                 prop_assert_eq!(b.max(Channel::FrontMw), hi);
             }
             prop_assert_eq!(e.bins().last().map(|b| b.last_tick), Some(n - 1));
+        }
+
+        /// Ticks offered with gaps (every `stride`-th) land in the bin of
+        /// their tick, as when they come one by one.
+        #[test]
+        fn envelope_bins_by_tick_with_gaps(n in 1u64..20_000, stride in 1u64..7) {
+            let mut e = Envelope::new(n);
+            for t in (0..n).step_by(stride as usize) {
+                e.add(&row(t, t as f64));
+            }
+            let w = e.ticks_per_bin();
+            for b in e.bins() {
+                prop_assert_eq!(b.first_tick / w, b.last_tick / w);
+                prop_assert_eq!(b.min(Channel::FrontMw), b.first_tick as f64);
+                prop_assert_eq!(b.max(Channel::FrontMw), b.last_tick as f64);
+            }
+            let firsts: Vec<u64> = e.bins().iter().map(|b| b.first_tick).collect();
+            let mut expect: Vec<u64> = (0..n).step_by(stride as usize).collect();
+            expect.dedup_by_key(|t| *t / w);
+            prop_assert_eq!(firsts, expect);
         }
     }
 

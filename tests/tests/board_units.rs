@@ -235,9 +235,10 @@ fn the_18w_pump_board_was_refused_in_milli_units_and_now_loads() {
         Units::MILLI,
     )
     .unwrap_err();
-    assert_eq!(key, "protection.supply_min_mv", "{why}");
+    // The file writes the supply window in volts (43.2 V = 43 200 mV).
+    assert_eq!(key, "protection.supply_min_v", "{why}");
     assert!(
-        why.contains("43200 mV does not fit the board's units"),
+        why.contains("43.2 V does not fit the board's units: accepted -32.76799998474121 ..= 32.76799998474121 V"),
         "{why}"
     );
     let b = load_board(&path).unwrap_or_else(|e| panic!("{e}"));

@@ -499,10 +499,7 @@ fn ntc_beta_and_steinhart_hart_values() {
     // Beta equation R = R25 exp(B (1/T - 1/298.15 K)) (P2), R25 = 10 kohm,
     // B = 3380 K: 0 degC 28 224 ohm, 50 degC 4 160 ohm, 85 degC 1 497 ohm (C,
     // rounded to 1 ohm).
-    let ntc = Ntc::Beta {
-        r25_ohm: 10_000.0,
-        beta_k: 3380.0,
-    };
+    let ntc = Ntc::beta(10_000.0, 3380.0);
     for (t_c, r) in [(0.0, 28_224.0), (50.0, 4_160.0), (85.0, 1_497.0)] {
         let got = ntc.resistance_ohm(c_to_k(t_c));
         assert!((got - r).abs() <= 0.5, "{t_c} degC: {got}");
@@ -512,11 +509,7 @@ fn ntc_beta_and_steinhart_hart_values() {
     // S. R. Hart, "Calibration curves for thermistors", Deep-Sea Research 15
     // (1968) 497-503; P2/M), A = 1.40e-3, B = 2.37e-4, C = 9.90e-8:
     // 3000 ohm -> 298.66 K, 10 kohm -> 273.21 K (C, to 0.01 K).
-    let sh = Ntc::SteinhartHart {
-        a: 1.40e-3,
-        b: 2.37e-4,
-        c: 9.90e-8,
-    };
+    let sh = Ntc::steinhart_hart(1.40e-3, 2.37e-4, 9.90e-8);
     for (r, t) in [(3000.0, 298.66), (10_000.0, 273.21)] {
         let got = sh.temperature_k(r);
         assert!((got - t).abs() <= 0.005, "{r} ohm: {got}");

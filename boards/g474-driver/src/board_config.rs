@@ -12,135 +12,6 @@ use diodestat_core::{
 /// again at start and reports both (a hand-edited constant below makes them differ).
 pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0xd7ab6083797370f9);
 
-/// Temperature table (counts, degC).
-pub const TEMP_TABLE: [TempPoint; 25] = [
-    // 381 counts = 99.94969 degC
-    TempPoint {
-        counts: 381,
-        degc: Fx::from_bits(6550303),
-    },
-    // 425 counts = 95.02386 degC
-    TempPoint {
-        counts: 425,
-        degc: Fx::from_bits(6227484),
-    },
-    // 476 counts = 89.9877 degC
-    TempPoint {
-        counts: 476,
-        degc: Fx::from_bits(5897434),
-    },
-    // 533 counts = 85.02458 degC
-    TempPoint {
-        counts: 533,
-        degc: Fx::from_bits(5572171),
-    },
-    // 598 counts = 80.02893 degC
-    TempPoint {
-        counts: 598,
-        degc: Fx::from_bits(5244776),
-    },
-    // 672 counts = 75.0068 degC
-    TempPoint {
-        counts: 672,
-        degc: Fx::from_bits(4915646),
-    },
-    // 755 counts = 70.02272 degC
-    TempPoint {
-        counts: 755,
-        degc: Fx::from_bits(4589009),
-    },
-    // 849 counts = 65.01408 degC
-    TempPoint {
-        counts: 849,
-        degc: Fx::from_bits(4260763),
-    },
-    // 955 counts = 59.98653 degC
-    TempPoint {
-        counts: 955,
-        degc: Fx::from_bits(3931277),
-    },
-    // 1073 counts = 54.98035 degC
-    TempPoint {
-        counts: 1073,
-        degc: Fx::from_bits(3603192),
-    },
-    // 1203 counts = 50.01357 degC
-    TempPoint {
-        counts: 1203,
-        degc: Fx::from_bits(3277689),
-    },
-    // 1348 counts = 44.98788 degC
-    TempPoint {
-        counts: 1348,
-        degc: Fx::from_bits(2948326),
-    },
-    // 1505 counts = 40.00653 degC
-    TempPoint {
-        counts: 1505,
-        degc: Fx::from_bits(2621868),
-    },
-    // 1675 counts = 35.01338 degC
-    TempPoint {
-        counts: 1675,
-        degc: Fx::from_bits(2294637),
-    },
-    // 1857 counts = 30.00238 degC
-    TempPoint {
-        counts: 1857,
-        degc: Fx::from_bits(1966236),
-    },
-    // 2048 counts = 25 degC
-    TempPoint {
-        counts: 2048,
-        degc: Fx::from_bits(1638400),
-    },
-    // 2245 counts = 20.00963 degC
-    TempPoint {
-        counts: 2245,
-        degc: Fx::from_bits(1311351),
-    },
-    // 2446 counts = 14.99379 degC
-    TempPoint {
-        counts: 2446,
-        degc: Fx::from_bits(982633),
-    },
-    // 2645 counts = 10.00337 degC
-    TempPoint {
-        counts: 2645,
-        degc: Fx::from_bits(655581),
-    },
-    // 2839 counts = 5.00955 degC
-    TempPoint {
-        counts: 2839,
-        degc: Fx::from_bits(328306),
-    },
-    // 3024 counts = 0.01155 degC
-    TempPoint {
-        counts: 3024,
-        degc: Fx::from_bits(757),
-    },
-    // 3197 counts = -5.00798 degC
-    TempPoint {
-        counts: 3197,
-        degc: Fx::from_bits(-328203),
-    },
-    // 3354 counts = -10.01537 degC
-    TempPoint {
-        counts: 3354,
-        degc: Fx::from_bits(-656367),
-    },
-    // 3493 counts = -15.00023 degC
-    TempPoint {
-        counts: 3493,
-        degc: Fx::from_bits(-983055),
-    },
-    // 3614 counts = -19.98927 degC
-    TempPoint {
-        counts: 3614,
-        degc: Fx::from_bits(-1310017),
-    },
-];
-
 /// The board configuration (validate it at start-up).
 pub fn config() -> Config {
     Config {
@@ -194,8 +65,8 @@ pub fn config() -> Config {
             monitor: AdcCal {
                 offset_counts: 0,                         // 0 counts at zero input
                 units_per_count: Gain::from_bits(195943), // 0.0116791 mW (front facet) per count
-                full_scale_counts: 4095, // 4095 counts full scale = 47.826 mW (front facet)
-                unit_exp: -3,            // reads in units of 0.001 W
+                full_scale_counts: 4095,                  // 4095 counts full scale = 47.826 mW
+                unit_exp: -3,                             // reads in units of 0.001 W
             },
             current_sense: AdcCal {
                 offset_counts: 0,                         // 0 counts at zero input
@@ -216,13 +87,115 @@ pub fn config() -> Config {
                 unit_exp: -3,                         // codes per 0.001 A
             },
             temperature: TempCal {
-                table: heapless::Vec::from_slice(&TEMP_TABLE).unwrap_or_default(), // see TEMP_TABLE
+                table: heapless::Vec::from_slice(&[
+                    TempPoint {
+                        counts: 381,                  // 381 counts
+                        degc: Fx::from_bits(6550303), // 99.94969 degC
+                    },
+                    TempPoint {
+                        counts: 425,                  // 425 counts
+                        degc: Fx::from_bits(6227484), // 95.02386 degC
+                    },
+                    TempPoint {
+                        counts: 476,                  // 476 counts
+                        degc: Fx::from_bits(5897434), // 89.9877 degC
+                    },
+                    TempPoint {
+                        counts: 533,                  // 533 counts
+                        degc: Fx::from_bits(5572171), // 85.02458 degC
+                    },
+                    TempPoint {
+                        counts: 598,                  // 598 counts
+                        degc: Fx::from_bits(5244776), // 80.02893 degC
+                    },
+                    TempPoint {
+                        counts: 672,                  // 672 counts
+                        degc: Fx::from_bits(4915646), // 75.0068 degC
+                    },
+                    TempPoint {
+                        counts: 755,                  // 755 counts
+                        degc: Fx::from_bits(4589009), // 70.02272 degC
+                    },
+                    TempPoint {
+                        counts: 849,                  // 849 counts
+                        degc: Fx::from_bits(4260763), // 65.01408 degC
+                    },
+                    TempPoint {
+                        counts: 955,                  // 955 counts
+                        degc: Fx::from_bits(3931277), // 59.98653 degC
+                    },
+                    TempPoint {
+                        counts: 1073,                 // 1073 counts
+                        degc: Fx::from_bits(3603192), // 54.98035 degC
+                    },
+                    TempPoint {
+                        counts: 1203,                 // 1203 counts
+                        degc: Fx::from_bits(3277689), // 50.01357 degC
+                    },
+                    TempPoint {
+                        counts: 1348,                 // 1348 counts
+                        degc: Fx::from_bits(2948326), // 44.98788 degC
+                    },
+                    TempPoint {
+                        counts: 1505,                 // 1505 counts
+                        degc: Fx::from_bits(2621868), // 40.00653 degC
+                    },
+                    TempPoint {
+                        counts: 1675,                 // 1675 counts
+                        degc: Fx::from_bits(2294637), // 35.01338 degC
+                    },
+                    TempPoint {
+                        counts: 1857,                 // 1857 counts
+                        degc: Fx::from_bits(1966236), // 30.00238 degC
+                    },
+                    TempPoint {
+                        counts: 2048,                 // 2048 counts
+                        degc: Fx::from_bits(1638400), // 25 degC
+                    },
+                    TempPoint {
+                        counts: 2245,                 // 2245 counts
+                        degc: Fx::from_bits(1311351), // 20.00963 degC
+                    },
+                    TempPoint {
+                        counts: 2446,                // 2446 counts
+                        degc: Fx::from_bits(982633), // 14.99379 degC
+                    },
+                    TempPoint {
+                        counts: 2645,                // 2645 counts
+                        degc: Fx::from_bits(655581), // 10.00337 degC
+                    },
+                    TempPoint {
+                        counts: 2839,                // 2839 counts
+                        degc: Fx::from_bits(328306), // 5.00955 degC
+                    },
+                    TempPoint {
+                        counts: 3024,             // 3024 counts
+                        degc: Fx::from_bits(757), // 0.01155 degC
+                    },
+                    TempPoint {
+                        counts: 3197,                 // 3197 counts
+                        degc: Fx::from_bits(-328203), // -5.00798 degC
+                    },
+                    TempPoint {
+                        counts: 3354,                 // 3354 counts
+                        degc: Fx::from_bits(-656367), // -10.01537 degC
+                    },
+                    TempPoint {
+                        counts: 3493,                 // 3493 counts
+                        degc: Fx::from_bits(-983055), // -15.00023 degC
+                    },
+                    TempPoint {
+                        counts: 3614,                  // 3614 counts
+                        degc: Fx::from_bits(-1310017), // -19.98927 degC
+                    },
+                ])
+                .unwrap_or_default(),
                 low_fault_counts: 41, // 41 counts and below: sensor at its low rail
                 high_fault_counts: 4054, // 4054 counts and above: sensor at its high rail
-                open_rail: Rail::High, // an open sensor reads at the high rail
+                open_rail: Rail::High, // rail high
             },
         },
-        forward_voltage: None, // no forward-voltage channel
-        plausibility: None,    // no current-for-power plausibility check
+        forward_voltage: None, // no forward voltage
+        plausibility: None,    // no plausibility
     }
 }

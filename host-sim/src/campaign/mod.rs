@@ -74,6 +74,18 @@ pub struct Corner {
     /// Where the temperature sensor's error lies in its IEC 60751 class
     /// band, -1 ..= 1 (0: the nominal curve; only a sensor with a class).
     pub sensor_band: f64,
+    /// Factor on an NTC temperature sensor's R25 (1 nominal; only an NTC).
+    #[serde(default = "one")]
+    pub ntc_r25: f64,
+    /// Factor on an NTC temperature sensor's B value (1 nominal; only an
+    /// NTC).
+    #[serde(default = "one")]
+    pub ntc_beta: f64,
+}
+
+/// A factor of 1 (records written before the field existed).
+fn one() -> f64 {
+    1.0
 }
 
 fn nominal() -> Corner {
@@ -90,6 +102,8 @@ fn nominal() -> Corner {
         sense_offset_mv: 0.0,
         dac_gain: 1.0,
         dac_offset_mv: 0.0,
+        ntc_r25: 1.0,
+        ntc_beta: 1.0,
     }
 }
 
@@ -97,8 +111,9 @@ impl Corner {
     /// The module as this corner or part has it: the diode's spread
     /// ([`DemoModule::with_spread`]), T0 scaled, the converter chain's
     /// gains scaled and its offsets added, the temperature sensor
-    /// at its place in its class band. (The tracking factor and the
-    /// hours act through the scenario, as faults do.)
+    /// at its place in its class band or, an NTC, with its R25 and B
+    /// moved by their factors. (The tracking factor and the hours act
+    /// through the scenario, as faults do.)
     pub fn module(&self, base: &DemoModule) -> DemoModule {
         let mut m = base.with_spread(self.threshold, self.slope);
         m.diode.t0_k *= self.t0;
@@ -106,7 +121,11 @@ impl Corner {
         m.driver.sense_offset_v += self.sense_offset_mv * 1e-3;
         m.driver.dac_vref_v *= self.dac_gain;
         m.driver.dac_offset_v += self.dac_offset_mv * 1e-3;
-        m.sensor.sensor = m.sensor.sensor.with_band_position(self.sensor_band);
+        m.sensor.sensor = m
+            .sensor
+            .sensor
+            .with_band_position(self.sensor_band)
+            .with_ntc_deviations(self.ntc_r25 - 1.0, self.ntc_beta - 1.0);
         m
     }
 }
@@ -138,11 +157,12 @@ pub fn corners(cold_c: f64, hot_c: f64) -> Vec<Corner> {
 /// `n` parts drawn from the module's tolerances with `seed` (each factor
 /// uniform in `1 - t ..= 1 + t`, each offset uniform in `-h ..= h`; a
 /// temperature sensor given by its IEC 60751 class also draws its error
-/// uniformly within the class band), at the nominal corner's 25 degC, named
-/// `part-1` to `part-n`. Threshold, slope, tracking and the sensor band
-/// come from one stream seeded with `seed`, T0 and the converter chain from
-/// a second one, so adding tolerances leaves the first draws of every part
-/// as they were.
+/// uniformly within the class band, an NTC its R25 and B factors within
+/// their tolerances), at the nominal corner's 25 degC, named `part-1` to
+/// `part-n`. Threshold, slope, tracking and the sensor band come from one
+/// stream seeded with `seed`, T0 and the converter chain from a second
+/// one, the NTC's R25 and B from a third, so adding tolerances leaves the
+/// earlier draws of every part as they were.
 pub fn parts(module: &DemoModule, n: u32, seed: u64) -> Vec<Corner> {
     draw_parts(
         &module.tolerances,
@@ -161,6 +181,7 @@ pub fn draw_parts(
 ) -> Vec<Corner> {
     let mut rng = crate::plant::Rng::new(seed);
     let mut chain = crate::plant::Rng::new(seed ^ CHAIN_STREAM);
+    let mut ntc = crate::plant::Rng::new(seed ^ NTC_STREAM);
     let t = *tolerances;
     let sym = |r: &mut crate::plant::Rng, h: f64| h * (2.0 * r.uniform() - 1.0);
     (1..=n)
@@ -183,6 +204,8 @@ pub fn draw_parts(
                 sense_offset_mv: sym(&mut chain, t.sense_offset_mv),
                 dac_gain: 1.0 + sym(&mut chain, t.dac_gain),
                 dac_offset_mv: sym(&mut chain, t.dac_offset_mv),
+                ntc_r25: 1.0 + sym(&mut ntc, t.ntc_r25),
+                ntc_beta: 1.0 + sym(&mut ntc, t.ntc_beta),
                 sensor_band,
                 ..nominal()
             }
@@ -193,6 +216,10 @@ pub fn draw_parts(
 /// Seed of the second draw stream of [`parts`] ("convchain" in ASCII)
 /// against the first's.
 const CHAIN_STREAM: u64 = 0x636f_6e76_6368_6169;
+
+/// Seed of the third draw stream of [`parts`] ("ntcr25b." in ASCII)
+/// against the first's.
+const NTC_STREAM: u64 = 0x6e74_6372_3235_622e;
 
 /// How long a fault's case is watched after the injection.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -1271,7 +1298,11 @@ mod tests {
     /// drawn).
     #[test]
     fn parts_draw_every_tolerance_in_its_band() {
-        let t = PartTolerances::CHAIN_EXAMPLE;
+        let t = PartTolerances {
+            ntc_r25: 0.02,
+            ntc_beta: 0.01,
+            ..PartTolerances::CHAIN_EXAMPLE
+        };
         let p = draw_parts(&t, false, 500, 11);
         let within = |v: f64, c: f64, h: f64| (v - c).abs() <= h;
         for k in &p {
@@ -1283,6 +1314,8 @@ mod tests {
             assert!(within(k.sense_offset_mv, 0.0, t.sense_offset_mv));
             assert!(within(k.dac_gain, 1.0, t.dac_gain));
             assert!(within(k.dac_offset_mv, 0.0, t.dac_offset_mv));
+            assert!(within(k.ntc_r25, 1.0, t.ntc_r25));
+            assert!(within(k.ntc_beta, 1.0, t.ntc_beta));
         }
         let spread = |f: fn(&Corner) -> f64, h: f64| {
             let lo = p.iter().map(f).fold(f64::INFINITY, f64::min);
@@ -1292,6 +1325,15 @@ mod tests {
         assert!(spread(|k| k.t0, t.t0));
         assert!(spread(|k| k.sense_offset_mv, t.sense_offset_mv));
         assert!(spread(|k| k.dac_gain, t.dac_gain));
+        assert!(spread(|k| k.ntc_r25, t.ntc_r25));
+        assert!(spread(|k| k.ntc_beta, t.ntc_beta));
+        // The NTC draws come from their own stream: the chain's draws are
+        // those drawn without them.
+        let without = draw_parts(&PartTolerances::CHAIN_EXAMPLE, false, 500, 11);
+        for (a, b) in p.iter().zip(&without) {
+            assert_eq!((a.t0, a.dac_offset_mv), (b.t0, b.dac_offset_mv));
+            assert_eq!((b.ntc_r25, b.ntc_beta), (1.0, 1.0));
+        }
         let mut rng = crate::plant::Rng::new(11);
         for k in &p {
             for (v, h) in [
@@ -1329,6 +1371,50 @@ mod tests {
         let want = d0.sense_voltage(1.0) * 0.99 + 1.5e-3;
         assert!((d.sense_voltage(1.0) - want).abs() < 1e-12);
         assert_eq!(nominal().module(&base), base);
+    }
+
+    /// An NTC part's R25 and B factors reach the module's sensor (an RTD
+    /// ignores them); the part's module keeps the nominal curve beside them.
+    #[test]
+    fn a_part_moves_an_ntc_sensor() {
+        use crate::plant::{Ntc, TempSensor};
+        let base = DemoModule::visible();
+        let part = Corner {
+            ntc_r25: 1.02,
+            ntc_beta: 0.99,
+            ..nominal()
+        };
+        let TempSensor::Ntc(n) = part.module(&base).sensor.sensor else {
+            panic!("the visible module has an NTC");
+        };
+        let (r, b) = n.deviations();
+        assert!(
+            (r - 0.02).abs() < 1e-12 && (b + 0.01).abs() < 1e-12,
+            "{r} {b}"
+        );
+        assert_eq!(
+            TempSensor::Ntc(n.clone()).nominal(),
+            TempSensor::Ntc(Ntc::beta(10_000.0, 3380.0))
+        );
+        let pump = DemoModule::pump();
+        assert_eq!(part.module(&pump), pump);
+    }
+
+    proptest::proptest! {
+        /// Whatever the tolerances and the seed, every part's NTC factors
+        /// lie within their declared bands.
+        #[test]
+        fn ntc_draws_stay_in_their_bands(
+            r25 in 0.0f64..0.2,
+            beta in 0.0f64..0.2,
+            seed in proptest::num::u64::ANY,
+        ) {
+            let t = PartTolerances { ntc_r25: r25, ntc_beta: beta, ..PartTolerances::DEMO };
+            for k in draw_parts(&t, false, 64, seed) {
+                proptest::prop_assert!((k.ntc_r25 - 1.0).abs() <= r25, "{}", k.ntc_r25);
+                proptest::prop_assert!((k.ntc_beta - 1.0).abs() <= beta, "{}", k.ntc_beta);
+            }
+        }
     }
 
     /// A Monte Carlo record carries its figures in the JSON; two shards,

@@ -373,7 +373,7 @@ pub fn markdown(rec: &Record) -> String {
         let t = &mc.tolerances;
         let _ = writeln!(
             s,
-            "\n## Monte Carlo\n\n{} parts drawn from the module's tolerances (uniform: threshold +-{:.0} %, slope +-{:.0} %, monitor tracking +-{:.0} %, T0 +-{:.0} %, current-sense gain +-{:.1} % and offset +-{} mV, DAC gain +-{:.1} % and offset +-{} mV; seed {}) at 25 degC, every selected fault and moment on each. {} of {} parts had an unsafe case: one-sided 95 % Clopper-Pearson upper bound on the probability that a part has one {:.4}. {} of {} cases unsafe: bound on the probability of an unsafe case {:.5} (cases on one part are not independent; the per-part figure is the one to quote).",
+            "\n## Monte Carlo\n\n{} parts drawn from the module's tolerances (uniform: threshold +-{:.0} %, slope +-{:.0} %, monitor tracking +-{:.0} %, T0 +-{:.0} %, current-sense gain +-{:.1} % and offset +-{} mV, DAC gain +-{:.1} % and offset +-{} mV{}; seed {}) at 25 degC, every selected fault and moment on each. {} of {} parts had an unsafe case: one-sided 95 % Clopper-Pearson upper bound on the probability that a part has one {:.4}. {} of {} cases unsafe: bound on the probability of an unsafe case {:.5} (cases on one part are not independent; the per-part figure is the one to quote).",
             mc.parts,
             t.threshold * 100.0,
             t.slope * 100.0,
@@ -383,6 +383,7 @@ pub fn markdown(rec: &Record) -> String {
             t.sense_offset_mv,
             t.dac_gain * 100.0,
             t.dac_offset_mv,
+            sensor_tolerances(t, rec.header.sensor_classed),
             mc.seed,
             mc.unsafe_parts,
             mc.parts,
@@ -402,7 +403,7 @@ pub fn markdown(rec: &Record) -> String {
         let p = &w.part;
         let _ = writeln!(
             s,
-            "\nWorst part: {} ({} unsafe cases; highest class ratio {}{}; {:.3} uJ above the rated power), drawn as threshold x{:.4}, slope x{:.4}, tracking x{:.4}, T0 x{:.4}, sense gain x{:.4}, sense offset {:+.3} mV, DAC gain x{:.4}, DAC offset {:+.3} mV.\n\n| fault | parts | cases | unsafe cases | parts with an unsafe case | 95 % upper bound per part |\n|---|---|---|---|---|---|",
+            "\nWorst part: {} ({} unsafe cases; highest class ratio {}{}; {:.3} uJ above the rated power), drawn as threshold x{:.4}, slope x{:.4}, tracking x{:.4}, T0 x{:.4}, sense gain x{:.4}, sense offset {:+.3} mV, DAC gain x{:.4}, DAC offset {:+.3} mV{}.\n\n| fault | parts | cases | unsafe cases | parts with an unsafe case | 95 % upper bound per part |\n|---|---|---|---|---|---|",
             p.name,
             w.unsafe_cases,
             fmt_opt(w.worst_class_ratio, 3),
@@ -417,7 +418,8 @@ pub fn markdown(rec: &Record) -> String {
             p.sense_gain,
             p.sense_offset_mv,
             p.dac_gain,
-            p.dac_offset_mv
+            p.dac_offset_mv,
+            sensor_draw(p, t, rec.header.sensor_classed)
         );
         for f in &mc.per_fault {
             let _ = writeln!(
@@ -601,6 +603,37 @@ pub fn command_line(board_file: &str, sel: &Selection) -> String {
     }
     if let Some(w) = &sel.without {
         let _ = write!(s, " --without {w}");
+    }
+    s
+}
+
+/// The temperature sensor's drawn tolerances in the Monte Carlo
+/// paragraph: an NTC's R25 and B, an RTD's class band; empty when none is
+/// drawn.
+fn sensor_tolerances(t: &crate::plant::PartTolerances, classed: bool) -> String {
+    let mut s = String::new();
+    if t.ntc_r25 != 0.0 || t.ntc_beta != 0.0 {
+        let _ = write!(
+            s,
+            ", NTC R25 +-{:.1} % and B +-{:.1} %",
+            t.ntc_r25 * 100.0,
+            t.ntc_beta * 100.0
+        );
+    }
+    if classed {
+        s.push_str(", the temperature sensor's error within its IEC 60751 class band");
+    }
+    s
+}
+
+/// The worst part's drawn sensor values, for the sensor tolerances drawn.
+fn sensor_draw(p: &super::Corner, t: &crate::plant::PartTolerances, classed: bool) -> String {
+    let mut s = String::new();
+    if t.ntc_r25 != 0.0 || t.ntc_beta != 0.0 {
+        let _ = write!(s, ", NTC R25 x{:.4}, NTC B x{:.4}", p.ntc_r25, p.ntc_beta);
+    }
+    if classed {
+        let _ = write!(s, ", sensor at {:+.3} of its class band", p.sensor_band);
     }
     s
 }

@@ -56,8 +56,10 @@ pub struct DemoModule {
 /// Part-to-part tolerances of a module: a part's factor is drawn
 /// uniformly from `1 - t ..= 1 + t` for a relative half-width `t`, an
 /// offset uniformly from `-h ..= h` for a half-width `h`. The fields after
-/// `tracking` (T0 and the converter chain) may be left out of a module
-/// file: they then default to 0 (not drawn), as in the demo modules.
+/// `tracking` (T0, the converter chain and an NTC sensor's R25 and B) may
+/// be left out of a module file: they then default to 0 (not drawn), as in
+/// the built-in demo modules. The NTC tolerances apply to an NTC sensor
+/// only (an RTD's tolerance is its IEC 60751 class).
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct PartTolerances {
@@ -82,6 +84,14 @@ pub struct PartTolerances {
     /// DAC output offset, mV (half-width).
     #[serde(default, skip_serializing_if = "is_zero")]
     pub dac_offset_mv: f64,
+    /// R25 of an NTC temperature sensor (the resistance tolerance an NTC
+    /// datasheet states at 25 degC).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub ntc_r25: f64,
+    /// B value of an NTC temperature sensor (the B25/85 tolerance an NTC
+    /// datasheet states).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub ntc_beta: f64,
 }
 
 /// A tolerance left at 0 is not written (module files stay as they were).
@@ -105,6 +115,8 @@ impl PartTolerances {
         sense_offset_mv: 0.0,
         dac_gain: 0.0,
         dac_offset_mv: 0.0,
+        ntc_r25: 0.0,
+        ntc_beta: 0.0,
     };
 
     /// The demo tolerances with T0 +-10 %, current-sense gain +-1 % and
@@ -421,10 +433,7 @@ impl SensorChainParams {
     /// ground with a 10 kohm pull-up, 12-bit ADC.
     pub fn demo_visible() -> Self {
         Self {
-            sensor: TempSensor::Ntc(Ntc::Beta {
-                r25_ohm: 10_000.0,
-                beta_k: 3380.0,
-            }),
+            sensor: TempSensor::Ntc(Ntc::beta(10_000.0, 3380.0)),
             front_end: FrontEndParams {
                 topology: Topology::SensorToGround,
                 ref_resistor_ohm: 10_000.0,

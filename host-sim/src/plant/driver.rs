@@ -117,6 +117,9 @@ pub struct Driver {
     /// The DAC offset as output current, A.
     offset_a: f64,
     tau_s: f64,
+    /// 1/tau of the current loop and of the shutdown, 1/s (computed once).
+    on_rate_per_s: f64,
+    off_rate_per_s: f64,
     on_dt: f64,
     on_decay: f64,
     off_dt: f64,
@@ -146,12 +149,15 @@ impl Driver {
         let amps_per_code = params.full_scale_a() / max_code as f64;
         let offset_a = params.dac_offset_v * params.transconductance_a_per_v;
         let tau_s = 1.0 / (core::f64::consts::TAU * params.bandwidth_hz);
+        let off_rate_per_s = 1.0 / params.shutdown_tau_s;
         Ok(Self {
             params,
             max_code,
             amps_per_code,
             offset_a,
             tau_s,
+            on_rate_per_s: 1.0 / tau_s,
+            off_rate_per_s,
             on_dt: f64::NAN,
             on_decay: 0.0,
             off_dt: f64::NAN,
@@ -243,10 +249,10 @@ impl Driver {
                 self.off_decay = (-dt_s / self.params.shutdown_tau_s).exp();
                 self.off_dt = dt_s;
             }
-            self.last_rate_per_s = 1.0 / self.params.shutdown_tau_s;
+            self.last_rate_per_s = self.off_rate_per_s;
             (0.0, self.off_decay)
         } else {
-            self.last_rate_per_s = 1.0 / self.tau_s;
+            self.last_rate_per_s = self.on_rate_per_s;
             if dt_s != self.on_dt {
                 self.on_decay = (-dt_s / self.tau_s).exp();
                 self.on_dt = dt_s;

@@ -25,7 +25,20 @@ pub const RTD_C: f64 = -4.183e-12;
 /// Reference temperature of the NTC beta equation (25 degC), K.
 pub const NTC_T25_K: f64 = 298.15;
 
-/// NTC thermistor model.
+/// NTC thermistor model: the nominal curve of its datasheet and, for one
+/// drawn or measured part, how far its R25 and its B value lie from the
+/// nominal ones (0: the nominal part).
+///
+/// A part with R25 deviation `r` and B deviation `b` has the resistance
+///
+/// ```text
+/// R_part(T) = R_nom(T) (1 + r) exp(b B_nom (1/T - 1/298.15 K))
+/// ```
+///
+/// with `B_nom` the nominal curve's B25/85 (the B value NTC datasheets
+/// state with its tolerance, between 25 and 85 degC; common practice). For
+/// the beta equation this is exactly the beta equation with R25 (1 + r) and
+/// B (1 + b) (its B25/85 is its B).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "model", rename_all = "snake_case", deny_unknown_fields)]
 pub enum Ntc {
@@ -35,6 +48,14 @@ pub enum Ntc {
         r25_ohm: f64,
         /// Beta constant, K.
         beta_k: f64,
+        /// This part's relative R25 deviation from `r25_ohm` (0.01: 1 %
+        /// high); 0 (the default): the nominal part.
+        #[serde(default, skip_serializing_if = "is_zero")]
+        r25_deviation: f64,
+        /// This part's relative B deviation from `beta_k`; 0 (the
+        /// default): the nominal part.
+        #[serde(default, skip_serializing_if = "is_zero")]
+        beta_deviation: f64,
     },
     /// Steinhart-Hart equation 1/T = a + b ln R + c (ln R)^3 (R in ohm, T in K).
     SteinhartHart {
@@ -44,14 +65,97 @@ pub enum Ntc {
         b: f64,
         /// Coefficient c, 1/K.
         c: f64,
+        /// This part's relative R25 deviation from the curve's R at
+        /// 25 degC; 0 (the default): the nominal part.
+        #[serde(default, skip_serializing_if = "is_zero")]
+        r25_deviation: f64,
+        /// This part's relative B deviation from the curve's B25/85; 0
+        /// (the default): the nominal part.
+        #[serde(default, skip_serializing_if = "is_zero")]
+        beta_deviation: f64,
     },
 }
 
+/// Upper temperature of the B25/85 value, K (85 degC).
+pub const NTC_T85_K: f64 = 358.15;
+
 impl Ntc {
-    /// Checks the coefficients describe a decreasing R(T).
-    pub fn validate(&self) -> Result<(), PlantError> {
+    /// The nominal beta-equation NTC.
+    pub fn beta(r25_ohm: f64, beta_k: f64) -> Ntc {
+        Ntc::Beta {
+            r25_ohm,
+            beta_k,
+            r25_deviation: 0.0,
+            beta_deviation: 0.0,
+        }
+    }
+
+    /// The nominal Steinhart-Hart NTC.
+    pub fn steinhart_hart(a: f64, b: f64, c: f64) -> Ntc {
+        Ntc::SteinhartHart {
+            a,
+            b,
+            c,
+            r25_deviation: 0.0,
+            beta_deviation: 0.0,
+        }
+    }
+
+    /// This part's (R25, B) relative deviations.
+    pub fn deviations(&self) -> (f64, f64) {
         match *self {
-            Ntc::Beta { r25_ohm, beta_k } => {
+            Ntc::Beta {
+                r25_deviation,
+                beta_deviation,
+                ..
+            }
+            | Ntc::SteinhartHart {
+                r25_deviation,
+                beta_deviation,
+                ..
+            } => (r25_deviation, beta_deviation),
+        }
+    }
+
+    /// The same curve with this part's deviations set to `r25` and `beta`.
+    pub fn with_deviations(&self, r25: f64, beta: f64) -> Ntc {
+        let mut n = self.clone();
+        match &mut n {
+            Ntc::Beta {
+                r25_deviation,
+                beta_deviation,
+                ..
+            }
+            | Ntc::SteinhartHart {
+                r25_deviation,
+                beta_deviation,
+                ..
+            } => {
+                *r25_deviation = r25;
+                *beta_deviation = beta;
+            }
+        }
+        n
+    }
+
+    /// Checks the coefficients describe a decreasing R(T) and the part's
+    /// deviations are relative ones above -100 %.
+    pub fn validate(&self) -> Result<(), PlantError> {
+        let (r25_dev, beta_dev) = self.deviations();
+        ensure(
+            r25_dev.is_finite() && r25_dev > -1.0 && r25_dev < 1.0,
+            "r25_deviation",
+            "must be a relative deviation between -1 and 1 (exclusive)",
+        )?;
+        ensure(
+            beta_dev.is_finite() && beta_dev > -1.0 && beta_dev < 1.0,
+            "beta_deviation",
+            "must be a relative deviation between -1 and 1 (exclusive)",
+        )?;
+        match *self {
+            Ntc::Beta {
+                r25_ohm, beta_k, ..
+            } => {
                 ensure(
                     r25_ohm > 0.0 && r25_ohm.is_finite(),
                     "r25_ohm",
@@ -59,7 +163,7 @@ impl Ntc {
                 )?;
                 ensure(beta_k > 0.0 && beta_k.is_finite(), "beta_k", "must be > 0")
             }
-            Ntc::SteinhartHart { a, b, c } => {
+            Ntc::SteinhartHart { a, b, c, .. } => {
                 ensure(a.is_finite(), "a", "must be finite")?;
                 ensure(b > 0.0 && b.is_finite(), "b", "must be > 0")?;
                 ensure(c >= 0.0 && c.is_finite(), "c", "must be >= 0")
@@ -67,16 +171,49 @@ impl Ntc {
         }
     }
 
-    /// Resistance at temperature `t_k`, ohm. The Steinhart-Hart inverse is
-    /// the closed-form (Cardano) root of c x^3 + b x + (a - 1/T) = 0 with
-    /// x = ln R, polished by one Newton step.
+    /// Resistance of this part at temperature `t_k`, ohm: the nominal
+    /// curve with the part's deviations (see [`Ntc`]).
     #[inline]
     pub fn resistance_ohm(&self, t_k: f64) -> f64 {
         match *self {
-            Ntc::Beta { r25_ohm, beta_k } => {
-                r25_ohm * (beta_k * (1.0 / t_k - 1.0 / NTC_T25_K)).exp()
+            Ntc::Beta {
+                r25_ohm,
+                beta_k,
+                r25_deviation,
+                beta_deviation,
+            } => {
+                r25_ohm
+                    * (1.0 + r25_deviation)
+                    * (beta_k * (1.0 + beta_deviation) * (1.0 / t_k - 1.0 / NTC_T25_K)).exp()
             }
-            Ntc::SteinhartHart { a, b, c } => {
+            Ntc::SteinhartHart {
+                r25_deviation,
+                beta_deviation,
+                ..
+            } => {
+                let mut r = self.nominal_resistance_ohm(t_k);
+                if r25_deviation != 0.0 {
+                    r *= 1.0 + r25_deviation;
+                }
+                if beta_deviation != 0.0 {
+                    r *= (beta_deviation * self.b25_85_k() * (1.0 / t_k - 1.0 / NTC_T25_K)).exp();
+                }
+                r
+            }
+        }
+    }
+
+    /// Resistance on the nominal curve at `t_k`, ohm. The Steinhart-Hart
+    /// inverse is the closed-form (Cardano) root of
+    /// c x^3 + b x + (a - 1/T) = 0 with x = ln R, polished by one Newton
+    /// step.
+    #[inline]
+    pub fn nominal_resistance_ohm(&self, t_k: f64) -> f64 {
+        match *self {
+            Ntc::Beta {
+                r25_ohm, beta_k, ..
+            } => r25_ohm * (beta_k * (1.0 / t_k - 1.0 / NTC_T25_K)).exp(),
+            Ntc::SteinhartHart { a, b, c, .. } => {
                 let rhs = 1.0 / t_k;
                 let mut x = if c == 0.0 {
                     (rhs - a) / b
@@ -93,14 +230,29 @@ impl Ntc {
         }
     }
 
-    /// Temperature for resistance `r_ohm`, K.
+    /// B25/85 of the nominal curve, K:
+    /// ln(R(25 degC) / R(85 degC)) / (1/298.15 K - 1/358.15 K); the beta
+    /// equation's B itself.
+    pub fn b25_85_k(&self) -> f64 {
+        match *self {
+            Ntc::Beta { beta_k, .. } => beta_k,
+            Ntc::SteinhartHart { .. } => {
+                (self.nominal_resistance_ohm(NTC_T25_K) / self.nominal_resistance_ohm(NTC_T85_K))
+                    .ln()
+                    / (1.0 / NTC_T25_K - 1.0 / NTC_T85_K)
+            }
+        }
+    }
+
+    /// Temperature for resistance `r_ohm` on the nominal curve (what a
+    /// reader that knows only the datasheet curve concludes), K.
     #[inline]
     pub fn temperature_k(&self, r_ohm: f64) -> f64 {
         match *self {
-            Ntc::Beta { r25_ohm, beta_k } => {
-                1.0 / (1.0 / NTC_T25_K + (r_ohm / r25_ohm).ln() / beta_k)
-            }
-            Ntc::SteinhartHart { a, b, c } => {
+            Ntc::Beta {
+                r25_ohm, beta_k, ..
+            } => 1.0 / (1.0 / NTC_T25_K + (r_ohm / r25_ohm).ln() / beta_k),
+            Ntc::SteinhartHart { a, b, c, .. } => {
                 let x = r_ohm.ln();
                 1.0 / (a + b * x + c * x * x * x)
             }
@@ -267,6 +419,15 @@ impl TempSensor {
                 band_position: 0.0,
                 ..r.clone()
             }),
+            TempSensor::Ntc(n) => TempSensor::Ntc(n.with_deviations(0.0, 0.0)),
+        }
+    }
+
+    /// The same sensor, if an NTC, with its R25 and B deviations set to
+    /// `r25` and `beta` (relative); RTDs are returned as they are.
+    pub fn with_ntc_deviations(&self, r25: f64, beta: f64) -> TempSensor {
+        match self {
+            TempSensor::Ntc(n) => TempSensor::Ntc(n.with_deviations(r25, beta)),
             other => other.clone(),
         }
     }
@@ -481,8 +642,17 @@ impl SensorChain {
     #[inline]
     fn resistance_near(&mut self, t_k: f64) -> f64 {
         match self.params.sensor {
-            TempSensor::Ntc(Ntc::Beta { r25_ohm, beta_k }) => {
-                r25_ohm * self.ntc_near.exp(beta_k * (1.0 / t_k - 1.0 / NTC_T25_K))
+            TempSensor::Ntc(Ntc::Beta {
+                r25_ohm,
+                beta_k,
+                r25_deviation,
+                beta_deviation,
+            }) => {
+                r25_ohm
+                    * (1.0 + r25_deviation)
+                    * self
+                        .ntc_near
+                        .exp(beta_k * (1.0 + beta_deviation) * (1.0 / t_k - 1.0 / NTC_T25_K))
             }
             ref other => other.resistance_ohm(t_k),
         }
@@ -673,10 +843,7 @@ mod tests {
 
     fn ntc_chain(noise: f64) -> SensorChain {
         SensorChain::new(SensorChainParams {
-            sensor: TempSensor::Ntc(Ntc::Beta {
-                r25_ohm: 10_000.0,
-                beta_k: 3380.0,
-            }),
+            sensor: TempSensor::Ntc(Ntc::beta(10_000.0, 3380.0)),
             front_end: FrontEndParams {
                 topology: Topology::SensorToGround,
                 ref_resistor_ohm: 10_000.0,
@@ -803,16 +970,108 @@ mod tests {
 
     #[test]
     fn steinhart_hart_inverse_round_trip() {
-        let ntc = Ntc::SteinhartHart {
-            a: 1.40e-3,
-            b: 2.37e-4,
-            c: 9.90e-8,
-        };
+        let ntc = Ntc::steinhart_hart(1.40e-3, 2.37e-4, 9.90e-8);
         for r in [100.0, 1000.0, 3000.0, 10_000.0, 100_000.0, 1e6] {
             let t = ntc.temperature_k(r);
             let r2 = ntc.resistance_ohm(t);
             assert!((r2 / r - 1.0).abs() < 1e-12, "{r} -> {t} -> {r2}");
         }
+    }
+
+    /// A part with R25 x % high, read through the nominal curve (as the
+    /// firmware's table does), reads the temperature the B-parameter
+    /// equation R = R25 exp(B (1/T - 1/298.15 K)) predicts for it:
+    /// 1/T_read = 1/T + ln(1 + x)/B (the equation solved for T at the
+    /// part's resistance; the equation as in the NTC reference check of
+    /// tests/tests/reference_physics.rs, a secondary copy, from memory);
+    /// at 25 degC, R25 +1 % and B 3380 K that is 0.2617 K cold. The same
+    /// part through the divider and the ADC's noise-free transfer.
+    #[test]
+    fn an_ntc_part_with_r25_off_reads_what_the_beta_equation_predicts() {
+        let nominal = Ntc::beta(10_000.0, 3380.0);
+        for x in [0.01, -0.02, 0.05] {
+            let part = nominal.with_deviations(x, 0.0);
+            for t_c in [-20.0, 0.0, 25.0, 60.0, 100.0] {
+                let t = t_c + ZERO_CELSIUS_K;
+                let r = part.resistance_ohm(t);
+                let want_r = 10_000.0 * (1.0 + x) * (3380.0 * (1.0 / t - 1.0 / NTC_T25_K)).exp();
+                assert!((r / want_r - 1.0).abs() < 1e-12, "{x} {t_c}: {r}");
+                let read = nominal.temperature_k(r);
+                let want = 1.0 / (1.0 / t + (1.0 + x).ln() / 3380.0);
+                assert!((read - want).abs() < 1e-9, "{x} {t_c}: {read} {want}");
+            }
+        }
+        let at25 =
+            nominal.temperature_k(nominal.with_deviations(0.01, 0.0).resistance_ohm(NTC_T25_K));
+        assert!((at25 - NTC_T25_K + 0.2617).abs() < 5e-4, "{at25}");
+        // Through the divider: the part's noise-free reading, inverted by
+        // the nominal chain, is the same temperature.
+        let mut params = ntc_chain(0.0).params().clone();
+        let nominal_chain = SensorChain::new(params.clone()).unwrap();
+        params.sensor = TempSensor::Ntc(nominal.with_deviations(0.01, 0.0));
+        let part_chain = SensorChain::new(params).unwrap();
+        let x = part_chain.ideal_counts(NTC_T25_K) / part_chain.full_scale;
+        let read = nominal.temperature_k(nominal_chain.resistance_of_ratio(x));
+        assert!((read - at25).abs() < 1e-9, "{read} {at25}");
+        assert!(part_chain.ideal_counts(NTC_T25_K) > nominal_chain.ideal_counts(NTC_T25_K));
+    }
+
+    /// B off by y: the beta equation with B (1 + y); a Steinhart-Hart part
+    /// (J. S. Steinhart, S. R. Hart, Deep-Sea Research 15 (1968) 497-503,
+    /// secondary copy) with R25 off by x reads, through its nominal curve,
+    /// 1/T = a + b ln R + c (ln R)^3 at its resistance R = (1 + x) R_nom(T),
+    /// and with B off by y has a B25/85 of (1 + y) times the nominal one
+    /// (B25/85 = ln(R25/R85) / (1/298.15 K - 1/358.15 K), as NTC
+    /// datasheets state it; common practice).
+    #[test]
+    fn ntc_b_deviation_and_steinhart_hart_parts() {
+        let part = Ntc::beta(10_000.0, 3380.0).with_deviations(0.0, -0.01);
+        let t = 70.0 + ZERO_CELSIUS_K;
+        let want = 10_000.0 * (3380.0 * 0.99 * (1.0 / t - 1.0 / NTC_T25_K)).exp();
+        assert!((part.resistance_ohm(t) / want - 1.0).abs() < 1e-12);
+        assert_eq!(part.b25_85_k(), 3380.0);
+        let (a, b, c) = (1.40e-3, 2.37e-4, 9.90e-8);
+        let sh = Ntc::steinhart_hart(a, b, c);
+        for (x, y) in [(0.01, 0.0), (-0.03, 0.0), (0.0, 0.02), (0.02, -0.015)] {
+            let p = sh.with_deviations(x, y);
+            for t_c in [0.0, 25.0, 85.0] {
+                let t = t_c + ZERO_CELSIUS_K;
+                let r = p.resistance_ohm(t);
+                if y == 0.0 {
+                    assert!((r / (sh.resistance_ohm(t) * (1.0 + x)) - 1.0).abs() < 1e-12);
+                }
+                let l = r.ln();
+                let want = 1.0 / (a + b * l + c * l * l * l);
+                assert!((sh.temperature_k(r) - want).abs() < 1e-9, "{x} {y} {t_c}");
+            }
+            let b_part = (p.resistance_ohm(NTC_T25_K) / p.resistance_ohm(NTC_T85_K)).ln()
+                / (1.0 / NTC_T25_K - 1.0 / NTC_T85_K);
+            assert!(
+                (b_part / (sh.b25_85_k() * (1.0 + y)) - 1.0).abs() < 1e-9,
+                "{b_part}"
+            );
+            let r25 = p.resistance_ohm(NTC_T25_K) / sh.resistance_ohm(NTC_T25_K);
+            assert!((r25 - (1.0 + x)).abs() < 1e-12, "{r25}");
+        }
+        // The chain's continued exponential agrees with the direct
+        // equation for a part off the nominal curve as well.
+        let mut params = ntc_chain(0.5).params().clone();
+        params.sensor = TempSensor::Ntc(Ntc::beta(10_000.0, 3380.0).with_deviations(0.013, -0.007));
+        let mut fast = SensorChain::new(params.clone()).unwrap();
+        let mut direct = SensorChain::new(params).unwrap();
+        for k in 0..5000 {
+            let t = 290.0 + 4e-3 * k as f64;
+            assert_eq!(fast.counts(t, 5e-5), direct.counts_reference(t, 5e-5));
+        }
+    }
+
+    #[test]
+    fn ntc_deviations_outside_their_range_are_refused() {
+        let n = Ntc::beta(10_000.0, 3380.0);
+        assert!(n.with_deviations(-1.0, 0.0).validate().is_err());
+        assert!(n.with_deviations(0.0, f64::NAN).validate().is_err());
+        assert!(n.with_deviations(0.0, 1.5).validate().is_err());
+        assert!(n.with_deviations(0.05, -0.05).validate().is_ok());
     }
 
     #[test]

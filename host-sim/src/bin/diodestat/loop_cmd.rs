@@ -252,6 +252,12 @@ fn write_report(a: &Assessment, out: &Path) -> Result<PathBuf, String> {
     Ok(dir)
 }
 
+/// Error at the end of a step window, fraction of the setpoint, above
+/// which the step has not settled to the setpoint (half the ±1 % settling
+/// band): its overshoot and settling time, measured against where the
+/// window ends, are not reported.
+const UNSETTLED_ERROR: f64 = 0.5 * SETTLING_BAND;
+
 fn summary(a: &Assessment) -> String {
     let w = &a.analyses[a.worst()];
     let m = &w.margins;
@@ -290,10 +296,21 @@ fn summary(a: &Assessment) -> String {
         w.corner.corner.name, m.pm_deg, m.fcp_hz, m.gm_db, m.fcg_hz, m.bandwidth_hz, m.sm
     );
     if let Some((o, c)) = os {
-        s.push_str(&format!(
-            "time domain (regulating corners): largest overshoot {o:.2} % ({c}), longest settling {settle:.2} ms (±1 % band wider than the quantisation), \
-             largest steady-state error {err:.4} %, limit cycles {lc}\n"
-        ));
+        // Overshoot and settling are measured against where the window
+        // ends: they mean something only if that is the setpoint.
+        if err > 100.0 * UNSETTLED_ERROR {
+            s.push_str(&format!(
+                "time domain (regulating corners): the steps did not settle within the {:.0} ms step window \
+                 (error up to {err:.2} % of the setpoint at its end), so no overshoot or settling time is given; \
+                 limit cycles {lc}\n",
+                a.plan.window_ms
+            ));
+        } else {
+            s.push_str(&format!(
+                "time domain (regulating corners): largest overshoot {o:.2} % ({c}), longest settling {settle:.2} ms (±1 % band wider than the quantisation), \
+                 largest steady-state error {err:.4} %, limit cycles {lc}\n"
+            ));
+        }
     }
     for (c, why) in a.not_regulating() {
         s.push_str(&format!("not regulating: {c}: {why}\n"));
@@ -301,7 +318,9 @@ fn summary(a: &Assessment) -> String {
     s
 }
 
-/// `loop-report`: the report and Bode plots of each board under `out`.
+/// `loop-report`: the report and Bode plots of each board under `out`;
+/// `Err` (a non-zero exit) naming the boards whose verdict is FAIL, after
+/// every board's report is written.
 pub fn report(
     boards: &[PathBuf],
     out: &Path,
@@ -314,6 +333,7 @@ pub fn report(
         boards.to_vec()
     };
     let bar = progress::bar(boards.len() as u64, "boards");
+    let mut failed = Vec::new();
     for b in load_all(&boards, Some(out))? {
         let path = &b.path;
         let t0 = Instant::now();
@@ -339,10 +359,22 @@ pub fn report(
         );
         // Printed with the bar out of the way.
         bar.suspend(|| println!("{text}"));
+        if n > 0 {
+            failed.push(b.name.clone());
+        }
     }
     bar.finish_and_clear();
     println!("CAUTION: {SAFETY_CAUTION}");
-    Ok(())
+    if failed.is_empty() {
+        Ok(())
+    } else {
+        Err(format!(
+            "loop report: {} of {} board configurations FAIL: {} (findings in each report)",
+            failed.len(),
+            boards.len(),
+            failed.join(", ")
+        ))
+    }
 }
 
 /// `loop-gate`: every board against the pass lines; `Err` lists every

@@ -96,8 +96,8 @@ enum Cmd {
         /// Corners: nominal, cold, hot, tracking-low, aged, threshold-high, slope-low (default: all).
         #[arg(long, value_delimiter = ',')]
         corners: Option<Vec<String>>,
-        /// Ambient of the cold and hot corners, degC, as COLD,HOT.
-        #[arg(long, value_delimiter = ',', num_args = 1, default_values_t = [diodestat_sim::campaign::COLD_C, diodestat_sim::campaign::HOT_C], value_parser = finite_in(-55.0, 125.0, " degC"))]
+        /// Ambient of the cold and hot corners, degC, as COLD,HOT, e.g. -10,50.
+        #[arg(long, value_delimiter = ',', num_args = 1, allow_hyphen_values = true, default_value = "0,40", value_parser = finite_in(-55.0, 125.0, " degC"))]
         ambient_c: Vec<f64>,
         /// Setpoints, mW, within the board's range (default: two thirds of the highest).
         #[arg(long, value_delimiter = ',', value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
@@ -809,7 +809,39 @@ fn main() -> ExitCode {
 
 #[cfg(test)]
 mod tests {
-    use super::count_of;
+    use super::{count_of, Cli, Cmd};
+    use clap::{CommandFactory, Parser};
+
+    /// `campaign --help` shows the ambient default as it is written on the
+    /// command line, COLD,HOT (it showed "0 40"), and that default is the
+    /// campaign's cold and hot ambient.
+    #[test]
+    fn the_ambient_default_reads_as_it_is_written() {
+        let mut cmd = Cli::command();
+        let help = cmd
+            .find_subcommand_mut("campaign")
+            .unwrap()
+            .render_help()
+            .to_string();
+        assert!(help.contains("[default: 0,40]"), "{help}");
+        let cli = Cli::try_parse_from(["diodestat", "campaign", "board.toml"]).unwrap();
+        let Cmd::Campaign { ambient_c, .. } = cli.cmd else {
+            panic!("not the campaign command");
+        };
+        assert_eq!(
+            ambient_c,
+            [
+                diodestat_sim::campaign::COLD_C,
+                diodestat_sim::campaign::HOT_C
+            ]
+        );
+        let cli = Cli::try_parse_from(["diodestat", "campaign", "b.toml", "--ambient-c", "-10,50"])
+            .unwrap();
+        let Cmd::Campaign { ambient_c, .. } = cli.cmd else {
+            panic!("not the campaign command");
+        };
+        assert_eq!(ambient_c, [-10.0, 50.0]);
+    }
 
     #[test]
     fn a_count_takes_the_noun_in_its_number() {

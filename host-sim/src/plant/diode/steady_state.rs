@@ -204,7 +204,7 @@ pub(super) struct HalleyStep {
 /// that depends on N alone comes from the anchor, so the step needs only
 /// the operations that involve J and f. S at the new N follows from the
 /// exact Taylor expansion of the cubic S(N).
-#[inline]
+#[inline(always)]
 pub(super) fn halley_from(m: &Model, f: f64, j: f64, a: &Anchor) -> Option<HalleyStep> {
     let (n, nn) = (a.n, a.nn);
     let (ea, c2) = (m.inv_tau_p, m.c2);
