@@ -192,7 +192,7 @@ pub fn config() -> Config {
                 .unwrap_or_default(),
                 low_fault_counts: 41, // 41 counts and below: sensor at its low rail
                 high_fault_counts: 4054, // 4054 counts and above: sensor at its high rail
-                open_rail: Rail::High, // rail high
+                open_rail: Rail::High, // open rail: high
             },
         },
         forward_voltage: None, // no forward voltage
