@@ -298,6 +298,12 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
         csv: diodestat_sim::trace::CsvTrace::new(file),
         bar: diodestat_sim::progress::bar(n_ticks, "ticks"),
     };
+    // The class limit the plot draws, where the board declares [laser_safety].
+    let class_limit = loaded.board.pass_lines.as_ref().and_then(|l| {
+        l.ael
+            .cw_w()
+            .map(|w| (l.class.name(), w * 1e3, l.accessible_fraction))
+    });
     let ran = loaded.run_streamed(&mut sink);
     sink.bar.finish_and_clear();
     let written = sink.csv.finish();
@@ -306,7 +312,11 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
     let (sc, res, secs) = (&ran.scenario, &ran.result, ran.seconds);
     let summary = report::summary(sc, res, ran.outcomes.clone());
     let text = summary.text();
-    report::write_svg(&stage.path("plot.svg"), &sc.name, res)?;
+    let mut guides = report::PlotGuides::for_run(sc, res);
+    if let Some((class, ael_mw, fraction)) = class_limit {
+        guides = guides.with_class_limit(class, ael_mw, fraction);
+    }
+    report::write_svg(&stage.path("plot.svg"), &sc.name, res, &guides)?;
     std::fs::write(stage.path("summary.txt"), &text)
         .map_err(|e| format!("{}: {e}", out.join("summary.txt").display()))?;
     std::fs::write(stage.path("summary.json"), summary.json())
