@@ -861,6 +861,8 @@ pub struct PlotGuides {
     pub setpoints: Vec<SetpointStretch>,
     /// (front-facet power, mW; legend text) of the class limit.
     pub class_limit: Option<(f64, String)>,
+    /// Legend text for an intended class without a limit (Class 4).
+    pub class_note: Option<String>,
 }
 
 impl PlotGuides {
@@ -891,7 +893,16 @@ impl PlotGuides {
         }
         PlotGuides {
             setpoints,
-            class_limit: None,
+            ..PlotGuides::default()
+        }
+    }
+
+    /// The same with a legend line saying that the intended `class` sets
+    /// no accessible emission limit (Class 4), so none is drawn.
+    pub fn with_unlimited_class(self, class: &str) -> Self {
+        PlotGuides {
+            class_note: Some(format!("Class {class}: no accessible emission limit")),
+            ..self
         }
     }
 
@@ -1077,8 +1088,8 @@ pub fn plot_svg(name: &str, res: &RunResult, guides: &PlotGuides) -> Result<Stri
             // The class limit joins the power panel's range when it is
             // within three times the largest power drawn; else the legend
             // says it is off the scale.
-            let class = match (k, &guides.class_limit) {
-                (0, Some((mw, text))) => {
+            let class = match (k, &guides.class_limit, &guides.class_note) {
+                (0, Some((mw, text)), _) => {
                     let v = mw * unit.per_base;
                     let on_scale = lo <= hi && v <= 3.0 * hi.max(0.0);
                     if on_scale {
@@ -1086,6 +1097,7 @@ pub fn plot_svg(name: &str, res: &RunResult, guides: &PlotGuides) -> Result<Stri
                     }
                     Some((v, text.clone(), on_scale))
                 }
+                (0, None, Some(note)) => Some((f64::NAN, note.clone(), false)),
                 _ => None,
             };
             if lo > hi {
@@ -1193,7 +1205,7 @@ pub fn plot_svg(name: &str, res: &RunResult, guides: &PlotGuides) -> Result<Stri
                 } else {
                     Vec::new()
                 };
-                let label = if on_scale {
+                let label = if on_scale || v.is_nan() {
                     text
                 } else {
                     format!("{text} (above the scale)")
@@ -1603,6 +1615,9 @@ mod tests {
         assert!(svg.contains("Class 1 limit, CW: 0.7800 mW accessible = 1.5600 mW front\n"));
         // A limit far above the run (Class 3B on this board) is named in
         // the legend, not drawn.
+        let none = PlotGuides::for_run(&sc, &res).with_unlimited_class("4");
+        let svg = plot_svg("sp", &res, &none).unwrap();
+        assert!(svg.contains("Class 4: no accessible emission limit"));
         let far = g.with_class_limit("3B", 500.0, 1.0);
         let svg = plot_svg("sp", &res, &far).unwrap();
         assert!(svg.contains(

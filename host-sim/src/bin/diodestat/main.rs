@@ -299,11 +299,11 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
         bar: diodestat_sim::progress::bar(n_ticks, "ticks"),
     };
     // The class limit the plot draws, where the board declares [laser_safety].
-    let class_limit = loaded.board.pass_lines.as_ref().and_then(|l| {
-        l.ael
-            .cw_w()
-            .map(|w| (l.class.name(), w * 1e3, l.accessible_fraction))
-    });
+    let class_limit = loaded
+        .board
+        .pass_lines
+        .as_ref()
+        .map(|l| (l.class.name(), l.ael.cw_w(), l.accessible_fraction));
     let ran = loaded.run_streamed(&mut sink);
     sink.bar.finish_and_clear();
     let written = sink.csv.finish();
@@ -313,9 +313,13 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
     let summary = report::summary(sc, res, ran.outcomes.clone());
     let text = summary.text();
     let mut guides = report::PlotGuides::for_run(sc, res);
-    if let Some((class, ael_mw, fraction)) = class_limit {
-        guides = guides.with_class_limit(class, ael_mw, fraction);
-    }
+    guides = match class_limit {
+        Some((class, Some(ael_w), fraction)) => {
+            guides.with_class_limit(class, ael_w * 1e3, fraction)
+        }
+        Some((class, None, _)) => guides.with_unlimited_class(class),
+        None => guides,
+    };
     report::write_svg(&stage.path("plot.svg"), &sc.name, res, &guides)?;
     std::fs::write(stage.path("summary.txt"), &text)
         .map_err(|e| format!("{}: {e}", out.join("summary.txt").display()))?;
