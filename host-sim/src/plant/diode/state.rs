@@ -51,8 +51,8 @@ pub struct Diode {
     /// Where the quasi-static Halley step starts from (see
     /// [`Diode::step_quasi_static`]).
     pub(super) anchor: Option<Anchor>,
-    /// exp(dT/T0), exp(-dT/T1), ln(I/I_s) and exp(-ln(1 + I/I_s(T)))
-    /// continued from the previous tick (see [`crate::plant::near`]).
+    /// exp(dT/T0), exp(-dT/T1), ln(I/I_s), ln(T/T_ref) and
+    /// exp(-ln(1 + I/I_s(T))) continued from the previous tick (see [`crate::plant::near`]).
     pub(super) near: NearTerms,
 }
 
@@ -63,6 +63,8 @@ pub(super) struct NearTerms {
     pub(super) t1: ExpNear,
     pub(super) ratio: LnNear,
     pub(super) vf: ExpNear,
+    /// ln(T / T_ref) of the saturation current's prefactor.
+    pub(super) t_ratio: LnNear,
     /// ln(I / I_ref) and the acceleration factor of the aging law.
     pub(super) aging_ln: LnNear,
     pub(super) aging_exp: ExpNear,
@@ -136,8 +138,8 @@ impl Diode {
         }
     }
 
-    /// [`Diode::forward_voltage`] with ln(I/I_s) continued from the previous
-    /// call and, where the diode term is l + ln1p(e^-l) with l =
+    /// [`Diode::forward_voltage`] with ln(I/I_s) and ln(T/T_ref) continued
+    /// from the previous call and, where the diode term is l + ln1p(e^-l) with l =
     /// ln(I/I_s(T)) in (18, 35], ln1p(y) = y - y^2/2 (next term below
     /// 1e-24) and e^-l continued as well; equal to it within a few ulp.
     #[inline]
@@ -145,7 +147,8 @@ impl Diode {
         let m = &self.m;
         let i = i_a.max(0.0);
         let ratio = i * m.inv_i_s;
-        let x = m.junction.log_shift(t_k);
+        let ln_t_ratio = self.near.t_ratio.ln(m.junction.t_ratio(t_k));
+        let x = m.junction.log_shift_with(t_k, ln_t_ratio);
         let l = self.near.ratio.ln(ratio) + x;
         let ln_term = if l > 35.0 {
             l

@@ -75,10 +75,23 @@ impl JunctionLaw {
     /// ln(I / I_s(T)); zero at T_ref.
     #[inline]
     pub(super) fn log_shift(&self, t_k: f64) -> f64 {
+        self.log_shift_with(t_k, (t_k * self.inv_t_ref).ln())
+    }
+
+    /// T / T_ref, whose logarithm [`JunctionLaw::log_shift_with`] takes.
+    #[inline]
+    pub(super) fn t_ratio(&self, t_k: f64) -> f64 {
+        t_k * self.inv_t_ref
+    }
+
+    /// [`JunctionLaw::log_shift`] given ln(T / T_ref) (the fast path
+    /// continues it from the previous tick, see `crate::plant::near`).
+    #[inline]
+    pub(super) fn log_shift_with(&self, t_k: f64, ln_t_ratio: f64) -> f64 {
         let inv_t = 1.0 / t_k;
         let gap_shift_ev = VARSHNI_GAAS.eg_ev(t_k) - self.eg_ref_ev;
         self.act_k * (inv_t - self.inv_t_ref) + self.inv_nk * gap_shift_ev * inv_t
-            - self.prefactor_exp * (t_k * self.inv_t_ref).ln()
+            - self.prefactor_exp * ln_t_ratio
     }
 }
 
