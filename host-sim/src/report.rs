@@ -828,13 +828,114 @@ const MARGIN_PX: u32 = 8;
 /// temperature against time, from the run's min/max envelope (a fast
 /// oscillation is a band of its full swing), with state changes, faults
 /// and injections marked and labelled in a strip above the panels.
-pub fn write_svg(path: &Path, name: &str, res: &RunResult) -> Result<(), String> {
-    let svg = plot_svg(name, res)?;
+pub fn write_svg(
+    path: &Path,
+    name: &str,
+    res: &RunResult,
+    guides: &PlotGuides,
+) -> Result<(), String> {
+    let svg = plot_svg(name, res, guides)?;
     std::fs::write(path, svg).map_err(|e| format!("{}: {e}", path.display()))
 }
 
+/// One stretch of the setpoint in force in a run plot: from `from_ms`
+/// (to the next stretch or the end), the power setpoint in APC or the
+/// current setpoint in ACC (`None`: none requested yet).
+#[derive(Clone, Debug, PartialEq)]
+pub struct SetpointStretch {
+    /// Start of the stretch, ms.
+    pub from_ms: f64,
+    /// Power setpoint in force, mW, while the mode is APC.
+    pub power_mw: Option<f64>,
+    /// Current setpoint in force, mA, while the mode is ACC.
+    pub current_ma: Option<f64>,
+}
+
+/// Reference lines a run plot draws beside its traces: the setpoint in
+/// force (dashed, in the power panel in APC and in the current panel in
+/// ACC) and, where the board declares `[laser_safety]`, the front-facet
+/// power at which the accessible emission reaches its class limit.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct PlotGuides {
+    /// The setpoint in force, stretch by stretch, in time order.
+    pub setpoints: Vec<SetpointStretch>,
+    /// (front-facet power, mW; legend text) of the class limit.
+    pub class_limit: Option<(f64, String)>,
+    /// Legend text for an intended class without a limit (Class 4).
+    pub class_note: Option<String>,
+}
+
+impl PlotGuides {
+    /// The setpoints a scenario's accepted requests put in force in `res`.
+    pub fn for_run(sc: &Scenario, res: &RunResult) -> Self {
+        let refused = refused_events(res);
+        let mut times: Vec<f64> = sc.events.iter().map(|e| e.at_ms).collect();
+        times.sort_by(f64::total_cmp);
+        times.dedup();
+        let mut setpoints: Vec<SetpointStretch> = Vec::new();
+        for t in std::iter::once(0.0).chain(times) {
+            let (p, i, mode) = in_force(sc, &refused, t);
+            let (power_mw, current_ma) = match mode {
+                ModeName::Apc => (p, None),
+                ModeName::Acc => (None, i),
+            };
+            if setpoints
+                .last()
+                .is_some_and(|l| l.power_mw == power_mw && l.current_ma == current_ma)
+            {
+                continue;
+            }
+            setpoints.push(SetpointStretch {
+                from_ms: t,
+                power_mw,
+                current_ma,
+            });
+        }
+        PlotGuides {
+            setpoints,
+            ..PlotGuides::default()
+        }
+    }
+
+    /// The same with a legend line saying that the intended `class` sets
+    /// no accessible emission limit (Class 4), so none is drawn.
+    pub fn with_unlimited_class(self, class: &str) -> Self {
+        PlotGuides {
+            class_note: Some(format!("Class {class}: no accessible emission limit")),
+            ..self
+        }
+    }
+
+    /// The same with the class limit line: `class` (its name), its
+    /// continuous accessible emission limit `ael_mw` and the accessible
+    /// fraction of the front-facet power.
+    pub fn with_class_limit(self, class: &str, ael_mw: f64, accessible_fraction: f64) -> Self {
+        let front_mw = ael_mw / accessible_fraction;
+        PlotGuides {
+            class_limit: Some((
+                front_mw,
+                format!(
+                    "Class {class} limit, CW: {} accessible = {} front",
+                    mw_text(ael_mw),
+                    mw_text(front_mw)
+                ),
+            )),
+            ..self
+        }
+    }
+}
+
+/// A power in mW or W with four significant digits.
+fn mw_text(mw: f64) -> String {
+    if mw >= 1000.0 {
+        format!("{:.4} W", mw * 1e-3)
+    } else {
+        format!("{mw:.4} mW")
+    }
+}
+
 /// The plot of [`write_svg`] as an SVG document.
-pub fn plot_svg(name: &str, res: &RunResult) -> Result<String, String> {
+pub fn plot_svg(name: &str, res: &RunResult, guides: &PlotGuides) -> Result<String, String> {
     let e = |x: &dyn std::fmt::Display| x.to_string();
     let bins = res.envelope.bins();
     let dt_ms = 1e3 / f64::from(res.tick_hz.max(1));
@@ -945,7 +1046,7 @@ pub fn plot_svg(name: &str, res: &RunResult) -> Result<String, String> {
                 .map_err(|x| e(&x))?;
             }
         }
-        for (area, (title, unit, lines)) in areas.iter().zip(panels.iter()) {
+        for (k, (area, (title, unit, lines))) in areas.iter().zip(panels.iter()).enumerate() {
             let (mut lo, mut hi) = (f64::MAX, f64::MIN);
             for b in bins {
                 for (_, _, c, _) in lines {
@@ -957,6 +1058,48 @@ pub fn plot_svg(name: &str, res: &RunResult) -> Result<String, String> {
                     }
                 }
             }
+            // The setpoint stretches of this panel, in its unit: power in
+            // the first panel, current in the second.
+            let stretches: Vec<(f64, f64, f64)> = guides
+                .setpoints
+                .iter()
+                .enumerate()
+                .filter_map(|(j, s)| {
+                    let v = match k {
+                        0 => s.power_mw,
+                        1 => s.current_ma,
+                        _ => None,
+                    }?;
+                    let to = guides
+                        .setpoints
+                        .get(j + 1)
+                        .map_or(t_end_ms, |n| n.from_ms.min(t_end_ms));
+                    (s.from_ms < t_end_ms).then_some((
+                        s.from_ms * tu.per_base,
+                        to * tu.per_base,
+                        v * unit.per_base,
+                    ))
+                })
+                .collect();
+            for &(_, _, v) in &stretches {
+                lo = lo.min(v);
+                hi = hi.max(v);
+            }
+            // The class limit joins the power panel's range when it is
+            // within three times the largest power drawn; else the legend
+            // says it is off the scale.
+            let class = match (k, &guides.class_limit, &guides.class_note) {
+                (0, Some((mw, text)), _) => {
+                    let v = mw * unit.per_base;
+                    let on_scale = lo <= hi && v <= 3.0 * hi.max(0.0);
+                    if on_scale {
+                        hi = hi.max(v);
+                    }
+                    Some((v, text.clone(), on_scale))
+                }
+                (0, None, Some(note)) => Some((f64::NAN, note.clone(), false)),
+                _ => None,
+            };
             if lo > hi {
                 (lo, hi) = (0.0, 1.0);
             }
@@ -964,7 +1107,8 @@ pub fn plot_svg(name: &str, res: &RunResult) -> Result<String, String> {
                 (lo, hi) = (lo - 0.5 * lo.abs().max(1e-3), hi + 0.5 * hi.abs().max(1e-3));
             }
             // Room above the data for the legend (one row per line).
-            let head = 0.15 + 0.15 * lines.len() as f64;
+            let extra = usize::from(!stretches.is_empty()) + usize::from(class.is_some());
+            let head = 0.15 + 0.2 * (lines.len() + extra) as f64;
             let (lo, hi) = (lo - (hi - lo) * 0.06, hi + (hi - lo) * head);
             let mut chart = ChartBuilder::on(area)
                 .caption(*title, ("sans-serif", 15))
@@ -1028,6 +1172,52 @@ pub fn plot_svg(name: &str, res: &RunResult) -> Result<String, String> {
                     .label(label)
                     .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], style));
             }
+            if !stretches.is_empty() {
+                // A step line: each stretch level, joined at the changes.
+                let mut path: Vec<(f64, f64)> = Vec::new();
+                for (j, &(from, to, v)) in stretches.iter().enumerate() {
+                    let joined = j > 0 && stretches[j - 1].1 >= from;
+                    if !joined && !path.is_empty() {
+                        chart
+                            .draw_series(DashedLineSeries::new(
+                                std::mem::take(&mut path),
+                                6,
+                                4,
+                                BLACK.stroke_width(1),
+                            ))
+                            .map_err(|x| e(&x))?;
+                    }
+                    path.push((from, v));
+                    path.push((to, v));
+                }
+                chart
+                    .draw_series(DashedLineSeries::new(path, 6, 4, BLACK.stroke_width(1)))
+                    .map_err(|x| e(&x))?
+                    .label("setpoint in force")
+                    .legend(|(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 16, y)], BLACK.stroke_width(1))
+                    });
+            }
+            if let Some((v, text, on_scale)) = class {
+                let col = RGBColor(120, 0, 170);
+                let pts = if on_scale {
+                    vec![(0.0, v), (x_end, v)]
+                } else {
+                    Vec::new()
+                };
+                let label = if on_scale || v.is_nan() {
+                    text
+                } else {
+                    format!("{text} (above the scale)")
+                };
+                chart
+                    .draw_series(DashedLineSeries::new(pts, 10, 4, col.stroke_width(2)))
+                    .map_err(|x| e(&x))?
+                    .label(label)
+                    .legend(move |(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2))
+                    });
+            }
             chart
                 .configure_series_labels()
                 .position(SeriesLabelPosition::UpperRight)
@@ -1041,6 +1231,10 @@ pub fn plot_svg(name: &str, res: &RunResult) -> Result<String, String> {
     }
     Ok(buf)
 }
+
+/// Opacity of the measured or simulated curves of the L-I-V plot, under
+/// their fitted lines.
+const LIV_CURVE_OPACITY: f64 = 0.4;
 
 /// Write the L-I-V plot of `curves` to `path` (see [`liv_svg`]).
 pub fn write_liv_svg(path: &Path, name: &str, curves: &[LivCurve]) -> Result<(), String> {
@@ -1113,18 +1307,27 @@ pub fn liv_svg(name: &str, curves: &[LivCurve]) -> Result<String, String> {
                     )
                 })
             };
+            // The curve broad and pale, so that the fitted line drawn on
+            // top of it (below) shows where the two coincide.
             chart
                 .draw_series(LineSeries::new(
                     c.points
                         .iter()
                         .map(|p| (p.i_ma * cu.per_base, p.p_mw * pu.per_base)),
-                    col.stroke_width(2),
+                    col.mix(LIV_CURVE_OPACITY).stroke_width(5),
                 ))
                 .map_err(|x| e(&x))?
                 .label(format!("{}{fit}", c.heating.label()))
                 .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2))
+                    PathElement::new(
+                        vec![(x, y), (x + 16, y)],
+                        col.mix(LIV_CURVE_OPACITY).stroke_width(5),
+                    )
                 });
+        }
+        // Threshold and fitted slope of every curve, over all the curves.
+        for (k, c) in curves.iter().enumerate() {
+            let col = colors[k % colors.len()];
             if let Some(f) = c.fit {
                 let th = f.threshold_ma * cu.per_base;
                 // The fitted line, from the threshold across the plot, so that
@@ -1134,9 +1337,9 @@ pub fn liv_svg(name: &str, curves: &[LivCurve]) -> Result<String, String> {
                 chart
                     .draw_series(DashedLineSeries::new(
                         vec![(th, 0.0), (to_ma * cu.per_base, line(to_ma) * pu.per_base)],
+                        8,
                         5,
-                        4,
-                        col.mix(0.8).stroke_width(1),
+                        col.stroke_width(2),
                     ))
                     .map_err(|x| e(&x))?;
                 chart
@@ -1241,10 +1444,12 @@ mod tests {
         let res = result(100_000, |t| {
             row(t, if t % 2 == 0 { 10.0 } else { 14.0 }, 40.0)
         });
-        let svg = plot_svg("t", &res).unwrap();
+        let svg = plot_svg("t", &res, &PlotGuides::default()).unwrap();
         assert!(svg.contains("<polygon"), "no band drawn");
         let steady = result(100_000, |t| row(t, 12.0, 40.0));
-        assert!(!plot_svg("t", &steady).unwrap().contains("<polygon"));
+        assert!(!plot_svg("t", &steady, &PlotGuides::default())
+            .unwrap()
+            .contains("<polygon"));
     }
 
     /// Where front power and monitor reading agree, both stay visible:
@@ -1253,7 +1458,7 @@ mod tests {
     #[test]
     fn front_power_is_drawn_over_the_monitor_reading() {
         let res = result(3_000, |t| row(t, 12.0, 40.0));
-        let svg = plot_svg("t", &res).unwrap();
+        let svg = plot_svg("t", &res, &PlotGuides::default()).unwrap();
         let line = |color: &str| {
             svg.find(&format!(
                 "<polyline fill=\"none\" opacity=\"0.55\" stroke=\"{color}\" stroke-width=\"5\""
@@ -1269,10 +1474,10 @@ mod tests {
     #[test]
     fn units_scale_with_the_board_and_the_run() {
         let big = result(400_000, |t| row(t, 4500.0, 5200.0));
-        let svg = plot_svg("t", &big).unwrap();
+        let svg = plot_svg("t", &big, &PlotGuides::default()).unwrap();
         assert!(svg.contains("\nW\n") && svg.contains("\nA\n") && svg.contains("time (s)"));
         let small = result(2_000, |t| row(t, 20.0, 45.0));
-        let svg = plot_svg("t", &small).unwrap();
+        let svg = plot_svg("t", &small, &PlotGuides::default()).unwrap();
         assert!(svg.contains("\nmW\n") && svg.contains("\nmA\n") && svg.contains("time (ms)"));
     }
 
@@ -1285,7 +1490,7 @@ mod tests {
             r.tj_c = f64::NAN;
             r
         });
-        assert!(plot_svg("t", &res).is_ok());
+        assert!(plot_svg("t", &res, &PlotGuides::default()).is_ok());
     }
 
     /// Labels of events at the same moment go on separate rows; one at the
@@ -1305,14 +1510,25 @@ mod tests {
     /// The L-I-V plot marks each curve's threshold (a dot on the current
     /// axis) and states threshold and slope in the legend, in A and W for
     /// a big module.
+    /// Two 100-point sweeps of `m` to `max_ma`.
+    fn two_sweeps(
+        m: &crate::plant::DemoModule,
+        a: crate::liv::Heating,
+        b: crate::liv::Heating,
+        max_ma: f64,
+    ) -> [LivCurve; 2] {
+        [a, b].map(|h| crate::liv::sweep(m, h, max_ma, 100).unwrap())
+    }
+
     #[test]
     fn liv_plot_marks_threshold_and_slope() {
-        use crate::liv::{sweep, Heating};
-        let m = crate::plant::DemoModule::pump();
-        let curves = [
-            sweep(&m, Heating::Isothermal { junction_c: 25.0 }, 8000.0, 100).unwrap(),
-            sweep(&m, Heating::SelfHeated { case_c: 25.0 }, 8000.0, 100).unwrap(),
-        ];
+        use crate::liv::Heating;
+        let curves = two_sweeps(
+            &crate::plant::DemoModule::pump(),
+            Heating::Isothermal { junction_c: 25.0 },
+            Heating::SelfHeated { case_c: 25.0 },
+            8000.0,
+        );
         let svg = liv_svg("pump", &curves).unwrap();
         for c in &curves {
             let f = c.fit.unwrap();
@@ -1321,6 +1537,92 @@ mod tests {
         }
         assert_eq!(svg.matches("<circle").count(), 2);
         assert!(svg.contains("current (A)") && svg.contains("front (W)"));
+    }
+
+    /// The fitted slope line is drawn over the curves, not under its own:
+    /// every curve is drawn (broad and pale) before any fitted line, and
+    /// each fitted line in its curve's full colour.
+    #[test]
+    fn liv_plot_draws_the_fitted_line_over_its_curve() {
+        use crate::liv::Heating;
+        let curves = two_sweeps(
+            &crate::plant::DemoModule::visible(),
+            Heating::Isothermal { junction_c: 25.0 },
+            Heating::Isothermal { junction_c: 60.0 },
+            60.0,
+        );
+        let svg = liv_svg("red", &curves).unwrap();
+        let pale = format!("opacity=\"{LIV_CURVE_OPACITY}\"");
+        let last_curve = svg
+            .match_indices("<polyline")
+            .filter(|(i, _)| {
+                // A curve (not its two-point legend sample).
+                let el = svg[*i..].split('>').next().unwrap();
+                el.contains(&pale) && el.matches(',').count() > 2
+            })
+            .map(|(i, _)| i)
+            .last()
+            .expect("pale curves");
+        for col in ["#143CC8", "#C81E1E"] {
+            let fitted = svg
+                .match_indices("<polyline")
+                .map(|(i, _)| (i, svg[i..].split('>').next().unwrap()))
+                .find(|(_, el)| {
+                    el.contains(&format!("stroke=\"{col}\""))
+                        && el.contains("stroke-width=\"2\"")
+                        && el.contains("opacity=\"1\"")
+                })
+                .unwrap_or_else(|| panic!("no full-colour line in {col}"))
+                .0;
+            assert!(fitted > last_curve, "{col}: fitted line under a curve");
+        }
+    }
+
+    /// A run plot draws the setpoint in force (its stretches follow the
+    /// accepted requests, not the refused one) and, given one, the class
+    /// limit line with its legend.
+    #[test]
+    fn run_plot_shows_the_setpoint_and_the_class_limit() {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../examples/demo-red-30/board.toml");
+        let b = crate::board_file::load_board(&path).unwrap();
+        let sc = crate::scenario::parse(
+            "name = \"sp\"\nboard = \"board.toml\"\nduration_ms = 30\nambient_c = 25\nseed = 3\n\
+             [[event]]\nat_ms = 0.5\ndo = \"set-power\"\nmw = 15\n\
+             [[event]]\nat_ms = 1\ndo = \"enable\"\n\
+             [[event]]\nat_ms = 15\ndo = \"set-power\"\nmw = 12\n\
+             [[event]]\nat_ms = 20\ndo = \"set-power\"\nmw = 40\n",
+        )
+        .unwrap();
+        let res = crate::sim::run(&sc, &b.module, b.valid, b.latency).unwrap();
+        let g = PlotGuides::for_run(&sc, &res);
+        let levels: Vec<(f64, Option<f64>)> = g
+            .setpoints
+            .iter()
+            .map(|s| (s.from_ms, s.power_mw))
+            .collect();
+        assert_eq!(
+            levels,
+            [(0.0, None), (0.5, Some(15.0)), (15.0, Some(12.0))],
+            "{g:?}"
+        );
+        let svg = plot_svg("sp", &res, &g).unwrap();
+        assert!(svg.contains("setpoint in force"));
+        assert!(!svg.contains("Class "));
+        let g = g.with_class_limit("1", 0.78, 0.5);
+        assert_eq!(g.class_limit.as_ref().unwrap().0, 1.56);
+        let svg = plot_svg("sp", &res, &g).unwrap();
+        assert!(svg.contains("Class 1 limit, CW: 0.7800 mW accessible = 1.5600 mW front\n"));
+        // A limit far above the run (Class 3B on this board) is named in
+        // the legend, not drawn.
+        let none = PlotGuides::for_run(&sc, &res).with_unlimited_class("4");
+        let svg = plot_svg("sp", &res, &none).unwrap();
+        assert!(svg.contains("Class 4: no accessible emission limit"));
+        let far = g.with_class_limit("3B", 500.0, 1.0);
+        let svg = plot_svg("sp", &res, &far).unwrap();
+        assert!(svg.contains(
+            "Class 3B limit, CW: 500.0000 mW accessible = 500.0000 mW front (above the scale)"
+        ));
     }
 
     proptest! {
@@ -1353,15 +1655,15 @@ mod summary_tests {
     use crate::scenario::parse;
 
     /// The demo red board at 50 degC ambient: the derated ceiling holds the
-    /// power far below the 25 mW asked for; a 40 mW request is refused (the
-    /// board's highest setpoint is 30 mW).
+    /// power far below the 18 mW asked for (the board's highest setpoint,
+    /// held at 25 degC); a 40 mW request is refused.
     fn hot_run() -> (Scenario, RunResult) {
         let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
             .join("../examples/demo-red-30/board.toml");
         let b = load_board(&path).unwrap();
         let sc = parse(
             "name = \"hot\"\nboard = \"board.toml\"\nduration_ms = 60\nambient_c = 50\nseed = 3\n\
-             [[event]]\nat_ms = 0.5\ndo = \"set-power\"\nmw = 25\n\
+             [[event]]\nat_ms = 0.5\ndo = \"set-power\"\nmw = 18\n\
              [[event]]\nat_ms = 1\ndo = \"enable\"\n\
              [[event]]\nat_ms = 30\ndo = \"set-power\"\nmw = 40\n",
         )
@@ -1411,7 +1713,7 @@ mod summary_tests {
         let u = &s.unreached[0];
         assert!(u.from_ms < 10.0 && u.to_ms.is_none(), "{u:?}");
         let t = u.target.as_ref().unwrap();
-        assert_eq!((t.setpoint, t.unit), (25.0, "mW"));
+        assert_eq!((t.setpoint, t.unit), (18.0, "mW"));
         // The power reached is what the plant gave at the end.
         let last = res.trace.last().unwrap().p_mw;
         assert!(
@@ -1419,7 +1721,7 @@ mod summary_tests {
             "{} vs {last}",
             t.reached
         );
-        assert_eq!(t.shortfall, Some(25.0 - t.reached));
+        assert_eq!(t.shortfall, Some(18.0 - t.reached));
         assert!(t.reached < 20.0, "{t:?}");
         // The ceiling it sits on is the derated one, below the 50 mA ceiling.
         assert!(u.ceiling_ma < 48.0, "{}", u.ceiling_ma);
@@ -1434,9 +1736,9 @@ mod summary_tests {
         );
         assert!(
             text.contains(&format!(
-                "{:.3} mW ({:.1} %) short of the 25 mW setpoint",
-                25.0 - t.reached,
-                4.0 * (25.0 - t.reached)
+                "{:.3} mW ({:.1} %) short of the 18 mW setpoint",
+                18.0 - t.reached,
+                100.0 * (18.0 - t.reached) / 18.0
             )),
             "{text}"
         );

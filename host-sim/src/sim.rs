@@ -1275,7 +1275,7 @@ mod tests {
     /// to 1e-12 V.
     #[test]
     fn fast_plant_equals_reference_plant() {
-        for (name, mw) in [("demo-red-30", 20.0), ("demo-pump-5w", 3000.0)] {
+        for (name, mw) in [("demo-red-30", 15.0), ("demo-pump-5w", 3000.0)] {
             let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
                 .join("../examples")
                 .join(name)

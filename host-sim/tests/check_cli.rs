@@ -38,7 +38,7 @@ fn run_passes_the_shipped_expectations_and_writes_both_summaries() {
     assert!(text.contains("expectations: 8 of 8 passed"), "{text}");
     assert!(
         text.contains(
-            "  PASS holds 20 mW: front power within 19.8 to 20.2 mW from 12 to 40 ms (line "
+            "  PASS holds 15 mW: front power within 14.85 to 15.15 mW from 12 to 40 ms (line "
         ),
         "{text}"
     );
@@ -75,7 +75,7 @@ fn run_exits_non_zero_when_an_expectation_fails() {
         "{text}"
     );
     assert!(
-        text.contains("measured peak 20.3215 mW at 100.350 ms"),
+        text.contains("measured peak 20.3584 mW at 100.600 ms"),
         "{text}"
     );
     assert!(text.contains("error: 1 of 9 expectations failed"), "{text}");
@@ -123,7 +123,7 @@ fn check_runs_a_suite_writes_junit_and_fails_on_any_failure() {
     ]);
     assert!(!ok, "{text}");
     assert!(text.contains("3 scenarios, 2 passed, 1 failed"), "{text}");
-    assert!(text.contains("expected monitor-loss latches within 0.5 ms after the monitor-open injection; measured latched at 101.250 ms"), "{text}");
+    assert!(text.contains("expected monitor-loss latches within 0.5 ms after the monitor-open injection; measured latched at 101.500 ms"), "{text}");
     let xml = std::fs::read_to_string(&junit).unwrap();
     assert!(xml.starts_with("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<testsuites name=\"diodestat check\" tests=\"25\" failures=\"1\" errors=\"0\""), "{xml}");
     // The shipped scenarios alone pass.

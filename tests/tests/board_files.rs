@@ -34,9 +34,11 @@ fn red_board_file_is_the_configuration_the_simulator_used_before() {
     let mut before = calibration::calibrate(example::config(), &DemoModule::visible());
     // The board lowers the demo configuration's current ceiling (50 mA
     // gave about 33 mW, above the module's 30 mW rating, at 0 degC) and
-    // its largest setpoint; everything else is the demo configuration.
+    // its largest setpoint to what that ceiling holds at 25 degC once warm
+    // (`red_board_holds_its_largest_setpoint_warm`); everything else is the
+    // demo configuration.
     before.current.ceiling_iu = Fx::from_num(46);
-    before.power.max_setpoint_ou = Fx::from_num(25);
+    before.power.max_setpoint_ou = Fx::from_num(18);
     assert_eq!(b.config, before);
     assert_eq!(b.module, DemoModule::visible());
     assert_eq!(b.module_name, "demo-visible-650");
@@ -98,6 +100,44 @@ fn pump_board_limits_fit_the_pump_module() {
     );
     // Every milliampere value is far inside the core's I16F16 range.
     assert!(c.current.absolute_max_iu < Fx::from_num(16_000));
+}
+
+/// The red board's largest setpoint is held at the nominal corner (25 degC
+/// ambient) once the module is warm (the steady-state junction temperature
+/// of the thermal path at that drive), with at least 2 % of the ceiling to
+/// spare; and at the cold corner the ceiling stays within the module's
+/// rated power, which is why the ceiling cannot simply rise. With the
+/// largest setpoint at 25 mW the warm module needed about 55 mA against
+/// the 46 mA ceiling (and 20 mW, the old start-up level, about 47 mA).
+#[test]
+fn red_board_holds_its_largest_setpoint_warm() {
+    let b = shipped("demo-red-30");
+    let c = &b.config;
+    let max = c.power.max_setpoint_ou.to_num::<f64>();
+    let ceiling = c.current.ceiling_iu.to_num::<f64>();
+    let corners = standard_corners(&b.valid, max);
+    let a = analyse_corners(&b.module, &b.valid, &corners, &CornerOptions::default()).unwrap();
+    let nominal = a
+        .iter()
+        .find(|x| x.corner.corner.name == "nominal")
+        .unwrap();
+    let p = &nominal.corner.point;
+    let need = p.required_ma.expect("within the absolute limit");
+    println!(
+        "{max} mW at 25 degC warm: {need:.2} mA (junction {:.2} degC), ceiling {ceiling} mA",
+        p.tj_c
+    );
+    assert!(!p.at_ceiling, "{need} mA against the {ceiling} mA ceiling");
+    assert!(need < 0.98 * ceiling, "{need} mA against {ceiling} mA");
+    assert!(p.tj_c > 30.0, "warm: junction {} degC", p.tj_c);
+    let diode = diodestat_sim::plant::Diode::new(b.module.diode.clone()).unwrap();
+    let cold_w = diode
+        .quasi_static(ceiling * 1e-3, diodestat_sim::plant::c_to_k(0.0))
+        .p_front_w;
+    assert!(
+        cold_w <= 1.02 * b.module.rated_power_w,
+        "{cold_w} W at the ceiling, 0 degC"
+    );
 }
 
 #[test]

@@ -36,11 +36,11 @@ fn variant(name: &str, edit: impl Fn(String) -> String) -> LoadedBoard {
 }
 
 /// The red board as first configured: a 50 mA current ceiling and a
-/// 30 mW largest setpoint (today 46 mA and 25 mW).
+/// 30 mW largest setpoint (today 46 mA and 18 mW).
 fn red_as_first_configured(t: String) -> String {
     let edited = t
         .replace("ceiling_ma = 46 ", "ceiling_ma = 50 ")
-        .replace("max_setpoint_mw = 25", "max_setpoint_mw = 30");
+        .replace("max_setpoint_mw = 18", "max_setpoint_mw = 30");
     assert_ne!(edited, t, "the red board's ceiling line moved");
     edited
 }

@@ -103,6 +103,41 @@ fn synthetic_sweeps_give_back_the_known_figures() {
     }
 }
 
+/// The fit's 95 % intervals cover the noise only, not model error: on
+/// synthetic sweeps of a known part the slope's bias is many times its
+/// interval. The report (`fit.md` and `fit.json`) says so, with the
+/// figures measured here.
+#[test]
+fn the_report_says_its_intervals_cover_noise_only() {
+    let t = truth();
+    let r = fit::fit_all(
+        &synthetic(1),
+        Path::new("synthetic"),
+        fit::KINK_TOL,
+        808.0,
+        0.28,
+    )
+    .unwrap();
+    let f = &r.sweeps[r.reference];
+    let (sl, ci) = (f.slope_w_per_a.value, f.slope_w_per_a.ci95);
+    let bias = t.diode.slope_w_per_a - sl;
+    println!(
+        "slope {sl:.4} ± {ci:.4} W/A against a true {} W/A",
+        t.diode.slope_w_per_a
+    );
+    assert!(bias > 10.0 * ci, "bias {bias} against the interval {ci}");
+    // The figures the statement quotes.
+    assert!(fit::INTERVAL_SCOPE.contains(&format!(
+        "{sl:.4} ± {ci:.4} W/A against a true {} W/A",
+        t.diode.slope_w_per_a
+    )));
+    let md = fit::markdown(&r, "synthetic.csv", "x");
+    assert!(md.contains(fit::INTERVAL_SCOPE));
+    assert!(md.contains("They do not cover model error"));
+    let json: serde_json::Value = serde_json::to_value(&r).unwrap();
+    assert_eq!(json["interval_scope"], fit::INTERVAL_SCOPE);
+}
+
 #[test]
 fn fit_agrees_with_scipy_curve_fit() {
     if !python_has("scipy, numpy") {

@@ -279,7 +279,7 @@ fn red_board_at_1_khz_oscillates_and_the_summary_says_so() {
     let sc_text = std::fs::read_to_string(dir.join("startup.toml")).unwrap();
     let sc = scenario::parse(&sc_text).unwrap();
     let b = parse_board(&text, &dir).unwrap();
-    let l = nominal(&b, &b.valid, 20.0);
+    let l = nominal(&b, &b.valid, 15.0);
     assert!(!loop_margins(&l.params).closed_loop_stable);
     let r = sim::run(&sc, &b.module, b.valid.clone(), b.latency).unwrap();
     assert_eq!(r.final_state, State::Latched);

@@ -10,7 +10,7 @@ use diodestat_core::{
 
 /// `config().validate()?.fingerprint()` as the simulator computed it: the board computes it
 /// again at start and reports both (a hand-edited constant below makes them differ).
-pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0xb6a19bb4702292a4);
+pub const CONFIG_FINGERPRINT: Fingerprint = Fingerprint::from_u64(0xd7ab6083797370f9);
 
 /// `TEMP_CAL_TABLE`: a table of the configuration, in `config()`.
 pub const TEMP_CAL_TABLE: [TempPoint; 25] = [
@@ -126,7 +126,7 @@ pub fn config() -> Config {
         },
         power: PowerRange {
             min_setpoint_ou: Fx::from_bits(65536),   // 1 mW
-            max_setpoint_ou: Fx::from_bits(1638400), // 25 mW
+            max_setpoint_ou: Fx::from_bits(1179648), // 18 mW
         },
         ramp: Ramps {
             emission_delay_ms: 2,                        // 2 ms

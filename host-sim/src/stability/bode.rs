@@ -145,6 +145,11 @@ fn fmt_axis_hz(f: f64) -> String {
     }
 }
 
+/// Frequency ratio between gain-margin bars of corners that share a phase
+/// crossover: a few pixels apart on the plot's log axis (drawing only; the
+/// legend and the label give each corner's own frequency and margin).
+const GM_BAR_STEP: f64 = 1.04;
+
 /// Text height of the margin labels, px.
 const MARK_FONT_PX: f64 = 13.0;
 /// Average advance of one character of the margin labels, px (generous).
@@ -355,6 +360,11 @@ fn draw(
 
     // Margin labels: anchor (px), text, colour; placed after the curves.
     let mut marks: Vec<(i32, i32, String, RGBColor)> = Vec::new();
+    // Gain-margin bars already drawn, by frequency: corners that share a
+    // phase crossover (a gain spread moves |L|, not the phase) would draw
+    // their bars on one line, each hiding the one before, with their
+    // labels on top of each other.
+    let mut gm_bars: Vec<f64> = Vec::new();
     for (i, ((l, d), m)) in loops.iter().zip(&data).zip(&ms).enumerate() {
         let c = COLORS[i % COLORS.len()];
         let pts = |ys: &[f64]| -> Vec<(f64, f64)> {
@@ -412,12 +422,20 @@ fn draw(
                 ph.draw_series(std::iter::once(Circle::new((f, p), 4, c.filled())))
                     .map_err(err)?;
             }
+            // The bar beside those of earlier corners at the same
+            // frequency (within 1 %): GM_BAR_STEP further right for each.
+            let same = gm_bars
+                .iter()
+                .filter(|g| (*g / f).ln().abs() < 0.01)
+                .count();
+            gm_bars.push(f);
+            let fb = f * GM_BAR_STEP.powi(same as i32);
             mag.draw_series(std::iter::once(PathElement::new(
-                vec![(f, y.max(mag_lo)), (f, 0.0)],
+                vec![(fb, y.max(mag_lo)), (fb, 0.0)],
                 c.stroke_width(3),
             )))
             .map_err(err)?;
-            let (x, y) = mag.backend_coord(&(f, 0.5 * y.max(mag_lo)));
+            let (x, y) = mag.backend_coord(&(fb, 0.5 * y.max(mag_lo)));
             marks.push((x, y, format!("GM {:.1} dB", m.gm_db), c));
         }
     }
@@ -521,6 +539,26 @@ mod tests {
         let ma = margins(&a);
         assert!(svg.contains(&format!("PM {:.1} deg", ma.pm_deg)));
         assert!(bode_svg("empty", &[]).is_err());
+        // The two loops share their phase crossover (b is a scaled): their
+        // gain-margin bars stand side by side, not on one line.
+        let mut bars: Vec<&str> = svg
+            .split("<polyline")
+            .skip(1)
+            .map(|el| el.split('>').next().unwrap())
+            .filter(|el| el.contains("stroke-width=\"3\""))
+            .filter_map(|el| {
+                let pts = el.split("points=\"").nth(1)?.split('"').next()?;
+                let xs: Vec<&str> = pts
+                    .split_whitespace()
+                    .map(|p| p.split(',').next().unwrap())
+                    .collect();
+                (xs.len() == 2 && xs[0] == xs[1]).then_some(xs[0])
+            })
+            .collect();
+        assert_eq!(bars.len(), 4, "two PM and two GM bars");
+        bars.sort_unstable();
+        bars.dedup();
+        assert_eq!(bars.len(), 4, "bars on one line: {bars:?}");
         // Every decade in range is labelled.
         for want in ["\n100\n", "\n1k\n"] {
             assert!(svg.contains(want), "missing decade label {want:?}");

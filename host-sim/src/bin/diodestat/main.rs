@@ -298,6 +298,12 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
         csv: diodestat_sim::trace::CsvTrace::new(file),
         bar: diodestat_sim::progress::bar(n_ticks, "ticks"),
     };
+    // The class limit the plot draws, where the board declares [laser_safety].
+    let class_limit = loaded
+        .board
+        .pass_lines
+        .as_ref()
+        .map(|l| (l.class.name(), l.ael.cw_w(), l.accessible_fraction));
     let ran = loaded.run_streamed(&mut sink);
     sink.bar.finish_and_clear();
     let written = sink.csv.finish();
@@ -306,7 +312,15 @@ fn run(path: &Path, out: &Path) -> Result<(), String> {
     let (sc, res, secs) = (&ran.scenario, &ran.result, ran.seconds);
     let summary = report::summary(sc, res, ran.outcomes.clone());
     let text = summary.text();
-    report::write_svg(&stage.path("plot.svg"), &sc.name, res)?;
+    let mut guides = report::PlotGuides::for_run(sc, res);
+    guides = match class_limit {
+        Some((class, Some(ael_w), fraction)) => {
+            guides.with_class_limit(class, ael_w * 1e3, fraction)
+        }
+        Some((class, None, _)) => guides.with_unlimited_class(class),
+        None => guides,
+    };
+    report::write_svg(&stage.path("plot.svg"), &sc.name, res, &guides)?;
     std::fs::write(stage.path("summary.txt"), &text)
         .map_err(|e| format!("{}: {e}", out.join("summary.txt").display()))?;
     std::fs::write(stage.path("summary.json"), summary.json())
