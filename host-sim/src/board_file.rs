@@ -477,7 +477,13 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
     let config = to_config(&file, &module, base_dir).map_err(|(key, why)| invalid_at(key, why))?;
     let valid = config.clone().validate().map_err(|source| {
         let (key, why) = refusal(&source, &config, &file);
-        let key = written_key(text, &key);
+        let written = written_key(text, &key);
+        let why = if written != key && is_si_key(&written) {
+            in_si_units(&why, text)
+        } else {
+            why
+        };
+        let key = written;
         let place = place_of(text, &key).or_else(|| {
             key.starts_with("calibration.")
                 .then(|| place_of(text, "calibration.from"))
@@ -664,6 +670,83 @@ fn written_key(text: &str, key: &str) -> String {
     } else {
         key.to_string()
     }
+}
+
+/// The key names its value in an SI unit (`_a`, `_w`, `_v`, alone or in
+/// a ratio such as `_a_per_w`).
+fn is_si_key(key: &str) -> bool {
+    let name = key.rsplit_once('.').map_or(key, |(_, n)| n);
+    name.split('_').any(|t| matches!(t, "a" | "w" | "v"))
+}
+
+/// A refusal written in milli units (mA, mW, mV) restated in the SI units
+/// (A, W, V) for a file that writes the refused key in SI: each number
+/// before a unit (a range's ends too) is rescaled, the unit renamed, and
+/// every key the message names is spelled as the file writes it.
+fn in_si_units(why: &str, text: &str) -> String {
+    // Unit, its SI name, and the factor from the milli value to the SI one.
+    const UNITS: [(&str, &str, f64); 10] = [
+        ("mA/(mW ms)", "A/(W ms)", 1.0),
+        ("mA/mW", "A/W", 1.0),
+        ("codes/mA", "codes/A", 1e3),
+        ("mA/ms", "A/ms", 1e-3),
+        ("mW/ms", "W/ms", 1e-3),
+        ("mV/ms", "V/ms", 1e-3),
+        ("mA", "A", 1e-3),
+        ("mW", "W", 1e-3),
+        ("mV", "V", 1e-3),
+        ("mA/(mW", "A/(W", 1.0),
+    ];
+    let mut words: Vec<String> = why.split(' ').map(str::to_string).collect();
+    let trim = |w: &str| {
+        w.trim_matches(|c: char| matches!(c, '(' | ')' | '[' | ']' | ',' | ';' | ':'))
+            .to_string()
+    };
+    for i in 0..words.len() {
+        let core = trim(&words[i]);
+        let Some(&(milli, si, factor)) = UNITS.iter().find(|(m, _, _)| *m == core) else {
+            if core.contains('.') && core.contains('_') {
+                let w = written_key(text, &core);
+                if w != core {
+                    words[i] = words[i].replace(&core, &w);
+                }
+            }
+            continue;
+        };
+        words[i] = words[i].replacen(milli, si, 1);
+        // The numbers just before the unit: `50`, `(0, 50]`, `0 ..= 50`,
+        // `-5 ..= 5`.
+        let mut j = i;
+        while j > 0 {
+            j -= 1;
+            let n = trim(&words[j]);
+            if n == "..=" {
+                continue;
+            }
+            match n.parse::<f64>() {
+                Ok(v) if !n.is_empty() => {
+                    words[j] = words[j].replacen(&n, &num_f64_fine(v * factor), 1);
+                }
+                _ => break,
+            }
+        }
+    }
+    words.join(" ")
+}
+
+/// A number for a message, to 7 significant digits.
+fn num_f64_fine(x: f64) -> String {
+    if x == 0.0 {
+        return "0".into();
+    }
+    let digits = 6 - x.abs().log10().floor() as i32;
+    let r = if digits > 0 {
+        let p = 10f64.powi(digits.min(15));
+        (x * p).round() / p
+    } else {
+        x
+    };
+    format!("{r}")
 }
 
 /// The board's units for a parsed file: each quantity's decade from the
@@ -1441,6 +1524,41 @@ table_points = 25
         parse_board(text, Path::new("dir")).unwrap_err().to_string()
     }
 
+    /// A file that writes its currents in amperes is refused in amperes:
+    /// the limit, the accepted range and the keys they name as written
+    /// (the core's check stated them in mA, as `current.ceiling_ma`).
+    #[test]
+    fn refusal_of_an_si_key_speaks_its_unit() {
+        let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/demo-pump-18w");
+        let text = std::fs::read_to_string(dir.join("board.toml")).unwrap();
+        let bad = |from: &str, to: &str| {
+            assert!(text.contains(from), "{from}");
+            parse_board(&text.replace(from, to), &dir)
+                .unwrap_err()
+                .to_string()
+        };
+        let e = bad("ceiling_a = 22 ", "ceiling_a = 30 ");
+        assert!(
+            e.contains("current.ceiling_a = 30: must not exceed current.absolute_max_a = 24 A"),
+            "{e}"
+        );
+        let e = bad("monitor_loss_drive_a = 18 ", "monitor_loss_drive_a = 25 ");
+        assert!(
+            e.contains("monitor_loss_drive_a = 25: must be in (0, current.ceiling_a = 22] A"),
+            "{e}"
+        );
+        assert!(!e.contains("mA"), "{e}");
+        // The milli-unit file keeps its units.
+        let e = err(&MINIMAL.replace("ceiling_ma = 50", "ceiling_ma = 70"));
+        assert!(e.contains("current.absolute_max_ma = 60 mA"), "{e}");
+        // Ranges and ratios are restated too.
+        assert_eq!(
+            in_si_units("must be in -5 ..= 2500 mA/ms, gain 3 mA/mW", ""),
+            "must be in -0.005 ..= 2.5 A/ms, gain 3 A/W"
+        );
+        assert!(is_si_key("apc.kp_a_per_w") && !is_si_key("apc.kp_ma_per_mw"));
+    }
+
     #[test]
     fn minimal_file_loads() {
         let b = parse_board(MINIMAL, Path::new("dir")).unwrap();
@@ -1619,9 +1737,10 @@ table_points = 25
             e.contains("current.ceiling_ma: missing: give `current.ceiling_ma` or, in the SI unit, `current.ceiling_a`"),
             "{e}"
         );
-        // A refusal of the core names the key as written.
+        // A refusal of the core names the key as written, and states the
+        // limit in that key's unit (the other key keeps its spelling).
         let e = err(&MINIMAL.replace("overcurrent_ma = 55", "overcurrent_a = 0.045"));
-        assert!(e.contains("line 26, column 17: protection.overcurrent_a = 0.045: must be above current.ceiling_ma = 50 mA"), "{e}");
+        assert!(e.contains("line 26, column 17: protection.overcurrent_a = 0.045: must be above current.ceiling_ma = 0.05 A"), "{e}");
         // A value beyond the units, in the key's unit.
         let e = err(&MINIMAL.replace("mismatch_tolerance_ma = 5", "mismatch_tolerance_a = 1e6"));
         assert!(
