@@ -49,14 +49,14 @@ enum Cmd {
         module: String,
         /// Junction temperatures of isothermal sweeps, degC (-55 to 150; default 25 unless
         /// --case-c is given).
-        #[arg(long, value_delimiter = ',', value_parser = finite_in(-55.0, 150.0, " degC"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_delimiter = ',', value_parser = finite_in(-55.0, 150.0, " degC"))]
         temps_c: Option<Vec<f64>>,
         /// Case temperatures of CW sweeps with self-heating through the module's
         /// junction-to-case resistance, degC (-55 to 125).
-        #[arg(long, value_delimiter = ',', value_parser = finite_in(-55.0, 125.0, " degC"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_delimiter = ',', value_parser = finite_in(-55.0, 125.0, " degC"))]
         case_c: Vec<f64>,
         /// Highest current, mA, above 0 and at most the driver's full scale (the default).
-        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mA"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mA"))]
         max_ma: Option<f64>,
         /// Output folder.
         #[arg(long, default_value = "out")]
@@ -76,7 +76,7 @@ enum Cmd {
         #[arg(long)]
         name: Option<String>,
         /// Slope step above threshold reported as a kink, fraction of the slope (0 to 1).
-        #[arg(long, default_value_t = diodestat_sim::fit::KINK_TOL, value_parser = finite_in(f64::MIN_POSITIVE, 1.0, ""))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, default_value_t = diodestat_sim::fit::KINK_TOL, value_parser = finite_in(f64::MIN_POSITIVE, 1.0, ""))]
         kink_tol: f64,
         /// Output folder for module.toml, fit.md, fit.json and fit.svg.
         #[arg(long, default_value = "out")]
@@ -100,22 +100,28 @@ enum Cmd {
         #[arg(long, value_delimiter = ',', num_args = 1, allow_hyphen_values = true, default_value = "0,40", value_parser = finite_in(-55.0, 125.0, " degC"))]
         ambient_c: Vec<f64>,
         /// Setpoints, mW, within the board's range (default: two thirds of the highest).
-        #[arg(long, value_delimiter = ',', value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_delimiter = ',', value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
         setpoints_mw: Option<Vec<f64>>,
         /// Longest watch window of a slow fault (heatsink loss, aging, degrading monitor), s.
-        #[arg(long, default_value_t = 20.0, value_parser = finite_in(0.001, 600.0, " s"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, default_value_t = 20.0, value_parser = finite_in(0.001, 600.0, " s"))]
         slow_bound_s: f64,
         /// Monte Carlo: replace the corners with N parts drawn from the module's tolerances (at 25 degC).
-        #[arg(long, conflicts_with = "corners", value_parser = clap::value_parser!(u32).range(1..=100_000))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, conflicts_with = "corners", value_parser = clap::value_parser!(u32).range(1..=100_000))]
         parts: Option<u32>,
         /// Seed of the Monte Carlo parts.
-        #[arg(long, default_value_t = 1, requires = "parts")]
+        #[arg(
+            long,
+            allow_hyphen_values = true,
+            num_args = 1,
+            default_value_t = 1,
+            requires = "parts"
+        )]
         parts_seed: u64,
         /// Monte Carlo: run the slow faults (heatsink loss, aging, degrading monitor) on the first N parts only.
-        #[arg(long, default_value_t = diodestat_sim::campaign::SLOW_PARTS, requires = "parts")]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, default_value_t = diodestat_sim::campaign::SLOW_PARTS, requires = "parts")]
         slow_parts: u32,
         /// Run only slice K of N (cases numbered K-1 modulo N); merge the slices with campaign-merge.
-        #[arg(long, value_parser = shard)]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = shard)]
         shard: Option<(u32, u32)>,
         /// Switch one protection off for this campaign, to see which faults it must catch: overcurrent,
         /// monitor-runaway, drive-mismatch, monitor-loss, over-temperature or power-implausible
@@ -153,11 +159,11 @@ enum Cmd {
         #[arg(long, default_value = "out")]
         out: PathBuf,
         /// Setpoint of the corners, mW, within the board's setpoint range (default: two thirds of the board's highest setpoint).
-        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
         setpoint_mw: Option<f64>,
         /// Largest overshoot of the optical power, % of the step (default: the board file's
         /// `[loop_check] max_overshoot_pct`, else 10); 0 to 100.
-        #[arg(long, value_parser = finite_in(0.0, 100.0, " %"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = finite_in(0.0, 100.0, " %"))]
         max_overshoot_pct: Option<f64>,
     },
     /// Propose PI gains for a crossover or bandwidth target keeping the margins at every plant corner.
@@ -167,22 +173,24 @@ enum Cmd {
         /// Target gain crossover of the highest-gain corner, Hz.
         #[arg(
             long,
+            allow_hyphen_values = true,
+            num_args = 1,
             conflicts_with = "bandwidth_hz",
             required_unless_present = "bandwidth_hz",
             value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " Hz")
         )]
         crossover_hz: Option<f64>,
         /// Target closed-loop bandwidth of the slowest corner, Hz (below half the tick rate).
-        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " Hz"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " Hz"))]
         bandwidth_hz: Option<f64>,
         /// Setpoint of the corners, mW, within the board's setpoint range (default: two thirds of the board's highest setpoint).
-        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
         setpoint_mw: Option<f64>,
         /// Phase margin every corner keeps, degrees (0 to 90).
-        #[arg(long, default_value_t = loop_cmd::TUNE_PM_DEG, value_parser = finite_in(0.0, 90.0, " deg"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, default_value_t = loop_cmd::TUNE_PM_DEG, value_parser = finite_in(0.0, 90.0, " deg"))]
         min_pm_deg: f64,
         /// Gain margin every corner keeps, dB (0 to 60).
-        #[arg(long, default_value_t = loop_cmd::TUNE_GM_DB, value_parser = finite_in(0.0, 60.0, " dB"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, default_value_t = loop_cmd::TUNE_GM_DB, value_parser = finite_in(0.0, 60.0, " dB"))]
         min_gm_db: f64,
         /// Write the proposed gains into the apc table of the board file, in place
         /// (comments and layout kept).
@@ -201,11 +209,11 @@ enum Cmd {
         #[arg(long)]
         out: Option<PathBuf>,
         /// Setpoint of the corners, mW, within each board's setpoint range (default: two thirds of each board's highest setpoint).
-        #[arg(long, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = finite_in(f64::MIN_POSITIVE, f64::MAX, " mW"))]
         setpoint_mw: Option<f64>,
         /// Largest overshoot of the optical power, % of the step (default: the board file's
         /// `[loop_check] max_overshoot_pct`, else 10); 0 to 100.
-        #[arg(long, value_parser = finite_in(0.0, 100.0, " %"))]
+        #[arg(long, allow_hyphen_values = true, num_args = 1, value_parser = finite_in(0.0, 100.0, " %"))]
         max_overshoot_pct: Option<f64>,
     },
     /// Export a board configuration file as Rust source, with its fingerprint.
@@ -855,6 +863,68 @@ mod tests {
             panic!("not the campaign command");
         };
         assert_eq!(ambient_c, [-10.0, 50.0]);
+    }
+
+    /// Every option that takes a number or a list of numbers reads a
+    /// leading minus as part of its value: a negative temperature is
+    /// parsed, an out-of-range negative is refused by the option's range
+    /// check, never as an unknown argument (`--temps-c -40,25` and
+    /// `--case-c -20` were refused as unexpected arguments).
+    #[test]
+    fn numeric_options_read_negative_values() {
+        use std::any::TypeId;
+        let numeric = [
+            TypeId::of::<f64>(),
+            TypeId::of::<u32>(),
+            TypeId::of::<u64>(),
+            TypeId::of::<(u32, u32)>(),
+        ];
+        let cli = Cli::command();
+        let mut checked = 0;
+        for sub in cli.get_subcommands() {
+            for arg in sub.get_arguments().filter(|a| a.get_long().is_some()) {
+                let ty = arg.get_value_parser().type_id();
+                if !numeric.iter().any(|t| ty == *t) {
+                    continue;
+                }
+                checked += 1;
+                let long = format!("--{}", arg.get_long().unwrap());
+                for v in ["-1", "-10,50", "-0.5"] {
+                    let e = Cli::try_parse_from(["diodestat", sub.get_name(), "x", &long, v])
+                        .err()
+                        .map(|e| (e.kind(), e.to_string()));
+                    assert!(
+                        !matches!(e, Some((clap::error::ErrorKind::UnknownArgument, _))),
+                        "{} {long} {v}: {e:?}",
+                        sub.get_name()
+                    );
+                }
+            }
+        }
+        assert!(checked >= 19, "{checked}");
+        let cli = Cli::try_parse_from([
+            "diodestat",
+            "liv",
+            "visible",
+            "--temps-c",
+            "-40,25",
+            "--case-c",
+            "-20",
+        ])
+        .unwrap();
+        let Cmd::Liv {
+            temps_c, case_c, ..
+        } = cli.cmd
+        else {
+            panic!("not the liv command");
+        };
+        assert_eq!(temps_c, Some(vec![-40.0, 25.0]));
+        assert_eq!(case_c, [-20.0]);
+        let e = Cli::try_parse_from(["diodestat", "loop-tune", "b.toml", "--setpoint-mw", "-5"])
+            .err()
+            .unwrap()
+            .to_string();
+        assert!(e.contains("must be a finite number above 0 mW"), "{e}");
     }
 
     #[test]
