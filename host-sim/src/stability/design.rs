@@ -652,14 +652,26 @@ impl Design {
     }
 }
 
+/// Relative tolerance of a bandwidth target: the slowest corner's
+/// closed-loop bandwidth lands in `[target, target × (1 + BANDWIDTH_TOL)]`.
+pub const BANDWIDTH_TOL: f64 = 0.01;
+
 /// Designs `(kp, ki_per_tick)` so that the slowest corner's closed-loop
-/// bandwidth reaches `target_bandwidth_hz` (and exceeds it by at most 1 %)
-/// with the margins of `spec` at every corner (the crossover fields of
-/// `spec` are ignored). The bandwidth rises with the crossover in these
-/// loops at a slowly changing ratio, so the crossover is corrected by that
-/// ratio from a start at the target (a few designs); when a crossover is
-/// out of reach of the margins the search continues just below the highest
-/// reachable one, and fails if even that falls short of the bandwidth.
+/// bandwidth reaches `target_bandwidth_hz` (and exceeds it by at most
+/// [`BANDWIDTH_TOL`]) with the margins of `spec` at every corner (the
+/// crossover fields of `spec` are ignored).
+///
+/// The design family is [`design_pi`] over the crossover. Near the highest
+/// crossover that keeps the margins the PI zero moves fast and the
+/// bandwidth rises several times faster than the crossover, so a plain
+/// ratio correction overshoots: the crossover is bracketed (one design
+/// below the target bandwidth, one at or above it) and the bracket is
+/// narrowed by interpolation, safeguarded by bisection in log frequency,
+/// until the upper design lies within the tolerance. The highest reachable
+/// crossover is that of [`design_pi`]; since the design there (its zero,
+/// the quantisation back-off) changes quickly, the last 1 % of crossover
+/// below it is scanned (7 designs), and the highest bandwidth of every
+/// design tried is reported when the target is out of reach.
 pub fn design_for_bandwidth(
     corners: &[LoopParams],
     target_bandwidth_hz: f64,
@@ -681,44 +693,91 @@ pub fn design_for_bandwidth(
             },
         )
     };
+    let target = target_bandwidth_hz;
     let unreachable = |best_hz| DesignError::BandwidthUnreachable {
-        target_hz: target_bandwidth_hz,
+        target_hz: target,
         best_hz,
         min_pm_deg: spec.min_pm_deg,
         min_gm_db: spec.min_gm_db,
     };
-    let mut f = target_bandwidth_hz.min(0.45 * tick_hz);
-    let mut ceiling_hz = f64::INFINITY;
-    let mut best: Option<Design> = None;
-    for _ in 0..12 {
-        match at(f) {
-            Ok(d) => {
-                let bw = d.min_bandwidth_hz();
-                if bw >= target_bandwidth_hz {
-                    if bw <= 1.01 * target_bandwidth_hz {
-                        return Ok(d);
-                    }
-                    if best.as_ref().is_none_or(|b| bw < b.min_bandwidth_hz()) {
-                        best = Some(d);
-                    }
-                } else if f >= 0.999 * ceiling_hz {
-                    // The highest reachable crossover falls short.
-                    return Err(unreachable(bw));
-                }
-                f = (f * (target_bandwidth_hz / bw) * 1.002).min(0.999 * ceiling_hz);
-            }
-            Err(DesignError::TargetUnreachable { best_hz, .. }) => {
+    // Highest crossover the margins allow (and below the Nyquist limit).
+    let mut ceiling_hz = 0.45 * tick_hz;
+    let mut ceiling_scanned = false;
+    // Highest bandwidth of any design tried.
+    let mut best_bw = f64::NAN;
+    // Crossovers asked with the bandwidth of their design, and the lowest
+    // crossover whose design reaches the target.
+    let mut tried: Vec<(f64, f64)> = Vec::new();
+    let mut above: Option<(f64, Design)> = None;
+    let mut pending: Vec<f64> = vec![target.min(ceiling_hz)];
+    for _ in 0..80 {
+        let Some(f) = pending.pop() else { break };
+        let d = match at(f) {
+            Ok(d) => d,
+            Err(DesignError::TargetUnreachable { best_hz, .. }) if !ceiling_scanned => {
+                // Near the highest crossover the design (its zero, the
+                // quantisation back-off) changes quickly: scan just below
+                // it so that the highest bandwidth is not missed.
                 ceiling_hz = best_hz;
-                f = 0.999 * best_hz;
+                ceiling_scanned = true;
+                pending
+                    .extend([0.99, 0.993, 0.996, 0.998, 0.999, 0.9995, 1.0].map(|k| k * best_hz));
+                continue;
             }
-            Err(DesignError::TargetAboveNyquist { nyquist_hz, .. }) => {
-                ceiling_hz = ceiling_hz.min(0.9 * nyquist_hz);
-                f = 0.999 * ceiling_hz;
-            }
+            Err(e @ DesignError::TargetUnreachable { .. }) if best_bw.is_nan() => return Err(e),
+            Err(DesignError::TargetUnreachable { .. }) => continue,
             Err(e) => return Err(e),
+        };
+        let bw = d.min_bandwidth_hz();
+        best_bw = best_bw.max(bw);
+        tried.push((f, bw));
+        if bw >= target {
+            if bw <= (1.0 + BANDWIDTH_TOL) * target {
+                return Ok(d);
+            }
+            if above.as_ref().is_none_or(|(fa, _)| f < *fa) {
+                above = Some((f, d));
+            }
         }
+        if !pending.is_empty() {
+            continue;
+        }
+        // The highest crossover below the lowest one that reaches the
+        // target, among those that do not.
+        let fa = above.as_ref().map(|(fa, _)| *fa);
+        let below = tried
+            .iter()
+            .filter(|(fb, bb)| *bb < target && fa.is_none_or(|fa| *fb < fa))
+            .max_by(|a, b| a.0.total_cmp(&b.0))
+            .copied();
+        let next = match (below, &above) {
+            (Some((fb, bb)), Some((fa, da))) => {
+                let ba = da.min_bandwidth_hz();
+                let (lb, la) = (fb.ln(), fa.ln());
+                if la - lb < 1e-7 {
+                    break;
+                }
+                // Interpolate in log-log toward the middle of the
+                // tolerance, kept inside the middle 80 % of the bracket.
+                let goal = (target * (1.0 + 0.5 * BANDWIDTH_TOL)).ln();
+                let x = lb + (la - lb) * (goal - bb.ln()) / (ba.ln() - bb.ln());
+                let x = if x.is_finite() { x } else { 0.5 * (lb + la) };
+                x.clamp(lb + 0.1 * (la - lb), la - 0.1 * (la - lb)).exp()
+            }
+            (None, Some((fa, da))) => fa * (target / da.min_bandwidth_hz()).min(0.98),
+            (Some((fb, bb)), None) => {
+                if ceiling_scanned || fb >= ceiling_hz * (1.0 - 1e-9) {
+                    return Err(unreachable(best_bw));
+                }
+                (fb * (target / bb) * 1.002).min(ceiling_hz)
+            }
+            (None, None) => break,
+        };
+        pending.push(next);
     }
-    best.ok_or_else(|| unreachable(f64::NAN))
+    // The bracket closed on a jump of the bandwidth: the lowest design at
+    // or above the target.
+    above.map(|(_, d)| d).ok_or_else(|| unreachable(best_bw))
 }
 
 #[cfg(test)]

@@ -24,7 +24,7 @@ pub use corners::{
 };
 pub use design::{
     core_ki_per_tick, design_for_bandwidth, design_pi, CornerMargins, Design, DesignError,
-    DesignSpec, Limit, Reference, DESIGN_GM_DB, DESIGN_PM_DEG,
+    DesignSpec, Limit, Reference, BANDWIDTH_TOL, DESIGN_GM_DB, DESIGN_PM_DEG,
 };
 pub use loop_model::{
     closed_loop, closed_loop_step, closed_loop_step_front, closed_loop_step_front_with,
