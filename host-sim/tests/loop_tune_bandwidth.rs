@@ -8,8 +8,8 @@ use std::path::Path;
 use diodestat_sim::board_file::load_board;
 use diodestat_sim::stability::assessment::default_setpoint_mw;
 use diodestat_sim::stability::{
-    corner_loop, design_for_bandwidth, design_pi, loop_margins, standard_corners, CornerOptions,
-    DesignError, DesignSpec, LoopParams, BANDWIDTH_TOL, DESIGN_GM_DB, DESIGN_PM_DEG,
+    design_for_bandwidth, design_pi, loop_margins, standard_corner_loops, DesignError, DesignSpec,
+    LoopParams, BANDWIDTH_TOL, DESIGN_GM_DB, DESIGN_PM_DEG,
 };
 
 /// The corners `loop-tune` designs over for a shipped board.
@@ -21,19 +21,16 @@ fn corners(name: &str) -> Vec<LoopParams> {
             .join("board.toml"),
     )
     .unwrap();
-    standard_corners(&b.valid, default_setpoint_mw(&b.valid))
-        .iter()
-        .map(|c| {
-            corner_loop(
-                &b.module,
-                &b.valid,
-                c,
-                &CornerOptions::for_latency(b.latency),
-            )
-            .unwrap()
-            .params
-        })
-        .collect()
+    standard_corner_loops(
+        &b.module,
+        &b.valid,
+        default_setpoint_mw(&b.valid),
+        b.latency,
+    )
+    .unwrap()
+    .iter()
+    .map(|l| l.params)
+    .collect()
 }
 
 /// The highest reachable slowest-corner bandwidth, from the refusal of a

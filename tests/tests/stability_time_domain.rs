@@ -12,7 +12,7 @@ use diodestat_sim::stability::time_domain::{
     StepPlan, LIMIT_CYCLE_MIN_STEPS,
 };
 use diodestat_sim::stability::{
-    closed_loop_step_front, corner_loop, standard_corners, CornerLoop, CornerOptions, LoopParams,
+    closed_loop_step_front, standard_corner_loops, CornerLoop, CornerOptions, LoopParams,
 };
 use diodestat_sim::step_response::{overshoot_pct, settled_from};
 
@@ -25,18 +25,13 @@ fn board(name: &str) -> LoadedBoard {
 }
 
 fn loops(b: &LoadedBoard) -> Vec<CornerLoop> {
-    standard_corners(&b.valid, default_setpoint_mw(&b.valid))
-        .iter()
-        .map(|c| {
-            corner_loop(
-                &b.module,
-                &b.valid,
-                c,
-                &CornerOptions::for_latency(b.latency),
-            )
-            .unwrap()
-        })
-        .collect()
+    standard_corner_loops(
+        &b.module,
+        &b.valid,
+        default_setpoint_mw(&b.valid),
+        b.latency,
+    )
+    .unwrap()
 }
 
 #[test]

@@ -384,6 +384,22 @@ impl CornerPlant {
     }
 }
 
+/// The loops of the [`standard_corners`] of `cfg` at `setpoint_mw`, in
+/// their order, with the simulator's timing for a drive that takes effect
+/// `latency` after its sample.
+pub fn standard_corner_loops(
+    module: &DemoModule,
+    cfg: &ValidConfig,
+    setpoint_mw: f64,
+    latency: DacLatency,
+) -> Result<Vec<CornerLoop>, CornerError> {
+    let opts = CornerOptions::for_latency(latency);
+    standard_corners(cfg, setpoint_mw)
+        .iter()
+        .map(|c| corner_loop(module, cfg, c, &opts))
+        .collect()
+}
+
 /// The operating point and loop of `corner` for `module` driven by `cfg`.
 pub fn corner_loop(
     module: &DemoModule,

@@ -18,9 +18,9 @@ pub mod time_domain;
 
 pub use bode::{bode_data, bode_svg, margin_text, write_bode_svg, BodeData, BodeError, BodeLoop};
 pub use corners::{
-    analyse_corners, corner_loop, design_for_corners, gate, standard_corners, CornerAnalysis,
-    CornerDesignError, CornerError, CornerLoop, CornerOptions, GateFailure, GateReport,
-    OperatingPoint, PlantCorner,
+    analyse_corners, corner_loop, design_for_corners, gate, standard_corner_loops,
+    standard_corners, CornerAnalysis, CornerDesignError, CornerError, CornerLoop, CornerOptions,
+    GateFailure, GateReport, OperatingPoint, PlantCorner,
 };
 pub use design::{
     core_ki_per_tick, design_for_bandwidth, design_pi, CornerMargins, Design, DesignError,

@@ -21,8 +21,9 @@ use diodestat_sim::stability::corners::markdown as margins_table;
 use diodestat_sim::stability::margins::Margins;
 use diodestat_sim::stability::time_domain::StepFigures;
 use diodestat_sim::stability::{
-    corner_loop, design_for_bandwidth, design_pi, standard_corners, CornerOptions, Design,
-    DesignError, DesignSpec, LoopParams, DESIGN_GM_DB, DESIGN_PM_DEG, PASS_GM_DB, PASS_PM_DEG,
+    design_for_bandwidth, design_pi, standard_corner_loops, standard_corners, CornerOptions,
+    Design, DesignError, DesignSpec, LoopParams, DESIGN_GM_DB, DESIGN_PM_DEG, PASS_GM_DB,
+    PASS_PM_DEG,
 };
 use diodestat_sim::step_response::SETTLING_BAND;
 
@@ -559,18 +560,8 @@ pub fn tune(
         _ => {}
     }
     let corners = standard_corners(&b.valid, sp);
-    let loops = corners
-        .iter()
-        .map(|c| {
-            corner_loop(
-                &b.module,
-                &b.valid,
-                c,
-                &CornerOptions::for_latency(b.latency),
-            )
-        })
-        .collect::<Result<Vec<_>, _>>()
-        .map_err(|e| e.to_string())?;
+    let loops =
+        standard_corner_loops(&b.module, &b.valid, sp, b.latency).map_err(|e| e.to_string())?;
     let params: Vec<LoopParams> = loops.iter().map(|l| l.params).collect();
     let names: Vec<String> = corners.iter().map(|c| c.name.clone()).collect();
     let t_hz = match target {
