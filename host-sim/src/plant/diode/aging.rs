@@ -75,7 +75,12 @@ impl Diode {
         let m = &self.m;
         let mut x = m.aging_ea_over_k * (m.aging_inv_t_ref - 1.0 / t_k);
         if m.aging_inv_i_ref > 0.0 {
-            x += m.aging_n * self.near.aging_ln.ln(i_a * m.aging_inv_i_ref);
+            let ln_i = if i_a == self.near.last_i_a {
+                self.near.last_ln_i + m.aging_ln_i_s_per_i_ref
+            } else {
+                self.near.aging_ln.ln(i_a * m.aging_inv_i_ref)
+            };
+            x += m.aging_n * ln_i;
         }
         let af = self.near.aging_exp.exp(x);
         self.age(af * dt_s * (1.0 / 3600.0));

@@ -68,6 +68,11 @@ pub(super) struct NearTerms {
     /// ln(I / I_ref) and the acceleration factor of the aging law.
     pub(super) aging_ln: LnNear,
     pub(super) aging_exp: ExpNear,
+    /// The current of the last forward voltage and its ln(I / I_s): the
+    /// aging law at the same current takes ln(I / I_ref) from it
+    /// (ln(I / I_s) + ln(I_s / I_ref)) instead of a second continuation.
+    pub(super) last_i_a: f64,
+    pub(super) last_ln_i: f64,
 }
 
 impl Diode {
@@ -149,7 +154,10 @@ impl Diode {
         let ratio = i * m.inv_i_s;
         let ln_t_ratio = self.near.t_ratio.ln(m.junction.t_ratio(t_k));
         let x = m.junction.log_shift_with(t_k, ln_t_ratio);
-        let l = self.near.ratio.ln(ratio) + x;
+        let ln_i = self.near.ratio.ln(ratio);
+        self.near.last_i_a = i;
+        self.near.last_ln_i = ln_i;
+        let l = ln_i + x;
         let ln_term = if l > 35.0 {
             l
         } else if l > 18.0 {
