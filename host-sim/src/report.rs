@@ -1629,8 +1629,8 @@ mod tests {
         let none = PlotGuides::for_run(&sc, &res).with_unlimited_class("4");
         let svg = plot_svg("sp", &res, &none).unwrap();
         assert!(svg.contains("Class 4: no accessible emission limit"));
-        assert_eq!(mw_text(0.785398), "0.7854 mW");
-        assert_eq!(mw_text(1.5708), "1.571 mW");
+        assert_eq!(mw_text(0.785_41), "0.7854 mW");
+        assert_eq!(mw_text(1.570_9), "1.571 mW");
         assert_eq!(mw_text(18_000.0), "18 W");
         assert_eq!(mw_text(2_345.6), "2.346 W");
         let far = g.with_class_limit("3B", 500.0, 1.0);
