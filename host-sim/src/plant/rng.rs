@@ -40,8 +40,9 @@ const ZIG_V: f64 = 9.912_563_035_262_17e-3;
 ///
 /// `signed[k]` and `next[k]` serve the accept-at-once test of the low 8
 /// bits `k` of a word (the layer and the sign) by one table look-up each:
-/// `signed[k]` is `x[k & 127]`, negated when bit 7 is set, `next[k]` is
-/// `x[(k & 127) + 1]`.
+/// `signed[k]` is `x[k & 127]` times 2^-53 (the scale of the 53-bit
+/// uniform, exact: a power of two on normal numbers), negated when bit 7
+/// is set, `next[k]` is `x[(k & 127) + 1]`.
 #[derive(Debug)]
 struct Ziggurat {
     x: [f64; ZIG_LAYERS + 1],
@@ -68,7 +69,8 @@ impl Ziggurat {
         let mut next = [0.0; 2 * ZIG_LAYERS];
         for k in 0..2 * ZIG_LAYERS {
             let i = k & (ZIG_LAYERS - 1);
-            signed[k] = if k & ZIG_LAYERS != 0 { -x[i] } else { x[i] };
+            let w = x[i] * UNIT_SCALE;
+            signed[k] = if k & ZIG_LAYERS != 0 { -w } else { w };
             next[k] = x[i + 1];
         }
         Self { x, f, signed, next }
@@ -87,11 +89,13 @@ impl Ziggurat {
     /// [`Ziggurat::candidate`] with the sign of bit 7 already applied: the
     /// same point, negated when bit 7 is set (the product of the uniform
     /// and a negated width is the negated product, bit for bit), and the
-    /// same acceptance.
+    /// same acceptance. The uniform's 2^-53 is in the table, so the one
+    /// rounded product is that of the 53-bit integer and the scaled width,
+    /// the same value as the uniform times the width.
     #[inline(always)]
     fn candidate_signed(&self, u: u64) -> (f64, bool) {
         let k = (u & (2 * ZIG_LAYERS as u64 - 1)) as usize;
-        let x = unit_of(u) * self.signed[k];
+        let x = ((u >> 11) as i64) as f64 * self.signed[k];
         (x, x.abs() < self.next[k])
     }
 
@@ -107,8 +111,11 @@ impl Ziggurat {
 /// without AVX-512) and exact below 2^53, so the value is the same.
 #[inline(always)]
 fn unit_of(u: u64) -> f64 {
-    ((u >> 11) as i64) as f64 * (1.0 / (1u64 << 53) as f64)
+    ((u >> 11) as i64) as f64 * UNIT_SCALE
 }
+
+/// 2^-53, the unit of the 53-bit uniform.
+const UNIT_SCALE: f64 = 1.0 / (1u64 << 53) as f64;
 
 #[inline]
 fn with_sign(x: f64, u: u64) -> f64 {
