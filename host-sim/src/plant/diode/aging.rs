@@ -27,7 +27,9 @@
 //!
 //! [`Diode::age_over`] integrates the law over one step with the drive and
 //! junction temperature of that step (ln and exp continued from the
-//! previous step, as the quasi-static step does); [`Diode::age_over_reference`]
+//! previous step, as the quasi-static step does; at the current of the
+//! last forward voltage, ln(I/I_ref) is that step's ln(I/I_s) plus
+//! ln(I_s/I_ref)); [`Diode::age_over_reference`]
 //! is the same with the library functions. [`Diode::age`] adds hours at
 //! the reference conditions at once: a part that was aged before the run.
 
