@@ -12,7 +12,7 @@
 //! so `C(z) = kp + ki·z/(z-1)`. The integrator holds 40 fractional bits so
 //! that small per-tick integral gains do not lose resolution.
 
-use crate::units::{clamp_fx, Fx, Gain};
+use crate::units::{Fx, Gain};
 
 const FRAC: u32 = 40;
 const FX_FRAC: u32 = 16;
@@ -25,14 +25,19 @@ pub struct PowerLoop {
     integ: i64,
 }
 
-/// Limits for one PI step.
+/// Limits for one PI step, as the controller holds them: the previous
+/// output is never negative, the slew is positive (validation) and the
+/// ceiling is never negative (the lowest ceiling is the derating floor,
+/// which validation keeps at or above zero, or the envelope, which starts
+/// at zero and only rises by a positive step or follows a drive). The step
+/// relies on these.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub(crate) struct Limits {
-    /// Output of the previous tick, iu.
+    /// Output of the previous tick, iu; at least zero.
     pub prev_iu: Fx,
-    /// Slew per tick, iu.
+    /// Slew per tick, iu; positive.
     pub slew_iu: Fx,
-    /// Ceiling for this tick, iu.
+    /// Ceiling for this tick, iu; at least zero.
     pub ceiling_iu: Fx,
 }
 
@@ -102,10 +107,14 @@ impl PowerLoop {
         } else {
             from_wide(candidate.wrapping_add(to_wide(Fx::from_bits(p))))
         };
-        let lo = lim.prev_iu.saturating_sub(lim.slew_iu);
+        // `clamp_fx(clamp_fx(u, lo, hi), 0, ceiling)` with the slew window
+        // `lo = prev - slew` and `hi = prev + slew` saturated. Within the
+        // limits' invariants (`prev >= 0`, `slew > 0`, `ceiling >= 0`):
+        // `prev - slew` cannot overflow, `lo < hi` and `0 <= ceiling`, so
+        // each clamp is a min and a max.
+        let lo = Fx::from_bits(lim.prev_iu.to_bits().wrapping_sub(lim.slew_iu.to_bits()));
         let hi = lim.prev_iu.saturating_add(lim.slew_iu);
-        let slewed = clamp_fx(u, lo, hi);
-        let out = clamp_fx(slewed, Fx::ZERO, lim.ceiling_iu);
+        let out = u.min(hi).max(lo).min(lim.ceiling_iu).max(Fx::ZERO);
         let pushing_up = out < u && e > Fx::ZERO;
         let pushing_down = out > u && e < Fx::ZERO;
         let integ = if pushing_up || pushing_down {
@@ -114,7 +123,7 @@ impl PowerLoop {
             candidate
         };
         // The integrator never holds more than the ceiling nor less than zero.
-        let top = to_wide(lim.ceiling_iu.max(Fx::ZERO));
+        let top = to_wide(lim.ceiling_iu);
         self.integ = if integ < 0 {
             0
         } else if integ > top {
@@ -143,7 +152,7 @@ fn sat_shr16(v: i64) -> i32 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::units::sat_i32;
+    use crate::units::{clamp_fx, sat_i32};
 
     /// The PI step as first written, with saturating 64-bit arithmetic
     /// throughout and the fixed crate's saturating multiply: the reference
@@ -219,10 +228,12 @@ mod tests {
             let ki = Gain::from_bits(pick(1));
             let sp = Fx::from_bits(pick(2));
             let mon = Fx::from_bits(pick(3));
+            // Limits within their invariants (`prev >= 0`, `slew > 0`,
+            // `ceiling >= 0`), from zero (one LSB for the slew) to the top.
             let lim = Limits {
-                prev_iu: Fx::from_bits(pick(4)),
-                slew_iu: Fx::from_bits(pick(5)),
-                ceiling_iu: Fx::from_bits(pick(6)),
+                prev_iu: Fx::from_bits(pick(4) & i32::MAX),
+                slew_iu: Fx::from_bits((pick(5) & i32::MAX).max(1)),
+                ceiling_iu: Fx::from_bits(pick(6) & i32::MAX),
             };
             // Integrator states: preset from any Fx (the widest reachable),
             // then a few steps from there.
