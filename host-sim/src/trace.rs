@@ -216,6 +216,22 @@ impl Retained {
         }
     }
 
+    /// [`Retained::new`] for `expected` rows to come, their room (at most
+    /// `cap` rows) allocated at once.
+    pub fn for_rows(cap: usize, expected: u64) -> Self {
+        let mut r = Retained::new(cap);
+        r.expect_rows(expected);
+        r
+    }
+
+    /// Make room at once for `expected` offered rows in all (those offered
+    /// so far included; at most the cap).
+    pub fn expect_rows(&mut self, expected: u64) {
+        let kept = usize::try_from(expected / self.stride).map_or(self.cap, |n| n.min(self.cap));
+        self.rows
+            .reserve_exact(kept.saturating_sub(self.rows.len()));
+    }
+
     /// Offer the next row.
     pub fn push(&mut self, row: TraceRow) {
         if self.offered.is_multiple_of(self.stride) {
@@ -355,7 +371,7 @@ impl Envelope {
     /// Add a tick's values, in the order of [`Channel::ALL`] (ticks in
     /// increasing order). The every-tick path of a run: a division only
     /// when a new bin starts.
-    #[inline]
+    #[inline(always)]
     pub fn add_values(&mut self, tick: u64, v: [f64; Channel::N]) {
         if tick >= self.next_bin_tick && self.bins.len() < ENVELOPE_BINS {
             // `next_bin_tick` is a multiple of the bin width: the tick
