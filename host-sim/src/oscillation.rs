@@ -317,9 +317,9 @@ pub struct Watch<T: Kept = TickSample> {
     slew_ma_per_tick: f64,
     scale: T::Scale,
     /// The last ticks of the open stretch, a ring of [`WINDOW_TICKS`]
-    /// (the next write at `pos`).
+    /// (tick `k` of the stretch at `k % WINDOW_TICKS`), filled with the
+    /// first tick kept and kept from one stretch to the next.
     buf: Vec<T>,
-    pos: usize,
     /// Length of the open stretch, ticks, and its last tick.
     len: usize,
     last_tick: u64,
@@ -351,8 +351,7 @@ impl<T: Kept> Watch<T> {
             tick_hz: f64::from(tick_hz),
             slew_ma_per_tick,
             scale,
-            buf: Vec::with_capacity(WINDOW_TICKS),
-            pos: 0,
+            buf: Vec::new(),
             len: 0,
             last_tick: 0,
             found: Vec::new(),
@@ -362,15 +361,10 @@ impl<T: Kept> Watch<T> {
     /// The tick `tick`, in regulation (a tick out of it is a [`Watch::cut`]).
     #[inline]
     pub fn keep(&mut self, tick: u64, s: T) {
-        if self.buf.len() < WINDOW_TICKS {
-            self.buf.push(s);
-        } else {
-            self.buf[self.pos] = s;
+        if self.buf.is_empty() {
+            self.buf = vec![s; WINDOW_TICKS];
         }
-        self.pos += 1;
-        if self.pos == WINDOW_TICKS {
-            self.pos = 0;
-        }
+        self.buf[self.len % WINDOW_TICKS] = s;
         self.len += 1;
         self.last_tick = tick;
     }
@@ -380,12 +374,9 @@ impl<T: Kept> Watch<T> {
         if self.len > 0 {
             let n = (self.len - self.len / 4).min(WINDOW_TICKS);
             if n >= MIN_TICKS {
-                // Oldest first: the ring from `pos` on, then up to `pos`.
-                let (newer, older) = self.buf.split_at(self.pos.min(self.buf.len()));
-                let all: Vec<&T> = older.iter().chain(newer).collect();
-                let w: Vec<TickSample> = all[all.len() - n..]
-                    .iter()
-                    .map(|t| t.sample(self.scale))
+                // The last `n` ticks, oldest first.
+                let w: Vec<TickSample> = (self.len - n..self.len)
+                    .map(|k| self.buf[k % WINDOW_TICKS].sample(self.scale))
                     .collect();
                 let from_tick = self.last_tick + 1 - n as u64;
                 for finding in analyse(&w, self.tick_hz, self.slew_ma_per_tick) {
@@ -398,8 +389,6 @@ impl<T: Kept> Watch<T> {
                 }
             }
         }
-        self.buf.clear();
-        self.pos = 0;
         self.len = 0;
     }
 

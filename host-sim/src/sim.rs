@@ -862,8 +862,6 @@ impl Fork {
     /// scenario's last event, to the scenario's end.
     pub fn resume(&self, event: &Event) -> Result<RunResult, ForkError> {
         let mut r = self.runner.clone();
-        // A clone holds only the rows kept so far: room for the rest at once.
-        r.kept.expect_rows(r.n_ticks.div_ceil(r.trace_every));
         r.add_event(event)?;
         r.run_until(u64::MAX, &mut NoSink);
         Ok(r.finish(&mut NoSink))
@@ -1691,6 +1689,55 @@ mod tests {
             assert_eq!(format!("{again:?}"), format!("{full:?}"), "{extra:?}");
             assert!(full.happenings.len() > 2);
         }
+    }
+
+    /// A run that records neither the envelope nor the loop findings has
+    /// every other field of the full run's result, bit for bit (compared
+    /// through their exact Debug forms), from t = 0 and forked; the two it
+    /// skips are empty. A degraded monitor pins the drive on its ceiling,
+    /// so the full run has findings to skip.
+    #[test]
+    fn a_verdict_run_is_the_full_run_less_envelope_and_findings() {
+        let module = DemoModule::visible();
+        let cfg = config(&module);
+        let mut sc = scenario(7, 20.0, 500.0);
+        // A monitor reading a third low: the loop drives to its ceiling.
+        sc.events[2] = Event {
+            at_ms: 100.0,
+            action: Action::Inject {
+                fault: HwFault::MonitorDegrade { factor: 0.66 },
+            },
+        };
+        let full = run(&sc, &module, cfg.clone(), DacLatency::ONE_TICK).unwrap();
+        assert!(!full.envelope.bins().is_empty());
+        assert!(!full.loop_findings.is_empty(), "no findings to skip");
+        let lean = run_recording(
+            &sc,
+            &module,
+            cfg.clone(),
+            DacLatency::ONE_TICK,
+            Record::VERDICT,
+        )
+        .unwrap();
+        assert!(lean.envelope.bins().is_empty());
+        assert!(lean.loop_findings.is_empty());
+        let mut expected = full.clone();
+        expected.envelope = lean.envelope.clone();
+        expected.loop_findings = Vec::new();
+        assert_eq!(format!("{lean:?}"), format!("{expected:?}"));
+        let mut lead = sc.clone();
+        let last = lead.events.pop().unwrap();
+        let fork = fork_recording(
+            &lead,
+            &module,
+            cfg,
+            DacLatency::ONE_TICK,
+            last.at_ms,
+            Record::VERDICT,
+        )
+        .unwrap();
+        let forked = fork.resume(&last).unwrap();
+        assert_eq!(format!("{forked:?}"), format!("{expected:?}"));
     }
 
     /// A fork refuses an event before its moment (it has already run past

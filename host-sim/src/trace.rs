@@ -197,12 +197,27 @@ pub const RETAINED_ROWS: usize = 1 << 19;
 /// in `cap`; when full, every other row is dropped and from then on only
 /// every `stride`-th offered row is kept (the stride doubles each time),
 /// so the kept rows stay evenly spaced and never exceed `cap`.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Debug, PartialEq)]
 pub struct Retained {
     rows: Vec<TraceRow>,
     cap: usize,
     stride: u64,
     offered: u64,
+}
+
+/// A clone keeps the room made for the rows to come (a forked run goes on
+/// recording into it without growing it).
+impl Clone for Retained {
+    fn clone(&self) -> Self {
+        let mut rows = Vec::with_capacity(self.rows.capacity());
+        rows.extend_from_slice(&self.rows);
+        Retained {
+            rows,
+            cap: self.cap,
+            stride: self.stride,
+            offered: self.offered,
+        }
+    }
 }
 
 impl Retained {
@@ -220,16 +235,9 @@ impl Retained {
     /// `cap` rows) allocated at once.
     pub fn for_rows(cap: usize, expected: u64) -> Self {
         let mut r = Retained::new(cap);
-        r.expect_rows(expected);
+        let room = usize::try_from(expected).map_or(r.cap, |n| n.min(r.cap));
+        r.rows.reserve_exact(room);
         r
-    }
-
-    /// Make room at once for `expected` offered rows in all (those offered
-    /// so far included; at most the cap).
-    pub fn expect_rows(&mut self, expected: u64) {
-        let kept = usize::try_from(expected / self.stride).map_or(self.cap, |n| n.min(self.cap));
-        self.rows
-            .reserve_exact(kept.saturating_sub(self.rows.len()));
     }
 
     /// Offer the next row.
@@ -475,6 +483,27 @@ mod tests {
             .bins()
             .iter()
             .all(|b| b.min(Channel::FrontMw) == b.max(Channel::FrontMw)));
+    }
+
+    /// Rows for a run of known length get their room at once, and a clone
+    /// (a forked run) keeps it: the fork records on without growing.
+    #[test]
+    fn retained_rows_get_their_room_once() {
+        let mut r = Retained::for_rows(1000, 300);
+        assert!(r.rows.capacity() >= 300);
+        for t in 0..100 {
+            r.push(row(t, 0.0));
+        }
+        let mut c = r.clone();
+        assert_eq!(c, r);
+        let room = c.rows.capacity();
+        assert!(room >= 300);
+        for t in 100..300 {
+            c.push(row(t, 0.0));
+        }
+        assert_eq!(c.rows.capacity(), room);
+        // Never more room than the cap.
+        assert!(Retained::for_rows(10, 300).rows.capacity() < 300);
     }
 
     proptest! {
