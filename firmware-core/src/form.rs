@@ -222,27 +222,33 @@ impl Written {
 
     /// The value in the board's units, or the refusal naming the key.
     pub fn to_fx(&self, u: Units) -> Result<Fx, FormError> {
-        self.value
-            .to_bits(self.shift(u), 16)
-            .map(Fx::from_bits)
-            .ok_or(FormError::DoesNotFit {
+        self.bits(u, 16, false).map(Fx::from_bits)
+    }
+
+    /// The value's bits with `frac` fractional bits in the board's units;
+    /// refused when beyond the range, or when a value other than 0 rounds
+    /// to 0 (a gain or a rate written as not zero would silently be off).
+    fn bits(&self, u: Units, frac: u32, gain: bool) -> Result<i32, FormError> {
+        let shift = self.shift(u);
+        match self.value.to_bits(shift, frac) {
+            None => Err(FormError::DoesNotFit {
                 written: *self,
-                shift: self.shift(u),
-                gain: false,
-            })
+                shift,
+                gain,
+            }),
+            Some(0) if self.value.mantissa != 0 => Err(FormError::BelowStep {
+                written: *self,
+                shift,
+                gain,
+            }),
+            Some(b) => Ok(b),
+        }
     }
 
     /// The value in the board's units as a calibration gain per count
     /// ([`Gain`]), or the refusal naming the key.
     pub fn to_gain(&self, u: Units) -> Result<Gain, FormError> {
-        self.value
-            .to_bits(self.shift(u), 24)
-            .map(Gain::from_bits)
-            .ok_or(FormError::DoesNotFit {
-                written: *self,
-                shift: self.shift(u),
-                gain: true,
-            })
+        self.bits(u, 24, true).map(Gain::from_bits)
     }
 
     /// The value in milli units (mA, mW, mV; a plain value or a gain as
@@ -283,6 +289,15 @@ pub enum FormError {
         shift: i32,
         /// The value is a calibration gain per count ([`Gain`]), not an
         /// [`Fx`].
+        gain: bool,
+    },
+    /// The value is not 0 but rounds to 0 in the board's units.
+    BelowStep {
+        /// The value as written.
+        written: Written,
+        /// The power of ten from the key's unit to the board's unit.
+        shift: i32,
+        /// The value is a calibration gain per count ([`Gain`]).
         gain: bool,
     },
 }
@@ -892,6 +907,38 @@ impl PlausibilityForm {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A value written as not zero that rounds to 0 in the board's units
+    /// is refused (an integral gain of 1e-7 mA/(mW ms) would silently turn
+    /// the integral action off); 0 itself and half a step and more pass.
+    #[test]
+    fn a_value_that_rounds_to_zero_is_refused() {
+        let ki = |m, e| Written {
+            key: "apc.ki_ma_per_mw_ms",
+            value: Decimal::new(m, e),
+            quantity: Quantity::CurrentPerPower,
+            si: false,
+        };
+        assert!(matches!(
+            ki(1, -7).to_fx(Units::MILLI),
+            Err(FormError::BelowStep {
+                shift: 0,
+                gain: false,
+                ..
+            })
+        ));
+        assert_eq!(ki(0, 0).to_fx(Units::MILLI), Ok(Fx::ZERO));
+        // 8e-6 is just above half of 2^-16 = 1.53e-5: one step.
+        assert_eq!(ki(8, -6).to_fx(Units::MILLI), Ok(Fx::DELTA));
+        let gain = Written {
+            quantity: Quantity::Current,
+            ..ki(1, -12)
+        };
+        assert!(matches!(
+            gain.to_gain(Units::MILLI),
+            Err(FormError::BelowStep { gain: true, .. })
+        ));
+    }
 
     #[test]
     fn decimals_round_to_nearest_with_ties_to_even() {

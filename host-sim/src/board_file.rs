@@ -476,14 +476,7 @@ pub fn parse_board(text: &str, base_dir: &Path) -> Result<LoadedBoard, BoardFile
         .map_err(|(key, why)| invalid_at(key, why))?;
     let config = to_config(&file, &module, base_dir).map_err(|(key, why)| invalid_at(key, why))?;
     let valid = config.clone().validate().map_err(|source| {
-        let (key, why) = refusal(&source, &config, &file);
-        let written = written_key(text, &key);
-        let why = if written != key && is_si_key(&written) {
-            in_si_units(&why, text)
-        } else {
-            why
-        };
-        let key = written;
+        let (key, why) = refusal(&source, &config, &file, text);
         let place = place_of(text, &key).or_else(|| {
             key.starts_with("calibration.")
                 .then(|| place_of(text, "calibration.from"))
@@ -606,6 +599,32 @@ fn form_error(e: FormError) -> KeyError {
         FormError::Both { milli, si } => {
             invalid(si, format!("give one of `{milli}` and `{si}`, not both"))
         }
+        FormError::BelowStep {
+            written,
+            shift,
+            gain,
+        } => {
+            let v = decimal_f64(written.value);
+            let unit = unit_text(&written);
+            let step = 10f64.powi(-shift)
+                * if gain {
+                    Gain::DELTA.to_num::<f64>()
+                } else {
+                    Fx::DELTA.to_num::<f64>()
+                };
+            let unit = if unit.is_empty() {
+                String::new()
+            } else {
+                format!(" {unit}")
+            };
+            invalid(
+                written.key,
+                format!(
+                    "{v}{unit} is not 0 but rounds to 0 in the board's units: the core counts in steps of \
+                     {step}{unit}; give 0 or at least half a step (see docs/board-config.md, units)"
+                ),
+            )
+        }
         FormError::DoesNotFit {
             written,
             shift,
@@ -677,61 +696,6 @@ fn written_key(text: &str, key: &str) -> String {
 fn is_si_key(key: &str) -> bool {
     let name = key.rsplit_once('.').map_or(key, |(_, n)| n);
     name.split('_').any(|t| matches!(t, "a" | "w" | "v"))
-}
-
-/// A refusal written in milli units (mA, mW, mV) restated in the SI units
-/// (A, W, V) for a file that writes the refused key in SI: each number
-/// before a unit (a range's ends too) is rescaled, the unit renamed, and
-/// every key the message names is spelled as the file writes it.
-fn in_si_units(why: &str, text: &str) -> String {
-    // Unit, its SI name, and the factor from the milli value to the SI one.
-    const UNITS: [(&str, &str, f64); 10] = [
-        ("mA/(mW ms)", "A/(W ms)", 1.0),
-        ("mA/mW", "A/W", 1.0),
-        ("codes/mA", "codes/A", 1e3),
-        ("mA/ms", "A/ms", 1e-3),
-        ("mW/ms", "W/ms", 1e-3),
-        ("mV/ms", "V/ms", 1e-3),
-        ("mA", "A", 1e-3),
-        ("mW", "W", 1e-3),
-        ("mV", "V", 1e-3),
-        ("mA/(mW", "A/(W", 1.0),
-    ];
-    let mut words: Vec<String> = why.split(' ').map(str::to_string).collect();
-    let trim = |w: &str| {
-        w.trim_matches(|c: char| matches!(c, '(' | ')' | '[' | ']' | ',' | ';' | ':'))
-            .to_string()
-    };
-    for i in 0..words.len() {
-        let core = trim(&words[i]);
-        let Some(&(milli, si, factor)) = UNITS.iter().find(|(m, _, _)| *m == core) else {
-            if core.contains('.') && core.contains('_') {
-                let w = written_key(text, &core);
-                if w != core {
-                    words[i] = words[i].replace(&core, &w);
-                }
-            }
-            continue;
-        };
-        words[i] = words[i].replacen(milli, si, 1);
-        // The numbers just before the unit: `50`, `(0, 50]`, `0 ..= 50`,
-        // `-5 ..= 5`.
-        let mut j = i;
-        while j > 0 {
-            j -= 1;
-            let n = trim(&words[j]);
-            if n == "..=" {
-                continue;
-            }
-            match n.parse::<f64>() {
-                Ok(v) if !n.is_empty() => {
-                    words[j] = words[j].replacen(&n, &num_f64_fine(v * factor), 1);
-                }
-                _ => break,
-            }
-        }
-    }
-    words.join(" ")
 }
 
 /// A number for a message, to 7 significant digits.
@@ -1160,18 +1124,91 @@ fn num_f64(x: f64) -> String {
     }
 }
 
-/// The board-file key a [`ConfigError`] is about and what that key must
-/// satisfy, in the file's units and words.
-pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
+/// The board-file key a [`ConfigError`] is about, as `text` (the file)
+/// writes it, and what that key must satisfy, in the file's words: every
+/// key it names spelled as the file writes it, and its currents, powers and
+/// voltages in the refused key's own unit (mA, mW, mV, or A, W, V for a key
+/// written in SI, such as `current.ceiling_a`).
+pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile, text: &str) -> (String, String) {
+    let milli = Wording { text, si: false };
+    let (key, why) = refusal_in(e, c, f, &milli);
+    let key = milli.key(&key);
+    if is_si_key(&key) {
+        let (_, why) = refusal_in(e, c, f, &Wording { text, si: true });
+        (key, why)
+    } else {
+        (key, why)
+    }
+}
+
+/// How a refusal states keys and values: each key as the file writes it,
+/// and values in the milli units or, with `si`, in A, W and V.
+struct Wording<'t> {
+    /// The board file.
+    text: &'t str,
+    /// Values in A, W and V rather than mA, mW and mV.
+    si: bool,
+}
+
+impl Wording<'_> {
+    /// `key` as the file writes it (`current.ceiling_a` for
+    /// `current.ceiling_ma` in a file that writes amperes).
+    fn key(&self, key: &str) -> String {
+        written_key(self.text, key)
+    }
+
+    /// A unit in milli form (`mA`, `mA/ms`, `codes/mA`, `mA/(mW ms)`) in
+    /// this wording, and the factor from a value in the milli unit to it.
+    fn unit(&self, milli: &'static str) -> (&'static str, f64) {
+        if !self.si {
+            return (milli, 1.0);
+        }
+        match milli {
+            "mA" => ("A", 1e-3),
+            "mW" => ("W", 1e-3),
+            "mV" => ("V", 1e-3),
+            "mA/ms" => ("A/ms", 1e-3),
+            "mW/ms" => ("W/ms", 1e-3),
+            "mV/ms" => ("V/ms", 1e-3),
+            "mA/mW" => ("A/W", 1.0),
+            "mA/(mW ms)" => ("A/(W ms)", 1.0),
+            "codes/mA" => ("codes/A", 1e3),
+            other => (other, 1.0),
+        }
+    }
+
+    /// The unit name of `milli` in this wording.
+    fn u(&self, milli: &'static str) -> &'static str {
+        self.unit(milli).0
+    }
+
+    /// `v`, a value in the milli unit `milli`, as a number in this
+    /// wording's unit: to 1e-4 or four significant digits in milli units,
+    /// to seven significant digits in SI (a milli value's resolution).
+    fn n(&self, v: f64, milli: &'static str) -> String {
+        let (_, factor) = self.unit(milli);
+        if self.si {
+            num_f64_fine(v * factor)
+        } else {
+            num_f64(v)
+        }
+    }
+}
+
+/// [`refusal`] in the wording `w`, with the refused key as the core names
+/// it (milli form).
+fn refusal_in(e: &ConfigError, c: &Config, f: &BoardFile, w: &Wording) -> (String, String) {
     use diodestat_core::{Channel, RampKind};
     use ConfigError as E;
     let k = |s: &str| s.to_string();
+    let key = |s: &str| w.key(s);
     let u = c.units();
-    let ma = |v: Fx| num_f64(u.ma(v));
-    let mw = |v: Fx| num_f64(u.mw(v));
-    let mv = |v: Fx| num_f64(u.mv(v));
+    let ma = |v: Fx| w.n(u.ma(v), "mA");
+    let mw = |v: Fx| w.n(u.mw(v), "mW");
+    let mv = |v: Fx| w.n(u.mv(v), "mV");
+    let (u_ma, u_mw, u_mv) = (w.u("mA"), w.u("mW"), w.u("mV"));
     let tick_ms = f64::from(c.tick_hz) / 1e3;
-    let ramp_key = |w: RampKind| match w {
+    let ramp_key = |rk: RampKind| match rk {
         RampKind::SoftStart => ("ramp.soft_start_ma_per_ms", "mA/ms", u.ma_per_iu()),
         RampKind::SoftStop => ("ramp.soft_stop_ma_per_ms", "mA/ms", u.ma_per_iu()),
         RampKind::Setpoint => ("ramp.setpoint_mw_per_ms", "mW/ms", u.mw_per_ou()),
@@ -1203,46 +1240,58 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         E::TickRateZero | E::TickRateTooHigh { .. } => {
             (k("tick_hz"), "must be 1 ..= 1000000 Hz".into())
         }
-        E::AbsoluteLimitNotPositive { .. } => (k("current.absolute_max_ma"), "must be above 0 mA".into()),
-        E::CeilingNotPositive { .. } => (k("current.ceiling_ma"), "must be above 0 mA".into()),
+        E::AbsoluteLimitNotPositive { .. } => (k("current.absolute_max_ma"), format!("must be above 0 {u_ma}")),
+        E::CeilingNotPositive { .. } => (k("current.ceiling_ma"), format!("must be above 0 {u_ma}")),
         E::CeilingAboveAbsolute { absolute_max_iu, .. } => (
             k("current.ceiling_ma"),
-            format!("must not exceed current.absolute_max_ma = {} mA", ma(absolute_max_iu)),
+            format!(
+                "must not exceed {} = {} {u_ma}",
+                key("current.absolute_max_ma"),
+                ma(absolute_max_iu)
+            ),
         ),
         E::OvercurrentNotAboveCeiling { ceiling_iu, .. } => (
             k("protection.overcurrent_ma"),
             format!(
-                "must be above current.ceiling_ma = {} mA (at or below it the trip fires in normal use)",
+                "must be above {} = {} {u_ma} (at or below it the trip fires in normal use)",
+                key("current.ceiling_ma"),
                 ma(ceiling_iu)
             ),
         ),
         E::OvercurrentAboveAbsolute { absolute_max_iu, .. } => (
             k("protection.overcurrent_ma"),
-            format!("must not exceed current.absolute_max_ma = {} mA", ma(absolute_max_iu)),
+            format!(
+                "must not exceed {} = {} {u_ma}",
+                key("current.absolute_max_ma"),
+                ma(absolute_max_iu)
+            ),
         ),
         E::RampRateNotPositive { which, .. } => {
-            let (key, unit, _) = ramp_key(which);
-            (k(key), format!("must be above 0 {unit}"))
+            let (name, unit, _) = ramp_key(which);
+            (k(name), format!("must be above 0 {}", w.u(unit)))
         }
         E::RampRateBelowResolution { which, per_ms, tick_hz } => {
-            let (key, unit, scale) = ramp_key(which);
+            let (name, milli_unit, scale) = ramp_key(which);
+            let (unit, factor) = w.unit(milli_unit);
             let per_tick = per_ms.to_num::<f64>() / tick_ms;
             let why = if per_tick >= max_fx {
                 let per = unit.trim_end_matches("/ms");
                 format!(
                     "is {} {per} per tick at tick_hz = {tick_hz}, beyond the {} {per} per tick the core holds; \
                      at most {} {unit} at this tick rate",
-                    num_f64((per_tick * scale).round()),
-                    num_f64(max_fx.floor() * scale),
-                    num_f64((max_fx * tick_ms).floor() * scale)
+                    w.n((per_tick * scale).round(), milli_unit),
+                    w.n(max_fx.floor() * scale, milli_unit),
+                    w.n((max_fx * tick_ms).floor() * scale, milli_unit)
                 )
             } else {
+                // Three more decimals in the SI unit: the same resolution.
+                let decimals = if w.si { 9 } else { 6 };
                 format!(
-                    "rounds to zero per tick at tick_hz = {tick_hz}; at least {:.6} {unit} at this tick rate",
-                    res * tick_ms * scale
+                    "rounds to zero per tick at tick_hz = {tick_hz}; at least {:.decimals$} {unit} at this tick rate",
+                    res * tick_ms * scale * factor
                 )
             };
-            (k(key), why)
+            (k(name), why)
         }
         E::EmissionDelayTooLong { .. } => (
             k("ramp.emission_delay_ms"),
@@ -1258,27 +1307,37 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         E::PowerRangeInvalid { max_setpoint_ou, .. } => (
             k("power.min_setpoint_mw"),
             format!(
-                "must be above 0 mW and not above power.max_setpoint_mw = {} mW",
+                "must be above 0 {u_mw} and not above {} = {} {u_mw}",
+                key("power.max_setpoint_mw"),
                 mw(max_setpoint_ou)
             ),
         ),
         E::RunawayNotAboveSetpointRange { max_setpoint_ou, .. } => (
             k("protection.runaway_mw"),
-            format!("must be above power.max_setpoint_mw = {} mW", mw(max_setpoint_ou)),
+            format!(
+                "must be above {} = {} {u_mw}",
+                key("power.max_setpoint_mw"),
+                mw(max_setpoint_ou)
+            ),
         ),
         E::MonitorLossFloorNotBelowSetpoints { lowest_handover_ou, .. } => (
             k("protection.monitor_loss_floor_mw"),
             format!(
-                "must be below the lowest hand-over level ramp.handover_fraction x power.min_setpoint_mw = {} mW",
+                "must be below the lowest hand-over level ramp.handover_fraction x {} = {} {u_mw}",
+                key("power.min_setpoint_mw"),
                 mw(lowest_handover_ou)
             ),
         ),
         E::MonitorLossFloorNegative { .. } => {
-            (k("protection.monitor_loss_floor_mw"), "must be 0 mW or more".into())
+            (k("protection.monitor_loss_floor_mw"), format!("must be 0 {u_mw} or more"))
         }
         E::MonitorLossDriveOutOfRange { ceiling_iu, .. } => (
             k("protection.monitor_loss_drive_ma"),
-            format!("must be in (0, current.ceiling_ma = {}] mA", ma(ceiling_iu)),
+            format!(
+                "must be in (0, {} = {}] {u_ma}",
+                key("current.ceiling_ma"),
+                ma(ceiling_iu)
+            ),
         ),
         E::DeratingKneeNotBelowCutoff { cutoff_degc, .. } => (
             k("derating.knee_degc"),
@@ -1286,7 +1345,11 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         ),
         E::DeratingFloorOutOfRange { ceiling_iu, .. } => (
             k("derating.floor_ma"),
-            format!("must be in 0 ..= current.ceiling_ma = {} mA", ma(ceiling_iu)),
+            format!(
+                "must be in 0 ..= {} = {} {u_ma}",
+                key("current.ceiling_ma"),
+                ma(ceiling_iu)
+            ),
         ),
         E::TempTableTooShort { len } => (
             k(table_key(f)),
@@ -1343,13 +1406,19 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         E::ForwardVoltageLimitsInvalid { full_scale_vu, .. } => (
             k("forward_voltage.open_mv"),
             format!(
-                "forward_voltage needs 0 <= short_mv < open_mv <= {} mV (the channel's full scale)",
+                "needs 0 <= {} < {} <= {} {u_mv} (the channel's full scale)",
+                key("forward_voltage.short_mv"),
+                key("forward_voltage.open_mv"),
                 mv(full_scale_vu)
             ),
         ),
         E::ForwardDriveOutOfRange { ceiling_iu, .. } => (
             k("forward_voltage.min_drive_ma"),
-            format!("must be in (0, current.ceiling_ma = {}] mA", ma(ceiling_iu)),
+            format!(
+                "must be in (0, {} = {}] {u_ma}",
+                key("current.ceiling_ma"),
+                ma(ceiling_iu)
+            ),
         ),
         E::PlausibilityPointInvalid { index } => (
             k("plausibility.points_degc"),
@@ -1360,31 +1429,37 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         ),
         E::PlausibilityMarginsInvalid { .. } => (
             k("plausibility.fault_margin"),
-            "needs 0 <= plausibility.warning_margin <= plausibility.fault_margin <= 4 and plausibility.allowance_ma >= 0".into(),
+            format!(
+                "needs 0 <= plausibility.warning_margin <= plausibility.fault_margin <= 4 and {} >= 0",
+                key("plausibility.allowance_ma")
+            ),
         ),
         E::MissedTickLimitZero => (k("protection.missed_tick_limit"), "must be at least 1 tick".into()),
         E::GainNotPositive { proportional: true, .. } => {
-            (k("apc.kp_ma_per_mw"), "must be above 0 mA/mW".into())
+            (k("apc.kp_ma_per_mw"), format!("must be above 0 {}", w.u("mA/mW")))
         }
         E::GainNotPositive { proportional: false, .. } => {
-            (k("apc.ki_ma_per_mw_ms"), "must be 0 mA/(mW ms) or more".into())
+            (k("apc.ki_ma_per_mw_ms"), format!("must be 0 {} or more", w.u("mA/(mW ms)")))
         }
         E::ProportionalGainOverflow { runaway_ou, .. } => (
             k("apc.kp_ma_per_mw"),
             format!(
-                "times protection.runaway_mw = {} mW must stay below {} mA (the core's range in the board's current unit); at most {:.4e} mA/mW",
+                "times {} = {} {u_mw} must stay below {} {u_ma} (the core's range in the board's current unit); at most {:.4e} {}",
+                key("protection.runaway_mw"),
                 mw(runaway_ou),
-                num_f64(max_fx * u.ma_per_iu()),
-                max_fx / runaway_ou.to_num::<f64>().max(res) * u.ma_per_iu() / u.mw_per_ou()
+                w.n(max_fx * u.ma_per_iu(), "mA"),
+                max_fx / runaway_ou.to_num::<f64>().max(res) * u.ma_per_iu() / u.mw_per_ou(),
+                w.u("mA/mW")
             ),
         ),
         E::IntegralGainOutOfRange { tick_hz, .. } => (
             k("apc.ki_ma_per_mw_ms"),
             format!(
                 "per tick at tick_hz = {tick_hz} it rounds to zero or overflows the core's per-tick gain; \
-                 accepted about {:.3e} ..= {:.4e} mA/(mW ms) at this tick rate",
+                 accepted about {:.3e} ..= {:.4e} {} at this tick rate",
                 diodestat_core::Gain::DELTA.to_num::<f64>() * tick_ms * u.ma_per_iu() / u.mw_per_ou(),
-                diodestat_core::Gain::MAX.to_num::<f64>() * tick_ms * u.ma_per_iu() / u.mw_per_ou()
+                diodestat_core::Gain::MAX.to_num::<f64>() * tick_ms * u.ma_per_iu() / u.mw_per_ou(),
+                w.u("mA/(mW ms)")
             ),
         ),
         E::CalibrationGainNotPositive { channel: ch } => {
@@ -1408,32 +1483,33 @@ pub fn refusal(e: &ConfigError, c: &Config, f: &BoardFile) -> (String, String) {
         E::RunawayBeyondMonitorRange { full_scale_ou, .. } => (
             k("protection.runaway_mw"),
             format!(
-                "must not exceed what the monitor channel reads at full scale, {} mW",
+                "must not exceed what the monitor channel reads at full scale, {} {u_mw}",
                 mw(full_scale_ou)
             ),
         ),
         E::OvercurrentBeyondSenseRange { full_scale_iu, .. } => (
             k("protection.overcurrent_ma"),
             format!(
-                "must not exceed what the current sense reads at full scale, {} mA",
+                "must not exceed what the current sense reads at full scale, {} {u_ma}",
                 ma(full_scale_iu)
             ),
         ),
         E::SupplyWindowInvalid { supply_max_vu, full_scale_vu, .. } => (
             k("protection.supply_min_mv"),
             format!(
-                "the window supply_min_mv ..= supply_max_mv = {} mV must be non-empty and within the supply channel's full scale {} mV",
+                "the window {} ..= {} = {} {u_mv} must be non-empty and within the supply channel's full scale {} {u_mv}",
+                key("protection.supply_min_mv"),
+                key("protection.supply_max_mv"),
                 mv(supply_max_vu),
                 mv(full_scale_vu)
             ),
         ),
         E::MismatchToleranceNotPositive { .. } => {
-            (k("protection.mismatch_tolerance_ma"), "must be above 0 mA".into())
+            (k("protection.mismatch_tolerance_ma"), format!("must be above 0 {u_ma}"))
         }
     }
 }
 
-/// The key that holds the temperature table of a file.
 /// The board-file key of a fault's debounce.
 fn debounce_board_key(fault: diodestat_core::Fault) -> &'static str {
     use diodestat_core::Fault;
@@ -1458,6 +1534,7 @@ fn debounce_board_key(fault: diodestat_core::Fault) -> &'static str {
     }
 }
 
+/// The key that holds the temperature table of a file.
 fn table_key(f: &BoardFile) -> &'static str {
     match (f.temperature.from, &f.temperature.table_csv) {
         (TableSource::Sensor, _) => "temperature.table_points",
@@ -1551,12 +1628,48 @@ table_points = 25
         // The milli-unit file keeps its units.
         let e = err(&MINIMAL.replace("ceiling_ma = 50", "ceiling_ma = 70"));
         assert!(e.contains("current.absolute_max_ma = 60 mA"), "{e}");
-        // Ranges and ratios are restated too.
-        assert_eq!(
-            in_si_units("must be in -5 ..= 2500 mA/ms, gain 3 mA/mW", ""),
-            "must be in -0.005 ..= 2.5 A/ms, gain 3 A/W"
+        // Ranges, ratios, windows and per-tick resolutions are stated in
+        // the refused key's unit where the message is made.
+        let e = bad("floor_a = 10", "floor_a = 23");
+        assert!(
+            e.contains("floor_a = 23: must be in 0 ..= current.ceiling_a = 22 A"),
+            "{e}"
         );
+        let e = bad("kp_a_per_w = 0.0879", "kp_a_per_w = 0");
+        assert!(e.contains("kp_a_per_w = 0: must be above 0 A/W"), "{e}");
+        let e = bad("supply_min_v = 43.2", "supply_min_v = 53");
+        assert!(
+            e.contains(
+                "the window protection.supply_min_v ..= protection.supply_max_v = 52.8 V must be non-empty"
+            ),
+            "{e}"
+        );
+        let e = bad(
+            "soft_start_a_per_ms = 2 ",
+            "soft_start_a_per_ms = 0.0000001 ",
+        );
+        assert!(e.contains("A/ms at this tick rate"), "{e}");
+        assert!(!e.contains("at least 0.000000 "), "{e}");
+        {
+            assert!(
+                !e.contains("mA") && !e.contains("mW") && !e.contains("mV"),
+                "{e}"
+            );
+        }
+        // A milli key in the same file keeps its unit while naming the
+        // SI keys as written.
+        let e = bad("allowance_ma = 400", "allowance_ma = -1");
+        assert!(!e.contains(" A "), "{e}");
         assert!(is_si_key("apc.kp_a_per_w") && !is_si_key("apc.kp_ma_per_mw"));
+        // A gain written as not zero that rounds to 0 is refused, not
+        // turned off.
+        let e = bad("ki_a_per_w_ms = 3.4735", "ki_a_per_w_ms = 0.0000001");
+        assert!(
+            e.contains(
+                "apc.ki_a_per_w_ms = 0.0000001: 0.0000001 A/(W ms) is not 0 but rounds to 0"
+            ),
+            "{e}"
+        );
     }
 
     #[test]
@@ -1841,7 +1954,7 @@ table_points = 25
             },
         ];
         for e in all {
-            let (key, why) = refusal(&e, &b.config, &file);
+            let (key, why) = refusal(&e, &b.config, &file, MINIMAL);
             assert!(
                 place_of(MINIMAL, &key).is_some() || key.starts_with("calibration."),
                 "{e:?} -> {key}"

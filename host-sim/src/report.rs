@@ -925,13 +925,24 @@ impl PlotGuides {
     }
 }
 
-/// A power in mW or W with four significant digits.
+/// A power in mW or W to four significant digits, without trailing zeros.
 fn mw_text(mw: f64) -> String {
-    if mw >= 1000.0 {
-        format!("{:.4} W", mw * 1e-3)
+    let (v, unit) = if mw >= 1000.0 {
+        (mw * 1e-3, "W")
     } else {
-        format!("{mw:.4} mW")
+        (mw, "mW")
+    };
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v} {unit}");
     }
+    let decimals = (3 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    let s = format!("{v:.decimals$}");
+    let s = if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.')
+    } else {
+        &s
+    };
+    format!("{s} {unit}")
 }
 
 /// The plot of [`write_svg`] as an SVG document.
@@ -1612,17 +1623,21 @@ mod tests {
         let g = g.with_class_limit("1", 0.78, 0.5);
         assert_eq!(g.class_limit.as_ref().unwrap().0, 1.56);
         let svg = plot_svg("sp", &res, &g).unwrap();
-        assert!(svg.contains("Class 1 limit, CW: 0.7800 mW accessible = 1.5600 mW front\n"));
+        assert!(svg.contains("Class 1 limit, CW: 0.78 mW accessible = 1.56 mW front\n"));
         // A limit far above the run (Class 3B on this board) is named in
         // the legend, not drawn.
         let none = PlotGuides::for_run(&sc, &res).with_unlimited_class("4");
         let svg = plot_svg("sp", &res, &none).unwrap();
         assert!(svg.contains("Class 4: no accessible emission limit"));
+        assert_eq!(mw_text(0.785_41), "0.7854 mW");
+        assert_eq!(mw_text(1.570_9), "1.571 mW");
+        assert_eq!(mw_text(18_000.0), "18 W");
+        assert_eq!(mw_text(2_345.6), "2.346 W");
         let far = g.with_class_limit("3B", 500.0, 1.0);
         let svg = plot_svg("sp", &res, &far).unwrap();
-        assert!(svg.contains(
-            "Class 3B limit, CW: 500.0000 mW accessible = 500.0000 mW front (above the scale)"
-        ));
+        assert!(
+            svg.contains("Class 3B limit, CW: 500 mW accessible = 500 mW front (above the scale)")
+        );
     }
 
     proptest! {
