@@ -1,5 +1,7 @@
 //! Closed-loop throughput: core + quasi-static plant + sensors at a 20 kHz
-//! tick, 100 ms of simulated time (2000 ticks) per iteration; and the split
+//! tick, 100 ms of simulated time (2000 ticks) per iteration, recording
+//! everything a run records and as a campaign case does (no plot envelope,
+//! no loop findings: `sim::Record::VERDICT`); and the split
 //! of one tick between the core's `step` and the plant (`Plant::sample` +
 //! `Plant::advance`), each replayed from a recorded run of the same loop.
 
@@ -123,6 +125,23 @@ fn bench(c: &mut Criterion) {
                     &module,
                     cfg.clone(),
                     sim::DacLatency::ONE_TICK,
+                )
+                .unwrap()
+                .ticks,
+            )
+        })
+    });
+    // The same run as a campaign case records it: no plot envelope, no
+    // loop findings.
+    g.bench_function("quasi_static_100ms_verdict", |b| {
+        b.iter(|| {
+            black_box(
+                sim::run_recording(
+                    black_box(&sc),
+                    &module,
+                    cfg.clone(),
+                    sim::DacLatency::ONE_TICK,
+                    sim::Record::VERDICT,
                 )
                 .unwrap()
                 .ticks,

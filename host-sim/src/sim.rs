@@ -39,11 +39,13 @@
 //! Besides the (decimated) trace, a run keeps what reports and
 //! expectations need at every tick: the spans of the core's warnings
 //! ([`WarningSpan`]) and the optical power over chosen intervals
-//! ([`PowerWindow`], see [`run_watching`]).
+//! ([`PowerWindow`], see [`run_watching`]). The plot envelope and the
+//! loop findings are kept too, unless the caller has no use for them
+//! ([`Record`], [`run_recording`]: a campaign's cases).
 
 use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
-use crate::oscillation::{fx_f64, CoreScale, CoreTick, Found, Watch};
+use crate::oscillation::{fx_f64 as to_f, CoreScale, CoreTick, Found, Watch};
 use crate::plant::{
     c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, Rng, SensorChain, Thermal,
 };
@@ -662,12 +664,6 @@ pub struct LatencyError(pub u32);
 
 fn fx(v: f64) -> Fx {
     Fx::saturating_from_num(v)
-}
-
-/// `v` as f64, exactly ([`fx_f64`]).
-#[inline]
-fn to_f(v: Fx) -> f64 {
-    fx_f64(v)
 }
 
 /// What a run records besides what every caller reads (happenings, the
