@@ -74,7 +74,8 @@ struct TempCache {
 /// two), so that readings dithering over neighbouring counts are all kept.
 const TEMP_SLOTS: usize = 4;
 
-/// One kept reading and what it gives (16 bytes; all zero when empty).
+/// One kept reading, not at a sensor rail, and what it gives (all zero
+/// when empty).
 #[derive(Clone, Copy, Debug, Default)]
 struct TempSlot {
     /// The reading, complemented (`!counts`, never zero); zero before one
@@ -85,9 +86,6 @@ struct TempSlot {
     /// min(configured ceiling, derated ceiling), iu; the derating floor
     /// with the sensor at a rail.
     static_ceiling_iu: Fx,
-    /// The sensor-rail conditions, as mask bits ([`TempReading::rails`]:
-    /// the sensor faults' bits, below bit 16).
-    rails: u16,
     /// The derating warning: above the knee, the sensor not at a rail.
     derating: bool,
 }
@@ -109,9 +107,10 @@ impl TempCache {
         let i = usize::from(counts) % TEMP_SLOTS;
         if let Some(slot) = self.slots.get(i) {
             if !u32::from(counts) == slot.key {
+                // (A reading at a rail is never kept.)
                 let t = TempReading {
                     degc: slot.degc,
-                    rails: u32::from(slot.rails),
+                    rails: 0,
                 };
                 return (t, slot.static_ceiling_iu, slot.derating);
             }
@@ -121,9 +120,12 @@ impl TempCache {
         // min(configured ceiling, derated ceiling): the derated ceiling is
         // the configured one up to the knee and below it past the knee, and
         // validation keeps the floor at or below it.
-        let (static_ceiling_iu, derating) = if t.rails != 0 {
-            (c.derating.floor_iu, false)
-        } else if t.degc <= c.derating.knee_degc {
+        if t.rails != 0 {
+            // A reading at a rail is not kept: a fault, whose trip step
+            // should not pay for the store.
+            return (t, c.derating.floor_iu, false);
+        }
+        let (static_ceiling_iu, derating) = if t.degc <= c.derating.knee_degc {
             (c.current.ceiling_iu, false)
         } else {
             (cfg.derated_ceiling_iu(t.degc), true)
@@ -133,8 +135,6 @@ impl TempCache {
                 key: !u32::from(counts),
                 degc: t.degc,
                 static_ceiling_iu,
-                // (The sensor faults' bits, 3 and 4: no bit is lost.)
-                rails: t.rails as u16,
                 derating,
             };
         }
