@@ -1293,11 +1293,7 @@ pub(crate) fn dac_code_clamped(dac: &DacCal, ma: Fx) -> u16 {
 /// `ceiling_iu` of a validated configuration.
 #[inline]
 fn drive_code(dac: &DacCal, ceiling_iu: Fx, drive_iu: Fx) -> u16 {
-    // `drive < 0 || drive > ceiling` in one unsigned comparison (the
-    // ceiling is positive: a negative drive reads above it).
-    if drive_iu.to_bits() as u32 > ceiling_iu.to_bits() as u32 {
-        return dac_code_clamped(dac, drive_iu);
-    }
+    let drive_iu = drive_iu.max(Fx::ZERO).min(ceiling_iu);
     let wide = i64::from(drive_iu.to_bits()) * i64::from(dac.codes_per_iu.to_bits());
     let code = ((wide.wrapping_add(1 << 31) >> 32) as i32).wrapping_add(dac.offset_codes);
     code as u16
@@ -1378,7 +1374,8 @@ impl ValidConfig {
     /// the offset (`0 <= offset_codes`, `codes_per_iu > 0`); so the code is
     /// the product plus the offset, without saturation (the product is
     /// below 2^62, its rounded high word below 2^30). A drive outside that
-    /// range (never commanded) is clamped to the DAC range all the same.
+    /// range (never commanded) is held within it first: never a code above
+    /// the ceiling's.
     #[inline]
     pub(crate) fn drive_code(&self, drive_iu: Fx) -> u16 {
         drive_code(
@@ -1500,9 +1497,12 @@ mod tests {
                     ((u64::from(next()) * u64::from(ceiling.to_bits() as u32)) >> 32) as i32,
                 ),
             };
+            // (Outside `[0, ceiling]`, never commanded, the drive is held
+            // within it.)
+            let held = drive.max(Fx::ZERO).min(ceiling);
             assert_eq!(
                 drive_code(&dac, ceiling, drive),
-                dac_code_clamped(&dac, drive),
+                dac_code_clamped(&dac, held),
                 "{dac:?} ceiling {ceiling} drive {drive}"
             );
             checked += 1;

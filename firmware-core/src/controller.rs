@@ -54,66 +54,90 @@ pub struct Controller {
     temp: TempCache,
 }
 
-/// The latest temperature reading and what the tick derives from it alone:
-/// the temperature, the sensor rail conditions, the static ceiling and the
-/// derating warning. The configuration is fixed, so these depend on the
-/// reading only: a sample with the same reading (the temperature moves
-/// slowly against the tick) takes them from here instead of converting
-/// again.
+/// What the tick derives from a temperature reading alone: the
+/// temperature, the sensor rail conditions, the static ceiling and the
+/// derating warning, kept for the latest readings. The configuration is
+/// fixed, so these depend on the reading only: a sample whose reading was
+/// seen lately (the temperature moves slowly against the tick, and the
+/// reading dithers over a few counts in its noise) takes them from here
+/// instead of converting again.
 #[derive(Clone, Copy, Debug)]
 struct TempCache {
-    /// The reading the values below are of; `u32::MAX` (no reading) before
-    /// the first sample.
-    counts: u32,
-    reading: TempReading,
+    /// The latest reading of each value of its lowest two bits.
+    slots: [TempSlot; TEMP_SLOTS],
+    /// Temperature table window around the latest reading converted (see
+    /// [`crate::temp_table::degc_cached`]).
+    window: Window,
+}
+
+/// Readings kept: one per value of a reading's lowest bits (a power of
+/// two), so that readings dithering over neighbouring counts are all kept.
+const TEMP_SLOTS: usize = 4;
+
+/// One kept reading, not at a sensor rail, and what it gives (all zero
+/// when empty).
+#[derive(Clone, Copy, Debug, Default)]
+struct TempSlot {
+    /// The reading, complemented (`!counts`, never zero); zero before one
+    /// is kept here.
+    key: u32,
+    /// The temperature, degC.
+    degc: Fx,
     /// min(configured ceiling, derated ceiling), iu; the derating floor
     /// with the sensor at a rail.
     static_ceiling_iu: Fx,
     /// The derating warning: above the knee, the sensor not at a rail.
     derating: bool,
-    /// Temperature table window around the reading (see
-    /// [`crate::temp_table::degc_cached`]).
-    window: Window,
 }
 
 impl TempCache {
     /// No reading yet, for `cfg`'s table.
     fn new(cfg: &ValidConfig) -> Self {
         TempCache {
-            counts: u32::MAX,
-            reading: TempReading {
-                degc: Fx::ZERO,
-                rails: 0,
-            },
-            static_ceiling_iu: Fx::ZERO,
-            derating: false,
+            slots: [TempSlot::default(); TEMP_SLOTS],
             window: Window::empty(&cfg.config().calibration.temperature.table),
         }
     }
 
     /// The reading `counts`, its static ceiling and its derating warning:
-    /// those kept when it is the reading kept, else converted and kept.
+    /// those kept when the reading is kept, else converted and kept.
     #[inline]
     fn take(&mut self, cfg: &ValidConfig, counts: u16) -> (TempReading, Fx, bool) {
-        if u32::from(counts) == self.counts {
-            return (self.reading, self.static_ceiling_iu, self.derating);
+        // (The index is below the slots' number: `get` always finds one.)
+        let i = usize::from(counts) % TEMP_SLOTS;
+        if let Some(slot) = self.slots.get(i) {
+            if !u32::from(counts) == slot.key {
+                // (A reading at a rail is never kept.)
+                let t = TempReading {
+                    degc: slot.degc,
+                    rails: 0,
+                };
+                return (t, slot.static_ceiling_iu, slot.derating);
+            }
         }
         let t = TempReading::of(cfg, counts, &mut self.window);
         let c = cfg.config();
         // min(configured ceiling, derated ceiling): the derated ceiling is
         // the configured one up to the knee and below it past the knee, and
         // validation keeps the floor at or below it.
-        let (static_ceiling_iu, derating) = if t.rails != 0 {
-            (c.derating.floor_iu, false)
-        } else if t.degc <= c.derating.knee_degc {
+        if t.rails != 0 {
+            // A reading at a rail is not kept: a fault, whose trip step
+            // should not pay for the store.
+            return (t, c.derating.floor_iu, false);
+        }
+        let (static_ceiling_iu, derating) = if t.degc <= c.derating.knee_degc {
             (c.current.ceiling_iu, false)
         } else {
             (cfg.derated_ceiling_iu(t.degc), true)
         };
-        self.counts = u32::from(counts);
-        self.reading = t;
-        self.static_ceiling_iu = static_ceiling_iu;
-        self.derating = derating;
+        if let Some(slot) = self.slots.get_mut(i) {
+            *slot = TempSlot {
+                key: !u32::from(counts),
+                degc: t.degc,
+                static_ceiling_iu,
+                derating,
+            };
+        }
         (t, static_ceiling_iu, derating)
     }
 }

@@ -795,29 +795,33 @@ fn diode_at(pl: &Plausibility, degc: Fx) -> (Fx, Fx) {
     for w in pl.points.windows(2) {
         if let [a, b] = w {
             if degc <= b.degc {
-                let lerp = |ya: Fx, yb: Fx| {
-                    let num = i64::from(degc.to_bits()) - i64::from(a.degc.to_bits());
-                    let den = i64::from(b.degc.to_bits()) - i64::from(a.degc.to_bits());
-                    let dy = i64::from(yb.to_bits()) - i64::from(ya.to_bits());
-                    // 0 <= num <= den < 2^32 and |dy| < 2^32: the
-                    // quotient is within |dy|.
-                    let step = if den > 0 {
-                        dy.saturating_mul(num) / den
-                    } else {
-                        0
-                    };
-                    Fx::from_bits(crate::units::sat_i32(
-                        i64::from(ya.to_bits()).saturating_add(step),
-                    ))
-                };
                 return (
-                    lerp(a.threshold_iu, b.threshold_iu),
-                    lerp(a.slope_ou_per_iu, b.slope_ou_per_iu),
+                    lerp(degc, a.degc, b.degc, a.threshold_iu, b.threshold_iu),
+                    lerp(degc, a.degc, b.degc, a.slope_ou_per_iu, b.slope_ou_per_iu),
                 );
             }
         }
     }
     (last.threshold_iu, last.slope_ou_per_iu)
+}
+
+/// `ya + (yb - ya)·(x - xa)/(xb - xa)` for `xa <= x <= xb`, the quotient
+/// truncated, in i64. Out of line: the slow protection calls it twice per
+/// evaluation, and one copy of the 64-bit division is smaller.
+#[inline(never)]
+fn lerp(x: Fx, xa: Fx, xb: Fx, ya: Fx, yb: Fx) -> Fx {
+    let num = i64::from(x.to_bits()) - i64::from(xa.to_bits());
+    let den = i64::from(xb.to_bits()) - i64::from(xa.to_bits());
+    let dy = i64::from(yb.to_bits()) - i64::from(ya.to_bits());
+    // 0 <= num <= den < 2^32 and |dy| < 2^32: the quotient is within |dy|.
+    let step = if den > 0 {
+        dy.saturating_mul(num) / den
+    } else {
+        0
+    };
+    Fx::from_bits(crate::units::sat_i32(
+        i64::from(ya.to_bits()).saturating_add(step),
+    ))
 }
 
 impl Protections {
