@@ -12,7 +12,7 @@
 //! so `C(z) = kp + ki·z/(z-1)`. The integrator holds 40 fractional bits so
 //! that small per-tick integral gains do not lose resolution.
 
-use crate::units::{clamp_fx, Fx, Gain};
+use crate::units::{sat_i32, Fx, Gain};
 
 const FRAC: u32 = 40;
 const FX_FRAC: u32 = 16;
@@ -25,14 +25,20 @@ pub struct PowerLoop {
     integ: i64,
 }
 
-/// Limits for one PI step.
+/// Limits for one PI step, as the controller holds them: the previous
+/// output is never negative, the slew is positive (validation) and the
+/// ceiling is never negative (the lowest ceiling is the derating floor,
+/// which validation keeps at or above zero, or the envelope, which starts
+/// at zero and only rises by a positive step or follows a drive) and below
+/// `Fx::MAX` (validation keeps the configured ceiling below the
+/// overcurrent limit). The step relies on these.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub(crate) struct Limits {
-    /// Output of the previous tick, iu.
+    /// Output of the previous tick, iu; at least zero.
     pub prev_iu: Fx,
-    /// Slew per tick, iu.
+    /// Slew per tick, iu; positive.
     pub slew_iu: Fx,
-    /// Ceiling for this tick, iu.
+    /// Ceiling for this tick, iu; at least zero, below `Fx::MAX`.
     pub ceiling_iu: Fx,
 }
 
@@ -70,8 +76,8 @@ impl PowerLoop {
 
     /// One PI step. Returns the new output in iu.
     ///
-    /// The integrator and the sums are 64-bit; only the proportional term
-    /// and the output saturate to the [`Fx`] range. The integrator always
+    /// The integrator and the sums are 64-bit; only the error and the
+    /// output saturate to the [`Fx`] range. The integrator always
     /// lies within ±2^55 (it is set from an `Fx` shifted by 24 bits, or
     /// clamped to `[0, ceiling]` so shifted), and `|e·ki| <= 2^62`, so the
     /// sums below stay within ±(2^62 + 2^56) and cannot overflow: plain
@@ -86,26 +92,31 @@ impl PowerLoop {
         lim: Limits,
     ) -> Fx {
         let e = setpoint_ou.saturating_sub(monitor_ou);
-        // `kp.saturating_mul(e)`: the product floored to 16 fractional
-        // bits, saturated.
-        let p = sat_shr16(i64::from(kp.to_bits()) * i64::from(e.to_bits()));
+        let e_bits = i64::from(e.to_bits());
+        // kp·e floored to 16 fractional bits, not saturated (|kp·e| < 2^62).
+        let p = (i64::from(kp.to_bits()) * e_bits) >> 16;
         // e (16 fractional bits) × ki (24) = 40 fractional bits.
-        let inc = i64::from(e.to_bits()) * i64::from(ki.to_bits());
+        let inc = e_bits * i64::from(ki.to_bits());
         let candidate = self.integ.wrapping_add(inc);
-        // `from_wide(candidate + to_wide(p))`: `p·2^24` is a whole multiple
-        // of 2^24, so the sum shifted right by 24 is `(candidate >> 24) + p`
-        // exactly; when `candidate >> 24` fits i32 (its high word within
-        // [-2^23, 2^23)) that is one saturating 32-bit add.
-        let high = (candidate >> 32) as i32;
-        let u = if (high.wrapping_add(1 << 23) as u32) < (1 << 24) {
-            Fx::from_bits(((candidate >> (FRAC - FX_FRAC)) as i32).saturating_add(p))
-        } else {
-            from_wide(candidate.wrapping_add(to_wide(Fx::from_bits(p))))
-        };
-        let lo = lim.prev_iu.saturating_sub(lim.slew_iu);
+        // The output before its limits, `(candidate >> 24) + p` (within
+        // ±2^48), saturated once. The reference saturates `p` first (the
+        // fixed crate's `kp.saturating_mul(e)`); that gives the same output
+        // and the same integrator for the gains validation accepts
+        // (`kp > 0`, `ki >= 0`) and an integrator at or above zero: a `p`
+        // beyond `Fx::MAX` comes with `e > 0`, so `inc >= 0` and
+        // `candidate >= 0`, and both sums saturate to `Fx::MAX`; a `p`
+        // below `Fx::MIN` comes with `e < 0`, so `candidate >> 24` is at
+        // most the integrator's `Fx::MAX` and both sums are negative,
+        // where the limits give zero and the same pushing-down verdict.
+        let u = Fx::from_bits(sat_i32((candidate >> (FRAC - FX_FRAC)).wrapping_add(p)));
+        // `clamp_fx(clamp_fx(u, lo, hi), 0, ceiling)` with the slew window
+        // `lo = prev - slew` and `hi = prev + slew` saturated. Within the
+        // limits' invariants (`prev >= 0`, `slew > 0`, `ceiling >= 0`):
+        // `prev - slew` cannot overflow, `lo < hi` and `0 <= ceiling`, so
+        // each clamp is a min and a max.
+        let lo = Fx::from_bits(lim.prev_iu.to_bits().wrapping_sub(lim.slew_iu.to_bits()));
         let hi = lim.prev_iu.saturating_add(lim.slew_iu);
-        let slewed = clamp_fx(u, lo, hi);
-        let out = clamp_fx(slewed, Fx::ZERO, lim.ceiling_iu);
+        let out = u.min(hi).max(lo).min(lim.ceiling_iu).max(Fx::ZERO);
         let pushing_up = out < u && e > Fx::ZERO;
         let pushing_down = out > u && e < Fx::ZERO;
         let integ = if pushing_up || pushing_down {
@@ -114,7 +125,7 @@ impl PowerLoop {
             candidate
         };
         // The integrator never holds more than the ceiling nor less than zero.
-        let top = to_wide(lim.ceiling_iu.max(Fx::ZERO));
+        let top = to_wide(lim.ceiling_iu);
         self.integ = if integ < 0 {
             0
         } else if integ > top {
@@ -126,24 +137,10 @@ impl PowerLoop {
     }
 }
 
-/// `sat_i32(v >> 16)` with one range test of the high word: `v >> 16` fits
-/// i32 exactly when the high word of `v` lies in [-2^15, 2^15).
-#[inline]
-fn sat_shr16(v: i64) -> i32 {
-    let high = (v >> 32) as i32;
-    if (high.wrapping_add(1 << 15) as u32) < (1 << 16) {
-        (v >> 16) as i32
-    } else if high < 0 {
-        i32::MIN
-    } else {
-        i32::MAX
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::units::sat_i32;
+    use crate::units::clamp_fx;
 
     /// The PI step as first written, with saturating 64-bit arithmetic
     /// throughout and the fixed crate's saturating multiply: the reference
@@ -215,19 +212,22 @@ mod tests {
                     rng.bits()
                 }
             };
-            let kp = Fx::from_bits(pick(0));
-            let ki = Gain::from_bits(pick(1));
+            // Gains as validation accepts them: `kp > 0`, `ki >= 0`.
+            let kp = Fx::from_bits((pick(0) & i32::MAX).max(1));
+            let ki = Gain::from_bits(pick(1) & i32::MAX);
             let sp = Fx::from_bits(pick(2));
             let mon = Fx::from_bits(pick(3));
+            // Limits within their invariants (`prev >= 0`, `slew > 0`,
+            // `ceiling >= 0`), from zero (one LSB for the slew) to the top.
             let lim = Limits {
-                prev_iu: Fx::from_bits(pick(4)),
-                slew_iu: Fx::from_bits(pick(5)),
-                ceiling_iu: Fx::from_bits(pick(6)),
+                prev_iu: Fx::from_bits(pick(4) & i32::MAX),
+                slew_iu: Fx::from_bits((pick(5) & i32::MAX).max(1)),
+                ceiling_iu: Fx::from_bits((pick(6) & i32::MAX).min(i32::MAX - 1)),
             };
-            // Integrator states: preset from any Fx (the widest reachable),
+            // Integrator states: preset from any drive (at least zero),
             // then a few steps from there.
             let mut pi = PowerLoop::default();
-            pi.preset(Fx::from_bits(pick(7)));
+            pi.preset(Fx::from_bits(pick(7) & i32::MAX));
             let mut reference = pi.integ;
             for _ in 0..3 {
                 let want = reference_step(&mut reference, kp, ki, sp, mon, lim);
@@ -246,7 +246,6 @@ mod tests {
         for _ in 0..200_000 {
             let v = (i64::from(rng.bits()) << 32) | i64::from(rng.bits() as u32);
             for w in [v, v >> 7, v >> 17, v >> 30, i64::MIN, i64::MAX, -1, 0] {
-                assert_eq!(sat_shr16(w), sat_i32(w >> 16), "{w}");
                 assert_eq!(from_wide(w).to_bits(), sat_i32(w >> 24), "{w}");
             }
         }

@@ -1289,6 +1289,20 @@ pub(crate) fn dac_code_clamped(dac: &DacCal, ma: Fx) -> u16 {
     }
 }
 
+/// [`ValidConfig::drive_code`] for the DAC `dac` and the ceiling
+/// `ceiling_iu` of a validated configuration.
+#[inline]
+fn drive_code(dac: &DacCal, ceiling_iu: Fx, drive_iu: Fx) -> u16 {
+    // `drive < 0 || drive > ceiling` in one unsigned comparison (the
+    // ceiling is positive: a negative drive reads above it).
+    if drive_iu.to_bits() as u32 > ceiling_iu.to_bits() as u32 {
+        return dac_code_clamped(dac, drive_iu);
+    }
+    let wide = i64::from(drive_iu.to_bits()) * i64::from(dac.codes_per_iu.to_bits());
+    let code = ((wide.wrapping_add(1 << 31) >> 32) as i32).wrapping_add(dac.offset_codes);
+    code as u16
+}
+
 /// The DAC code for a current without clamping, in i64.
 pub(crate) fn dac_code_unclamped(dac: &DacCal, ma: Fx) -> i64 {
     // Fx × Fx = 32 fractional bits; round to nearest.
@@ -1355,6 +1369,23 @@ impl ValidConfig {
     #[inline]
     pub fn dac_code(&self, ma: Fx) -> u16 {
         dac_code_clamped(&self.cfg.calibration.dac, ma)
+    }
+
+    /// [`ValidConfig::dac_code`] of a drive the controller commands: one
+    /// within `[0, current.ceiling_iu]`. There no clamp is reached: the
+    /// rounded product rises with the drive, from 0 at zero to at most the
+    /// ceiling's code, which validation keeps at or below `max_code` after
+    /// the offset (`0 <= offset_codes`, `codes_per_iu > 0`); so the code is
+    /// the product plus the offset, without saturation (the product is
+    /// below 2^62, its rounded high word below 2^30). A drive outside that
+    /// range (never commanded) is clamped to the DAC range all the same.
+    #[inline]
+    pub(crate) fn drive_code(&self, drive_iu: Fx) -> u16 {
+        drive_code(
+            &self.cfg.calibration.dac,
+            self.cfg.current.ceiling_iu,
+            drive_iu,
+        )
     }
 
     /// Temperature-derated current ceiling at `degc`, iu: the configured
@@ -1432,5 +1463,50 @@ mod tests {
             let want = dac_code_unclamped(&dac, ma).clamp(0, i64::from(dac.max_code)) as u16;
             assert_eq!(dac_code_clamped(&dac, ma), want, "{dac:?} {ma}");
         }
+    }
+
+    #[test]
+    fn the_drive_code_equals_the_clamped_code() {
+        // DACs and ceilings as validation accepts them (a positive gain, an
+        // offset below the largest code, the ceiling's code at or below
+        // it), drives from zero to the ceiling and beyond either end.
+        let mut x: u64 = 7;
+        let mut next = || {
+            // A 64-bit LCG (Knuth's MMIX constants, `common practice`).
+            x = x
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (x >> 32) as u32
+        };
+        let mut checked = 0u32;
+        for _ in 0..200_000 {
+            let max_code = (next() as u16).max(1);
+            let dac = DacCal {
+                codes_per_iu: Fx::from_bits(((next() >> (next() % 31)) as i32).max(1)),
+                offset_codes: (next() % u32::from(max_code)) as i32,
+                max_code,
+                unit_exp: -3,
+            };
+            let ceiling = Fx::from_bits(((next() >> (next() % 31)) as i32).max(1));
+            if dac_code_unclamped(&dac, ceiling) > i64::from(max_code) {
+                continue;
+            }
+            let r = next();
+            let drive = match r % 5 {
+                0 => Fx::ZERO,
+                1 => ceiling,
+                2 => Fx::from_bits(next() as i32),
+                _ => Fx::from_bits(
+                    ((u64::from(next()) * u64::from(ceiling.to_bits() as u32)) >> 32) as i32,
+                ),
+            };
+            assert_eq!(
+                drive_code(&dac, ceiling, drive),
+                dac_code_clamped(&dac, drive),
+                "{dac:?} ceiling {ceiling} drive {drive}"
+            );
+            checked += 1;
+        }
+        assert!(checked > 10_000, "{checked} cases");
     }
 }

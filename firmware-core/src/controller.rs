@@ -22,7 +22,7 @@ use crate::config::ValidConfig;
 use crate::fault::{Fault, FaultLog, FaultRecord, FaultSet};
 use crate::io::{Drive, Mode, Sample, State, Status, Warnings};
 use crate::persist::{LatchRecord, RestoreError, LATCH_RECORD_LEN};
-use crate::protect::{Measurements, Protections, SLOW_EVERY};
+use crate::protect::{Measurements, Protections, TempReading, SLOW_EVERY};
 use crate::request::{Rejection, Request};
 use crate::temp_table::Window;
 use crate::units::{clamp_fx, Fx};
@@ -50,8 +50,72 @@ pub struct Controller {
     log: FaultLog,
     last_tick: Option<u32>,
     meas: Measurements,
-    /// Temperature table segment of the latest sample.
-    temp_segment: Window,
+    /// The latest temperature reading and what the tick derives from it.
+    temp: TempCache,
+}
+
+/// The latest temperature reading and what the tick derives from it alone:
+/// the temperature, the sensor rail conditions, the static ceiling and the
+/// derating warning. The configuration is fixed, so these depend on the
+/// reading only: a sample with the same reading (the temperature moves
+/// slowly against the tick) takes them from here instead of converting
+/// again.
+#[derive(Clone, Copy, Debug)]
+struct TempCache {
+    /// The reading the values below are of; `u32::MAX` (no reading) before
+    /// the first sample.
+    counts: u32,
+    reading: TempReading,
+    /// min(configured ceiling, derated ceiling), iu; the derating floor
+    /// with the sensor at a rail.
+    static_ceiling_iu: Fx,
+    /// The derating warning: above the knee, the sensor not at a rail.
+    derating: bool,
+    /// Temperature table window around the reading (see
+    /// [`crate::temp_table::degc_cached`]).
+    window: Window,
+}
+
+impl TempCache {
+    /// No reading yet, for `cfg`'s table.
+    fn new(cfg: &ValidConfig) -> Self {
+        TempCache {
+            counts: u32::MAX,
+            reading: TempReading {
+                degc: Fx::ZERO,
+                rails: 0,
+            },
+            static_ceiling_iu: Fx::ZERO,
+            derating: false,
+            window: Window::empty(&cfg.config().calibration.temperature.table),
+        }
+    }
+
+    /// The reading `counts`, its static ceiling and its derating warning:
+    /// those kept when it is the reading kept, else converted and kept.
+    #[inline]
+    fn take(&mut self, cfg: &ValidConfig, counts: u16) -> (TempReading, Fx, bool) {
+        if u32::from(counts) == self.counts {
+            return (self.reading, self.static_ceiling_iu, self.derating);
+        }
+        let t = TempReading::of(cfg, counts, &mut self.window);
+        let c = cfg.config();
+        // min(configured ceiling, derated ceiling): the derated ceiling is
+        // the configured one up to the knee and below it past the knee, and
+        // validation keeps the floor at or below it.
+        let (static_ceiling_iu, derating) = if t.rails != 0 {
+            (c.derating.floor_iu, false)
+        } else if t.degc <= c.derating.knee_degc {
+            (c.current.ceiling_iu, false)
+        } else {
+            (cfg.derated_ceiling_iu(t.degc), true)
+        };
+        self.counts = u32::from(counts);
+        self.reading = t;
+        self.static_ceiling_iu = static_ceiling_iu;
+        self.derating = derating;
+        (t, static_ceiling_iu, derating)
+    }
 }
 
 impl Controller {
@@ -59,7 +123,7 @@ impl Controller {
     /// zero current setpoint.
     pub fn new(cfg: ValidConfig) -> Self {
         let min_ou = cfg.config().power.min_setpoint_ou;
-        let temp_segment = Window::empty(&cfg.config().calibration.temperature.table);
+        let temp = TempCache::new(&cfg);
         Controller {
             cfg,
             status: Status {
@@ -87,7 +151,7 @@ impl Controller {
             log: FaultLog::new(),
             last_tick: None,
             meas: Measurements::default(),
-            temp_segment,
+            temp,
         }
     }
 
@@ -218,24 +282,21 @@ impl Controller {
         // The command that produced this sample: the drive of the previous
         // tick (see 3.).
         let last_cmd = self.drive_iu;
+        // The temperature first: a new reading may have to find its table
+        // window again (a call), before any other value is live.
+        let (temp, static_ceiling, derating) = self.temp.take(&self.cfg, s.temp_counts);
         let direct;
-        (self.meas, direct) =
-            Measurements::from_sample(&self.cfg, s, missed, last_cmd, &mut self.temp_segment);
+        (self.meas, direct) = Measurements::from_sample(&self.cfg, s, missed, last_cmd, temp);
         if s.tick & (SLOW_EVERY - 1) == 0 {
             self.status.warnings.end_of_life = self.prot.evaluate_slow(&self.cfg, &self.meas);
         }
         let m = &self.meas;
         let monitor_ou = m.monitor_ou;
 
-        // 2. Static ceiling (configured and derated).
+        // 2. Static ceiling (configured and derated), of the temperature
+        // reading.
         let c = self.cfg.config();
-        let derated = if m.sensor_at_rail {
-            c.derating.floor_iu
-        } else {
-            self.cfg.derated_ceiling_iu(m.temp_degc)
-        };
-        let static_ceiling = derated.min(c.current.ceiling_iu);
-        self.status.warnings.derating = !m.sensor_at_rail && m.temp_degc > c.derating.knee_degc;
+        self.status.warnings.derating = derating;
         self.status.warnings.sensor_suspect = m.sensor_at_rail;
 
         // 3. Protections, on the command that produced this sample: the
@@ -330,7 +391,11 @@ impl Controller {
         self.status.warnings.at_ceiling = at_ceiling;
         self.drive_iu = drive;
         Drive {
-            dac_code: if enable { self.cfg.dac_code(drive) } else { 0 },
+            dac_code: if enable {
+                self.cfg.drive_code(drive)
+            } else {
+                0
+            },
             enable,
             status: self.status,
         }
@@ -412,20 +477,29 @@ impl Controller {
     /// clamp).
     fn regulate(&mut self, monitor_ou: Fx, static_ceiling: Fx) -> (Fx, bool) {
         let c = self.cfg.config();
-        self.envelope_iu = self
-            .envelope_iu
-            .saturating_add(self.cfg.soft_start_iu_per_tick())
-            .min(c.current.ceiling_iu);
+        // The envelope never exceeds the configured ceiling, and once there
+        // it stays (the soft-start step is positive): the usual tick skips
+        // the step.
+        if self.envelope_iu < c.current.ceiling_iu {
+            self.envelope_iu = self
+                .envelope_iu
+                .saturating_add(self.cfg.soft_start_iu_per_tick())
+                .min(c.current.ceiling_iu);
+        }
         let ceiling = self.envelope_iu.min(static_ceiling);
         self.ceiling_iu = ceiling;
         let slew = self.cfg.slew_iu_per_tick();
         match self.status.mode {
             Mode::Apc => {
-                self.power_sp_ou = toward(
-                    self.power_sp_ou,
-                    self.power_target_ou,
-                    self.cfg.setpoint_ou_per_tick(),
-                );
+                // (A setpoint at its target stays there: `toward` of equal
+                // ends is the target.)
+                if self.power_sp_ou != self.power_target_ou {
+                    self.power_sp_ou = toward(
+                        self.power_sp_ou,
+                        self.power_target_ou,
+                        self.cfg.setpoint_ou_per_tick(),
+                    );
+                }
                 let out = self.pi.step(
                     self.cfg.kp(),
                     self.cfg.ki_per_tick(),
@@ -554,6 +628,24 @@ fn toward(from: Fx, to: Fx, step: Fx) -> Fx {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The kept reading gives what converting it again gives: every
+    /// reading, taken fresh, repeated, and after each of a few others
+    /// (rails, the table's ends, far away).
+    #[test]
+    fn a_kept_temperature_reading_equals_a_fresh_one() {
+        let cfg = crate::example::config().validate().unwrap();
+        let fresh = |counts: u16| TempCache::new(&cfg).take(&cfg, counts);
+        let mut kept = TempCache::new(&cfg);
+        for counts in 0..=u16::MAX {
+            let want = fresh(counts);
+            for before in [0, 40, 2_048, 4_055, 4_095, u16::MAX, counts ^ 1] {
+                kept.take(&cfg, before);
+                assert_eq!(kept.take(&cfg, counts), want, "{counts} after {before}");
+                assert_eq!(kept.take(&cfg, counts), want, "{counts} repeated");
+            }
+        }
+    }
 
     /// `step` takes the previous drive as the command that produced the
     /// sample without looking at the state: that relies on the drive being

@@ -582,37 +582,58 @@ pub const SLOW_EVERY: u32 = 32;
 /// A `missed_ticks` at or above this is a repeated or backward index.
 const TICK_ORDER_MISSED: u32 = i32::MAX as u32;
 
+/// What a temperature reading alone gives: the temperature and the sensor
+/// rail conditions (the configuration is fixed, so the same reading always
+/// gives the same).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub(crate) struct TempReading {
+    /// The temperature, degC (meaningless while `rails` is not zero).
+    pub degc: Fx,
+    /// The sensor-rail conditions (open, short) of the reading, as mask
+    /// bits: zero exactly when the sensor is not at a rail.
+    pub rails: u32,
+}
+
+impl TempReading {
+    /// Convert the temperature reading `counts`. `window` is the temperature
+    /// table window of the previous conversion (updated; see
+    /// [`crate::temp_table::degc_cached`]).
+    #[inline]
+    pub(crate) fn of(cfg: &ValidConfig, counts: u16, window: &mut Window) -> Self {
+        let degc = cfg.counts_to_degc_cached(counts, window);
+        let tc = &cfg.config().calibration.temperature;
+        // The rail faults (open or short, per the configured open rail) as
+        // mask bits derived at validation (both non-zero).
+        let rails = if counts <= tc.low_fault_counts {
+            cfg.t.low_rail_bit
+        } else {
+            0
+        } | if counts >= tc.high_fault_counts {
+            cfg.t.high_rail_bit
+        } else {
+            0
+        };
+        TempReading { degc, rails }
+    }
+}
+
 impl Measurements {
-    /// Calibrate a sample. `temp_segment` is the temperature table window
-    /// of the previous sample (updated; see
-    /// [`crate::temp_table::degc_cached`]); `last_cmd_iu` the command that
-    /// produced the sample. Also returns the conditions read straight off
-    /// the sample (sensor open, short; external fault; diode open, short)
-    /// as a mask, for [`Protections::check`]; its sensor bits are empty
-    /// exactly when `sensor_at_rail` is false.
+    /// Calibrate a sample, whose temperature reading is `t`
+    /// ([`TempReading::of`] its `temp_counts`); `last_cmd_iu` the command
+    /// that produced the sample. Also returns the conditions read straight
+    /// off the sample (sensor open, short; external fault; diode open,
+    /// short) as a mask, for [`Protections::check`]; its sensor bits are
+    /// empty exactly when `sensor_at_rail` is false.
     #[inline]
     pub(crate) fn from_sample(
         cfg: &ValidConfig,
         s: &crate::io::Sample,
         missed_ticks: u32,
         last_cmd_iu: Fx,
-        temp_segment: &mut Window,
+        t: TempReading,
     ) -> (Self, u32) {
-        // The temperature first: its window may have to be found again (a
-        // call), before any other value is live.
-        let temp_degc = cfg.counts_to_degc_cached(s.temp_counts, temp_segment);
-        let tc = &cfg.config().calibration.temperature;
-        // The rail faults (open or short, per the configured open rail) as
-        // mask bits derived at validation (both non-zero).
-        let rails = if s.temp_counts <= tc.low_fault_counts {
-            cfg.t.low_rail_bit
-        } else {
-            0
-        } | if s.temp_counts >= tc.high_fault_counts {
-            cfg.t.high_rail_bit
-        } else {
-            0
-        };
+        let rails = t.rails;
         // (`rails` already holds the sensor conditions of the table: the
         // union only spares their re-derivation.)
         let mut direct = rails
@@ -633,7 +654,7 @@ impl Measurements {
         let m = Measurements {
             monitor_ou: cfg.monitor_ou(s.monitor_counts),
             current_iu: cfg.current_iu(s.current_counts),
-            temp_degc,
+            temp_degc: t.degc,
             temp_counts: s.temp_counts,
             sensor_at_rail: rails != 0,
             supply_vu: cfg.supply_vu(s.supply_counts),
@@ -1169,8 +1190,8 @@ mod tests {
                     external_fault: false,
                 };
                 let mut window = Window::NONE;
-                let (base, rails) =
-                    Measurements::from_sample(&cfg, &sample, 0, Fx::ZERO, &mut window);
+                let t = TempReading::of(&cfg, temp_counts, &mut window);
+                let (base, rails) = Measurements::from_sample(&cfg, &sample, 0, Fx::ZERO, t);
                 let choice = rng.next();
                 let (monitor_near, current_near, supply_near) = (
                     [p.runaway_ou, p.monitor_loss_floor_ou][choice as usize % 2],

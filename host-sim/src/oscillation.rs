@@ -35,6 +35,8 @@
 
 use std::fmt;
 
+use diodestat_core::Fx;
+
 /// Normalised autocorrelation at the period for an oscillation to count
 /// as periodic (our choice).
 pub const PERIODIC_CORRELATION: f64 = 0.5;
@@ -237,35 +239,98 @@ impl fmt::Display for Found {
     }
 }
 
+/// A tick as [`Watch`] keeps it until its stretch is analysed.
+pub trait Kept: Copy {
+    /// What turns a kept tick into the detector's [`TickSample`].
+    type Scale: Copy + fmt::Debug;
+    /// The tick as the detector sees it.
+    fn sample(&self, scale: Self::Scale) -> TickSample;
+}
+
+impl Kept for TickSample {
+    type Scale = ();
+    fn sample(&self, _: ()) -> TickSample {
+        *self
+    }
+}
+
+/// A tick of regulation as a run keeps it: the core's own fixed-point
+/// values in the board's units, converted to mA and mW only when its
+/// stretch is analysed. The conversion ([`fx_f64`] times the unit) is the
+/// same arithmetic whenever it is done, so the detector sees the very
+/// values a conversion at every tick would give.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct CoreTick {
+    /// True front-facet power at the end of the tick, mW.
+    pub p_mw: f64,
+    /// Commanded drive, current units.
+    pub drive_iu: Fx,
+    /// Ceiling in force, current units.
+    pub ceiling_iu: Fx,
+    /// Monitor reading, optical units.
+    pub monitor_ou: Fx,
+    /// The power target in APC, optical units (`None` in ACC).
+    pub target_ou: Option<Fx>,
+    /// DAC code the core computed this tick.
+    pub dac_code: u16,
+}
+
+/// The board's units of a [`CoreTick`]: mA per current unit and mW per
+/// optical unit.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct CoreScale {
+    /// mA per current unit.
+    pub ma_per_iu: f64,
+    /// mW per optical unit.
+    pub mw_per_ou: f64,
+}
+
+impl Kept for CoreTick {
+    type Scale = CoreScale;
+    fn sample(&self, s: CoreScale) -> TickSample {
+        TickSample {
+            regulating: true,
+            dac_code: self.dac_code,
+            cmd_ma: fx_f64(self.drive_iu) * s.ma_per_iu,
+            ceiling_ma: fx_f64(self.ceiling_iu) * s.ma_per_iu,
+            p_mw: self.p_mw,
+            monitor_mw: fx_f64(self.monitor_ou) * s.mw_per_ou,
+            setpoint_mw: self.target_ou.map(|t| fx_f64(t) * s.mw_per_ou),
+        }
+    }
+}
+
+/// `v` as f64, exactly (an I16F16 is an i32 over 2^16: both steps are
+/// exact in f64), without the generic conversion's rounding logic.
+#[inline]
+pub fn fx_f64(v: Fx) -> f64 {
+    f64::from(v.to_bits()) * (1.0 / f64::from(1u32 << Fx::FRAC_NBITS))
+}
+
 /// Collects the ticks of a run and analyses each stretch of regulation as
-/// it ends (see the module documentation).
+/// it ends (see the module documentation). It keeps the ticks as `T`
+/// ([`TickSample`], or the cheaper [`CoreTick`] of a run) and turns them
+/// into samples only for the analysis.
 #[derive(Clone, Debug)]
-pub struct Watch {
+pub struct Watch<T: Kept = TickSample> {
     tick_hz: f64,
     slew_ma_per_tick: f64,
+    scale: T::Scale,
     /// The last ticks of the open stretch, a ring of [`WINDOW_TICKS`]
-    /// (the next write at `pos`).
-    buf: Vec<TickSample>,
-    pos: usize,
+    /// (tick `k` of the stretch at `k % WINDOW_TICKS`), filled with the
+    /// first tick kept and kept from one stretch to the next.
+    buf: Vec<T>,
     /// Length of the open stretch, ticks, and its last tick.
     len: usize,
     last_tick: u64,
     found: Vec<Found>,
 }
 
-impl Watch {
+impl Watch<TickSample> {
     /// A watch for a run at `tick_hz` whose drive slews by at most
     /// `slew_ma_per_tick` in regulation.
     pub fn new(tick_hz: u32, slew_ma_per_tick: f64) -> Self {
-        Watch {
-            tick_hz: f64::from(tick_hz),
-            slew_ma_per_tick,
-            buf: Vec::with_capacity(WINDOW_TICKS),
-            pos: 0,
-            len: 0,
-            last_tick: 0,
-            found: Vec::new(),
-        }
+        Watch::with_scale(tick_hz, slew_ma_per_tick, ())
     }
 
     /// The tick `tick`; a tick out of regulation ends the open stretch.
@@ -274,15 +339,32 @@ impl Watch {
             self.cut();
             return;
         }
-        if self.buf.len() < WINDOW_TICKS {
-            self.buf.push(s);
-        } else {
-            self.buf[self.pos] = s;
+        self.keep(tick, s);
+    }
+}
+
+impl<T: Kept> Watch<T> {
+    /// [`Watch::new`] for ticks kept as `T`, turned into samples with
+    /// `scale`.
+    pub fn with_scale(tick_hz: u32, slew_ma_per_tick: f64, scale: T::Scale) -> Self {
+        Watch {
+            tick_hz: f64::from(tick_hz),
+            slew_ma_per_tick,
+            scale,
+            buf: Vec::new(),
+            len: 0,
+            last_tick: 0,
+            found: Vec::new(),
         }
-        self.pos += 1;
-        if self.pos == WINDOW_TICKS {
-            self.pos = 0;
+    }
+
+    /// The tick `tick`, in regulation (a tick out of it is a [`Watch::cut`]).
+    #[inline]
+    pub fn keep(&mut self, tick: u64, s: T) {
+        if self.buf.is_empty() {
+            self.buf = vec![s; WINDOW_TICKS];
         }
+        self.buf[self.len % WINDOW_TICKS] = s;
         self.len += 1;
         self.last_tick = tick;
     }
@@ -292,12 +374,12 @@ impl Watch {
         if self.len > 0 {
             let n = (self.len - self.len / 4).min(WINDOW_TICKS);
             if n >= MIN_TICKS {
-                // Oldest first: the ring from `pos` on, then up to `pos`.
-                let (newer, older) = self.buf.split_at(self.pos.min(self.buf.len()));
-                let all: Vec<TickSample> = older.iter().chain(newer).copied().collect();
-                let w = &all[all.len() - n..];
+                // The last `n` ticks, oldest first.
+                let w: Vec<TickSample> = (self.len - n..self.len)
+                    .map(|k| self.buf[k % WINDOW_TICKS].sample(self.scale))
+                    .collect();
                 let from_tick = self.last_tick + 1 - n as u64;
-                for finding in analyse(w, self.tick_hz, self.slew_ma_per_tick) {
+                for finding in analyse(&w, self.tick_hz, self.slew_ma_per_tick) {
                     self.found.push(Found {
                         from_tick,
                         to_tick: self.last_tick,
@@ -307,8 +389,6 @@ impl Watch {
                 }
             }
         }
-        self.buf.clear();
-        self.pos = 0;
         self.len = 0;
     }
 
@@ -432,41 +512,24 @@ pub fn periodicity_up_to(xs: &[f64], max_lag: usize) -> Option<(usize, f64)> {
 /// `sums[k]` = the sum over i < n - k of `d[i] d[i + k]`, for the lags k
 /// in `1..=max_lag` (`max_lag` at most a third of the length; `sums[0]`
 /// is left 0), each added up in the order of i from -0.0 as
-/// `Iterator::sum` does, so every sum is the very value of that sum. Four
-/// lags share one pass over the data (one load of `d[i]` for four
-/// products), each in its own accumulator; the last few terms of the
-/// shorter lags follow in order.
+/// `Iterator::sum` does, so every sum is the very value of that sum.
+/// Sixteen (then four) lags share one pass over the data: one load of
+/// `d[i]` for their products with the sixteen neighbours `d[i + k..]`,
+/// each lag in its own accumulator (lane by lane, so the compiler may pair
+/// them in vector registers without changing any sum); the last few terms
+/// of the shorter lags follow in order.
 fn lag_sums(d: &[f64], max_lag: usize) -> Vec<f64> {
-    let n = d.len();
     let mut sums = vec![0.0; max_lag + 1];
     let mut k = 1;
+    while k + 15 <= max_lag {
+        sums[k..k + 16].copy_from_slice(&lag_pass::<16>(d, k));
+        k += 16;
+    }
     while k + 3 <= max_lag {
-        // The range every one of the four lags covers.
-        let m = n - k - 3;
-        let a = &d[..m];
-        let (b0, b1, b2, b3) = (
-            &d[k..k + m],
-            &d[k + 1..k + 1 + m],
-            &d[k + 2..k + 2 + m],
-            &d[k + 3..k + 3 + m],
-        );
-        let mut s = [-0.0f64; 4];
-        for i in 0..m {
-            let x = a[i];
-            s[0] += x * b0[i];
-            s[1] += x * b1[i];
-            s[2] += x * b2[i];
-            s[3] += x * b3[i];
-        }
-        for (j, sj) in s.iter_mut().enumerate().take(3) {
-            let lag = k + j;
-            for i in m..n - lag {
-                *sj += d[i] * d[i + lag];
-            }
-        }
-        sums[k..k + 4].copy_from_slice(&s);
+        sums[k..k + 4].copy_from_slice(&lag_pass::<4>(d, k));
         k += 4;
     }
+    let n = d.len();
     for (lag, sum) in sums.iter_mut().enumerate().skip(k) {
         *sum = d[..n - lag]
             .iter()
@@ -475,6 +538,28 @@ fn lag_sums(d: &[f64], max_lag: usize) -> Vec<f64> {
             .sum::<f64>();
     }
     sums
+}
+
+/// The sums of [`lag_sums`] for the `L` lags `k..k + L` in one pass.
+#[inline]
+fn lag_pass<const L: usize>(d: &[f64], k: usize) -> [f64; L] {
+    let n = d.len();
+    // The range every one of the lags covers.
+    let m = n - k - (L - 1);
+    let mut s = [-0.0f64; L];
+    for (x, b) in d[..m].iter().zip(d[k..].windows(L)) {
+        let b: &[f64; L] = b.try_into().expect("a window of L values");
+        for j in 0..L {
+            s[j] += x * b[j];
+        }
+    }
+    for (j, sj) in s.iter_mut().enumerate().take(L - 1) {
+        let lag = k + j;
+        for i in m..n - lag {
+            *sj += d[i] * d[i + lag];
+        }
+    }
+    s
 }
 
 /// `xs` minus its least-squares straight line.
@@ -508,7 +593,7 @@ mod tests {
         let mut r = crate::plant::Rng::new(5);
         for n in [8usize, 9, 13, 24, 100, 511, 512] {
             let d: Vec<f64> = (0..n).map(|_| r.normal() * 1e3 + r.uniform()).collect();
-            for max_lag in [2, 3, 4, 5, 7, 8, 64].map(|m: usize| m.min(n / 3)) {
+            for max_lag in [2, 3, 4, 5, 7, 8, 16, 17, 20, 33, 64].map(|m: usize| m.min(n / 3)) {
                 let sums = lag_sums(&d, max_lag);
                 assert_eq!(sums.len(), max_lag + 1);
                 for k in 1..=max_lag {

@@ -43,7 +43,7 @@
 
 use diodestat_core::{Fingerprint, Fx, Mode, Request, Sample, State, ValidConfig, Warnings};
 
-use crate::oscillation::{Found, TickSample, Watch};
+use crate::oscillation::{fx_f64, CoreScale, CoreTick, Found, Watch};
 use crate::plant::{
     c_to_k, k_to_c, Adc, DemoModule, Diode, Driver, Monitor, PlantError, Rng, SensorChain, Thermal,
 };
@@ -664,11 +664,44 @@ fn fx(v: f64) -> Fx {
     Fx::saturating_from_num(v)
 }
 
-/// `v` as f64, exactly (an I16F16 is an i32 over 2^16: both steps are
-/// exact in f64), without the generic conversion's rounding logic.
+/// `v` as f64, exactly ([`fx_f64`]).
 #[inline]
 fn to_f(v: Fx) -> f64 {
-    f64::from(v.to_bits()) * (1.0 / f64::from(1u32 << Fx::FRAC_NBITS))
+    fx_f64(v)
+}
+
+/// What a run records besides what every caller reads (happenings, the
+/// trace rows, the warning spans, the power windows, peak, damage and the
+/// final state): the parts a caller that never reads them can skip. The
+/// rest of the result is the same either way, bit for bit.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Record {
+    /// The plot envelope of every tick ([`RunResult::envelope`]; empty
+    /// when off).
+    pub envelope: bool,
+    /// The oscillation, limit-cycle and ceiling watch of every stretch of
+    /// regulation ([`RunResult::loop_findings`]; empty when off).
+    pub loop_findings: bool,
+}
+
+impl Record {
+    /// Everything: what `run` and the reports use.
+    pub const ALL: Record = Record {
+        envelope: true,
+        loop_findings: true,
+    };
+    /// No envelope and no loop findings: what a campaign reads of a case
+    /// (its happenings, trace rows and final state).
+    pub const VERDICT: Record = Record {
+        envelope: false,
+        loop_findings: false,
+    };
+}
+
+impl Default for Record {
+    fn default() -> Self {
+        Self::ALL
+    }
 }
 
 /// Run a scenario on a validated board configuration whose drive takes
@@ -680,6 +713,21 @@ pub fn run(
     latency: DacLatency,
 ) -> Result<RunResult, PlantError> {
     run_streamed(sc, module, cfg, latency, Vec::new(), &mut NoSink)
+}
+
+/// [`run`], recording only what `record` asks for besides what every run
+/// records ([`Record`]).
+pub fn run_recording(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+    latency: DacLatency,
+    record: Record,
+) -> Result<RunResult, PlantError> {
+    let plant = Plant::new(module, sc.ambient_c, sc.seed)?;
+    let mut r = Runner::new(sc, cfg, latency, plant, Vec::new(), record);
+    r.run_until(u64::MAX, &mut NoSink);
+    Ok(r.finish(&mut NoSink))
 }
 
 /// [`run`], also filling `windows` with the optical power of every tick
@@ -754,7 +802,7 @@ fn run_plant(
     windows: Vec<PowerWindow>,
     sink: &mut dyn TraceSink,
 ) -> Result<RunResult, PlantError> {
-    let mut r = Runner::new(sc, cfg, latency, plant, windows);
+    let mut r = Runner::new(sc, cfg, latency, plant, windows, Record::ALL);
     r.run_until(u64::MAX, sink);
     Ok(r.finish(sink))
 }
@@ -789,9 +837,22 @@ pub fn fork_at(
     latency: DacLatency,
     at_ms: f64,
 ) -> Result<Fork, PlantError> {
+    fork_recording(sc, module, cfg, latency, at_ms, Record::ALL)
+}
+
+/// [`fork_at`], its continuations recording only what `record` asks for
+/// ([`run_recording`]).
+pub fn fork_recording(
+    sc: &Scenario,
+    module: &DemoModule,
+    cfg: ValidConfig,
+    latency: DacLatency,
+    at_ms: f64,
+    record: Record,
+) -> Result<Fork, PlantError> {
     let plant = Plant::new(module, sc.ambient_c, sc.seed)?;
     let tick_hz = cfg.config().tick_hz;
-    let mut runner = Runner::new(sc, cfg, latency, plant, Vec::new());
+    let mut runner = Runner::new(sc, cfg, latency, plant, Vec::new(), record);
     runner.run_until(tick_at(at_ms, tick_hz), &mut NoSink);
     Ok(Fork { runner })
 }
@@ -870,8 +931,12 @@ struct Runner {
     pipeline: [Option<Outputs>; DacLatency::MAX_TICKS as usize],
     slot: usize,
     applied: Outputs,
-    last_computed: diodestat_core::Drive,
-    watch: Watch,
+    /// The DAC code the core computed in the latest tick it ran.
+    last_code: u16,
+    /// The loop watch (`None` when the run does not record loop findings).
+    watch: Option<Watch<CoreTick>>,
+    /// Feed the plot envelope every tick.
+    envelope: bool,
     trace_every: u64,
     /// The next tick recorded whole (a multiple of `trace_every`; the
     /// ticks run one by one, so a comparison replaces a division).
@@ -895,6 +960,7 @@ impl Runner {
         latency: DacLatency,
         mut plant: Plant,
         windows: Vec<PowerWindow>,
+        record: Record,
     ) -> Self {
         plant.aging_speedup = sc.aging_speedup;
         let tick_hz = cfg.config().tick_hz;
@@ -904,6 +970,7 @@ impl Runner {
         // The core behind its embedded-hal edge, on the board's simulated
         // DAC, enable line and interlock input.
         let board = SimBoard::new(cfg);
+        let trace_every = u64::from(sc.trace_every.max(1));
         let mut events: Vec<(u64, usize, Action)> = sc
             .events
             .iter()
@@ -913,7 +980,16 @@ impl Runner {
         events.sort_by_key(|e| e.0);
         let units = board.ctl().config().config().units();
         let (ma_per_iu, mw_per_ou) = (units.ma_per_iu(), units.mw_per_ou());
-        let watch = Watch::new(tick_hz, units.ma(board.ctl().config().slew_iu_per_tick()));
+        let watch = record.loop_findings.then(|| {
+            Watch::with_scale(
+                tick_hz,
+                units.ma(board.ctl().config().slew_iu_per_tick()),
+                CoreScale {
+                    ma_per_iu,
+                    mw_per_ou,
+                },
+            )
+        });
         Runner {
             plant,
             board,
@@ -926,7 +1002,7 @@ impl Runner {
                 tick_hz,
                 config_fingerprint,
                 windows,
-                envelope: Envelope::new(n_ticks),
+                envelope: Envelope::new(if record.envelope { n_ticks } else { 0 }),
                 ..RunResult::default()
             },
             merge_ticks: tick_at(
@@ -935,7 +1011,7 @@ impl Runner {
             ),
             last_warnings: Warnings::default(),
             prev: (0.0, Fx::ZERO, Mode::Apc),
-            kept: Retained::new(RETAINED_ROWS),
+            kept: Retained::for_rows(RETAINED_ROWS, n_ticks.div_ceil(trace_every)),
             keep_rows: true,
             last_state: State::Off,
             log_cursor: diodestat_core::Cursor::default(),
@@ -943,9 +1019,10 @@ impl Runner {
             pipeline: [None::<Outputs>; DacLatency::MAX_TICKS as usize],
             slot: 0,
             applied: Outputs::default(),
-            last_computed: diodestat_core::Drive::default(),
+            last_code: 0,
             watch,
-            trace_every: u64::from(sc.trace_every.max(1)),
+            envelope: record.envelope,
+            trace_every,
             next_trace_tick: 0,
             n_ticks,
             dt,
@@ -985,7 +1062,9 @@ impl Runner {
             }
             let event = *event;
             self.next_event += 1;
-            self.watch.cut();
+            if let Some(w) = &mut self.watch {
+                w.cut();
+            }
             let req = match action {
                 Action::Enable => Some(Request::Enable),
                 Action::Disable => Some(Request::Disable),
@@ -1071,8 +1150,8 @@ impl Runner {
             } else {
                 // An edge error is latched in the core (and in its log) by the
                 // edge itself; what the hardware does is in the outputs.
-                let (drive, outputs, _edge_error) = board.tick(&sample);
-                self.last_computed = drive;
+                let (code, outputs) = board.tick_outputs(&sample);
+                self.last_code = code;
                 Some(outputs)
             };
             // What the hardware was set to `latency` ticks ago takes effect now.
@@ -1119,22 +1198,22 @@ impl Runner {
                 res.happenings.push(Happening::FacetDamage { tick });
             }
             let st = ctl.state();
-            if st == State::Regulating {
-                self.watch.push(
-                    tick,
-                    TickSample {
-                        regulating: true,
-                        dac_code: self.last_computed.dac_code,
-                        cmd_ma: to_f(ctl.drive_iu()) * self.ma_per_iu,
-                        ceiling_ma: to_f(ctl.ceiling_iu()) * self.ma_per_iu,
-                        p_mw,
-                        monitor_mw: to_f(ctl.measurements().monitor_ou) * self.mw_per_ou,
-                        setpoint_mw: (ctl.mode() == Mode::Apc)
-                            .then(|| to_f(ctl.power_target_ou()) * self.mw_per_ou),
-                    },
-                );
-            } else {
-                self.watch.cut();
+            if let Some(w) = &mut self.watch {
+                if st == State::Regulating {
+                    w.keep(
+                        tick,
+                        CoreTick {
+                            p_mw,
+                            drive_iu: ctl.drive_iu(),
+                            ceiling_iu: ctl.ceiling_iu(),
+                            monitor_ou: ctl.measurements().monitor_ou,
+                            target_ou: (ctl.mode() == Mode::Apc).then(|| ctl.power_target_ou()),
+                            dac_code: self.last_code,
+                        },
+                    );
+                } else {
+                    w.cut();
+                }
             }
             if st != self.last_state {
                 res.happenings.push(Happening::State { tick, state: st });
@@ -1156,58 +1235,81 @@ impl Runner {
                     });
                 }
             }
-            // Every tick feeds the plot envelope (only what the plots draw);
-            // every `trace_every`-th is recorded whole.
-            let m = ctl.measurements();
-            let i_ma = plant.driver.current_a() * 1e3;
-            let monitor_mw = to_f(m.monitor_ou) * self.mw_per_ou;
-            let ceiling_ma = to_f(ctl.ceiling_iu()) * self.ma_per_iu;
-            let tj_c = k_to_c(plant.thermal.t_junction_k());
-            let sensed_c = to_f(m.temp_degc);
+            // Every tick feeds the plot envelope (only what the plots
+            // draw); every `trace_every`-th is recorded whole.
+            let whole = tick == self.next_trace_tick;
+            if self.envelope || whole {
+                self.record_tick(tick, p_mw, applied, whole, sink);
+            }
+            if tick.is_multiple_of(PROGRESS_TICKS) {
+                sink.progress(tick, self.n_ticks);
+            }
+            self.res.ticks = tick + 1;
+            self.tick = tick + 1;
+        }
+    }
+
+    /// Feed the plot envelope with the tick just run and, when `whole`,
+    /// record its trace row (the values converted to engineering units
+    /// only here).
+    fn record_tick(
+        &mut self,
+        tick: u64,
+        p_mw: f64,
+        applied: Outputs,
+        whole: bool,
+        sink: &mut dyn TraceSink,
+    ) {
+        let (plant, res, ambient_c, dt) = (&self.plant, &mut self.res, self.ambient_c, self.dt);
+        let ctl = self.board.ctl();
+        let st = ctl.state();
+        let m = ctl.measurements();
+        let i_ma = plant.driver.current_a() * 1e3;
+        let monitor_mw = to_f(m.monitor_ou) * self.mw_per_ou;
+        let ceiling_ma = to_f(ctl.ceiling_iu()) * self.ma_per_iu;
+        let tj_c = k_to_c(plant.thermal.t_junction_k());
+        let sensed_c = to_f(m.temp_degc);
+        if self.envelope {
             res.envelope.add_values(
                 tick,
                 [
                     p_mw, monitor_mw, i_ma, ceiling_ma, tj_c, sensed_c, ambient_c,
                 ],
             );
-            if tick == self.next_trace_tick {
-                self.next_trace_tick += self.trace_every;
-                let status = ctl.status();
-                let row = TraceRow {
-                    tick,
-                    t_s: tick as f64 * dt,
-                    state: st,
-                    mode: status.mode,
-                    enable: applied.enable,
-                    dac_code: applied.dac_code,
-                    faults: status.faults,
-                    warnings: status.warnings,
-                    p_mw,
-                    i_ma,
-                    cmd_ma: to_f(ctl.drive_iu()) * self.ma_per_iu,
-                    ceiling_ma,
-                    monitor_mw,
-                    tj_c,
-                    sensed_c,
-                    ambient_c,
-                    supply_v: plant.supply_v,
-                    supply_sensed_v: to_f(m.supply_vu) * self.units.mv_per_vu() * 1e-3,
-                    v_f_v: plant.v_f,
-                    wavelength_nm: plant.wavelength_m * 1e9,
-                    age_h: plant.diode.age_hours(),
-                    threshold_factor: plant.diode.aging_factors().0,
-                    slope_factor: plant.diode.aging_factors().1,
-                };
-                if self.keep_rows {
-                    self.kept.push(row);
-                }
-                sink.row(&row);
+        }
+        if whole {
+            self.next_trace_tick += self.trace_every;
+            let status = ctl.status();
+            let (threshold_factor, slope_factor) = plant.diode.aging_factors();
+            let row = TraceRow {
+                tick,
+                t_s: tick as f64 * dt,
+                state: st,
+                mode: status.mode,
+                enable: applied.enable,
+                dac_code: applied.dac_code,
+                faults: status.faults,
+                warnings: status.warnings,
+                p_mw,
+                i_ma,
+                cmd_ma: to_f(ctl.drive_iu()) * self.ma_per_iu,
+                ceiling_ma,
+                monitor_mw,
+                tj_c,
+                sensed_c,
+                ambient_c,
+                supply_v: plant.supply_v,
+                supply_sensed_v: to_f(m.supply_vu) * self.units.mv_per_vu() * 1e-3,
+                v_f_v: plant.v_f,
+                wavelength_nm: plant.wavelength_m * 1e9,
+                age_h: plant.diode.age_hours(),
+                threshold_factor,
+                slope_factor,
+            };
+            if self.keep_rows {
+                self.kept.push(row);
             }
-            if tick.is_multiple_of(PROGRESS_TICKS) {
-                sink.progress(tick, self.n_ticks);
-            }
-            res.ticks = tick + 1;
-            self.tick = tick + 1;
+            sink.row(&row);
         }
     }
 
@@ -1224,7 +1326,7 @@ impl Runner {
             ..
         } = self;
         res.final_state = board.ctl().state();
-        res.loop_findings = watch.finish();
+        res.loop_findings = watch.map(Watch::finish).unwrap_or_default();
         for s in res.warning_spans.iter_mut().filter(|s| s.to_tick.is_none()) {
             s.raised_ticks += res.ticks - s.last_raised_tick;
             (s.last_p_mw, s.last_drive_ma, s.last_mode) =
@@ -1639,6 +1741,55 @@ mod tests {
         fn row(&mut self, row: &TraceRow) {
             self.0.push(*row);
         }
+    }
+
+    /// A run that records neither the envelope nor the loop findings has
+    /// every other field of the full run's result, bit for bit (compared
+    /// through their exact Debug forms), from t = 0 and forked; the two it
+    /// skips are empty. A degraded monitor pins the drive on its ceiling,
+    /// so the full run has findings to skip.
+    #[test]
+    fn a_verdict_run_is_the_full_run_less_envelope_and_findings() {
+        let module = DemoModule::visible();
+        let cfg = config(&module);
+        let mut sc = scenario(7, 20.0, 500.0);
+        // A monitor reading a third low: the loop drives to its ceiling.
+        sc.events[2] = Event {
+            at_ms: 100.0,
+            action: Action::Inject {
+                fault: HwFault::MonitorDegrade { factor: 0.66 },
+            },
+        };
+        let full = run(&sc, &module, cfg.clone(), DacLatency::ONE_TICK).unwrap();
+        assert!(!full.envelope.bins().is_empty());
+        assert!(!full.loop_findings.is_empty(), "no findings to skip");
+        let lean = run_recording(
+            &sc,
+            &module,
+            cfg.clone(),
+            DacLatency::ONE_TICK,
+            Record::VERDICT,
+        )
+        .unwrap();
+        assert!(lean.envelope.bins().is_empty());
+        assert!(lean.loop_findings.is_empty());
+        let mut expected = full.clone();
+        expected.envelope = lean.envelope.clone();
+        expected.loop_findings = Vec::new();
+        assert_eq!(format!("{lean:?}"), format!("{expected:?}"));
+        let mut lead = sc.clone();
+        let last = lead.events.pop().unwrap();
+        let fork = fork_recording(
+            &lead,
+            &module,
+            cfg,
+            DacLatency::ONE_TICK,
+            last.at_ms,
+            Record::VERDICT,
+        )
+        .unwrap();
+        let forked = fork.resume(&last).unwrap();
+        assert_eq!(format!("{forked:?}"), format!("{expected:?}"));
     }
 
     /// A fork refuses an event before its moment (it has already run past

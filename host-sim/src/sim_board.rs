@@ -185,16 +185,7 @@ impl SimBoard {
     /// hardware outputs now, and the edge's error if a call failed.
     pub fn tick(&mut self, s: &Sample) -> (Drive, Outputs, Option<SimEdgeError>) {
         self.board.parts_mut().2.closed = s.interlock_closed;
-        let adc = AdcCounts {
-            tick: s.tick,
-            monitor: s.monitor_counts,
-            current: s.current_counts,
-            temperature: s.temp_counts,
-            supply: s.supply_counts,
-            forward: s.forward_counts,
-            external_fault: s.external_fault,
-        };
-        let (drive, err) = match self.board.tick(adc) {
+        let (drive, err) = match self.board.tick(adc_counts(s)) {
             Ok(d) => (d, None),
             Err(e) => (
                 Drive {
@@ -208,6 +199,20 @@ impl SimBoard {
         (drive, self.outputs(), err)
     }
 
+    /// [`SimBoard::tick`] as a run needs it: the DAC code the core
+    /// computed (0 after an edge error, the edge's safe drive) and what the
+    /// hardware outputs now. The edge latches its errors in the core and its
+    /// log, where the run reads them.
+    #[inline]
+    pub fn tick_outputs(&mut self, s: &Sample) -> (u16, Outputs) {
+        self.board.parts_mut().2.closed = s.interlock_closed;
+        let code = match self.board.tick(adc_counts(s)) {
+            Ok(d) => d.dac_code,
+            Err(_) => 0,
+        };
+        (code, self.outputs())
+    }
+
     /// What the hardware outputs now.
     pub fn outputs(&self) -> Outputs {
         let (dac, en, _) = self.board.parts();
@@ -215,6 +220,20 @@ impl SimBoard {
             dac_code: dac.code,
             enable: en.high,
         }
+    }
+}
+
+/// The converter channels of a sample as the edge takes them.
+#[inline]
+fn adc_counts(s: &Sample) -> AdcCounts {
+    AdcCounts {
+        tick: s.tick,
+        monitor: s.monitor_counts,
+        current: s.current_counts,
+        temperature: s.temp_counts,
+        supply: s.supply_counts,
+        forward: s.forward_counts,
+        external_fault: s.external_fault,
     }
 }
 

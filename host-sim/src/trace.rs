@@ -199,12 +199,27 @@ pub const RETAINED_ROWS: usize = 1 << 19;
 /// so the kept rows stay evenly spaced and never exceed `cap`. A caller
 /// that keeps only part of each row (a campaign case) keeps its own `T`
 /// by the same rule.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Debug, PartialEq)]
 pub struct Retained<T = TraceRow> {
     rows: Vec<T>,
     cap: usize,
     stride: u64,
     offered: u64,
+}
+
+/// A clone keeps the room made for the rows to come (a forked run goes on
+/// recording into it without growing it).
+impl<T: Clone> Clone for Retained<T> {
+    fn clone(&self) -> Self {
+        let mut rows = Vec::with_capacity(self.rows.capacity());
+        rows.extend_from_slice(&self.rows);
+        Retained {
+            rows,
+            cap: self.cap,
+            stride: self.stride,
+            offered: self.offered,
+        }
+    }
 }
 
 impl<T> Retained<T> {
@@ -216,6 +231,15 @@ impl<T> Retained<T> {
             stride: 1,
             offered: 0,
         }
+    }
+
+    /// [`Retained::new`] for `expected` rows to come, their room (at most
+    /// `cap` rows) allocated at once.
+    pub fn for_rows(cap: usize, expected: u64) -> Self {
+        let mut r = Retained::new(cap);
+        let room = usize::try_from(expected).map_or(r.cap, |n| n.min(r.cap));
+        r.rows.reserve_exact(room);
+        r
     }
 
     /// Empty again, as [`Retained::new`] made it, keeping its memory for
@@ -370,7 +394,7 @@ impl Envelope {
     /// Add a tick's values, in the order of [`Channel::ALL`] (ticks in
     /// increasing order). The every-tick path of a run: a division only
     /// when a new bin starts.
-    #[inline]
+    #[inline(always)]
     pub fn add_values(&mut self, tick: u64, v: [f64; Channel::N]) {
         if tick >= self.next_bin_tick && self.bins.len() < ENVELOPE_BINS {
             // `next_bin_tick` is a multiple of the bin width: the tick
@@ -474,6 +498,27 @@ mod tests {
             .bins()
             .iter()
             .all(|b| b.min(Channel::FrontMw) == b.max(Channel::FrontMw)));
+    }
+
+    /// Rows for a run of known length get their room at once, and a clone
+    /// (a forked run) keeps it: the fork records on without growing.
+    #[test]
+    fn retained_rows_get_their_room_once() {
+        let mut r = Retained::for_rows(1000, 300);
+        assert!(r.rows.capacity() >= 300);
+        for t in 0..100 {
+            r.push(row(t, 0.0));
+        }
+        let mut c = r.clone();
+        assert_eq!(c, r);
+        let room = c.rows.capacity();
+        assert!(room >= 300);
+        for t in 100..300 {
+            c.push(row(t, 0.0));
+        }
+        assert_eq!(c.rows.capacity(), room);
+        // Never more room than the cap.
+        assert!(Retained::<TraceRow>::for_rows(10, 300).rows.capacity() < 300);
     }
 
     proptest! {

@@ -882,8 +882,14 @@ pub fn run_case(
 ) -> Result<CaseResult, String> {
     let (sc, timing) = scenario(bench, spec, case, corner, slow_bound_s);
     let module = corner.module(bench.module);
-    let res =
-        sim::run(&sc, &module, bench.cfg.clone(), bench.latency).map_err(|e| e.to_string())?;
+    let res = sim::run_recording(
+        &sc,
+        &module,
+        bench.cfg.clone(),
+        bench.latency,
+        sim::Record::VERDICT,
+    )
+    .map_err(|e| e.to_string())?;
     // The run's retained rows (fewer than the cap): offered again, all kept.
     kept::with_rows(|rows| {
         for r in &res.trace {
@@ -933,12 +939,13 @@ pub fn run_forked(
         slow_bound_s,
     );
     let module = corner.module(bench.module);
-    let fork = sim::fork_at(
+    let fork = sim::fork_recording(
         &lead_in(sc),
         &module,
         bench.cfg.clone(),
         bench.latency,
         timing.inject_ms,
+        sim::Record::VERDICT,
     )
     .map_err(|e| e.to_string())?;
     // The lead-in's rows are offered again ahead of the streamed ones: the

@@ -534,20 +534,23 @@ fn check_adc(bits: u8, vref_v: f64, noise: f64) -> Result<(), PlantError> {
 
 /// Quantises `x` (in LSB) to a code in `0..=max`: round half away from
 /// zero, clamp to the rails, NaN reads 0: the codes of
-/// `x.round().clamp(0.0, max) as u16` without the library rounding call.
+/// `x.round().clamp(0.0, max) as u16` without the library rounding call
+/// or a float-to-integer conversion.
 ///
-/// On the clamped value c >= 0, k = trunc(c + 1/2) is round(c) or, when the
-/// addition rounds up across an integer, round(c) + 1; that case is exactly
-/// c < k - 1/2 (k - 1/2 and the comparison are exact).
+/// On the clamped value 0 <= c <= max < 2^16, m = c + 2^52 is rounded to
+/// the nearest integer, ties to even, in the floating-point addition, and
+/// that integer is the low bits of m's representation (its unit is the
+/// last mantissa bit). r = m - 2^52 is exact, and so is c - r (|c - r| <=
+/// 1/2); a tie rounded down (c - r = 1/2) is rounded up instead, as
+/// `round` does. `max(0.0)` maps NaN to 0.
 #[inline]
 fn quantise(x: f64, max: f64) -> u16 {
-    let c = x.clamp(0.0, max);
-    let k = (c + 0.5) as u16;
-    if f64::from(k) - 0.5 > c {
-        k - 1
-    } else {
-        k
-    }
+    const TWO_52: f64 = 4_503_599_627_370_496.0;
+    let c = x.max(0.0).min(max);
+    let m = c + TWO_52;
+    let r = m - TWO_52;
+    let k = m.to_bits() as u16;
+    k + u16::from(c - r == 0.5)
 }
 
 /// A temperature channel: sensor, divider, RC filter, noisy ADC and faults.

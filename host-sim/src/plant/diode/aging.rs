@@ -27,7 +27,9 @@
 //!
 //! [`Diode::age_over`] integrates the law over one step with the drive and
 //! junction temperature of that step (ln and exp continued from the
-//! previous step, as the quasi-static step does); [`Diode::age_over_reference`]
+//! previous step, as the quasi-static step does; at the current of the
+//! last forward voltage, ln(I/I_ref) is that step's ln(I/I_s) plus
+//! ln(I_s/I_ref)); [`Diode::age_over_reference`]
 //! is the same with the library functions. [`Diode::age`] adds hours at
 //! the reference conditions at once: a part that was aged before the run.
 
@@ -75,7 +77,12 @@ impl Diode {
         let m = &self.m;
         let mut x = m.aging_ea_over_k * (m.aging_inv_t_ref - 1.0 / t_k);
         if m.aging_inv_i_ref > 0.0 {
-            x += m.aging_n * self.near.aging_ln.ln(i_a * m.aging_inv_i_ref);
+            let ln_i = if i_a == self.near.last_i_a {
+                self.near.last_ln_i + m.aging_ln_i_s_per_i_ref
+            } else {
+                self.near.aging_ln.ln(i_a * m.aging_inv_i_ref)
+            };
+            x += m.aging_n * ln_i;
         }
         let af = self.near.aging_exp.exp(x);
         self.age(af * dt_s * (1.0 / 3600.0));

@@ -121,6 +121,8 @@ pub(super) struct Model {
     pub(super) aging_ea_over_k: f64,
     pub(super) aging_n: f64,
     pub(super) aging_inv_i_ref: f64,
+    /// ln(I_s / I_ref) (0 without a reference current).
+    pub(super) aging_ln_i_s_per_i_ref: f64,
     pub(super) aging_inv_t_ref: f64,
     pub(super) n_scale: f64,
     pub(super) s_scale: f64,
@@ -278,6 +280,7 @@ impl Model {
             aging_ea_over_k: p.aging_activation_ev * Q / K_B,
             aging_n: p.aging_current_exponent,
             aging_inv_i_ref: p.aging_ref_current_a.map_or(0.0, |i| 1.0 / i),
+            aging_ln_i_s_per_i_ref: p.aging_ref_current_a.map_or(0.0, |i| (p.i_s_a / i).ln()),
             aging_inv_t_ref: 1.0 / (p.aging_ref_c.unwrap_or(p.t_ref_c) + ZERO_CELSIUS_K),
             n_scale: n_th,
             s_scale: gamma * tau_p * r_th,

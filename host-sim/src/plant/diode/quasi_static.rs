@@ -111,6 +111,7 @@ mod tests {
         let mut t = 298.15f64;
         let (mut dn, mut dp, mut dv) = (0.0f64, 0.0f64, 0.0f64);
         let mut anchored = 0usize;
+        let mut i_prev = 0.0;
         for k in 0..60_000 {
             // Drive: a ramp through threshold, then DAC-sized steps and
             // dither around a few operating points, sometimes a jump;
@@ -123,11 +124,16 @@ mod tests {
                 4 => 3.0 * i_th,
                 _ => 1.05 * i_th,
             };
-            let i = if k % 997 == 0 {
+            // A quarter of the time the current holds for 50 steps (a
+            // settled source on an unchanged DAC code) while T moves.
+            let i = if (k / 50) % 4 == 3 {
+                i_prev
+            } else if k % 997 == 0 {
                 target * (0.5 + rng.uniform())
             } else {
                 target + 2e-3 * i_th * (rng.uniform() - 0.5)
             };
+            i_prev = i;
             t += 2e-4 * (rng.uniform() - 0.45) + if k % 1499 == 0 { 3.0 } else { 0.0 };
             if k == age_at {
                 fast.age(4000.0);

@@ -57,7 +57,7 @@ pub struct Diode {
 }
 
 /// The slowly varying transcendental terms of [`Diode::step_quasi_static`].
-#[derive(Clone, Copy, Debug, Default)]
+#[derive(Clone, Copy, Debug)]
 pub(super) struct NearTerms {
     pub(super) t0: ExpNear,
     pub(super) t1: ExpNear,
@@ -68,6 +68,29 @@ pub(super) struct NearTerms {
     /// ln(I / I_ref) and the acceleration factor of the aging law.
     pub(super) aging_ln: LnNear,
     pub(super) aging_exp: ExpNear,
+    /// The current of the last forward voltage and its ln(I / I_s): the
+    /// next forward voltage at the same current reuses it, and the aging
+    /// law at the same current takes ln(I / I_ref) from it
+    /// (ln(I / I_s) + ln(I_s / I_ref)) instead of a second continuation.
+    pub(super) last_i_a: f64,
+    pub(super) last_ln_i: f64,
+}
+
+impl Default for NearTerms {
+    fn default() -> Self {
+        Self {
+            t0: ExpNear::new(),
+            t1: ExpNear::new(),
+            ratio: LnNear::new(),
+            vf: ExpNear::new(),
+            t_ratio: LnNear::new(),
+            aging_ln: LnNear::new(),
+            aging_exp: ExpNear::new(),
+            // No current yet: NaN equals no current.
+            last_i_a: f64::NAN,
+            last_ln_i: f64::NAN,
+        }
+    }
 }
 
 impl Diode {
@@ -149,7 +172,16 @@ impl Diode {
         let ratio = i * m.inv_i_s;
         let ln_t_ratio = self.near.t_ratio.ln(m.junction.t_ratio(t_k));
         let x = m.junction.log_shift_with(t_k, ln_t_ratio);
-        let l = self.near.ratio.ln(ratio) + x;
+        // The same current as the last call (the source settled on an
+        // unchanged DAC code) gives the same continued logarithm: reuse it.
+        let ln_i = if i == self.near.last_i_a {
+            self.near.last_ln_i
+        } else {
+            self.near.ratio.ln(ratio)
+        };
+        self.near.last_i_a = i;
+        self.near.last_ln_i = ln_i;
+        let l = ln_i + x;
         let ln_term = if l > 35.0 {
             l
         } else if l > 18.0 {
