@@ -863,6 +863,35 @@ impl Fork {
         Ok(r.finish(&mut NoSink))
     }
 
+    /// [`Fork::resume`], handing every row recorded from the fork's tick
+    /// on to `sink` as it is made and keeping none of them: the result's
+    /// trace holds the lead-in's rows only ([`Fork::rows`]). For a caller
+    /// that reads a few values of each row (a campaign case) and would
+    /// otherwise get a fresh vector of every tick's whole row per run.
+    pub fn resume_streamed(
+        &self,
+        event: &Event,
+        sink: &mut dyn TraceSink,
+    ) -> Result<RunResult, ForkError> {
+        let mut r = self.runner.clone();
+        r.add_event(event)?;
+        r.keep_rows = false;
+        r.run_until(u64::MAX, sink);
+        Ok(r.finish(sink))
+    }
+
+    /// The rows recorded up to the fork, every [`Fork::rows_stride`]-th
+    /// tick.
+    pub fn rows(&self) -> &[TraceRow] {
+        self.runner.kept.rows()
+    }
+
+    /// Ticks between consecutive rows of [`Fork::rows`] (as
+    /// [`RunResult::trace_stride`]).
+    pub fn rows_stride(&self) -> u64 {
+        self.runner.kept.stride() * self.runner.trace_every
+    }
+
     /// The tick the fork stands at (the next to run).
     pub fn tick(&self) -> u64 {
         self.runner.tick
@@ -887,6 +916,8 @@ struct Runner {
     last_warnings: Warnings,
     prev: (f64, Fx, Mode),
     kept: Retained,
+    /// Keep the recorded rows in `kept` (off: only the sink sees them).
+    keep_rows: bool,
     last_state: State,
     log_cursor: diodestat_core::Cursor,
     /// The drives on their way to the DAC: a ring of `latency` slots, the
@@ -977,6 +1008,7 @@ impl Runner {
             last_warnings: Warnings::default(),
             prev: (0.0, Fx::ZERO, Mode::Apc),
             kept: Retained::for_rows(RETAINED_ROWS, n_ticks.div_ceil(trace_every)),
+            keep_rows: true,
             last_state: State::Off,
             log_cursor: diodestat_core::Cursor::default(),
             lat: latency.get() as usize,
@@ -1270,7 +1302,9 @@ impl Runner {
                 threshold_factor,
                 slope_factor,
             };
-            self.kept.push(row);
+            if self.keep_rows {
+                self.kept.push(row);
+            }
             sink.row(&row);
         }
     }
@@ -1684,6 +1718,24 @@ mod tests {
             assert_eq!(format!("{forked:?}"), format!("{full:?}"), "{extra:?}");
             assert_eq!(format!("{again:?}"), format!("{full:?}"), "{extra:?}");
             assert!(full.happenings.len() > 2);
+            // Streamed: the fork's rows, then the sink's, are the whole
+            // trace; the rest of the result is the same.
+            let mut rows = Rows(fork.rows().to_vec());
+            let mut streamed = fork.resume_streamed(&extra, &mut rows).unwrap();
+            assert_eq!(fork.rows_stride(), full.trace_stride);
+            assert_eq!(streamed.trace, fork.rows());
+            assert_eq!(rows.0, full.trace, "{extra:?}");
+            streamed.trace = full.trace.clone();
+            assert_eq!(format!("{streamed:?}"), format!("{full:?}"), "{extra:?}");
+        }
+    }
+
+    /// A sink that keeps every row.
+    struct Rows(Vec<TraceRow>);
+
+    impl TraceSink for Rows {
+        fn row(&mut self, row: &TraceRow) {
+            self.0.push(*row);
         }
     }
 

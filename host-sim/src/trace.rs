@@ -196,10 +196,12 @@ pub const RETAINED_ROWS: usize = 1 << 19;
 /// The rows a run keeps for its summary: every offered row while they fit
 /// in `cap`; when full, every other row is dropped and from then on only
 /// every `stride`-th offered row is kept (the stride doubles each time),
-/// so the kept rows stay evenly spaced and never exceed `cap`.
+/// so the kept rows stay evenly spaced and never exceed `cap`. A caller
+/// that keeps only part of each row (a campaign case) keeps its own `T`
+/// by the same rule.
 #[derive(Debug, PartialEq)]
-pub struct Retained {
-    rows: Vec<TraceRow>,
+pub struct Retained<T = TraceRow> {
+    rows: Vec<T>,
     cap: usize,
     stride: u64,
     offered: u64,
@@ -207,7 +209,7 @@ pub struct Retained {
 
 /// A clone keeps the room made for the rows to come (a forked run goes on
 /// recording into it without growing it).
-impl Clone for Retained {
+impl<T: Clone> Clone for Retained<T> {
     fn clone(&self) -> Self {
         let mut rows = Vec::with_capacity(self.rows.capacity());
         rows.extend_from_slice(&self.rows);
@@ -220,7 +222,7 @@ impl Clone for Retained {
     }
 }
 
-impl Retained {
+impl<T> Retained<T> {
     /// Empty, keeping at most `cap` rows (at least 2).
     pub fn new(cap: usize) -> Self {
         Retained {
@@ -240,8 +242,16 @@ impl Retained {
         r
     }
 
+    /// Empty again, as [`Retained::new`] made it, keeping its memory for
+    /// the next run.
+    pub fn clear(&mut self) {
+        self.rows.clear();
+        self.stride = 1;
+        self.offered = 0;
+    }
+
     /// Offer the next row.
-    pub fn push(&mut self, row: TraceRow) {
+    pub fn push(&mut self, row: T) {
         if self.offered.is_multiple_of(self.stride) {
             if self.rows.len() == self.cap {
                 let mut k = 0;
@@ -264,7 +274,12 @@ impl Retained {
     }
 
     /// The kept rows.
-    pub fn into_rows(self) -> Vec<TraceRow> {
+    pub fn rows(&self) -> &[T] {
+        &self.rows
+    }
+
+    /// The kept rows.
+    pub fn into_rows(self) -> Vec<T> {
         self.rows
     }
 }
@@ -503,7 +518,7 @@ mod tests {
         }
         assert_eq!(c.rows.capacity(), room);
         // Never more room than the cap.
-        assert!(Retained::for_rows(10, 300).rows.capacity() < 300);
+        assert!(Retained::<TraceRow>::for_rows(10, 300).rows.capacity() < 300);
     }
 
     proptest! {
@@ -523,6 +538,23 @@ mod tests {
             }
             // Nothing dropped beyond what the stride asks.
             prop_assert_eq!(rows.len() as u64, n.div_ceil(s));
+        }
+
+        /// Cleared after any run, a retention keeps exactly what a new one
+        /// keeps.
+        #[test]
+        fn a_cleared_retention_keeps_as_a_new_one(cap in 2usize..64, m in 0u64..3_000, n in 0u64..3_000) {
+            let mut reused = Retained::new(cap);
+            for t in 0..m {
+                reused.push(t);
+            }
+            reused.clear();
+            let mut new = Retained::new(cap);
+            for t in 0..n {
+                reused.push(t);
+                new.push(t);
+            }
+            prop_assert_eq!(reused, new);
         }
 
         /// The envelope holds every tick's extremes in at most

@@ -21,6 +21,7 @@
 //! whose number is K-1 modulo N, and [`report::merge`] puts shard reports
 //! back into exactly the single run's report.
 
+mod kept;
 pub mod needs;
 mod outcome;
 pub mod report;
@@ -29,6 +30,7 @@ pub mod stats;
 pub mod verdict;
 pub mod without;
 
+use kept::Kept;
 pub use outcome::{CaseResult, Detection};
 pub use selection::{Moment, Selection, SelectionError, COLD_C, HOT_C};
 
@@ -888,7 +890,23 @@ pub fn run_case(
         sim::Record::VERDICT,
     )
     .map_err(|e| e.to_string())?;
-    assess(bench, spec, case, corner, &timing, &res)
+    // The run's retained rows (fewer than the cap): offered again, all kept.
+    kept::with_rows(|rows| {
+        for r in &res.trace {
+            rows.push(Kept::of(r));
+        }
+        let row_ticks = res.trace_stride * rows.stride();
+        assess(
+            bench,
+            spec,
+            case,
+            corner,
+            &timing,
+            &res,
+            rows.rows(),
+            row_ticks,
+        )
+    })
 }
 
 /// The scenario of a case without its injection (the last event), named
@@ -930,14 +948,40 @@ pub fn run_forked(
         sim::Record::VERDICT,
     )
     .map_err(|e| e.to_string())?;
+    // The lead-in's rows are offered again ahead of the streamed ones: the
+    // same retention as the run from t = 0 while the lead-in kept every
+    // row (a campaign's lead-ins last some ten milliseconds).
+    if fork.rows_stride() != 1 {
+        return Err(format!(
+            "a lead-in of {} ticks is longer than the rows a run keeps",
+            fork.tick()
+        ));
+    }
     group
         .iter()
         .map(|case| {
             let spec = &plan.faults[case.fault];
             let (sc, timing) = scenario(bench, spec, case, corner, slow_bound_s);
             let inject = sc.events.last().ok_or("a case without its injection")?;
-            let res = fork.resume(inject).map_err(|e| e.to_string())?;
-            assess(bench, spec, case, corner, &timing, &res)
+            kept::with_rows(|rows| {
+                for r in fork.rows() {
+                    rows.push(Kept::of(r));
+                }
+                let res = fork
+                    .resume_streamed(inject, rows)
+                    .map_err(|e| e.to_string())?;
+                let row_ticks = rows.stride();
+                assess(
+                    bench,
+                    spec,
+                    case,
+                    corner,
+                    &timing,
+                    &res,
+                    rows.rows(),
+                    row_ticks,
+                )
+            })
         })
         .collect()
 }
@@ -969,7 +1013,10 @@ pub fn fork_groups(bench: &Bench<'_>, plan: &CasePlan, slow_bound_s: f64) -> Vec
     groups
 }
 
-/// Judge a finished run of a case.
+/// Judge a finished run of a case from its happenings and final state
+/// (`res`) and what it kept of its recorded rows (`rows`, in tick order,
+/// `row_ticks` apart).
+#[allow(clippy::too_many_arguments)]
 fn assess(
     bench: &Bench<'_>,
     spec: &FaultSpec,
@@ -977,6 +1024,8 @@ fn assess(
     corner: &Corner,
     timing: &Timing,
     res: &sim::RunResult,
+    rows: &[Kept],
+    row_ticks: u64,
 ) -> Result<CaseResult, String> {
     let tick_hz = res.tick_hz;
     let inject_tick = sim::tick_at(timing.inject_ms, tick_hz);
@@ -1008,11 +1057,9 @@ fn assess(
     // A standing fault may also be caught by refusing the request: a
     // latent one by refusing the enable, one left standing at a retry by
     // refusing the clear or the enable (the laser never emitted after it).
-    let dark_after = res
-        .trace
-        .iter()
-        .filter(|r| r.tick >= from_tick)
-        .all(|r| !r.state.is_emitting());
+    // The rows are in tick order: the rows from a tick on are a tail.
+    let from = |tick: u64| rows.partition_point(|r| r.tick < tick);
+    let dark_after = rows[from(from_tick)..].iter().all(|r| !r.emitting);
     let rejected = res.happenings.iter().any(|h| match h {
         Happening::Rejected { tick, .. } => *tick >= from_tick,
         _ => false,
@@ -1027,23 +1074,12 @@ fn assess(
     if refused {
         caught_by.push(ENABLE_REFUSED.into());
     }
-    let after: Vec<_> = res.trace.iter().filter(|r| r.tick >= inject_tick).collect();
+    let (before, after) = rows.split_at(from(inject_tick));
     let knee_c = bench.cfg.config().derating.knee_degc.to_num::<f64>();
-    let derating_at_injection = res
-        .trace
-        .iter()
-        .rev()
-        .find(|r| r.tick < inject_tick)
-        .is_some_and(|r| r.sensed_c > knee_c);
-    let samples: Vec<(f64, f64)> = after.iter().map(|r| (r.p_mw, r.i_ma)).collect();
+    let derating_at_injection = before.last().is_some_and(|r| r.sensed_c > knee_c);
     let emitting_at_end = res.final_state.is_emitting();
-    let judgement = judge(
-        bench.lines,
-        &samples,
-        dt * res.trace_stride as f64,
-        emitting_at_end,
-    )
-    .map_err(|e| e.to_string())?;
+    let judgement = judge(bench.lines, after, dt * row_ticks as f64, emitting_at_end)
+        .map_err(|e| e.to_string())?;
     let settled = !emitting_at_end || {
         let n = after.len();
         let a = after[n - n.div_ceil(10)];

@@ -104,31 +104,74 @@ impl Judgement {
     }
 }
 
-/// Judge the samples after a fault's injection, `(front-facet power mW,
-/// drive current mA)` `dt_row_s` apart (the tick times the trace stride);
-/// `emitting_at_end` says whether the laser was still on when the watch
-/// window closed.
-pub fn judge(
+/// A sample a case is judged on: front-facet power and drive current.
+pub trait Sample {
+    /// Front-facet power, mW.
+    fn p_mw(&self) -> f64;
+    /// Drive current, mA.
+    fn i_ma(&self) -> f64;
+}
+
+impl Sample for (f64, f64) {
+    fn p_mw(&self) -> f64 {
+        self.0
+    }
+    fn i_ma(&self) -> f64 {
+        self.1
+    }
+}
+
+impl Sample for crate::trace::TraceRow {
+    fn p_mw(&self) -> f64 {
+        self.p_mw
+    }
+    fn i_ma(&self) -> f64 {
+        self.i_ma
+    }
+}
+
+thread_local! {
+    /// The accessible power of a case's samples, kept per worker thread
+    /// and reused from case to case (a slow case has some hundred
+    /// thousand samples: a fresh vector each time is memory the system
+    /// maps and zeroes anew).
+    static ACCESSIBLE_W: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// Judge the samples after a fault's injection (front-facet power and
+/// drive current, [`Sample`]) `dt_row_s` apart (the tick times the trace
+/// stride); `emitting_at_end` says whether the laser was still on when
+/// the watch window closed.
+pub fn judge<S: Sample>(
     lines: &PassLines,
-    rows: &[(f64, f64)],
+    rows: &[S],
     dt_row_s: f64,
     emitting_at_end: bool,
 ) -> Result<Judgement, AelError> {
     let mut j = Judgement::default();
-    for &(p_mw, i_ma) in rows {
+    for r in rows {
+        let (p_mw, i_ma) = (r.p_mw(), r.i_ma());
         j.peak_mw = j.peak_mw.max(p_mw);
         j.peak_ma = j.peak_ma.max(i_ma);
         j.over_power_uj += (p_mw - lines.rated_power_mw).max(0.0) * dt_row_s * 1e3;
         j.over_current_uc += (i_ma - lines.rated_current_ma).max(0.0) * dt_row_s * 1e3;
     }
-    let accessible: Vec<f64> = rows
-        .iter()
-        .map(|r| r.0.max(0.0) * 1e-3 * lines.accessible_fraction)
-        .collect();
-    j.exposure = worst_exposure(&lines.ael, &accessible, dt_row_s)?;
+    // Class 4 has no accessible emission limit: nothing to weigh.
+    j.exposure = if lines.ael.class == LaserClass::C4 {
+        None
+    } else {
+        ACCESSIBLE_W.with_borrow_mut(|accessible| {
+            accessible.clear();
+            accessible.extend(
+                rows.iter()
+                    .map(|r| r.p_mw().max(0.0) * 1e-3 * lines.accessible_fraction),
+            );
+            worst_exposure(&lines.ael, accessible, dt_row_s)
+        })?
+    };
     if emitting_at_end && !rows.is_empty() {
         let tail = &rows[rows.len() - rows.len().div_ceil(10)..];
-        let mean = tail.iter().map(|r| r.0).sum::<f64>() / tail.len() as f64;
+        let mean = tail.iter().map(Sample::p_mw).sum::<f64>() / tail.len() as f64;
         j.sustained_mw = Some(mean);
         j.cw_ratio = lines
             .cw_limit_mw()
