@@ -48,16 +48,7 @@ impl Lines {
 
 /// A derived value to 6 significant digits, without trailing zeros.
 fn eng(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return format!("{v}");
-    }
-    let digits = (5 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
-    let s = format!("{v:.digits$}");
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    }
+    crate::units::sig_text(v, 6)
 }
 
 fn plural(n: i128, one: &str) -> String {

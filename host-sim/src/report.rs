@@ -932,17 +932,7 @@ fn mw_text(mw: f64) -> String {
     } else {
         (mw, "mW")
     };
-    if v == 0.0 || !v.is_finite() {
-        return format!("{v} {unit}");
-    }
-    let decimals = (3 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
-    let s = format!("{v:.decimals$}");
-    let s = if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.')
-    } else {
-        &s
-    };
-    format!("{s} {unit}")
+    format!("{} {unit}", crate::units::sig_text(v, 4))
 }
 
 /// The plot of [`write_svg`] as an SVG document.

@@ -4,9 +4,27 @@
 //! reports use, and the choice of units for a board file ([`choose`]).
 //!
 //! The core computes in the board's units (fields ending `_iu`, `_ou`,
-//! `_vu`); everything engineering happens here, on the host.
+//! `_vu`); everything engineering happens here, on the host. Also the
+//! text of an engineering value in reports ([`sig_text`]).
 
 use diodestat_core::{Fault, Fx, Gain, Units};
+
+/// `v` to `digits` significant digits (to the unit when it has more
+/// digits before the point; at most 12 decimals), without
+/// trailing zeros or float noise: 3333.3333333333335 to 6 digits is
+/// "3333.33", 0.4000000000000001 is "0.4".
+pub fn sig_text(v: f64, digits: i32) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let decimals = (digits - 1 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    let s = format!("{v:.decimals$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
 
 /// The engineering unit a [`diodestat_core::Fault::unit`] stands for in
 /// reports: `iu` is mA, `ou` mW, `vu` mV; others unchanged.
@@ -130,6 +148,19 @@ pub fn choose_decade(largest: f64, full_scale: f64) -> Option<i8> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn sig_text_gives_the_digits_asked_for_and_no_float_noise() {
+        assert_eq!(sig_text(3333.3333333333335, 6), "3333.33");
+        assert_eq!(sig_text(0.4000000000000001, 6), "0.4");
+        assert_eq!(sig_text(16.666666666666668, 6), "16.6667");
+        assert_eq!(sig_text(0.123456, 4), "0.1235");
+        assert_eq!(sig_text(500.0, 4), "500");
+        assert_eq!(sig_text(123456.7, 4), "123457");
+        assert_eq!(sig_text(-0.0012345, 3), "-0.00123");
+        assert_eq!(sig_text(0.0, 4), "0");
+        assert_eq!(sig_text(f64::INFINITY, 4), "inf");
+    }
 
     #[test]
     fn milli_units_are_the_identity() {

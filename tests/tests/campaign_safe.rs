@@ -467,6 +467,34 @@ fn shards_merge_into_the_single_run() {
     assert!(xml.contains(&single.header.config_fingerprint) && xml.contains("caution"));
 }
 
+/// A setpoint is written as a number, not as its float's every digit: the
+/// VCSEL board's default setpoint (two thirds of 0.6 mW, computed as
+/// 0.4000000000000001) was written so in its findings and JUnit names.
+#[test]
+fn setpoints_are_written_without_float_noise() {
+    let b = shipped("demo-vcsel-850");
+    let (bench, _) = bench(&b);
+    let sel = Selection {
+        faults: Some(vec!["dac-stuck code=2048".into()]),
+        moments: Some(vec![campaign::Moment::SoftStart]),
+        corners: Some(vec!["nominal".into()]),
+        ..quick()
+    };
+    let file = "examples/demo-vcsel-850/board.toml";
+    let rec = campaign::run_record(&bench, &b.module_name, file, &sel).unwrap();
+    let setpoint = rec.results[0].setpoint_mw;
+    assert_ne!(
+        setpoint, 0.4,
+        "the default setpoint is no longer a noisy float"
+    );
+    let (md, xml) = (report::markdown(&rec), report::junit(&rec));
+    assert!(md.contains("0.4 mW: caught by"), "{md}");
+    assert!(xml.contains("nominal 0.4 mW"), "{xml}");
+    for text in [&md, &xml] {
+        assert!(!text.contains("00000000"), "float noise in {text}");
+    }
+}
+
 /// The board file's `[laser_safety]` section is refused with the key, its
 /// line and what is wrong.
 #[test]

@@ -11,6 +11,7 @@ use serde::{Deserialize, Serialize};
 use super::outcome::CaseResult;
 use super::selection::Selection;
 use super::verdict::PassLines;
+use crate::units::sig_text;
 
 /// What makes two campaign runs the same campaign: every artefact carries
 /// it.
@@ -463,7 +464,7 @@ pub fn markdown(rec: &Record) -> String {
             r.fault,
             r.moment.name(),
             r.corner,
-            r.setpoint_mw,
+            sig_text(r.setpoint_mw, 6),
             r.finding.as_deref().unwrap_or("")
         );
     }
@@ -550,7 +551,7 @@ pub fn junit(rec: &Record) -> String {
             r.fault,
             r.moment.name(),
             r.corner,
-            r.setpoint_mw
+            sig_text(r.setpoint_mw, 6)
         );
         let _ = write!(
             s,
