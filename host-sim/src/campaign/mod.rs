@@ -890,22 +890,20 @@ pub fn run_case(
         sim::Record::VERDICT,
     )
     .map_err(|e| e.to_string())?;
+    let at = CaseAt {
+        bench,
+        spec,
+        case,
+        corner,
+        timing: &timing,
+    };
     // The run's retained rows (fewer than the cap): offered again, all kept.
     kept::with_rows(|rows| {
         for r in &res.trace {
             rows.push(Kept::of(r));
         }
         let row_ticks = res.trace_stride * rows.stride();
-        assess(
-            bench,
-            spec,
-            case,
-            corner,
-            &timing,
-            &res,
-            rows.rows(),
-            row_ticks,
-        )
+        assess(&at, &res, rows.rows(), row_ticks)
     })
 }
 
@@ -963,6 +961,13 @@ pub fn run_forked(
             let spec = &plan.faults[case.fault];
             let (sc, timing) = scenario(bench, spec, case, corner, slow_bound_s);
             let inject = sc.events.last().ok_or("a case without its injection")?;
+            let at = CaseAt {
+                bench,
+                spec,
+                case,
+                corner,
+                timing: &timing,
+            };
             kept::with_rows(|rows| {
                 for r in fork.rows() {
                     rows.push(Kept::of(r));
@@ -971,16 +976,7 @@ pub fn run_forked(
                     .resume_streamed(inject, rows)
                     .map_err(|e| e.to_string())?;
                 let row_ticks = rows.stride();
-                assess(
-                    bench,
-                    spec,
-                    case,
-                    corner,
-                    &timing,
-                    &res,
-                    rows.rows(),
-                    row_ticks,
-                )
+                assess(&at, &res, rows.rows(), row_ticks)
             })
         })
         .collect()
@@ -1013,20 +1009,33 @@ pub fn fork_groups(bench: &Bench<'_>, plan: &CasePlan, slow_bound_s: f64) -> Vec
     groups
 }
 
+/// A case as it is judged: its bench, fault, place in the plan, corner
+/// and timing ([`assess`]).
+#[derive(Clone, Copy)]
+struct CaseAt<'a, 'b> {
+    bench: &'a Bench<'b>,
+    spec: &'a FaultSpec,
+    case: &'a Case,
+    corner: &'a Corner,
+    timing: &'a Timing,
+}
+
 /// Judge a finished run of a case from its happenings and final state
 /// (`res`) and what it kept of its recorded rows (`rows`, in tick order,
 /// `row_ticks` apart).
-#[allow(clippy::too_many_arguments)]
 fn assess(
-    bench: &Bench<'_>,
-    spec: &FaultSpec,
-    case: &Case,
-    corner: &Corner,
-    timing: &Timing,
+    at: &CaseAt<'_, '_>,
     res: &sim::RunResult,
     rows: &[Kept],
     row_ticks: u64,
 ) -> Result<CaseResult, String> {
+    let CaseAt {
+        bench,
+        spec,
+        case,
+        corner,
+        timing,
+    } = *at;
     let tick_hz = res.tick_hz;
     let inject_tick = sim::tick_at(timing.inject_ms, tick_hz);
     let reference_tick = sim::tick_at(timing.reference_ms, tick_hz);
