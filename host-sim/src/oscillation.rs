@@ -240,14 +240,14 @@ impl fmt::Display for Found {
 }
 
 /// A tick as [`Watch`] keeps it until its stretch is analysed.
-pub trait Kept: Copy {
+pub trait WatchedTick: Copy {
     /// What turns a kept tick into the detector's [`TickSample`].
     type Scale: Copy + fmt::Debug;
     /// The tick as the detector sees it.
     fn sample(&self, scale: Self::Scale) -> TickSample;
 }
 
-impl Kept for TickSample {
+impl WatchedTick for TickSample {
     type Scale = ();
     fn sample(&self, _: ()) -> TickSample {
         *self
@@ -285,7 +285,7 @@ pub struct CoreScale {
     pub mw_per_ou: f64,
 }
 
-impl Kept for CoreTick {
+impl WatchedTick for CoreTick {
     type Scale = CoreScale;
     fn sample(&self, s: CoreScale) -> TickSample {
         TickSample {
@@ -312,7 +312,7 @@ pub fn fx_f64(v: Fx) -> f64 {
 /// ([`TickSample`], or the cheaper [`CoreTick`] of a run) and turns them
 /// into samples only for the analysis.
 #[derive(Clone, Debug)]
-pub struct Watch<T: Kept = TickSample> {
+pub struct Watch<T: WatchedTick = TickSample> {
     tick_hz: f64,
     slew_ma_per_tick: f64,
     scale: T::Scale,
@@ -343,7 +343,7 @@ impl Watch<TickSample> {
     }
 }
 
-impl<T: Kept> Watch<T> {
+impl<T: WatchedTick> Watch<T> {
     /// [`Watch::new`] for ticks kept as `T`, turned into samples with
     /// `scale`.
     pub fn with_scale(tick_hz: u32, slew_ma_per_tick: f64, scale: T::Scale) -> Self {
